@@ -1,0 +1,49 @@
+"""hfcore: a small, fast restricted Hartree-Fock program in Python.
+
+Three lines from a geometry file to an RHF energy::
+
+    import hfcore
+    mol = hfcore.read_xyz("inputs/water.xyz")
+    result = hfcore.run_rhf(mol, hfcore.build_basis(mol, "sto-3g"))
+
+Everything is in atomic units (bohr, hartree) except where a name says
+otherwise. Results are Hartree-Fock approximations without electron
+correlation.
+"""
+
+from __future__ import annotations
+
+from .basis import BasisSet, Shell, build_basis, get_family
+from .errors import BasisError, ConvergenceError, HfcoreError, InputError, ResourceError
+from .geometry import Molecule, parse_xyz, read_xyz
+
+__version__ = "0.1.0"
+
+
+def __getattr__(name: str):
+    # The SCF layer is imported lazily so that reading geometries and basis
+    # sets stays cheap.
+    if name in {"run_rhf", "SCFOptions", "RHFResult"}:
+        from . import scf
+
+        return getattr(scf, name)
+    raise AttributeError(f"module 'hfcore' has no attribute {name!r}")
+
+
+__all__ = [
+    "Molecule",
+    "read_xyz",
+    "parse_xyz",
+    "BasisSet",
+    "Shell",
+    "build_basis",
+    "get_family",
+    "run_rhf",
+    "SCFOptions",
+    "RHFResult",
+    "HfcoreError",
+    "InputError",
+    "BasisError",
+    "ConvergenceError",
+    "ResourceError",
+]

@@ -1,0 +1,358 @@
+"""Shell records and the conventions every basis family shares.
+
+Conventions (documented once, used everywhere)
+----------------------------------------------
+Ordering of basis functions
+    atom (in geometry order), then shell (in the order the basis lists them
+    for that element), then contraction (for generally contracted shells),
+    then component.
+
+Cartesian components
+    For angular momentum l, the monomials x^a y^b z^c with a+b+c = l in
+    lexicographic order of decreasing a, then decreasing b:
+    p: x, y, z;  d: xx, xy, xz, yy, yz, zz;  f: xxx, xxy, xxz, xyy, xyz,
+    xzz, yyy, yyz, yzz, zzz; and so on (see :func:`cartesian_components`).
+    Every Cartesian basis function hfcore exposes is normalised to one on
+    its own (so d_xx and d_xy are both unit functions).
+
+Real spherical components
+    For l >= 2 the real solid harmonics ordered m = -l, ..., 0, ..., +l
+    (negative m are the sine-like functions, e.g. d: xy, yz, z², xz, x²-y²).
+    For l = 1 the order is x, y, z (the solid harmonics of l = 1 are the
+    Cartesian p functions). s is the same in both forms. Each spherical
+    function is normalised to one.
+
+Radial normalisation
+    ``Shell.coefficients`` multiply *normalised* primitives, as basis-set
+    tables publish them. :attr:`Shell.norm_coefficients` folds in the
+    primitive normalisation of the x^l component and renormalises each
+    contraction, so that the contracted x^l Cartesian function (and every
+    spherical component) has unit norm. The remaining per-component factor
+    for other Cartesian monomials is :func:`cartesian_component_norms`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+
+from ..errors import BasisError
+
+#: Highest angular momentum the integral layer supports (g functions).
+MAX_L: int = 4
+
+L_LETTERS = "spdfghi"
+
+
+def n_cartesian(l: int) -> int:
+    """Number of Cartesian components of angular momentum ``l``."""
+    return (l + 1) * (l + 2) // 2
+
+
+def n_spherical(l: int) -> int:
+    """Number of real spherical components of angular momentum ``l``."""
+    return 2 * l + 1
+
+
+@lru_cache(maxsize=None)
+def cartesian_components(l: int) -> tuple[tuple[int, int, int], ...]:
+    """Exponent triples (a, b, c) of x^a y^b z^c for angular momentum ``l``.
+
+    Returns
+    -------
+    tuple of (int, int, int)
+        In hfcore's Cartesian order (decreasing a, then decreasing b).
+    """
+    out = []
+    for a in range(l, -1, -1):
+        for b in range(l - a, -1, -1):
+            out.append((a, b, l - a - b))
+    return tuple(out)
+
+
+def _double_factorial(n: int) -> int:
+    """(n)!! with (-1)!! = 0!! = 1."""
+    return math.prod(range(n, 0, -2)) if n > 0 else 1
+
+
+@lru_cache(maxsize=None)
+def _cartesian_component_norms(l: int) -> tuple[float, ...]:
+    dl = _double_factorial(2 * l - 1)
+    return tuple(
+        math.sqrt(dl / (_double_factorial(2 * a - 1) * _double_factorial(2 * b - 1) * _double_factorial(2 * c - 1)))
+        for a, b, c in cartesian_components(l)
+    )
+
+
+def cartesian_component_norms(l: int) -> np.ndarray:
+    """Factor turning each x^l-normalised Cartesian component into a unit function.
+
+    Returns
+    -------
+    ndarray, shape (n_cartesian(l),)
+        sqrt((2l-1)!! / ((2a-1)!! (2b-1)!! (2c-1)!!)) per component.
+    """
+    return np.array(_cartesian_component_norms(l))
+
+
+def primitive_norms(l: int, exponents: np.ndarray) -> np.ndarray:
+    """Normalisation constants of primitive x^l exp(-a r²) Gaussians.
+
+    Parameters
+    ----------
+    l : int
+        Angular momentum.
+    exponents : ndarray, shape (nprim,)
+        Gaussian exponents a in bohr⁻².
+
+    Returns
+    -------
+    ndarray, shape (nprim,)
+        N with N² ∫ x^{2l} exp(-2 a r²) d³r = 1.
+    """
+    a = np.asarray(exponents, dtype=np.float64)
+    return (2.0 * a / np.pi) ** 0.75 * (4.0 * a) ** (l / 2.0) / math.sqrt(_double_factorial(2 * l - 1))
+
+
+def contraction_norm_coefficients(l: int, exponents: np.ndarray, coefficients: np.ndarray) -> np.ndarray:
+    """Coefficients of unnormalised primitives giving unit contracted functions.
+
+    Parameters
+    ----------
+    l : int
+        Angular momentum.
+    exponents : ndarray, shape (nprim,)
+    coefficients : ndarray, shape (ncontr, nprim)
+        Contraction coefficients of normalised primitives.
+
+    Returns
+    -------
+    ndarray, shape (ncontr, nprim)
+        c'_k such that sum_k c'_k x^l exp(-a_k r²) has unit norm.
+    """
+    a = np.asarray(exponents, dtype=np.float64)
+    c = np.atleast_2d(np.asarray(coefficients, dtype=np.float64)) * primitive_norms(l, a)
+    # Overlap of unnormalised x^l primitives: (2l-1)!! / (2(a+b))^l * (pi/(a+b))^{3/2}
+    p = a[:, None] + a[None, :]
+    s = _double_factorial(2 * l - 1) / (2.0 * p) ** l * (np.pi / p) ** 1.5
+    norms = np.einsum("ck,kj,cj->c", c, s, c)
+    return c / np.sqrt(norms)[:, None]
+
+
+@dataclass(frozen=True)
+class ElementShell:
+    """A shell as a basis set defines it for an element, before placement.
+
+    Attributes
+    ----------
+    l : int
+        Angular momentum (0 = s, 1 = p, ...).
+    exponents : ndarray, shape (nprim,)
+        Primitive exponents in bohr⁻², all positive.
+    coefficients : ndarray, shape (ncontr, nprim)
+        Contraction coefficients of normalised primitives; ncontr > 1 for a
+        generally contracted shell (several functions sharing exponents).
+    label : str
+        Optional human label (e.g. ``"2sp"`` for a fitted Slater shell).
+    """
+
+    l: int
+    exponents: np.ndarray
+    coefficients: np.ndarray
+    label: str = ""
+
+    def __post_init__(self) -> None:
+        e = np.ascontiguousarray(self.exponents, dtype=np.float64).reshape(-1)
+        c = np.ascontiguousarray(np.atleast_2d(np.asarray(self.coefficients, dtype=np.float64)))
+        if c.shape[1] != e.shape[0]:
+            raise BasisError(f"shell {self.label or L_LETTERS[self.l]}: {e.shape[0]} exponents but {c.shape[1]} coefficients")
+        if not 0 <= self.l <= MAX_L:
+            raise BasisError(f"angular momentum l = {self.l} is not supported (s..g, l <= {MAX_L})")
+        if np.any(~np.isfinite(e)) or np.any(e <= 0):
+            raise BasisError("Gaussian exponents must be positive finite numbers")
+        e.setflags(write=False)
+        c.setflags(write=False)
+        object.__setattr__(self, "exponents", e)
+        object.__setattr__(self, "coefficients", c)
+
+    @property
+    def n_contractions(self) -> int:
+        return int(self.coefficients.shape[0])
+
+    @property
+    def n_primitives(self) -> int:
+        return int(self.exponents.shape[0])
+
+
+@dataclass(frozen=True)
+class Shell:
+    """A contracted Gaussian shell placed on an atom.
+
+    Attributes
+    ----------
+    l : int
+        Angular momentum.
+    exponents : ndarray, shape (nprim,)
+        Exponents in bohr⁻².
+    coefficients : ndarray, shape (ncontr, nprim)
+        Contraction coefficients of normalised primitives (as published).
+    center : ndarray, shape (3,)
+        Position in bohr.
+    atom : int
+        Index of the atom the shell sits on.
+    label : str
+        Optional human label.
+    """
+
+    l: int
+    exponents: np.ndarray
+    coefficients: np.ndarray
+    center: np.ndarray
+    atom: int
+    label: str = ""
+
+    def __post_init__(self) -> None:
+        template = ElementShell(self.l, self.exponents, self.coefficients, self.label)
+        r = np.ascontiguousarray(self.center, dtype=np.float64).reshape(3)
+        r.setflags(write=False)
+        object.__setattr__(self, "exponents", template.exponents)
+        object.__setattr__(self, "coefficients", template.coefficients)
+        object.__setattr__(self, "center", r)
+        norm = contraction_norm_coefficients(self.l, template.exponents, template.coefficients)
+        norm.setflags(write=False)
+        object.__setattr__(self, "_norm", norm)
+
+    @property
+    def norm_coefficients(self) -> np.ndarray:
+        """Coefficients of unnormalised primitives, shape (ncontr, nprim).
+
+        With these, each contracted x^l Cartesian function (and each real
+        spherical component) has unit norm.
+        """
+        return self._norm  # type: ignore[attr-defined]
+
+    @property
+    def n_contractions(self) -> int:
+        return int(self.coefficients.shape[0])
+
+    @property
+    def n_primitives(self) -> int:
+        return int(self.exponents.shape[0])
+
+    def n_functions(self, spherical: bool) -> int:
+        """Number of basis functions: contractions × components."""
+        return self.n_contractions * (n_spherical(self.l) if spherical else n_cartesian(self.l))
+
+
+_SPH_LABELS = {
+    0: ("",),
+    1: ("x", "y", "z"),
+    2: ("xy", "yz", "z2", "xz", "x2-y2"),
+}
+
+
+def component_labels(l: int, spherical: bool) -> tuple[str, ...]:
+    """Human labels of the components of a shell, in hfcore's order."""
+    if l == 0:
+        return ("",)
+    if not spherical or l == 1:
+        return tuple("x" * a + "y" * b + "z" * c for a, b, c in cartesian_components(l))
+    if l in _SPH_LABELS:
+        return _SPH_LABELS[l]
+    return tuple(f"{m:+d}" for m in range(-l, l + 1))
+
+
+@dataclass(frozen=True)
+class BasisSet:
+    """Basis functions placed on a molecule.
+
+    Attributes
+    ----------
+    name : str
+        The basis name as the user gave it (or a composite description).
+    shells : tuple of Shell
+        In hfcore's function order (atom, shell, contraction, component).
+    spherical : bool
+        True for real spherical components, False for Cartesian.
+    """
+
+    name: str
+    shells: tuple[Shell, ...]
+    spherical: bool
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "shells", tuple(self.shells))
+        sizes = [s.n_functions(self.spherical) for s in self.shells]
+        offsets = np.concatenate([[0], np.cumsum(sizes, dtype=np.int64)]).astype(np.int64)
+        offsets.setflags(write=False)
+        object.__setattr__(self, "_offsets", offsets)
+
+    @property
+    def n_functions(self) -> int:
+        """Number of basis functions (nbf)."""
+        return int(self._offsets[-1])  # type: ignore[attr-defined]
+
+    @property
+    def n_shells(self) -> int:
+        return len(self.shells)
+
+    @property
+    def shell_offsets(self) -> np.ndarray:
+        """Index of the first function of each shell, shape (nshell + 1,); the last entry is nbf."""
+        return self._offsets  # type: ignore[attr-defined]
+
+    @property
+    def max_l(self) -> int:
+        return max((s.l for s in self.shells), default=0)
+
+    def function_atoms(self) -> np.ndarray:
+        """Atom index of every basis function, shape (nbf,)."""
+        out = np.empty(self.n_functions, dtype=np.int64)
+        for s, start, stop in zip(self.shells, self._offsets[:-1], self._offsets[1:]):  # type: ignore[attr-defined]
+            out[start:stop] = s.atom
+        return out
+
+    def function_l(self) -> np.ndarray:
+        """Angular momentum of every basis function, shape (nbf,)."""
+        out = np.empty(self.n_functions, dtype=np.int64)
+        for s, start, stop in zip(self.shells, self._offsets[:-1], self._offsets[1:]):  # type: ignore[attr-defined]
+            out[start:stop] = s.l
+        return out
+
+    def function_labels(self, symbols: list[str] | None = None) -> list[str]:
+        """Labels such as ``"0 O 2px"`` for every function, in order.
+
+        Parameters
+        ----------
+        symbols : list of str, optional
+            Element symbol per atom; atom indices alone if omitted.
+        """
+        labels: list[str] = []
+        count: dict[tuple[int, int], int] = {}
+        for s in self.shells:
+            comps = component_labels(s.l, self.spherical)
+            for _ in range(s.n_contractions):
+                key = (s.atom, s.l)
+                count[key] = count.get(key, 0) + 1
+                n = count[key] + s.l
+                who = f"{s.atom} {symbols[s.atom]}" if symbols else f"{s.atom}"
+                labels.extend(f"{who} {n}{L_LETTERS[s.l]}{c}" for c in comps)
+        return labels
+
+
+__all__ = [
+    "MAX_L",
+    "ElementShell",
+    "Shell",
+    "BasisSet",
+    "n_cartesian",
+    "n_spherical",
+    "cartesian_components",
+    "cartesian_component_norms",
+    "primitive_norms",
+    "contraction_norm_coefficients",
+    "component_labels",
+]

@@ -1,0 +1,62 @@
+"""The exception hierarchy of hfcore.
+
+The API raises these; the command line turns each into a one-line message
+and the exit code carried by its class (documented in the README).
+"""
+
+from __future__ import annotations
+
+
+class HfcoreError(Exception):
+    """Base class of every error hfcore raises on purpose.
+
+    Attributes
+    ----------
+    exit_code : int
+        The process exit code the command line uses for this error.
+    """
+
+    exit_code: int = 1
+
+
+class InputError(HfcoreError):
+    """Bad user input: a geometry file, a flag value, an option combination.
+
+    The message names the file and line where one applies, in the form
+    ``path:line: what is wrong``.
+    """
+
+    exit_code = 2
+
+
+class BasisError(InputError):
+    """A basis set that cannot be used: unknown name, element not covered,
+    malformed basis file, unsupported angular momentum."""
+
+    exit_code = 3
+
+
+class ConvergenceError(HfcoreError):
+    """The SCF did not converge within the allowed iterations.
+
+    Attributes
+    ----------
+    result : object or None
+        The last (unconverged) result record, so a caller can inspect the
+        history. ``None`` if none was produced.
+    """
+
+    exit_code = 4
+
+    def __init__(self, message: str, result: object | None = None) -> None:
+        super().__init__(message)
+        self.result = result
+
+
+class ResourceError(HfcoreError):
+    """A run would need more memory (or another resource) than allowed."""
+
+    exit_code = 5
+
+
+__all__ = ["HfcoreError", "InputError", "BasisError", "ConvergenceError", "ResourceError"]

@@ -1,0 +1,280 @@
+"""Reading molecular geometries and the quantities that depend on them alone.
+
+Input validation happens here, once: every later stage may assume a
+``Molecule`` is well formed (finite coordinates, known elements, no two
+nuclei on top of each other).
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import constants
+
+from . import elements
+from .errors import InputError
+
+#: One bohr in ångström (CODATA value shipped with scipy).
+BOHR_IN_ANGSTROM: float = constants.physical_constants["Bohr radius"][0] / constants.angstrom
+#: One ångström in bohr.
+ANGSTROM_IN_BOHR: float = 1.0 / BOHR_IN_ANGSTROM
+
+#: Two nuclei closer than this (in ångström) are taken as a typing error.
+MIN_DISTANCE_ANGSTROM: float = 0.1
+
+_UNITS = {"angstrom": ANGSTROM_IN_BOHR, "bohr": 1.0}
+
+
+@dataclass(frozen=True)
+class Molecule:
+    """A molecule: nuclei, positions and total charge.
+
+    Attributes
+    ----------
+    atomic_numbers : ndarray of int, shape (natom,)
+        Nuclear charges Z.
+    coordinates : ndarray of float64, shape (natom, 3)
+        Nuclear positions in bohr.
+    charge : int
+        Total molecular charge (electrons = sum(Z) - charge).
+    source : str
+        Where the geometry came from (file path), for messages.
+    comment : str
+        The comment line of the XYZ file.
+    """
+
+    atomic_numbers: np.ndarray
+    coordinates: np.ndarray
+    charge: int = 0
+    source: str = "<memory>"
+    comment: str = ""
+    _line_numbers: tuple[int, ...] = field(default=(), repr=False, compare=False)
+
+    def __post_init__(self) -> None:
+        z = np.ascontiguousarray(self.atomic_numbers, dtype=np.int64).reshape(-1)
+        xyz = np.ascontiguousarray(self.coordinates, dtype=np.float64).reshape(-1, 3)
+        if z.shape[0] != xyz.shape[0]:
+            raise InputError(f"{self.source}: {z.shape[0]} atomic numbers but {xyz.shape[0]} positions")
+        z.setflags(write=False)
+        xyz.setflags(write=False)
+        object.__setattr__(self, "atomic_numbers", z)
+        object.__setattr__(self, "coordinates", xyz)
+        object.__setattr__(self, "charge", int(self.charge))
+
+    @property
+    def natom(self) -> int:
+        """Number of atoms."""
+        return int(self.atomic_numbers.shape[0])
+
+    @property
+    def symbols(self) -> list[str]:
+        """Element symbols, one per atom."""
+        return [elements.symbol(int(z)) for z in self.atomic_numbers]
+
+    @property
+    def n_electrons(self) -> int:
+        """Number of electrons, sum(Z) - charge."""
+        return int(self.atomic_numbers.sum()) - self.charge
+
+    def line_of(self, atom: int) -> int | None:
+        """The line of the source file that defined atom ``atom`` (1-based), if known."""
+        if atom < len(self._line_numbers):
+            return self._line_numbers[atom]
+        return None
+
+    def nuclear_repulsion(self) -> float:
+        """Nuclear repulsion energy sum_{A<B} Z_A Z_B / R_AB in hartree."""
+        return nuclear_repulsion(self.atomic_numbers, self.coordinates)
+
+    def coordinates_angstrom(self) -> np.ndarray:
+        """Nuclear positions in ångström, shape (natom, 3)."""
+        return self.coordinates * BOHR_IN_ANGSTROM
+
+    def with_charge(self, charge: int) -> "Molecule":
+        """A copy with another total charge."""
+        return Molecule(self.atomic_numbers, self.coordinates, charge, self.source, self.comment, self._line_numbers)
+
+    def require_closed_shell(self) -> None:
+        """Raise ``InputError`` unless the electron count is even and positive.
+
+        RHF describes closed shells only; the message suggests the nearest
+        charges that would give one.
+        """
+        n = self.n_electrons
+        if n <= 0:
+            raise InputError(f"{self.source}: charge {self.charge} leaves {n} electrons; nothing to compute")
+        if n % 2:
+            raise InputError(
+                f"{self.source}: {n} electrons with charge {self.charge:+d}; RHF needs an even number "
+                f"(a closed shell): try --charge {self.charge + 1} or --charge {self.charge - 1}"
+            )
+
+
+def nuclear_repulsion(atomic_numbers: np.ndarray, coordinates: np.ndarray) -> float:
+    """Nuclear repulsion energy in hartree.
+
+    Parameters
+    ----------
+    atomic_numbers : ndarray, shape (natom,)
+        Nuclear charges.
+    coordinates : ndarray, shape (natom, 3)
+        Positions in bohr.
+
+    Returns
+    -------
+    float
+        sum over pairs A < B of Z_A Z_B / |R_A - R_B|.
+    """
+    z = np.asarray(atomic_numbers, dtype=np.float64)
+    r = np.asarray(coordinates, dtype=np.float64)
+    if z.size < 2:
+        return 0.0
+    i, j = np.triu_indices(z.size, k=1)
+    d = np.linalg.norm(r[i] - r[j], axis=1)
+    return float(np.sum(z[i] * z[j] / d))
+
+
+def _parse_float(text: str) -> float:
+    value = float(text.replace("D", "E").replace("d", "e"))
+    if not math.isfinite(value):
+        raise ValueError(text)
+    return value
+
+
+def parse_xyz(text: str, source: str = "<string>", units: str = "angstrom", charge: int = 0) -> Molecule:
+    """Parse the text of an XYZ file.
+
+    Format: line 1 holds the number of atoms, line 2 a free comment, then one
+    line per atom ``symbol x y z`` (symbol in any case, or an atomic number).
+    Extra columns after z are ignored; blank lines after the last atom are
+    allowed.
+
+    Parameters
+    ----------
+    text : str
+        The file contents.
+    source : str
+        Name used in error messages (normally the file path).
+    units : {"angstrom", "bohr"}
+        Units of the coordinates in the text.
+    charge : int
+        Total molecular charge.
+
+    Returns
+    -------
+    Molecule
+        With coordinates converted to bohr.
+
+    Raises
+    ------
+    InputError
+        With a message ``source:line: problem`` for any malformed content.
+    """
+    unit = units.lower()
+    if unit not in _UNITS:
+        raise InputError(f"unknown length unit {units!r}: use 'angstrom' or 'bohr'")
+    scale = _UNITS[unit]
+    lines = text.splitlines()
+    if not lines or not any(line.strip() for line in lines):
+        raise InputError(f"{source}:1: the file is empty; expected an atom count on line 1")
+    head = lines[0].strip()
+    try:
+        natom = int(head)
+    except ValueError:
+        raise InputError(f"{source}:1: expected the number of atoms, found {head[:40]!r}") from None
+    if natom <= 0:
+        raise InputError(f"{source}:1: the atom count must be positive, found {natom}")
+    comment = lines[1].strip() if len(lines) > 1 else ""
+    body = lines[2:]
+    atom_lines = [(k + 3, line) for k, line in enumerate(body) if line.strip()]
+    # Blank lines are only allowed after the atoms.
+    if len(atom_lines) != natom:
+        last = len(lines)
+        raise InputError(
+            f"{source}:1: the count line says {natom} atoms but {len(atom_lines)} atom lines follow (file ends at line {last})"
+        )
+    expected_last = atom_lines[-1][0]
+    if expected_last != natom + 2:
+        first_gap = next(n for n in range(3, expected_last + 1) if not lines[n - 1].strip())
+        raise InputError(f"{source}:{first_gap}: blank line among the atom lines")
+    zs: list[int] = []
+    xyz: list[tuple[float, float, float]] = []
+    line_numbers: list[int] = []
+    for number, line in atom_lines:
+        fields = line.split()
+        if len(fields) < 4:
+            raise InputError(f"{source}:{number}: expected 'symbol x y z', found {line.strip()[:60]!r}")
+        try:
+            z = elements.atomic_number(fields[0])
+        except KeyError:
+            raise InputError(f"{source}:{number}: unknown element {fields[0]!r}") from None
+        coords = []
+        for axis, token in zip("xyz", fields[1:4]):
+            try:
+                coords.append(_parse_float(token) * scale)
+            except ValueError:
+                raise InputError(f"{source}:{number}: the {axis} coordinate {token!r} is not a finite number") from None
+        zs.append(z)
+        xyz.append((coords[0], coords[1], coords[2]))
+        line_numbers.append(number)
+    r = np.array(xyz, dtype=np.float64)
+    if natom > 1:
+        i, j = np.triu_indices(natom, k=1)
+        d = np.linalg.norm(r[i] - r[j], axis=1) * BOHR_IN_ANGSTROM
+        k = int(np.argmin(d))
+        if d[k] < MIN_DISTANCE_ANGSTROM:
+            a, b = int(i[k]), int(j[k])
+            raise InputError(
+                f"{source}:{line_numbers[b]}: atom {b + 1} is {d[k]:.3g} Å from atom {a + 1} "
+                f"(line {line_numbers[a]}); atoms closer than {MIN_DISTANCE_ANGSTROM} Å are not allowed"
+            )
+    return Molecule(np.array(zs), r, charge, source, comment, tuple(line_numbers))
+
+
+def read_xyz(path: str | os.PathLike, units: str = "angstrom", charge: int = 0) -> Molecule:
+    """Read a molecule from an XYZ file.
+
+    Parameters
+    ----------
+    path : str or path-like
+        The file to read.
+    units : {"angstrom", "bohr"}
+        Units of the coordinates in the file (default ångström).
+    charge : int
+        Total molecular charge.
+
+    Returns
+    -------
+    Molecule
+
+    Raises
+    ------
+    InputError
+        If the file is missing, unreadable or malformed.
+    """
+    source = os.fspath(path)
+    try:
+        with open(source, encoding="utf-8") as handle:
+            text = handle.read()
+    except FileNotFoundError:
+        raise InputError(f"{source}: no such file") from None
+    except IsADirectoryError:
+        raise InputError(f"{source}: is a directory, not a geometry file") from None
+    except UnicodeDecodeError:
+        raise InputError(f"{source}: not a text file (cannot decode as UTF-8)") from None
+    except OSError as exc:
+        raise InputError(f"{source}: cannot read ({exc.strerror})") from None
+    return parse_xyz(text, source=source, units=units, charge=charge)
+
+
+__all__ = [
+    "Molecule",
+    "read_xyz",
+    "parse_xyz",
+    "nuclear_repulsion",
+    "BOHR_IN_ANGSTROM",
+    "ANGSTROM_IN_BOHR",
+]
