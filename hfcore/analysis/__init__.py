@@ -7,11 +7,40 @@ Everything here except :func:`compare_bases` works on a finished
 
 from __future__ import annotations
 
+from .compare import (
+    KCAL_MOL_PER_HARTREE,
+    BasisComparison,
+    BasisLimitEstimate,
+    ComparisonRow,
+    basis_limit_estimates,
+    compare_bases,
+    project_density,
+)
 from .extrapolation import cardinal_number, correlation_consistent, feller_three_point, karton_martin_two_point
+from .mp2 import MP2Result, core_orbital_count, mp2_energy
+from .multipoles import DEBYE_PER_AU, dipole_moment, nuclear_charge_centre
+from .populations import lowdin_charges, lowdin_populations, mulliken_charges, mulliken_populations
 
 __all__ = [
+    "mulliken_populations",
+    "mulliken_charges",
+    "lowdin_populations",
+    "lowdin_charges",
+    "DEBYE_PER_AU",
+    "dipole_moment",
+    "nuclear_charge_centre",
+    "MP2Result",
+    "mp2_energy",
+    "core_orbital_count",
     "cardinal_number",
     "correlation_consistent",
-    "feller_three_point",
     "karton_martin_two_point",
+    "feller_three_point",
+    "KCAL_MOL_PER_HARTREE",
+    "ComparisonRow",
+    "BasisLimitEstimate",
+    "BasisComparison",
+    "compare_bases",
+    "project_density",
+    "basis_limit_estimates",
 ]

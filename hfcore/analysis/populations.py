@@ -1,0 +1,104 @@
+"""Population analyses of an RHF density: Mulliken and Löwdin.
+
+Both split the electron count N = tr(D S) over basis functions and then over
+the atoms the functions sit on. They depend on the basis and are a
+bookkeeping device, not an observable.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import scipy.linalg
+
+from ..errors import InputError
+
+
+def _density_and_overlap(result) -> tuple[np.ndarray, np.ndarray]:
+    density = np.asarray(result.density, dtype=np.float64)
+    overlap = np.asarray(result.overlap, dtype=np.float64)
+    nbf = result.basis.n_functions
+    if density.shape != (nbf, nbf) or overlap.shape != (nbf, nbf):
+        raise InputError(
+            f"density {density.shape} and overlap {overlap.shape} do not match the basis ({nbf} functions)"
+        )
+    return density, overlap
+
+
+def _atom_charges(result, populations: np.ndarray) -> np.ndarray:
+    """Nuclear charge minus the electron population gathered on each atom."""
+    atoms = result.basis.function_atoms()
+    natom = result.molecule.natom
+    electrons = np.bincount(atoms, weights=populations, minlength=natom)
+    return np.asarray(result.molecule.atomic_numbers, dtype=np.float64) - electrons
+
+
+def mulliken_populations(result) -> np.ndarray:
+    """Mulliken gross population of every basis function.
+
+    Parameters
+    ----------
+    result : RHFResult
+        A finished RHF run (uses ``density``, the total density, and ``overlap``).
+
+    Returns
+    -------
+    ndarray, shape (nbf,)
+        (D S)_μμ in electrons; the entries sum to the electron count.
+    """
+    density, overlap = _density_and_overlap(result)
+    # diag(D S) without forming the product.
+    return np.einsum("ij,ji->i", density, overlap)
+
+
+def mulliken_charges(result) -> np.ndarray:
+    """Mulliken partial charge of every atom.
+
+    Parameters
+    ----------
+    result : RHFResult
+
+    Returns
+    -------
+    ndarray, shape (natom,)
+        Z_A minus the Mulliken population of A's functions, in units of e;
+        the entries sum to the molecular charge.
+    """
+    return _atom_charges(result, mulliken_populations(result))
+
+
+def lowdin_populations(result) -> np.ndarray:
+    """Löwdin population of every basis function.
+
+    Parameters
+    ----------
+    result : RHFResult
+
+    Returns
+    -------
+    ndarray, shape (nbf,)
+        (S^½ D S^½)_μμ in electrons, the populations in the symmetrically
+        orthogonalised basis.
+    """
+    density, overlap = _density_and_overlap(result)
+    # S is symmetric positive definite: its square root via eigenvectors stays real and symmetric.
+    w, v = scipy.linalg.eigh(overlap)
+    root = (v * np.sqrt(np.clip(w, 0.0, None))) @ v.T
+    return np.einsum("ij,jk,ki->i", root, density, root)
+
+
+def lowdin_charges(result) -> np.ndarray:
+    """Löwdin partial charge of every atom.
+
+    Parameters
+    ----------
+    result : RHFResult
+
+    Returns
+    -------
+    ndarray, shape (natom,)
+        Z_A minus the Löwdin population of A's functions, in units of e.
+    """
+    return _atom_charges(result, lowdin_populations(result))
+
+
+__all__ = ["mulliken_populations", "mulliken_charges", "lowdin_populations", "lowdin_charges"]
