@@ -1,0 +1,433 @@
+"""The ``hfcore`` command line: a thin layer over the public Python API.
+
+Subcommands: ``energy`` (one RHF run with a human report, JSON and .npz
+exports), ``fit-sto`` (a least-squares Gaussian fit to a Slater function),
+``compare`` (one molecule in several basis sets) and ``bases`` (the sets on
+offer). Errors hfcore raises on purpose become one line on stderr and the
+exit code of their class; see the README for the table.
+"""
+
+from __future__ import annotations
+
+import argparse
+import contextlib
+import sys
+import time
+from collections.abc import Callable, Sequence
+from typing import Any, TextIO
+
+from . import __version__, elements, export, report
+from .errors import HfcoreError, InputError
+
+#: Exit code after Ctrl-C (128 + SIGINT), the shell convention.
+EXIT_INTERRUPTED: int = 130
+
+
+# ----------------------------------------------------------------------------
+# argument parsing
+# ----------------------------------------------------------------------------
+
+
+def _positive_int(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, found {text!r}") from None
+    if value <= 0:
+        raise argparse.ArgumentTypeError(f"must be positive, found {value}")
+    return value
+
+
+def _positive_float(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number, found {text!r}") from None
+    if not value > 0 or value == float("inf"):
+        raise argparse.ArgumentTypeError(f"must be a positive finite number, found {text}")
+    return value
+
+
+def _charge(text: str) -> int:
+    try:
+        return int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"the charge must be a whole number, found {text!r}") from None
+
+
+def _add_geometry_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("geometry", metavar="GEOMETRY", help="XYZ file (atom count, comment, then 'symbol x y z' lines)")
+    parser.add_argument(
+        "--units", choices=("angstrom", "bohr"), default="angstrom", help="units of the XYZ coordinates (default angstrom)"
+    )
+    parser.add_argument(
+        "--charge", type=_charge, default=0, help="total molecular charge (default 0; never read from the file)"
+    )
+    form = parser.add_mutually_exclusive_group()
+    form.add_argument("--cartesian", dest="spherical", action="store_false", default=None, help="Cartesian d, f, ... functions")
+    form.add_argument("--spherical", dest="spherical", action="store_true", help="real spherical d, f, ... functions")
+
+
+def _add_scf_arguments(parser: argparse.ArgumentParser) -> None:
+    group = parser.add_argument_group("SCF convergence (defaults: see hfcore.scf.SCFOptions)")
+    group.add_argument("--energy-tol", type=_positive_float, metavar="X", help="energy change threshold in Eh (1e-10)")
+    group.add_argument(
+        "--gradient-tol", type=_positive_float, metavar="X", help="largest orbital-gradient element threshold (1e-7)"
+    )
+    group.add_argument("--max-iterations", type=_positive_int, metavar="N", help="iteration limit (100)")
+    group.add_argument("--diis-space", type=_positive_int, metavar="N", help="DIIS subspace size (8)")
+    group.add_argument(
+        "--lindep-threshold",
+        type=_positive_float,
+        metavar="X",
+        help="drop overlap eigenvectors with eigenvalue below X (1e-7)",
+    )
+
+
+def _add_json_argument(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument(
+        "--json",
+        metavar="PATH",
+        help="write the results as JSON to PATH; '-' writes JSON to stdout and nothing else goes there",
+    )
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser of the ``hfcore`` command."""
+    parser = argparse.ArgumentParser(
+        prog="hfcore",
+        description="Restricted Hartree-Fock energies of small closed-shell molecules.",
+        epilog="Exit codes: 0 success, 2 bad input, 3 basis problem, 4 SCF not converged, "
+        "5 not enough memory, 130 interrupted.",
+    )
+    parser.add_argument("--version", action="version", version=f"hfcore {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
+
+    energy = sub.add_parser("energy", help="RHF energy, orbitals and populations of one molecule")
+    _add_geometry_arguments(energy)
+    energy.add_argument("--basis", default="sto-3g", help="basis set name (default sto-3g; see 'hfcore bases')")
+    energy.add_argument("--basis-file", metavar="FILE.json", help="basis set file in hfcore's JSON format (replaces --basis)")
+    energy.add_argument(
+        "--basis-for",
+        action="append",
+        default=[],
+        metavar="EL=NAME",
+        help="another basis for one element, e.g. H=cc-pvdz (repeat for several elements)",
+    )
+    energy.add_argument(
+        "--zeta",
+        action="append",
+        default=[],
+        metavar="EL=VALUE",
+        help="Slater exponent of a fitted STO-nG set: He=2.0925 (all shells) or C:2sp=1.80 (one shell); repeatable",
+    )
+    _add_scf_arguments(energy)
+    energy.add_argument("--guess", choices=("sad", "core"), default="sad", help="starting density (default sad)")
+    _add_json_argument(energy)
+    energy.add_argument(
+        "--npz",
+        metavar="PATH",
+        help="save arrays (overlap, core Hamiltonian, orbitals, density, Fock, geometry; the dense ERI "
+        f"tensor too when there are at most {export.ERI_NPZ_MAX_FUNCTIONS} basis functions) as .npz",
+    )
+    energy.add_argument("--quiet", action="store_true", help="no live iteration table; the final report only")
+    energy.set_defaults(handler=_run_energy)
+
+    fit = sub.add_parser("fit-sto", help="least-squares Gaussian expansion of a Slater function")
+    fit.add_argument("--shell", required=True, choices=("1s", "2sp", "3sp"), help="Slater shell to fit")
+    fit.add_argument("--gaussians", required=True, type=_positive_int, metavar="N", help="number of Gaussians (1-6)")
+    fit.add_argument("--zeta", type=_positive_float, default=1.0, metavar="Z", help="Slater exponent (default 1)")
+    _add_json_argument(fit)
+    fit.add_argument("--plot", metavar="PNG", help="plot the Slater function, the fit and their difference")
+    fit.set_defaults(handler=_run_fit_sto)
+
+    compare = sub.add_parser("compare", help="one molecule in several basis sets, with basis-limit estimates")
+    _add_geometry_arguments(compare)
+    compare.add_argument(
+        "--basis", required=True, metavar="NAMES", help="comma-separated basis names, e.g. sto-3g,6-31g*,cc-pvdz"
+    )
+    _add_json_argument(compare)
+    compare.add_argument("--plot", metavar="PNG", help="plot energy against the number of basis functions")
+    compare.set_defaults(handler=_run_compare)
+
+    bases = sub.add_parser("bases", help="list the basis sets on offer")
+    bases.set_defaults(handler=_run_bases)
+    return parser
+
+
+# ----------------------------------------------------------------------------
+# shared steps
+# ----------------------------------------------------------------------------
+
+
+class _Console:
+    """Where the report goes: stdout for humans, stderr for progress in JSON mode."""
+
+    def __init__(self, stdout: TextIO, stderr: TextIO, json_to_stdout: bool, quiet: bool) -> None:
+        self.stdout = stdout
+        self.stderr = stderr
+        self.json_to_stdout = json_to_stdout
+        self.quiet = quiet
+
+    def report(self, text: str) -> None:
+        """A section of the human report (suppressed when stdout carries JSON)."""
+        if not self.json_to_stdout:
+            print(text, file=self.stdout, flush=True)
+
+    def live(self, text: str) -> None:
+        """A progress line, shown only in human mode without --quiet."""
+        if not (self.json_to_stdout or self.quiet):
+            print(text, file=self.stdout, flush=True)
+
+    def data(self, text: str) -> None:
+        """The JSON document on stdout."""
+        self.stdout.write(text)
+        self.stdout.flush()
+
+
+def _output_paths(args: argparse.Namespace, *names: str) -> dict[str, str]:
+    # Checked before any computation so a typo in a path costs no SCF time.
+    paths: dict[str, str] = {}
+    for name in names:
+        value = getattr(args, name, None)
+        if value is None or (name == "json" and value == "-"):
+            continue
+        path = export.check_output_path(value)
+        if path in paths.values():
+            raise InputError(f"{path}: given for two outputs; use different files")
+        paths[name] = path
+    return paths
+
+
+def _read_molecule(args: argparse.Namespace) -> Any:
+    from .geometry import read_xyz
+
+    molecule = read_xyz(args.geometry, units=args.units, charge=args.charge)
+    molecule.require_closed_shell()
+    return molecule
+
+
+def parse_basis_for(items: Sequence[str]) -> dict[str, str]:
+    """Per-element basis choices from ``EL=NAME`` strings.
+
+    Parameters
+    ----------
+    items : sequence of str
+        E.g. ``["H=cc-pvdz", "O=aug-cc-pvdz"]``.
+
+    Returns
+    -------
+    dict of str to str
+        Element symbol (canonical case) -> basis name.
+
+    Raises
+    ------
+    InputError
+        Naming the bad item: no ``=``, an empty name, an unknown element, or
+        an element given twice.
+    """
+    out: dict[str, str] = {}
+    for item in items:
+        key, sep, name = item.partition("=")
+        if not sep or not key.strip() or not name.strip():
+            raise InputError(f"--basis-for {item!r}: expected EL=NAME, e.g. H=cc-pvdz")
+        try:
+            symbol = elements.symbol(elements.atomic_number(key.strip()))
+        except KeyError:
+            raise InputError(f"--basis-for {item!r}: unknown element {key.strip()!r}") from None
+        if symbol in out:
+            raise InputError(f"--basis-for {item!r}: element {symbol} given twice")
+        out[symbol] = name.strip()
+    return out
+
+
+def _build_basis(args: argparse.Namespace, molecule: Any) -> Any:
+    from .basis import build_basis
+    from .basis.sto import parse_zeta_overrides
+
+    zeta = parse_zeta_overrides(args.zeta) if args.zeta else None
+    per_element = parse_basis_for(args.basis_for)
+    main: Any = args.basis
+    if args.basis_file:
+        from .basis.library import load_basis_file
+
+        main = load_basis_file(args.basis_file)
+        if zeta:
+            raise InputError("--zeta applies only to the fitted STO-nG sets, not to a --basis-file")
+    return build_basis(molecule, main, spherical=args.spherical, zeta=zeta, per_element=per_element)
+
+
+def _scf_options(args: argparse.Namespace) -> Any:
+    from .scf import SCFOptions
+
+    names = ("energy_tol", "gradient_tol", "max_iterations", "diis_space", "lindep_threshold")
+    given = {name: getattr(args, name) for name in names if getattr(args, name) is not None}
+    return SCFOptions(**given)
+
+
+def _analysis(result: Any) -> tuple[dict[str, Any], Any, Any]:
+    from .analysis import DEBYE_PER_AU, dipole_moment, mulliken_charges
+
+    charges = mulliken_charges(result)
+    dipole = dipole_moment(result)
+    record = {
+        "mulliken_charges": charges,
+        "dipole_au": dipole,
+        "dipole_debye": dipole * DEBYE_PER_AU,
+        "dipole_magnitude_debye": float((dipole @ dipole) ** 0.5 * DEBYE_PER_AU),
+    }
+    return record, charges, dipole
+
+
+# ----------------------------------------------------------------------------
+# subcommands
+# ----------------------------------------------------------------------------
+
+
+def _run_energy(args: argparse.Namespace, console: _Console) -> int:
+    from .scf import run_rhf
+
+    started = time.perf_counter()
+    paths = _output_paths(args, "json", "npz")
+    molecule = _read_molecule(args)
+    basis = _build_basis(args, molecule)
+    options = _scf_options(args)
+    console.report(f"hfcore {__version__} · restricted Hartree–Fock")
+    console.report(report.format_molecule(molecule))
+    console.report(report.format_basis(basis))
+    console.live(report.history_header())
+    result = run_rhf(molecule, basis, options, guess=args.guess, progress=lambda rec: console.live(report.format_iteration(rec)))
+    analysis, charges, dipole = _analysis(result)
+
+    files: dict[str, bytes] = {}
+    record = export.result_record(result, analysis)
+    if "json" in paths:
+        files[paths["json"]] = export.to_json(record).encode("utf-8")
+    if "npz" in paths:
+        files[paths["npz"]] = export.npz_bytes(export.result_arrays(result))
+    export.write_files_atomically(files)
+
+    if args.json == "-":
+        console.data(export.to_json(record))
+        return 0
+    from .analysis import DEBYE_PER_AU
+
+    console.report(report.format_convergence(result))
+    console.report(report.format_linear_dependence(result.n_dropped, options.lindep_threshold))
+    console.report(report.format_energies(result))
+    console.report(report.format_orbitals(result))
+    console.report(report.format_charges(molecule.symbols, charges))
+    console.report(report.format_dipole(dipole, DEBYE_PER_AU, molecule.charge != 0))
+    console.report(report.format_timings(result.timings, time.perf_counter() - started))
+    for path in files:
+        console.report(f"\n  wrote {path}")
+    return 0
+
+
+def _run_fit_sto(args: argparse.Namespace, console: _Console) -> int:
+    from .basis.sto import fit_sto
+
+    paths = _output_paths(args, "json", "plot")
+    fit = fit_sto(args.shell, args.gaussians, args.zeta)
+    record = {"hfcore": {"version": __version__}, "units": {"exponents": "bohr^-2", "zeta": "bohr^-1"}, "fit": fit.to_dict()}
+    if "json" in paths:
+        export.write_file_atomically(paths["json"], export.to_json(record))
+    if "plot" in paths:
+        from .plots import plot_sto_fit
+
+        plot_sto_fit([fit], paths["plot"])
+    if args.json == "-":
+        console.data(export.to_json(record))
+        return 0
+    console.report(report.format_sto_fit(fit))
+    for path in paths.values():
+        console.report(f"\n  wrote {path}")
+    return 0
+
+
+def _run_compare(args: argparse.Namespace, console: _Console) -> int:
+    from .analysis import compare_bases
+
+    paths = _output_paths(args, "json", "plot")
+    names = [n.strip() for n in args.basis.split(",") if n.strip()]
+    if not names:
+        raise InputError("--basis: give at least one basis name, e.g. sto-3g,cc-pvdz")
+    molecule = _read_molecule(args)
+    console.report(report.format_molecule(molecule))
+    comparison = compare_bases(molecule, names, spherical=args.spherical, progress=_stderr_progress(console))
+    record = {"hfcore": {"version": __version__}, "units": export.UNITS, "comparison": comparison.to_dict()}
+    if "json" in paths:
+        export.write_file_atomically(paths["json"], export.to_json(record))
+    if "plot" in paths:
+        from .plots import plot_comparison
+
+        plot_comparison(comparison, paths["plot"])
+    if args.json == "-":
+        console.data(export.to_json(record))
+        return 0
+    console.report(report.format_comparison(comparison))
+    for path in paths.values():
+        console.report(f"\n  wrote {path}")
+    return 0
+
+
+def _stderr_progress(console: _Console) -> Callable[[str], None] | None:
+    # Several SCF runs take a while; say which one is running, on stderr so
+    # that stdout holds only the report (or the JSON).
+    if console.json_to_stdout:
+        return None
+    return lambda message: print(f"hfcore: {message}", file=console.stderr, flush=True)
+
+
+def _run_bases(args: argparse.Namespace, console: _Console) -> int:
+    from .basis.library import available_basis_sets
+
+    fitted = [f"STO-{n}G" for n in range(1, 7)]
+    console.report(report.format_basis_list(available_basis_sets(), fitted))
+    return 0
+
+
+# ----------------------------------------------------------------------------
+# entry point
+# ----------------------------------------------------------------------------
+
+
+def main(argv: Sequence[str] | None = None, *, stdout: TextIO | None = None, stderr: TextIO | None = None) -> int:
+    """Run the ``hfcore`` command.
+
+    Parameters
+    ----------
+    argv : sequence of str, optional
+        Arguments after the program name (default: ``sys.argv[1:]``).
+    stdout, stderr : text streams, optional
+        Where to write (default: the process streams).
+
+    Returns
+    -------
+    int
+        The exit code: 0 on success, the error class's ``exit_code`` for an
+        :class:`~hfcore.errors.HfcoreError`, 2 for a usage error, 130 after
+        an interrupt.
+    """
+    out = sys.stdout if stdout is None else stdout
+    err = sys.stderr if stderr is None else stderr
+    parser = build_parser()
+    try:
+        with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+            args = parser.parse_args(argv)
+    except SystemExit as exc:  # usage errors, --help and --version
+        return int(exc.code or 0)
+    json_to_stdout = getattr(args, "json", None) == "-"
+    console = _Console(out, err, json_to_stdout, getattr(args, "quiet", False))
+    try:
+        return args.handler(args, console)
+    except HfcoreError as exc:
+        message = " ".join(str(exc).split("\n"))
+        print(f"hfcore: error: {message}", file=err, flush=True)
+        return exc.exit_code
+    except KeyboardInterrupt:
+        print("hfcore: interrupted", file=err, flush=True)
+        return EXIT_INTERRUPTED
+
+
+__all__ = ["build_parser", "main", "parse_basis_for", "EXIT_INTERRUPTED"]

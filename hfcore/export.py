@@ -1,0 +1,292 @@
+"""Machine-readable exports of a run: JSON records and .npz arrays, written atomically.
+
+Every file is first written in full to a temporary file in the destination
+directory and then moved into place with :func:`os.replace`, so a reader
+never sees a half-written file and a failed run leaves nothing behind.
+"""
+
+from __future__ import annotations
+
+import io
+import json
+import math
+import os
+import tempfile
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+
+from .errors import InputError
+
+#: Largest basis for which the dense ERI tensor goes into an .npz file: the
+#: tensor takes nbf**4 * 8 bytes, 0.8 GB at 100 functions.
+ERI_NPZ_MAX_FUNCTIONS: int = 100
+
+#: What the numbers in the exported records mean.
+UNITS: dict[str, str] = {
+    "energy": "hartree",
+    "length": "bohr (coordinates_angstrom: angstrom)",
+    "orbital_energies": "hartree",
+    "dipole": "e*bohr (atomic units); dipole_debye: debye",
+    "charges": "e (elementary charge)",
+    "time": "seconds",
+}
+
+
+def check_output_path(path: str | os.PathLike) -> str:
+    """Fail early if a file cannot be created at ``path``.
+
+    Parameters
+    ----------
+    path : str or path-like
+        Destination of an export.
+
+    Returns
+    -------
+    str
+        The path as a string.
+
+    Raises
+    ------
+    InputError
+        If the directory is missing or not writable, or the path is a directory.
+    """
+    target = os.fspath(path)
+    directory = os.path.dirname(os.path.abspath(target))
+    if os.path.isdir(target):
+        raise InputError(f"{target}: is a directory; give a file name to write")
+    if not os.path.isdir(directory):
+        raise InputError(f"{target}: cannot write, directory {directory} does not exist")
+    if not os.access(directory, os.W_OK):
+        raise InputError(f"{target}: cannot write, directory {directory} is not writable")
+    return target
+
+
+def write_files_atomically(files: Mapping[str, bytes]) -> None:
+    """Write several files so that either all of them appear or none does.
+
+    All contents go to temporary files in their destination directories
+    first; only when every one is complete are they moved into place.
+
+    Parameters
+    ----------
+    files : mapping of str to bytes
+        Destination path -> full file content.
+
+    Raises
+    ------
+    InputError
+        If a file cannot be written (the message names it).
+    """
+    staged: list[tuple[str, str]] = []
+    current = ""
+    try:
+        for current, data in files.items():
+            directory = os.path.dirname(os.path.abspath(current))
+            handle, temp = tempfile.mkstemp(prefix=".hfcore-", suffix=".part", dir=directory)
+            staged.append((temp, current))
+            with os.fdopen(handle, "wb") as out:
+                out.write(data)
+                out.flush()
+                os.fsync(out.fileno())
+        for temp, current in staged:
+            os.replace(temp, current)
+    except OSError as exc:
+        raise InputError(f"{current}: cannot write ({exc.strerror})") from None
+    finally:
+        for temp, _ in staged:
+            if os.path.exists(temp):
+                os.unlink(temp)
+
+
+def write_file_atomically(path: str | os.PathLike, data: bytes | str) -> None:
+    """Write one file atomically (see :func:`write_files_atomically`).
+
+    Parameters
+    ----------
+    path : str or path-like
+    data : bytes or str
+        Text is encoded as UTF-8.
+    """
+    payload = data.encode("utf-8") if isinstance(data, str) else data
+    write_files_atomically({os.fspath(path): payload})
+
+
+def _plain(value: Any) -> Any:
+    # JSON has no NaN or infinity; a missing number (e.g. the energy change
+    # of the first iteration) becomes null rather than invalid JSON.
+    if isinstance(value, Mapping):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return _plain(value.tolist())
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        return float(value) if math.isfinite(value) else None
+    return value
+
+
+def to_json(record: Mapping[str, Any]) -> str:
+    """Serialise a record of plain values and arrays as indented JSON text.
+
+    Floats are written with full round-trip precision; NaN and infinity
+    become ``null``. The text ends with a newline.
+    """
+    return json.dumps(_plain(record), indent=2, allow_nan=False) + "\n"
+
+
+def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dict[str, Any]:
+    """The JSON record of an RHF run.
+
+    Parameters
+    ----------
+    result : RHFResult
+        A converged (or unconverged) SCF result.
+    analysis : mapping, optional
+        Extra post-SCF quantities (e.g. Mulliken charges, dipole) stored
+        under the key ``"analysis"``.
+
+    Returns
+    -------
+    dict
+        Keys ``hfcore``, ``units``, ``molecule``, ``basis``, ``energy``,
+        ``scf``, ``orbitals``, ``timings`` (and ``analysis``); energies in
+        hartree, coordinates in bohr.
+    """
+    from . import __version__
+
+    mol = result.molecule
+    basis = result.basis
+    opts = result.options
+    record: dict[str, Any] = {
+        "hfcore": {"version": __version__, "method": "RHF"},
+        "units": UNITS,
+        "molecule": {
+            "source": mol.source,
+            "comment": mol.comment,
+            "charge": mol.charge,
+            "n_electrons": mol.n_electrons,
+            "symbols": mol.symbols,
+            "atomic_numbers": mol.atomic_numbers,
+            "coordinates_bohr": mol.coordinates,
+        },
+        "basis": {
+            "name": basis.name,
+            "spherical": basis.spherical,
+            "n_functions": basis.n_functions,
+            "n_shells": basis.n_shells,
+            "n_dropped": result.n_dropped,
+        },
+        "energy": {
+            "total": result.energy_total,
+            "nuclear_repulsion": result.energy_nuclear,
+            "one_electron": result.energy_one_electron,
+            "two_electron": result.energy_two_electron,
+            "electronic": result.energy_electronic,
+        },
+        "scf": {
+            "converged": result.converged,
+            "iterations": result.iterations,
+            "thresholds": {
+                "energy_tol": opts.energy_tol,
+                "gradient_tol": opts.gradient_tol,
+                "max_iterations": opts.max_iterations,
+                "diis_space": opts.diis_space,
+                "lindep_threshold": opts.lindep_threshold,
+                "screening": opts.screening,
+            },
+            "history": [
+                {
+                    "iteration": h.iteration,
+                    "energy": h.energy,
+                    "delta_e": h.delta_e,
+                    "gradient_norm": h.gradient_norm,
+                    "diis_size": h.diis_size,
+                }
+                for h in result.history
+            ],
+        },
+        "orbitals": {
+            "energies": result.orbital_energies,
+            "occupations": result.occupations,
+            "homo": result.homo,
+            "lumo": result.lumo,
+        },
+        "timings": dict(result.timings),
+    }
+    if analysis:
+        record["analysis"] = dict(analysis)
+    return record
+
+
+def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS) -> dict[str, np.ndarray]:
+    """The arrays of an RHF run, for prototyping new methods on top of it.
+
+    Parameters
+    ----------
+    result : RHFResult
+    eri_max_functions : int
+        Include the dense ERI tensor only up to this many basis functions
+        (its size grows as nbf**4 * 8 bytes: 0.8 GB at 100).
+
+    Returns
+    -------
+    dict of str to ndarray
+        ``overlap``, ``kinetic``, ``nuclear_attraction``, ``core_hamiltonian``
+        (nbf, nbf); ``coefficients`` (nbf, nmo); ``orbital_energies``,
+        ``occupations`` (nmo,); ``density`` (total), ``fock`` (nbf, nbf);
+        ``atomic_numbers`` (natom,); ``coordinates`` (natom, 3) in bohr;
+        ``function_atoms``, ``function_l`` (nbf,); ``energy_total`` ();
+        ``spherical`` (); and ``eri`` (nbf, nbf, nbf, nbf) in chemists'
+        notation (mu nu|lambda sigma) when nbf <= ``eri_max_functions``.
+        Energies in hartree.
+    """
+    from . import integrals
+
+    basis = result.basis
+    mol = result.molecule
+    arrays = {
+        "overlap": result.overlap,
+        "kinetic": integrals.kinetic(basis),
+        "nuclear_attraction": integrals.nuclear_attraction(basis, mol.atomic_numbers, mol.coordinates),
+        "core_hamiltonian": result.core_hamiltonian,
+        "coefficients": result.coefficients,
+        "orbital_energies": result.orbital_energies,
+        "occupations": result.occupations,
+        "density": result.density,
+        "fock": result.fock,
+        "atomic_numbers": mol.atomic_numbers,
+        "coordinates": mol.coordinates,
+        "function_atoms": basis.function_atoms(),
+        "function_l": basis.function_l(),
+        "energy_total": np.float64(result.energy_total),
+        "spherical": np.bool_(basis.spherical),
+    }
+    if basis.n_functions <= eri_max_functions:
+        arrays["eri"] = integrals.eri_tensor(basis)
+    return {k: np.ascontiguousarray(v) for k, v in arrays.items()}
+
+
+def npz_bytes(arrays: Mapping[str, np.ndarray]) -> bytes:
+    """The content of an uncompressed .npz file holding ``arrays`` (no pickled objects)."""
+    buffer = io.BytesIO()
+    np.savez(buffer, **arrays)
+    return buffer.getvalue()
+
+
+__all__ = [
+    "ERI_NPZ_MAX_FUNCTIONS",
+    "UNITS",
+    "check_output_path",
+    "write_files_atomically",
+    "write_file_atomically",
+    "to_json",
+    "result_record",
+    "result_arrays",
+    "npz_bytes",
+]

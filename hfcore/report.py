@@ -1,0 +1,264 @@
+"""Human-readable report sections for the command line.
+
+Every function here turns a record into text and returns it; none prints
+and none computes physics. The command line writes the sections in order
+(and the SCF iteration lines live, as the SCF reports them).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Sequence
+from typing import Any
+
+import numpy as np
+
+from .geometry import BOHR_IN_ANGSTROM
+
+#: Virtual orbitals listed after the LUMO before the list is cut short.
+MAX_VIRTUALS_SHOWN: int = 10
+
+_RULE_WIDTH = 64
+
+
+def heading(title: str) -> str:
+    """A section title followed by a rule of the report's width."""
+    return f"\n{title}\n{'─' * _RULE_WIDTH}"
+
+
+def _pairs(rows: Iterable[tuple[str, str]], indent: int = 2) -> str:
+    items = list(rows)
+    width = max(len(k) for k, _ in items)
+    return "\n".join(f"{' ' * indent}{k:<{width}}   {v}" for k, v in items)
+
+
+def format_molecule(molecule: Any) -> str:
+    """The molecule section: source, charge, electrons and positions in ångström.
+
+    Parameters
+    ----------
+    molecule : Molecule
+    """
+    lines = [heading("Molecule")]
+    info = [("geometry", molecule.source)]
+    if molecule.comment:
+        info.append(("comment", molecule.comment))
+    info += [
+        ("atoms", str(molecule.natom)),
+        ("charge", f"{molecule.charge:+d}" if molecule.charge else "0"),
+        ("electrons", str(molecule.n_electrons)),
+        ("nuclear repulsion", f"{molecule.nuclear_repulsion():.10f} Eh"),
+    ]
+    lines.append(_pairs(info))
+    lines.append("")
+    lines.append(f"  {'#':>4}  {'element':<7}  {'x / Å':>13}  {'y / Å':>13}  {'z / Å':>13}")
+    xyz = np.asarray(molecule.coordinates) * BOHR_IN_ANGSTROM
+    for k, (sym, (x, y, z)) in enumerate(zip(molecule.symbols, xyz), start=1):
+        lines.append(f"  {k:>4}  {sym:<7}  {x:13.6f}  {y:13.6f}  {z:13.6f}")
+    return "\n".join(lines)
+
+
+def format_basis(basis: Any) -> str:
+    """The basis section: name, function form, counts of functions and shells.
+
+    Parameters
+    ----------
+    basis : BasisSet
+    """
+    primitives = sum(s.n_primitives for s in basis.shells)
+    info = [
+        ("basis set", basis.name),
+        ("functions", f"{basis.n_functions} ({'real spherical' if basis.spherical else 'Cartesian'})"),
+        ("shells", f"{basis.n_shells} ({primitives} primitive Gaussians)"),
+        ("highest l", "spdfghi"[basis.max_l]),
+    ]
+    return heading("Basis") + "\n" + _pairs(info)
+
+
+def format_linear_dependence(n_dropped: int, threshold: float) -> str:
+    """One line on overlap eigenvectors dropped as linearly dependent."""
+    if n_dropped == 0:
+        return f"  linear dependence: none (overlap eigenvalues all above {threshold:.1e})"
+    return (
+        f"  linear dependence: {n_dropped} combination{'s' if n_dropped > 1 else ''} dropped "
+        f"(overlap eigenvalue below {threshold:.1e})"
+    )
+
+
+def history_header() -> str:
+    """Heading and column titles of the SCF iteration table."""
+    columns = f"  {'iter':>4}  {'energy / Eh':>20}  {'change / Eh':>12}  {'gradient':>10}  {'DIIS':>4}"
+    return heading("SCF iterations") + "\n" + columns
+
+
+def _signed_or_dash(value: float | None, spec: str, width: int) -> str:
+    if value is None or not np.isfinite(value):
+        return f"{'—':>{width}}"
+    return f"{value:{width}{spec}}"
+
+
+def format_iteration(record: Any) -> str:
+    """One row of the SCF table for a per-iteration record.
+
+    Parameters
+    ----------
+    record : SCFIteration
+        With ``iteration``, ``energy``, ``delta_e``, ``gradient_norm``, ``diis_size``.
+    """
+    return (
+        f"  {record.iteration:>4}  {record.energy:20.12f}  {_signed_or_dash(record.delta_e, '.3e', 12)}"
+        f"  {_signed_or_dash(record.gradient_norm, '.3e', 10)}  {record.diis_size:>4}"
+    )
+
+
+def format_convergence(result: Any) -> str:
+    """The line closing the SCF table."""
+    opts = result.options
+    state = "converged" if result.converged else "NOT converged"
+    return (
+        f"  {state} after {result.iterations} iterations "
+        f"(|ΔE| < {opts.energy_tol:.0e} Eh, gradient < {opts.gradient_tol:.0e})"
+    )
+
+
+def format_energies(result: Any) -> str:
+    """The energy section: total and its parts, in hartree."""
+    rows = [
+        ("nuclear repulsion", result.energy_nuclear),
+        ("one-electron", result.energy_one_electron),
+        ("two-electron", result.energy_two_electron),
+        ("electronic", result.energy_electronic),
+    ]
+    body = [f"  {name:<20}{value:22.12f}" for name, value in rows]
+    body.append(f"  {'':<20}{'─' * 22}")
+    body.append(f"  {'total energy':<20}{result.energy_total:22.12f}")
+    return heading("Energy / Eh") + "\n" + "\n".join(body)
+
+
+def format_orbitals(result: Any, max_virtuals: int = MAX_VIRTUALS_SHOWN) -> str:
+    """The orbital section: energies and occupations, HOMO and LUMO marked.
+
+    All occupied orbitals are listed and at most ``max_virtuals`` virtual
+    ones after the LUMO; the rest are counted.
+    """
+    eps = np.asarray(result.orbital_energies)
+    occ = np.asarray(result.occupations)
+    homo, lumo = result.homo, result.lumo
+    last = len(eps) if lumo is None else min(len(eps), lumo + max_virtuals)
+    lines = [heading("Orbitals"), f"  {'#':>4}  {'energy / Eh':>16}  {'energy / eV':>12}  {'occupation':>10}"]
+    ev = _hartree_in_ev()
+    for k in range(last):
+        mark = "  HOMO" if k == homo else "  LUMO" if k == lumo else ""
+        lines.append(f"  {k + 1:>4}  {eps[k]:16.8f}  {eps[k] * ev:12.4f}  {occ[k]:10.1f}{mark}")
+    if last < len(eps):
+        lines.append(f"  ... {len(eps) - last} higher virtual orbitals not shown (all are in --json)")
+    return "\n".join(lines)
+
+
+def _hartree_in_ev() -> float:
+    from scipy import constants
+
+    return constants.physical_constants["Hartree energy in eV"][0]
+
+
+def format_charges(symbols: Sequence[str], charges: np.ndarray) -> str:
+    """Mulliken atomic charges, one line per atom, in elementary charges."""
+    lines = [heading("Mulliken charges / e")]
+    for k, (sym, q) in enumerate(zip(symbols, charges), start=1):
+        lines.append(f"  {k:>4}  {sym:<7}  {q:+10.6f}")
+    lines.append(f"  {'sum':>13}  {float(np.sum(charges)):+10.6f}")
+    return "\n".join(lines)
+
+
+def format_dipole(dipole_au: np.ndarray, debye_per_au: float, charged: bool) -> str:
+    """Dipole moment components and length in debye (and atomic units)."""
+    d = np.asarray(dipole_au, dtype=np.float64)
+    lines = [heading("Dipole moment"), f"  {'':<8}{'x':>12}{'y':>12}{'z':>12}{'|μ|':>12}"]
+    for unit, scale in (("debye", debye_per_au), ("e·bohr", 1.0)):
+        x, y, z = d * scale
+        lines.append(f"  {unit:<8}{x:12.6f}{y:12.6f}{z:12.6f}{np.linalg.norm(d) * scale:12.6f}")
+    if charged:
+        lines.append("  (charged molecule: the dipole is taken about the centre of nuclear charge)")
+    return "\n".join(lines)
+
+
+def format_timings(timings: dict[str, float], wall: float) -> str:
+    """Timings of the stages and of the whole command, in seconds."""
+    rows = [(name, f"{seconds:9.3f} s") for name, seconds in timings.items()]
+    rows.append(("whole command", f"{wall:9.3f} s"))
+    return heading("Timings") + "\n" + _pairs(rows)
+
+
+def format_sto_fit(fit: Any) -> str:
+    """Exponents, contraction coefficients and overlaps of a Slater fit.
+
+    Parameters
+    ----------
+    fit : STOFit
+    """
+    letters = "spdf"
+    ls = sorted(fit.coefficients)
+    info = [
+        ("shell", fit.shell),
+        ("Gaussians", str(fit.n_gaussians)),
+        ("Slater exponent ζ", f"{fit.zeta:g} bohr⁻¹"),
+    ]
+    lines = [heading("Least-squares Gaussian fit to a Slater function"), _pairs(info), ""]
+    header = f"  {'#':>3}  {'exponent α / bohr⁻²':>22}" + "".join(f"  {'d(' + letters[l] + ')':>14}" for l in ls)
+    lines.append(header)
+    for k, alpha in enumerate(fit.exponents):
+        lines.append(f"  {k + 1:>3}  {alpha:22.10f}" + "".join(f"  {fit.coefficients[l][k]:14.10f}" for l in ls))
+    lines.append("")
+    for l in ls:
+        lines.append(f"  overlap with the Slater {letters[l]} function: {fit.overlaps[l]:.10f}")
+    return "\n".join(lines)
+
+
+def format_comparison(comparison: Any) -> str:
+    """The basis comparison table and any basis-limit estimates."""
+    lines = [
+        heading("Basis comparison"),
+        f"  {'basis':<16} {'functions':>9}  {'form':<9} {'energy / Eh':>18} {'Δ / mEh':>11} "
+        f"{'Δ / kcal/mol':>12} {'iter':>4} {'time / s':>9}",
+    ]
+    for row in comparison.rows:
+        form = "spherical" if row.spherical else "Cartesian"
+        flag = "" if row.converged else "  (not converged)"
+        lines.append(
+            f"  {row.basis:<16} {row.n_functions:>9}  {form:<9} {row.energy_total:18.10f} "
+            f"{row.delta_mEh:11.3f} {row.delta_kcal_mol:12.3f} {row.iterations:>4} {row.wall_time:9.2f}{flag}"
+        )
+    lines.append("  Δ: energy above the largest basis (by number of functions)")
+    if comparison.estimates:
+        lines.append(heading("Basis-limit estimates"))
+        for est in comparison.estimates:
+            lines.append(f"  {est.method:<34} from {', '.join(est.bases):<28} {est.energy:18.10f} Eh")
+    return "\n".join(lines)
+
+
+def format_basis_list(names: Sequence[str], fitted: Sequence[str]) -> str:
+    """The list of basis sets the command line accepts."""
+    lines = [heading("Basis sets shipped with hfcore")]
+    lines += [f"  {n}" for n in names]
+    lines.append(heading("Fitted Slater sets (any element H–Ar; --zeta to change exponents)"))
+    lines.append("  " + "  ".join(fitted))
+    return "\n".join(lines)
+
+
+__all__ = [
+    "MAX_VIRTUALS_SHOWN",
+    "heading",
+    "format_molecule",
+    "format_basis",
+    "format_linear_dependence",
+    "history_header",
+    "format_iteration",
+    "format_convergence",
+    "format_energies",
+    "format_orbitals",
+    "format_charges",
+    "format_dipole",
+    "format_timings",
+    "format_sto_fit",
+    "format_comparison",
+    "format_basis_list",
+]
