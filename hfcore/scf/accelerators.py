@@ -1,0 +1,226 @@
+"""Convergence accelerators: DIIS, Fock damping and level shifting.
+
+Every accelerator meets one contract (see :class:`Accelerator`), so the
+driver treats them alike and runs them in a chain.
+"""
+
+from __future__ import annotations
+
+from abc import ABC, abstractmethod
+from collections import deque
+from dataclasses import dataclass
+
+import numpy as np
+
+from .options import SCFOptions
+
+
+@dataclass(frozen=True)
+class FockStep:
+    """What an accelerator sees in one iteration; matrices in the orthonormal basis.
+
+    Attributes
+    ----------
+    iteration : int
+        1-based iteration number.
+    fock : ndarray, shape (nmo, nmo)
+        The Fock matrix built from the current density (or the output of the
+        previous accelerator in the chain).
+    error : ndarray, shape (nmo, nmo)
+        The orbital gradient F D S - S D F of the current density, in the
+        orthonormal basis (antisymmetric).
+    projector : ndarray, shape (nmo, nmo)
+        Projector onto the currently occupied orbitals (half the density).
+    """
+
+    iteration: int
+    fock: np.ndarray
+    error: np.ndarray
+    projector: np.ndarray
+
+
+class Accelerator(ABC):
+    """Base class of SCF convergence accelerators.
+
+    A new accelerator subclasses this and implements :meth:`next_fock`,
+    which receives a :class:`FockStep` and returns the symmetric matrix
+    (nmo, nmo) whose eigenvectors become the next orbitals. It may keep
+    state between calls; :meth:`reset` clears it. An accelerator that
+    holds a subspace reports its size in :attr:`subspace_size`. Accelerators
+    never print and never change the arrays they are given.
+    """
+
+    @abstractmethod
+    def next_fock(self, step: FockStep) -> np.ndarray:
+        """The matrix to diagonalise for the next orbitals, shape (nmo, nmo)."""
+
+    def reset(self) -> None:
+        """Forget everything stored from earlier iterations."""
+
+    @property
+    def subspace_size(self) -> int:
+        """Number of stored vectors (0 for accelerators without a subspace)."""
+        return 0
+
+
+class DIIS(Accelerator):
+    """Pulay's direct inversion in the iterative subspace.
+
+    Stores Fock matrices with their commutator errors and returns the
+    combination sum c_i F_i (sum c_i = 1) that minimises the norm of
+    sum c_i e_i.
+
+    Parameters
+    ----------
+    space : int
+        Maximum number of stored pairs; the oldest is dropped first.
+    start : int
+        First iteration at which to extrapolate; before it the current Fock
+        matrix is returned unchanged (but stored).
+    """
+
+    def __init__(self, space: int = 8, start: int = 1) -> None:
+        self.space = space
+        self.start = start
+        self._focks: deque[np.ndarray] = deque(maxlen=space)
+        self._errors: deque[np.ndarray] = deque(maxlen=space)
+
+    def reset(self) -> None:
+        self._focks.clear()
+        self._errors.clear()
+
+    @property
+    def subspace_size(self) -> int:
+        return len(self._focks)
+
+    def next_fock(self, step: FockStep) -> np.ndarray:
+        self._focks.append(step.fock.copy())
+        self._errors.append(step.error.copy())
+        if step.iteration < self.start or len(self._focks) < 2:
+            return step.fock
+        weights = self._weights()
+        return sum(w * f for w, f in zip(weights, self._focks))
+
+    def _weights(self) -> np.ndarray:
+        """DIIS coefficients of the stored pairs, dropping the oldest while the equations are singular."""
+        while len(self._errors) > 1:
+            weights = _diis_coefficients(np.array([e.ravel() for e in self._errors]))
+            if weights is not None:
+                return weights
+            self._focks.popleft()
+            self._errors.popleft()
+        return np.ones(1)
+
+
+def _diis_coefficients(errors: np.ndarray) -> np.ndarray | None:
+    """Solve the bordered DIIS equations for errors of shape (n, nmo*nmo); None if singular."""
+    n = errors.shape[0]
+    gram = errors @ errors.T
+    # Scaling by the largest diagonal element keeps the bordered matrix well
+    # conditioned as the errors shrink towards convergence.
+    scale = float(np.max(np.diag(gram)))
+    if not scale > 0.0:
+        return None
+    b = np.zeros((n + 1, n + 1))
+    b[:n, :n] = gram / scale
+    b[n, :n] = b[:n, n] = -1.0
+    rhs = np.zeros(n + 1)
+    rhs[n] = -1.0
+    try:
+        solution = np.linalg.solve(b, rhs)
+    except np.linalg.LinAlgError:
+        return None
+    if not np.all(np.isfinite(solution)) or np.linalg.cond(b) > 1e14:
+        return None
+    return solution[:n]
+
+
+class Damping(Accelerator):
+    """Fock damping: return (1 - factor) F + factor F_previous.
+
+    Parameters
+    ----------
+    factor : float
+        Weight of the previous output, in (0, 1).
+    stop : int or None
+        First iteration at which damping no longer applies (None: never
+        stops). Used to damp only the iterations before DIIS starts.
+    """
+
+    def __init__(self, factor: float, stop: int | None = None) -> None:
+        self.factor = factor
+        self.stop = stop
+        self._previous: np.ndarray | None = None
+
+    def reset(self) -> None:
+        self._previous = None
+
+    def next_fock(self, step: FockStep) -> np.ndarray:
+        if self.stop is not None and step.iteration >= self.stop:
+            return step.fock
+        if self._previous is None:
+            out = step.fock
+        else:
+            out = (1.0 - self.factor) * step.fock + self.factor * self._previous
+        self._previous = out.copy()
+        return out
+
+
+class LevelShift(Accelerator):
+    """Raise the virtual space by a constant: F + shift (1 - P).
+
+    Parameters
+    ----------
+    shift : float
+        The shift in hartree (positive).
+    """
+
+    def __init__(self, shift: float) -> None:
+        self.shift = shift
+
+    def next_fock(self, step: FockStep) -> np.ndarray:
+        n = step.fock.shape[0]
+        return step.fock + self.shift * (np.eye(n) - step.projector)
+
+
+class Chain(Accelerator):
+    """Several accelerators applied in order, each to the previous one's output."""
+
+    def __init__(self, stages: list[Accelerator]) -> None:
+        self.stages = list(stages)
+
+    def reset(self) -> None:
+        for stage in self.stages:
+            stage.reset()
+
+    @property
+    def subspace_size(self) -> int:
+        return max((stage.subspace_size for stage in self.stages), default=0)
+
+    def next_fock(self, step: FockStep) -> np.ndarray:
+        fock = step.fock
+        for stage in self.stages:
+            fock = stage.next_fock(FockStep(step.iteration, fock, step.error, step.projector))
+        return fock
+
+
+def build_accelerator(options: SCFOptions) -> Accelerator:
+    """The accelerator chain the options ask for.
+
+    ``"diis"`` gives DIIS (with damping before ``diis_start`` if
+    ``damping > 0``), ``"damping"`` gives damping alone, ``"none"`` plain
+    Roothaan iterations; a positive ``level_shift`` adds a level shift last.
+    """
+    stages: list[Accelerator] = []
+    if options.accelerator == "diis":
+        stages.append(DIIS(options.diis_space, options.diis_start))
+        if options.damping > 0.0:
+            stages.append(Damping(options.damping, stop=options.diis_start))
+    elif options.accelerator == "damping":
+        stages.append(Damping(options.damping))
+    if options.level_shift > 0.0:
+        stages.append(LevelShift(options.level_shift))
+    return Chain(stages)
+
+
+__all__ = ["Accelerator", "FockStep", "DIIS", "Damping", "LevelShift", "Chain", "build_accelerator"]

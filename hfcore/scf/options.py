@@ -1,0 +1,114 @@
+"""Settings of the SCF driver, checked once when they are made."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from ..errors import InputError
+
+#: Names accepted for :attr:`SCFOptions.accelerator`; the classes live in
+#: :mod:`hfcore.scf.accelerators`.
+ACCELERATOR_NAMES: tuple[str, ...] = ("diis", "damping", "none")
+
+
+def _positive(name: str, value: object) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) or value <= 0:
+        raise InputError(f"SCF option {name} must be a positive finite number, got {value!r}")
+    return float(value)
+
+
+def _count(name: str, value: object, minimum: int) -> int:
+    if isinstance(value, bool) or not isinstance(value, int) or value < minimum:
+        raise InputError(f"SCF option {name} must be an integer >= {minimum}, got {value!r}")
+    return int(value)
+
+
+@dataclass(frozen=True)
+class SCFOptions:
+    """Convergence, acceleration and numerical settings of an RHF run.
+
+    Parameters
+    ----------
+    energy_tol : float
+        Converged when the energy changes by less than this between two
+        iterations (hartree) ...
+    gradient_tol : float
+        ... and the largest absolute element of the orbital gradient, the
+        commutator F D S - S D F in the orthonormal basis, is below this.
+    max_iterations : int
+        Give up (``ConvergenceError``) after this many iterations.
+    diis_space : int
+        Number of Fock/error pairs DIIS keeps (at least 2).
+    diis_start : int
+        First iteration (1-based) at which DIIS extrapolates; it stores
+        pairs from the first iteration on.
+    lindep_threshold : float
+        Overlap eigenvalues below this mark near-linear dependence; their
+        eigenvectors are dropped from the orthonormal basis.
+    screening : float
+        Schwarz threshold for two-electron integrals (hartree).
+    damping : float
+        Fock damping factor in [0, 1): the Fock matrix used is
+        ``(1 - damping) F_new + damping F_previous``. With the ``"damping"``
+        accelerator it applies every iteration and must be positive; with
+        ``"diis"`` it applies only before ``diis_start``.
+    level_shift : float
+        Raise the virtual orbital energies by this much (hartree) while
+        iterating; the final orbitals are unshifted.
+    accelerator : {"diis", "damping", "none"}
+        The convergence accelerator.
+    direct : bool or None
+        Recompute two-electron integrals every iteration instead of storing
+        them (True), store them (False), or let hfcore choose (None).
+
+    Raises
+    ------
+    InputError
+        On any value out of range, naming the option.
+    """
+
+    energy_tol: float = 1e-10
+    gradient_tol: float = 1e-7
+    max_iterations: int = 100
+    diis_space: int = 8
+    diis_start: int = 1
+    lindep_threshold: float = 1e-7
+    screening: float = 1e-12
+    damping: float = 0.0
+    level_shift: float = 0.0
+    accelerator: str = "diis"
+    direct: bool | None = None
+
+    def __post_init__(self) -> None:
+        for name in ("energy_tol", "gradient_tol", "lindep_threshold"):
+            object.__setattr__(self, name, _positive(name, getattr(self, name)))
+        object.__setattr__(self, "max_iterations", _count("max_iterations", self.max_iterations, 1))
+        object.__setattr__(self, "diis_space", _count("diis_space", self.diis_space, 2))
+        object.__setattr__(self, "diis_start", _count("diis_start", self.diis_start, 1))
+        self._check_ranges()
+        self._check_accelerator()
+        if self.direct is not None and not isinstance(self.direct, bool):
+            raise InputError(f"SCF option direct must be True, False or None, got {self.direct!r}")
+
+    def _check_ranges(self) -> None:
+        if self.lindep_threshold >= 1.0:
+            raise InputError(f"SCF option lindep_threshold must be below 1, got {self.lindep_threshold!r}")
+        for name, low, high in (("screening", 0.0, 1.0), ("damping", 0.0, 1.0), ("level_shift", 0.0, math.inf)):
+            value = getattr(self, name)
+            if isinstance(value, bool) or not isinstance(value, (int, float)) or not (low <= value < high):
+                raise InputError(f"SCF option {name} must be a number in [{low}, {high}), got {value!r}")
+            object.__setattr__(self, name, float(value))
+
+    def _check_accelerator(self) -> None:
+        name = self.accelerator.lower() if isinstance(self.accelerator, str) else self.accelerator
+        if name not in ACCELERATOR_NAMES:
+            raise InputError(f"unknown SCF accelerator {self.accelerator!r}: choose one of {', '.join(ACCELERATOR_NAMES)}")
+        object.__setattr__(self, "accelerator", name)
+        if name == "damping" and self.damping == 0.0:
+            raise InputError("the 'damping' accelerator needs a damping factor in (0, 1), e.g. damping=0.5")
+        if name == "none" and self.damping > 0.0:
+            raise InputError("damping > 0 needs accelerator 'damping' or 'diis', not 'none'")
+
+
+__all__ = ["SCFOptions", "ACCELERATOR_NAMES"]

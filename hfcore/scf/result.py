@@ -1,0 +1,152 @@
+"""The records an RHF run returns: one per iteration and one for the run."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from .options import SCFOptions
+
+if TYPE_CHECKING:
+    from ..basis.shells import BasisSet
+    from ..geometry import Molecule
+
+
+@dataclass(frozen=True)
+class SCFIteration:
+    """What one SCF iteration measured.
+
+    Attributes
+    ----------
+    iteration : int
+        1-based iteration number.
+    energy : float
+        Total energy (hartree) of the density the iteration's Fock matrix
+        was built from.
+    delta_e : float
+        Change from the previous iteration's energy; for the first
+        iteration, the change from the guess density's energy, or the full
+        energy when the guess has none (core guess).
+    gradient_norm : float
+        Largest absolute element of the orbital gradient F D S - S D F in
+        the orthonormal basis.
+    diis_size : int
+        Number of Fock/error pairs the accelerator held after the step
+        (0 without DIIS).
+    """
+
+    iteration: int
+    energy: float
+    delta_e: float
+    gradient_norm: float
+    diis_size: int
+
+
+@dataclass(frozen=True)
+class RHFResult:
+    """The outcome of a restricted Hartree-Fock run.
+
+    All energies in hartree; matrices in the basis' own functions (nbf of
+    them) unless stated. ``nmo = nbf - n_dropped``.
+
+    Attributes
+    ----------
+    energy_total : float
+        Electronic plus nuclear repulsion energy.
+    energy_nuclear : float
+        Nuclear repulsion energy.
+    energy_one_electron : float
+        tr(D H), kinetic plus nuclear attraction.
+    energy_two_electron : float
+        ½ tr(D G) with G = J - ½ K.
+    energy_electronic : float
+        One- plus two-electron energy.
+    orbital_energies : ndarray, shape (nmo,)
+        Canonical orbital energies, ascending.
+    coefficients : ndarray, shape (nbf, nmo)
+        Canonical orbitals as columns, S-orthonormal.
+    occupations : ndarray, shape (nmo,)
+        2.0 for occupied, 0.0 for virtual orbitals.
+    density : ndarray, shape (nbf, nbf)
+        Total density 2 C_occ C_occᵀ of the canonical orbitals. It differs
+        from the density the energy was evaluated at by less than one SCF
+        step (of the order of ``gradient_tol``).
+    fock : ndarray, shape (nbf, nbf)
+        Fock matrix of the last iteration; ``coefficients`` diagonalise it.
+    overlap : ndarray, shape (nbf, nbf)
+        Overlap matrix S.
+    core_hamiltonian : ndarray, shape (nbf, nbf)
+        H = T + V.
+    converged : bool
+        True if both convergence criteria were met.
+    iterations : int
+        Number of iterations run.
+    history : list of SCFIteration
+        One record per iteration.
+    n_dropped : int
+        Overlap eigenvectors dropped for near-linear dependence.
+    timings : dict of str to float
+        Wall-clock seconds of the stages "integrals", "guess", "scf" and
+        "total".
+    molecule : Molecule or None
+        The molecule (None when the SCF ran on bare matrices).
+    basis : BasisSet or None
+        The basis (None when the SCF ran on bare matrices).
+    options : SCFOptions
+        The settings used.
+    message : str
+        Why the run stopped, in words.
+    """
+
+    energy_total: float
+    energy_nuclear: float
+    energy_one_electron: float
+    energy_two_electron: float
+    energy_electronic: float
+    orbital_energies: np.ndarray
+    coefficients: np.ndarray
+    occupations: np.ndarray
+    density: np.ndarray
+    fock: np.ndarray
+    overlap: np.ndarray
+    core_hamiltonian: np.ndarray
+    converged: bool
+    iterations: int
+    history: list[SCFIteration]
+    n_dropped: int
+    timings: dict[str, float]
+    options: SCFOptions
+    message: str
+    molecule: "Molecule | None" = None
+    basis: "BasisSet | None" = None
+
+    @property
+    def n_occupied(self) -> int:
+        """Number of doubly occupied orbitals."""
+        return int(np.count_nonzero(self.occupations > 0))
+
+    @property
+    def homo(self) -> int:
+        """Index of the highest occupied orbital."""
+        return self.n_occupied - 1
+
+    @property
+    def lumo(self) -> int | None:
+        """Index of the lowest unoccupied orbital, None if every orbital is occupied."""
+        return self.n_occupied if self.n_occupied < self.occupations.shape[0] else None
+
+    @property
+    def homo_energy(self) -> float:
+        """Orbital energy of the HOMO (hartree)."""
+        return float(self.orbital_energies[self.homo])
+
+    @property
+    def lumo_energy(self) -> float | None:
+        """Orbital energy of the LUMO (hartree), None if there is no virtual orbital."""
+        lumo = self.lumo
+        return None if lumo is None else float(self.orbital_energies[lumo])
+
+
+__all__ = ["SCFIteration", "RHFResult"]
