@@ -38,6 +38,17 @@ def _save_atomically(figure, path: str | os.PathLike) -> None:
         raise
 
 
+def _series(rows) -> dict[str, list]:
+    """Rows grouped by correlation-consistent family ("" for all other bases), joined by lines per family."""
+    from .analysis.extrapolation import correlation_consistent
+
+    groups: dict[str, list] = {}
+    for r in rows:
+        found = correlation_consistent(r.basis)
+        groups.setdefault(found[0] if found else "", []).append(r)
+    return groups
+
+
 def plot_comparison(comparison, path: str | os.PathLike) -> None:
     """Draw RHF energy against the number of basis functions.
 
@@ -62,9 +73,9 @@ def plot_comparison(comparison, path: str | os.PathLike) -> None:
     rows = sorted(comparison.rows, key=lambda r: r.n_functions)
     figure, axes = plt.subplots(figsize=(7.0, 4.8))
     try:
-        x = [r.n_functions for r in rows]
-        y = [r.energy_total for r in rows]
-        axes.plot(x, y, "o-", color="tab:blue", label="RHF energy")
+        for family, members in _series(rows).items():
+            axes.plot([r.n_functions for r in members], [r.energy_total for r in members], "o-" if family else "o",
+                      label=family or "other bases")
         for r in rows:
             mark = "" if r.converged else " (not converged)"
             axes.annotate(f"{r.basis}{mark}", (r.n_functions, r.energy_total), textcoords="offset points",
@@ -72,7 +83,7 @@ def plot_comparison(comparison, path: str | os.PathLike) -> None:
         styles = ("--", ":", "-.")
         for k, estimate in enumerate(comparison.estimates):
             label = f"{estimate.method} limit ({', '.join(estimate.bases)}): {estimate.energy_total:.6f} Eh"
-            axes.axhline(estimate.energy_total, linestyle=styles[k % len(styles)], color=f"C{k + 1}", label=label)
+            axes.axhline(estimate.energy_total, linestyle=styles[k % len(styles)], color=f"C{k + 3}", label=label)
         axes.set_xlabel("number of basis functions")
         axes.set_ylabel("RHF total energy / hartree")
         axes.ticklabel_format(axis="y", useOffset=False)
