@@ -201,8 +201,8 @@ def _library_document(filename: str) -> DocumentFamily:
 
 
 @lru_cache(maxsize=None)
-def _library_family(name: str) -> LibraryFamily:
-    return LibraryFamily(_index_by_key()[name_key(name)])
+def _library_family(canonical: str) -> LibraryFamily:
+    return LibraryFamily(_index_by_key()[name_key(canonical)])
 
 
 def available_basis_sets() -> list[str]:
@@ -328,8 +328,9 @@ def find_family(name: str) -> BasisFamily:
         If neither knows the name; the message lists close names and, when
         the package is not installed, how to install it.
     """
-    if name_key(name) in _index_by_key():
-        return _library_family(name)
+    key = name_key(name)
+    if key in _index_by_key():
+        return _library_family(_index_by_key()[key]["name"])
     try:
         import basis_set_exchange as bse
     except ImportError:
