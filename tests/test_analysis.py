@@ -1,0 +1,175 @@
+"""Post-SCF analysis: populations, dipole moment and MP2 on converged RHF runs."""
+
+from __future__ import annotations
+
+import dataclasses
+from pathlib import Path
+
+import numpy as np
+import pytest
+import scipy.linalg
+
+import hfcore
+from hfcore import elements
+from hfcore.analysis import (
+    DEBYE_PER_AU,
+    core_orbital_count,
+    dipole_moment,
+    lowdin_charges,
+    lowdin_populations,
+    mp2_energy,
+    mulliken_charges,
+    mulliken_populations,
+)
+from hfcore.errors import ConvergenceError, InputError
+
+import pyscf.lo
+from pyscf import gto, mp, scf
+
+INPUTS = Path(__file__).resolve().parent.parent / "inputs"
+TIGHT = dict(energy_tol=1e-12, gradient_tol=1e-9)
+
+
+def reference_molecule(molecule, basis_name: str, spherical: bool):
+    """The reference library's molecule with exactly our shells (coefficients of normalised primitives)."""
+    family = hfcore.get_family(basis_name)
+    shells = {}
+    for z in sorted({int(z) for z in molecule.atomic_numbers}):
+        shells[elements.symbol(z)] = [
+            [es.l, *[[float(e), *map(float, es.coefficients[:, k])] for k, e in enumerate(es.exponents)]]
+            for es in family.element_shells(z)
+        ]
+    atoms = [(elements.symbol(int(z)), tuple(r)) for z, r in zip(molecule.atomic_numbers, molecule.coordinates)]
+    return gto.M(atom=atoms, basis=shells, unit="Bohr", charge=molecule.charge, cart=not spherical, verbose=0)
+
+
+def reference_rhf(ref_mol):
+    mf = scf.RHF(ref_mol)
+    mf.conv_tol = 1e-12
+    mf.conv_tol_grad = 1e-9
+    mf.kernel()
+    assert mf.converged
+    return mf
+
+
+@pytest.fixture(scope="module", params=[("cc-pvdz", True), ("6-31g*", False)], ids=["cc-pVDZ spherical", "6-31G* Cartesian"])
+def water(request):
+    name, spherical = request.param
+    mol = hfcore.read_xyz(INPUTS / "water.xyz")
+    basis = hfcore.build_basis(mol, name, spherical=spherical)
+    result = hfcore.run_rhf(mol, basis, hfcore.SCFOptions(**TIGHT))
+    ref = reference_rhf(reference_molecule(mol, name, spherical))
+    return result, ref
+
+
+def test_mulliken_charges_match_reference(water):
+    result, ref = water
+    expected = ref.mulliken_pop(verbose=0)[1]
+    # source: reference library run (PySCF), same shells, tight convergence
+    np.testing.assert_allclose(mulliken_charges(result), expected, atol=1e-7, rtol=0)
+
+
+def test_mulliken_populations_sum_to_electron_count(water):
+    result, _ = water
+    # source: exact property — tr(D S) = N
+    assert mulliken_populations(result).sum() == pytest.approx(result.molecule.n_electrons, abs=1e-9)
+    assert mulliken_charges(result).sum() == pytest.approx(result.molecule.charge, abs=1e-9)
+
+
+def test_lowdin_charges_match_reference(water):
+    result, ref = water
+    ref_mol = ref.mol
+    s = ref.get_ovlp()
+    # The reference library's symmetric orthogonaliser S^-1/2; D in that basis is S^1/2 D S^1/2.
+    s_minus_half = pyscf.lo.orth.lowdin(s)
+    s_half = np.linalg.inv(s_minus_half)
+    dm_orth = s_half @ ref.make_rdm1() @ s_half
+    expected = ref.mulliken_pop(ref_mol, dm_orth, s=np.eye(s.shape[0]), verbose=0)[1]
+    # source: reference library run (PySCF), Löwdin-orthogonalised density, same shells
+    np.testing.assert_allclose(lowdin_charges(result), expected, atol=1e-7, rtol=0)
+    # source: exact property — the orthogonalised density keeps the electron count
+    assert lowdin_populations(result).sum() == pytest.approx(result.molecule.n_electrons, abs=1e-9)
+
+
+def test_dipole_matches_reference(water):
+    result, ref = water
+    # source: reference library run (PySCF), dipole in atomic units, same shells
+    np.testing.assert_allclose(dipole_moment(result), ref.dip_moment(unit="AU", verbose=0), atol=1e-7, rtol=0)
+
+
+def test_dipole_of_neutral_molecule_does_not_depend_on_origin(water):
+    result, _ = water
+    # source: exact property — a neutral charge distribution has an origin-free dipole
+    np.testing.assert_allclose(dipole_moment(result, origin=[1.5, -2.0, 3.0]), dipole_moment(result), atol=1e-10)
+
+
+def test_mp2_correlation_matches_reference(water):
+    result, ref = water
+    mine = mp2_energy(result)
+    theirs = mp.MP2(ref).run(verbose=0)
+    # source: reference library run (PySCF MP2 on its own RHF), same shells
+    assert mine.correlation == pytest.approx(theirs.e_corr, abs=1e-8)
+    assert mine.same_spin == pytest.approx(theirs.e_corr_ss, abs=1e-8)
+    assert mine.opposite_spin == pytest.approx(theirs.e_corr_os, abs=1e-8)
+    # source: exact property — the total is the reference plus the correction
+    assert mine.total == pytest.approx(result.energy_total + mine.correlation, abs=1e-12)
+
+
+def test_mp2_frozen_core_matches_reference(water):
+    result, ref = water
+    mine = mp2_energy(result, frozen_core=core_orbital_count(result.molecule))
+    theirs = mp.MP2(ref, frozen=1).run(verbose=0)
+    # source: reference library run (PySCF MP2, lowest orbital frozen), same shells
+    assert mine.correlation == pytest.approx(theirs.e_corr, abs=1e-8)
+    assert mine.frozen_core == 1
+    assert mine.n_active_occupied == 4
+
+
+@pytest.fixture(scope="module")
+def hydroxide():
+    mol = hfcore.read_xyz(INPUTS / "hydroxide.xyz", charge=-1)
+    return hfcore.run_rhf(mol, hfcore.build_basis(mol, "sto-3g"), hfcore.SCFOptions(**TIGHT))
+
+
+def test_dipole_of_ion_shifts_with_origin_by_charge_times_shift(hydroxide):
+    shift = np.array([0.3, -0.2, 1.1])
+    # source: exact property — mu(O + d) = mu(O) - Q d for total charge Q
+    np.testing.assert_allclose(
+        dipole_moment(hydroxide, origin=shift), dipole_moment(hydroxide, origin=np.zeros(3)) + shift, atol=1e-10
+    )
+
+
+def test_dipole_origin_must_be_three_numbers(hydroxide):
+    with pytest.raises(InputError, match="origin"):
+        dipole_moment(hydroxide, origin=[0.0, 1.0])
+
+
+def test_debye_conversion():
+    # source: from memory — 1 e·a0 = 2.541746 D (CODATA)
+    assert DEBYE_PER_AU == pytest.approx(2.541746, abs=1e-6)
+
+
+def test_mp2_rejects_unconverged_result(hydroxide):
+    unconverged = dataclasses.replace(hydroxide, converged=False)
+    with pytest.raises(ConvergenceError):
+        mp2_energy(unconverged)
+
+
+@pytest.mark.parametrize("frozen", [-1, 5])
+def test_mp2_rejects_impossible_frozen_core(hydroxide, frozen):
+    # OH- has 5 doubly occupied orbitals, so at most 4 may be frozen.
+    with pytest.raises(InputError, match="frozen_core"):
+        mp2_energy(hydroxide, frozen_core=frozen)
+
+
+def test_core_orbital_count_follows_noble_gas_cores():
+    # source: common practice — 1s core for Li-Ne, 1s2s2p for Na-Ar, none for H-He
+    mol = hfcore.Molecule(np.array([1, 8, 17, 2]), np.arange(12.0).reshape(4, 3))
+    assert core_orbital_count(mol) == 0 + 1 + 5 + 0
+
+
+def test_symmetric_square_root_used_for_lowdin_is_exact(hydroxide):
+    # source: exact property — Löwdin populations are diag(S^1/2 D S^1/2)
+    root = np.real(scipy.linalg.sqrtm(hydroxide.overlap))
+    expected = np.diag(root @ hydroxide.density @ root)
+    np.testing.assert_allclose(lowdin_populations(hydroxide), expected, atol=1e-10)
