@@ -88,3 +88,21 @@ def test_correlation_consistent_family():
     assert correlation_consistent("aug-cc-pVTZ") == ("aug-cc-pVXZ", 3)
     assert correlation_consistent("cc-pvqz") == ("cc-pVXZ", 4)
     assert correlation_consistent("def2-svp") is None
+
+
+def test_neon_three_point_limit_is_near_the_numerical_hartree_fock_limit():
+    import hfcore
+
+    neon = hfcore.Molecule(np.array([10]), np.zeros((1, 3)))
+    names = ["cc-pVDZ", "cc-pVTZ", "cc-pVQZ"]
+    energies = []
+    for name in names:
+        result = hfcore.run_rhf(neon, hfcore.build_basis(neon, name, spherical=True))
+        assert result.converged
+        energies.append(result.energy_total)
+    # source: exact property — the sets are nested in quality, the energy falls with X
+    assert energies[0] > energies[1] > energies[2]
+    cbs = feller_three_point(*energies, 2, 3, 4)
+    # source: C. F. Bunge, J. A. Barrientos, A. V. Bunge, At. Data Nucl. Data Tables 53, 113 (1993),
+    # numerical HF limit of Ne, from memory
+    assert cbs == pytest.approx(-128.547098, abs=2e-3)
