@@ -100,7 +100,7 @@ def test_neon_three_point_limit_is_near_the_numerical_hartree_fock_limit():
         result = hfcore.run_rhf(neon, hfcore.build_basis(neon, name, spherical=True))
         assert result.converged
         energies.append(result.energy_total)
-    # source: exact property — the sets are nested in quality, the energy falls with X
+    # source: common practice — the cc-pVXZ energy falls with X (the sets are not nested, so not exact)
     assert energies[0] > energies[1] > energies[2]
     cbs = feller_three_point(*energies, 2, 3, 4)
     # source: C. F. Bunge, J. A. Barrientos, A. V. Bunge, At. Data Nucl. Data Tables 53, 113 (1993),
