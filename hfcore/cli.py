@@ -17,6 +17,7 @@ from collections.abc import Callable, Sequence
 from typing import Any, TextIO
 
 from . import __version__, elements, export, report
+from .basis.sto import MAX_GAUSSIANS, SLATER_SHELLS, parse_zeta_overrides
 from .errors import HfcoreError, InputError
 
 #: Exit code after Ctrl-C (128 + SIGINT), the shell convention.
@@ -134,8 +135,10 @@ def build_parser() -> argparse.ArgumentParser:
     energy.set_defaults(handler=_run_energy)
 
     fit = sub.add_parser("fit-sto", help="least-squares Gaussian expansion of a Slater function")
-    fit.add_argument("--shell", required=True, choices=("1s", "2sp", "3sp"), help="Slater shell to fit")
-    fit.add_argument("--gaussians", required=True, type=_positive_int, metavar="N", help="number of Gaussians (1-6)")
+    fit.add_argument("--shell", required=True, choices=tuple(SLATER_SHELLS), help="Slater shell to fit")
+    fit.add_argument(
+        "--gaussians", required=True, type=_positive_int, metavar="N", help=f"number of Gaussians (1-{MAX_GAUSSIANS})"
+    )
     fit.add_argument("--zeta", type=_positive_float, default=1.0, metavar="Z", help="Slater exponent (default 1)")
     _add_json_argument(fit)
     fit.add_argument("--plot", metavar="PNG", help="plot the Slater function, the fit and their difference")
@@ -243,7 +246,6 @@ def parse_basis_for(items: Sequence[str]) -> dict[str, str]:
 
 def _build_basis(args: argparse.Namespace, molecule: Any) -> Any:
     from .basis import build_basis
-    from .basis.sto import parse_zeta_overrides
 
     zeta = parse_zeta_overrides(args.zeta) if args.zeta else None
     per_element = parse_basis_for(args.basis_for)
@@ -329,7 +331,7 @@ def _run_fit_sto(args: argparse.Namespace, console: _Console) -> int:
 
     paths = _output_paths(args, "json", "plot")
     fit = fit_sto(args.shell, args.gaussians, args.zeta)
-    record = {"hfcore": {"version": __version__}, "units": {"exponents": "bohr^-2", "zeta": "bohr^-1"}, "fit": fit.to_dict()}
+    record = export.sto_fit_record(fit)
     if "json" in paths:
         export.write_file_atomically(paths["json"], export.to_json(record))
     if "plot" in paths:
@@ -355,7 +357,7 @@ def _run_compare(args: argparse.Namespace, console: _Console) -> int:
     molecule = _read_molecule(args)
     console.report(report.format_molecule(molecule))
     comparison = compare_bases(molecule, names, spherical=args.spherical, progress=_stderr_progress(console))
-    record = {"hfcore": {"version": __version__}, "units": export.UNITS, "comparison": comparison.to_dict()}
+    record = export.comparison_record(comparison)
     if "json" in paths:
         export.write_file_atomically(paths["json"], export.to_json(record))
     if "plot" in paths:

@@ -224,6 +224,44 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
     return record
 
 
+def sto_fit_record(fit: Any) -> dict[str, Any]:
+    """The JSON record of a least-squares Slater fit.
+
+    Parameters
+    ----------
+    fit : STOFit
+
+    Returns
+    -------
+    dict
+        Keys ``hfcore``, ``units`` and ``fit`` (shell, n_gaussians, zeta,
+        exponents in bohr⁻², coefficients and overlaps per angular momentum
+        letter, coefficients for normalised primitives).
+    """
+    from . import __version__
+
+    letters = "spdfg"
+    return {
+        "hfcore": {"version": __version__},
+        "units": {"exponents": "bohr^-2", "zeta": "bohr^-1", "coefficients": "of normalised primitive Gaussians"},
+        "fit": {
+            "shell": fit.shell,
+            "n_gaussians": fit.n_gaussians,
+            "zeta": fit.zeta,
+            "exponents": fit.exponents,
+            "coefficients": {letters[l]: c for l, c in sorted(fit.coefficients.items())},
+            "overlaps": {letters[l]: v for l, v in sorted(fit.overlaps.items())},
+        },
+    }
+
+
+def comparison_record(comparison: Any) -> dict[str, Any]:
+    """The JSON record of a basis comparison: ``hfcore``, ``units``, ``comparison``."""
+    from . import __version__
+
+    return {"hfcore": {"version": __version__}, "units": UNITS, "comparison": comparison.to_dict()}
+
+
 def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS) -> dict[str, np.ndarray]:
     """The arrays of an RHF run, for prototyping new methods on top of it.
 
@@ -287,6 +325,8 @@ __all__ = [
     "write_file_atomically",
     "to_json",
     "result_record",
+    "sto_fit_record",
+    "comparison_record",
     "result_arrays",
     "npz_bytes",
 ]

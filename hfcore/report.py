@@ -227,11 +227,15 @@ def format_comparison(comparison: Any) -> str:
             f"  {row.basis:<16} {row.n_functions:>9}  {form:<9} {row.energy_total:18.10f} "
             f"{row.delta_mEh:11.3f} {row.delta_kcal_mol:12.3f} {row.iterations:>4} {row.wall_time:9.2f}{flag}"
         )
-    lines.append("  Δ: energy above the largest basis (by number of functions)")
+    lines.append(f"  Δ: energy above {comparison.reference_basis}, the basis with the most functions")
     if comparison.estimates:
         lines.append(heading("Basis-limit estimates"))
         for est in comparison.estimates:
-            lines.append(f"  {est.method:<34} from {', '.join(est.bases):<28} {est.energy:18.10f} Eh")
+            lines.append(
+                f"  {est.method:<12} {', '.join(est.bases):<36} {est.energy_total:18.10f} Eh {est.delta_mEh:11.3f} mEh"
+            )
+            lines.append(f"  {'':<12} {est.citation}")
+    lines += [f"  note: {note}" for note in comparison.notes]
     return "\n".join(lines)
 
 
