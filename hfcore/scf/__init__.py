@@ -15,6 +15,8 @@ layer never prints; pass ``progress`` to watch the iterations.
 from __future__ import annotations
 
 from .accelerators import DIIS, Accelerator, Chain, Damping, FockStep, LevelShift, build_accelerator
+from .driver import GUESSES, run_rhf
+from .guess import sad_density
 from .jk import DenseJK, JKBuilder
 from .options import SCFOptions
 from .orthogonalise import Orthogonaliser
@@ -22,7 +24,10 @@ from .result import RHFResult, SCFIteration
 from .solver import solve_rhf
 
 __all__ = [
+    "run_rhf",
     "solve_rhf",
+    "GUESSES",
+    "sad_density",
     "SCFOptions",
     "RHFResult",
     "SCFIteration",
