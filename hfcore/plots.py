@@ -95,4 +95,70 @@ def plot_comparison(comparison, path: str | os.PathLike) -> None:
         plt.close(figure)
 
 
-__all__ = ["plot_comparison"]
+def _radial_range(fits) -> float:
+    """Outer radius (bohr) where the most diffuse Slater function has fallen to a few per cent."""
+    return max((2.5 * f.principal + 2.0) / f.zeta for f in fits)
+
+
+def plot_sto_fit(fits, path: str | os.PathLike) -> None:
+    """Draw Slater radial functions, their Gaussian fits and the differences.
+
+    The upper panel shows each distinct Slater radial function R(r) and
+    every fitted Gaussian sum; the lower panel shows fit minus Slater, so
+    the poor description of the cusp near the nucleus, and its improvement
+    with more Gaussians, stand out.
+
+    Parameters
+    ----------
+    fits : list of STOFit
+        From :func:`hfcore.basis.sto.fit_sto`; an ``sp`` fit contributes
+        one curve per angular momentum.
+    path : str or path-like
+        The PNG file to write (replaced atomically).
+
+    Raises
+    ------
+    InputError
+        If ``fits`` is empty, matplotlib is missing or the directory of
+        ``path`` does not exist.
+    """
+    import numpy as np
+
+    if not fits:
+        raise InputError("plot_sto_fit needs at least one fit")
+    if not os.path.isdir(os.path.dirname(os.path.abspath(os.fspath(path)))):
+        raise InputError(f"{os.fspath(path)}: the directory does not exist")
+    plt = _pyplot()
+    r = np.linspace(0.0, _radial_range(fits), 600)
+    letters = "spdfg"
+    figure, (top, bottom) = plt.subplots(2, 1, sharex=True, figsize=(7.0, 6.4), height_ratios=(3, 2))
+    try:
+        drawn = set()
+        for fit in fits:
+            key = (fit.principal, fit.zeta)
+            if key not in drawn:
+                drawn.add(key)
+                top.plot(r, fit.slater_radial(r), color="black", linewidth=2.0, alpha=0.45,
+                         label=f"Slater, n = {fit.principal}, ζ = {fit.zeta:g}")
+        for k, fit in enumerate(fits):
+            slater = fit.slater_radial(r)
+            for j, l in enumerate(fit.angular_momenta):
+                gauss = fit.gaussian_radial(r, l)
+                label = f"STO-{fit.n_gaussians}G {fit.shell} ({letters[l]}), overlap {fit.overlaps[l]:.7f}"
+                style = ("-", "--", ":")[j % 3]
+                top.plot(r, gauss, style, color=f"C{k}", linewidth=1.2, label=label)
+                bottom.plot(r, gauss - slater, style, color=f"C{k}", linewidth=1.2)
+        bottom.axhline(0.0, color="black", linewidth=0.6)
+        top.set_ylabel("radial function R(r) / bohr$^{-3/2}$")
+        bottom.set_ylabel("fit − Slater / bohr$^{-3/2}$")
+        bottom.set_xlabel("r / bohr")
+        top.legend(fontsize=7, loc="upper right")
+        top.set_title("Least-squares Gaussian fits to Slater functions", fontsize=10)
+        bottom.set_xlim(0.0, r[-1])
+        figure.tight_layout()
+        _save_atomically(figure, path)
+    finally:
+        plt.close(figure)
+
+
+__all__ = ["plot_comparison", "plot_sto_fit"]
