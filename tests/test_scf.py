@@ -1,0 +1,257 @@
+"""The SCF layer as a specification.
+
+Most tests drive :func:`hfcore.scf.solve_rhf` with integral matrices from
+the reference library (PySCF), so the algorithm is tested apart from
+hfcore's own integrals.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pytest
+from pyscf import gto, scf
+
+from hfcore.errors import ConvergenceError, InputError
+from hfcore.scf import DIIS, DenseJK, FockStep, Orthogonaliser, SCFIteration, SCFOptions, solve_rhf
+from hfcore.scf.guess import fractional_scf
+
+WATER = "O 0 0 0.1173; H 0 0.7572 -0.4692; H 0 -0.7572 -0.4692"
+HYDROXIDE = "O 0 0 0; H 0 0 0.97"
+AMMONIA = "N 0 0 0.1; H 0 0.94 -0.27; H 0.814 -0.47 -0.27; H -0.814 -0.47 -0.27"
+
+
+@dataclass
+class Matrices:
+    mol: gto.Mole
+    overlap: np.ndarray
+    hcore: np.ndarray
+    jk: DenseJK
+
+    def solve(self, options: SCFOptions | None = None, **kwargs):
+        return solve_rhf(
+            self.overlap, self.hcore, self.jk, self.mol.nelectron, self.mol.energy_nuc(), options, **kwargs
+        )
+
+    def reference_energy(self) -> float:
+        mf = scf.RHF(self.mol)
+        mf.conv_tol = 1e-11
+        return float(mf.kernel())
+
+
+def _matrices(atom: str, basis, charge: int = 0) -> Matrices:
+    mol = gto.M(atom=atom, basis=basis, charge=charge, verbose=0)
+    hcore = mol.intor("int1e_kin") + mol.intor("int1e_nuc")
+    return Matrices(mol, mol.intor("int1e_ovlp"), hcore, DenseJK(mol.intor("int2e")))
+
+
+@pytest.fixture(scope="module")
+def water_dz() -> Matrices:
+    return _matrices(WATER, "cc-pvdz")
+
+
+@pytest.fixture(scope="module")
+def water_dz_result(water_dz):
+    return water_dz.solve()
+
+
+@pytest.mark.parametrize(
+    "atom, basis, charge",
+    [(WATER, "cc-pvdz", 0), (AMMONIA, "sto-3g", 0), (HYDROXIDE, "6-31g", -1), ("N 0 0 0; N 0 0 1.0977", "cc-pvdz", 0)],
+)
+def test_energy_matches_reference_library_with_same_integrals(atom, basis, charge):
+    m = _matrices(atom, basis, charge)
+    result = m.solve()
+    # source: reference library run (PySCF), same integrals, conv_tol 1e-11
+    assert result.energy_total == pytest.approx(m.reference_energy(), abs=1e-8)
+    assert result.converged
+
+
+def test_core_guess_reaches_the_same_energy(water_dz, water_dz_result):
+    core = water_dz.solve()
+    guessed = water_dz.solve(guess_density=water_dz_result.density)
+    # exact property: the converged energy does not depend on the start
+    assert guessed.energy_total == pytest.approx(core.energy_total, abs=1e-9)
+
+
+def test_converged_density_is_idempotent(water_dz_result):
+    r = water_dz_result
+    d, s = r.density, r.overlap
+    # exact property: D S D = 2 D for the closed-shell total density
+    np.testing.assert_allclose(d @ s @ d, 2.0 * d, atol=1e-10)
+
+
+def test_density_holds_the_electron_count(water_dz, water_dz_result):
+    # exact property: tr(D S) = N for the total density
+    assert np.trace(water_dz_result.density @ water_dz_result.overlap) == pytest.approx(water_dz.mol.nelectron, abs=1e-10)
+
+
+def test_orbitals_are_s_orthonormal(water_dz_result):
+    c, s = water_dz_result.coefficients, water_dz_result.overlap
+    # exact property: Cᵀ S C = 1
+    np.testing.assert_allclose(c.T @ s @ c, np.eye(c.shape[1]), atol=1e-10)
+
+
+def test_fock_commutes_with_density_at_convergence(water_dz_result):
+    r = water_dz_result
+    fds = r.fock @ r.density @ r.overlap
+    # exact property: F D S = S D F at self-consistency, here to the order of gradient_tol
+    assert np.max(np.abs(fds - fds.T)) < 1e-6
+
+
+def test_orbitals_diagonalise_the_final_fock(water_dz_result):
+    r = water_dz_result
+    # exact property: canonical orbitals solve F C = S C ε
+    np.testing.assert_allclose(r.fock @ r.coefficients, r.overlap @ r.coefficients * r.orbital_energies, atol=1e-10)
+
+
+def test_energy_components_add_up(water_dz_result):
+    r = water_dz_result
+    # exact property: E = tr(D H) + ½ tr(D G) + E_nuc
+    assert r.energy_electronic == pytest.approx(r.energy_one_electron + r.energy_two_electron, abs=1e-12)
+    assert r.energy_total == pytest.approx(r.energy_electronic + r.energy_nuclear, abs=1e-12)
+
+
+def test_occupations_and_frontier_orbitals(water_dz_result):
+    r = water_dz_result
+    assert r.n_occupied == 5
+    assert list(r.occupations[:6]) == [2.0, 2.0, 2.0, 2.0, 2.0, 0.0]
+    assert (r.homo, r.lumo) == (4, 5)
+    assert r.homo_energy < 0.0 < r.lumo_energy
+
+
+def test_history_and_progress_agree(water_dz):
+    seen: list[SCFIteration] = []
+    result = water_dz.solve(progress=seen.append)
+    assert seen == result.history
+    assert [h.iteration for h in seen] == list(range(1, result.iterations + 1))
+    assert seen[-1].energy == pytest.approx(result.energy_total, abs=1e-12)
+    assert abs(seen[-1].delta_e) < result.options.energy_tol
+    assert seen[-1].gradient_norm < result.options.gradient_tol
+
+
+def test_timings_are_recorded(water_dz_result):
+    assert set(water_dz_result.timings) == {"guess", "scf", "total"}
+    assert all(t >= 0.0 for t in water_dz_result.timings.values())
+
+
+@pytest.mark.parametrize(
+    "options",
+    [
+        SCFOptions(accelerator="damping", damping=0.3, max_iterations=300),
+        SCFOptions(accelerator="none", max_iterations=300),
+        SCFOptions(level_shift=0.5, max_iterations=300),
+        SCFOptions(damping=0.5, diis_start=4),
+    ],
+    ids=["damping", "none", "diis+level-shift", "damping-then-diis"],
+)
+def test_every_accelerator_reaches_the_same_energy(water_dz, water_dz_result, options):
+    result = water_dz.solve(options)
+    # exact property: acceleration changes the path, not the fixed point
+    assert result.energy_total == pytest.approx(water_dz_result.energy_total, abs=1e-9)
+    np.testing.assert_allclose(result.orbital_energies, water_dz_result.orbital_energies, atol=1e-6)
+
+
+def test_diis_needs_fewer_iterations_than_plain_roothaan(water_dz, water_dz_result):
+    plain = water_dz.solve(SCFOptions(accelerator="none", max_iterations=300))
+    # common practice: DIIS shortens the iteration markedly
+    assert water_dz_result.iterations < plain.iterations
+
+
+def test_near_linear_dependence_is_dropped_and_counted(monkeypatch):
+    basis = {"H": gto.basis.parse("H S\n 1.0 1.0\nH S\n 1.00002 1.0\nH S\n 0.2 1.0"), "O": "cc-pvdz"}
+    m = _matrices(WATER, basis)
+    result = m.solve()
+    assert result.n_dropped == 2  # one near-duplicate s function on each H
+    assert result.coefficients.shape == (m.mol.nao, m.mol.nao - 2)
+    monkeypatch.setattr(scf.hf, "remove_overlap_zero_eigenvalue", True)
+    monkeypatch.setattr(scf.hf, "overlap_zero_eigenvalue_threshold", 1e-7)
+    mf = scf.RHF(m.mol)
+    mf.conv_tol = 1e-11
+    # source: reference library run (PySCF) with canonical orthogonalisation at the same threshold
+    assert result.energy_total == pytest.approx(mf.kernel(), abs=1e-8)
+
+
+def test_orthogonaliser_gives_an_orthonormal_basis(water_dz):
+    ortho = Orthogonaliser.from_overlap(water_dz.overlap, 1e-7)
+    x = ortho.transform
+    # exact property: Xᵀ S X = 1
+    np.testing.assert_allclose(x.T @ water_dz.overlap @ x, np.eye(ortho.n_orbitals), atol=1e-12)
+    assert ortho.n_dropped == 0
+
+
+def test_non_convergence_raises_with_the_last_state(water_dz):
+    with pytest.raises(ConvergenceError) as info:
+        water_dz.solve(SCFOptions(max_iterations=2))
+    result = info.value.result
+    last = result.history[-1]
+    message = str(info.value)
+    assert "2 iterations" in message
+    assert f"{last.energy:.10f}" in message
+    assert f"{last.gradient_norm:.3e}" in message
+    assert not result.converged and result.iterations == 2
+
+
+@pytest.mark.parametrize(
+    "kwargs",
+    [
+        {"energy_tol": 0.0},
+        {"energy_tol": -1e-8},
+        {"gradient_tol": float("nan")},
+        {"max_iterations": 0},
+        {"max_iterations": 2.5},
+        {"max_iterations": True},
+        {"diis_space": 1},
+        {"diis_start": 0},
+        {"lindep_threshold": 1.5},
+        {"screening": -1e-12},
+        {"damping": 1.0},
+        {"damping": -0.1},
+        {"level_shift": -0.5},
+        {"accelerator": "newton"},
+        {"accelerator": "damping"},
+        {"accelerator": "none", "damping": 0.5},
+        {"direct": "yes"},
+    ],
+)
+def test_bad_options_are_refused(kwargs):
+    with pytest.raises(InputError):
+        SCFOptions(**kwargs)
+
+
+def test_accelerator_name_is_case_insensitive():
+    assert SCFOptions(accelerator="DIIS").accelerator == "diis"
+
+
+def test_odd_electron_count_is_refused(water_dz):
+    with pytest.raises(InputError, match="even"):
+        solve_rhf(water_dz.overlap, water_dz.hcore, water_dz.jk, 9, 0.0)
+
+
+def test_guess_of_wrong_shape_is_refused(water_dz):
+    with pytest.raises(InputError, match="guess density"):
+        water_dz.solve(guess_density=np.eye(3))
+
+
+def test_diis_extrapolates_to_zero_error():
+    # exact property: errors e and -e combine with weights ½, ½ to zero error
+    diis = DIIS(space=4)
+    e = np.array([[0.0, 1.0], [-1.0, 0.0]])
+    f1, f2 = np.diag([1.0, 2.0]), np.diag([3.0, 4.0])
+    diis.next_fock(FockStep(1, f1, e, np.zeros((2, 2))))
+    out = diis.next_fock(FockStep(2, f2, -e, np.zeros((2, 2))))
+    np.testing.assert_allclose(out, 0.5 * (f1 + f2), atol=1e-14)
+    assert diis.subspace_size == 2
+
+
+def test_fractional_atomic_scf_matches_the_spherical_average():
+    mol = gto.M(atom="C 0 0 0", basis="cc-pvdz", spin=2, verbose=0)
+    density = fractional_scf(
+        mol.intor("int1e_ovlp"), mol.intor("int1e_kin") + mol.intor("int1e_nuc"), DenseJK(mol.intor("int2e")), 6
+    )
+    # exact property: the density holds the atom's electrons
+    assert np.trace(density @ mol.intor("int1e_ovlp")) == pytest.approx(6.0, abs=1e-10)
+    p = slice(3, 6)  # the first p shell: x, y, z share the two 2p electrons evenly
+    # exact property: a spherically averaged density has equal p_x, p_y, p_z blocks
+    np.testing.assert_allclose(np.diag(density)[p], np.diag(density)[p][0], atol=1e-10)
