@@ -1,0 +1,14 @@
+"""Integrals over contracted Gaussian shells (McMurchie–Davidson scheme).
+
+Public contract: every function takes a :class:`~hfcore.basis.shells.BasisSet`
+and returns matrices in the basis' own form (Cartesian or real spherical,
+per ``basis.spherical``), in atomic units.
+"""
+
+from __future__ import annotations
+
+from .boys import boys
+from .one_electron import kinetic, multipole, nuclear_attraction, overlap
+from .spherical import c2s
+
+__all__ = ["boys", "c2s", "overlap", "kinetic", "nuclear_attraction", "multipole"]
