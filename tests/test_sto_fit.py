@@ -158,7 +158,7 @@ def _best_summed_overlap(shell: str, exponents: np.ndarray) -> float:
     return total
 
 
-@pytest.mark.parametrize("shell,n", [("1s", 4), ("2sp", 3), ("3sp", 3)])
+@pytest.mark.parametrize("shell,n", [("1s", 4), ("2sp", 3), ("3sp", 3), ("2p", 3), ("3d", 2)])
 def test_fitted_exponents_are_a_maximum_of_the_overlap(shell, n):
     fit = fit_sto(shell, n)
     best = _best_summed_overlap(shell, np.array(fit.exponents))
@@ -190,7 +190,7 @@ def test_fit_is_deterministic_when_recomputed():
     np.testing.assert_array_equal(first.coefficients[1], second.coefficients[1])
 
 
-@pytest.mark.parametrize("args", [("4f", 3), ("1s", 0), ("1s", 7), ("1s", 3, 0.0), ("1s", 3, -1.0)])
+@pytest.mark.parametrize("args", [("4f", 3), ("1s", 0), ("1s", 7), ("1s", 2.5), ("1s", True), ("1s", 3, 0.0), ("1s", 3, -1.0)])
 def test_fit_rejects_bad_arguments(args):
     with pytest.raises(InputError):
         fit_sto(*args)

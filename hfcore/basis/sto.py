@@ -29,6 +29,7 @@ digits by cancellation when the Gaussian is diffuse.
 from __future__ import annotations
 
 import math
+import numbers
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass
@@ -231,6 +232,11 @@ def _fit_unit(shell: str, m: int) -> tuple[tuple[float, ...], tuple[tuple[float,
     return tuple(np.exp(x)), tuple(coefficients), tuple(overlaps)
 
 
+def _is_count(n_gaussians: object) -> bool:
+    """True for an integer number of Gaussians in 1..MAX_GAUSSIANS (bools excluded)."""
+    return isinstance(n_gaussians, numbers.Integral) and not isinstance(n_gaussians, bool) and 1 <= n_gaussians <= MAX_GAUSSIANS
+
+
 def _readonly(values: ArrayLike) -> np.ndarray:
     out = np.array(values, dtype=np.float64)
     out.setflags(write=False)
@@ -339,10 +345,11 @@ def fit_sto(shell: str = "1s", n_gaussians: int = 3, zeta: float = 1.0) -> STOFi
     """
     if shell not in SLATER_SHELLS:
         raise InputError(f"unknown Slater shell {shell!r}; known: {', '.join(SLATER_SHELLS)}")
-    if not isinstance(n_gaussians, int) or not 1 <= n_gaussians <= MAX_GAUSSIANS:
+    if not _is_count(n_gaussians):
         raise InputError(f"STO-nG needs 1 <= n <= {MAX_GAUSSIANS} Gaussians, got {n_gaussians!r}")
     if not (math.isfinite(zeta) and zeta > 0):
         raise InputError(f"Slater exponent must be a positive number, got {zeta!r}")
+    n_gaussians = int(n_gaussians)
     exponents, coefficients, overlaps = _fit_unit(shell, n_gaussians)
     principal, ls = SLATER_SHELLS[shell]
     return STOFit(
@@ -453,10 +460,10 @@ class STOFamily(BasisFamily):
     citation = CITATION
 
     def __init__(self, n_gaussians: int = 3, zeta: Mapping[str, float] | None = None) -> None:
-        if not isinstance(n_gaussians, int) or not 1 <= n_gaussians <= MAX_GAUSSIANS:
+        if not _is_count(n_gaussians):
             raise BasisError(f"STO-nG is available for n = 1..{MAX_GAUSSIANS}, not {n_gaussians!r}")
-        self.n_gaussians = n_gaussians
-        self.name = f"STO-{n_gaussians}G"
+        self.n_gaussians = int(n_gaussians)
+        self.name = f"STO-{self.n_gaussians}G"
         self.overrides: dict[str, float] = {
             _parse_override_key(k, f"{k}={v}"): _check_override_value(v, f"{k}={v}") for k, v in (zeta or {}).items()
         }
