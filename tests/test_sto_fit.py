@@ -54,7 +54,7 @@ def test_3sp_sto3g_reproduces_1970_coefficients():
 
 def _reference_shells(n_gaussians: int, symbol: str) -> dict[int, list[tuple[np.ndarray, np.ndarray]]]:
     """The reference library's STO-nG shells of an element, grouped by l in its order."""
-    gto = pytest.importorskip("pyscf.gto")
+    from pyscf import gto
     grouped: dict[int, list[tuple[np.ndarray, np.ndarray]]] = {}
     for shell in gto.basis.load(f"sto-{n_gaussians}g", symbol):
         l, primitives = shell[0], np.array(shell[1:], dtype=float)
