@@ -1,0 +1,423 @@
+"""The ``hfcore`` command line: exit codes, one-line errors, JSON on stdout, atomic files, npz contents.
+
+Exit-code and no-traceback checks run the real process (``python -m hfcore``);
+the rest call :func:`hfcore.cli.main` in-process to stay quick.
+"""
+
+from __future__ import annotations
+
+import io
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from hfcore import export
+from hfcore.cli import main, parse_basis_for
+from hfcore.errors import InputError
+
+WATER = """3
+water, neutral
+O   0.000000   0.000000   0.117300
+H   0.000000   0.757200  -0.469200
+H   0.000000  -0.757200  -0.469200
+"""
+
+REQUIRED_JSON_KEYS = [
+    ("energy", "total"),
+    ("energy", "nuclear_repulsion"),
+    ("energy", "electronic"),
+    ("energy", "one_electron"),
+    ("energy", "two_electron"),
+    ("scf", "converged"),
+    ("scf", "iterations"),
+    ("scf", "history"),
+    ("scf", "thresholds"),
+    ("basis", "name"),
+    ("basis", "n_functions"),
+    ("basis", "spherical"),
+    ("orbitals", "energies"),
+    ("orbitals", "occupations"),
+    ("orbitals", "homo"),
+    ("orbitals", "lumo"),
+    ("molecule", "charge"),
+    ("molecule", "n_electrons"),
+    ("molecule", "symbols"),
+    ("molecule", "coordinates_bohr"),
+    ("hfcore", "version"),
+]
+
+
+def hfcore_process(*args: str, cwd: Path) -> subprocess.CompletedProcess:
+    """Run ``python -m hfcore ARGS`` in ``cwd`` and capture its streams."""
+    return subprocess.run(
+        [sys.executable, "-m", "hfcore", *args],
+        cwd=cwd,
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+
+
+def run_main(*args: str) -> tuple[int, str, str]:
+    out, err = io.StringIO(), io.StringIO()
+    code = main(list(args), stdout=out, stderr=err)
+    return code, out.getvalue(), err.getvalue()
+
+
+@pytest.fixture()
+def water(tmp_path) -> Path:
+    path = tmp_path / "water.xyz"
+    path.write_text(WATER)
+    return path
+
+
+def assert_one_line_error(proc: subprocess.CompletedProcess, code: int, *fragments: str) -> None:
+    assert proc.returncode == code, proc.stderr
+    assert "Traceback" not in proc.stderr
+    lines = proc.stderr.splitlines()
+    assert len(lines) == 1, proc.stderr
+    assert lines[0].startswith("hfcore: error: ")
+    for fragment in fragments:
+        assert fragment in lines[0]
+    assert proc.stdout == ""
+
+
+def only_inputs_left(directory: Path, *inputs: str) -> bool:
+    return sorted(p.name for p in directory.iterdir()) == sorted(inputs)
+
+
+# --- bad input: one line, an exit code, no traceback, nothing written ---------------
+
+BAD_GEOMETRIES = [
+    ("empty", "", "mol.xyz:1: the file is empty"),
+    ("count not an integer", "two\n\nH 0 0 0\nH 0 0 0.74\n", "mol.xyz:1: expected the number of atoms"),
+    ("count too large", "3\n\nH 0 0 0\nH 0 0 0.74\n", "mol.xyz:1: the count line says 3 atoms but 2 atom lines follow"),
+    ("count too small", "1\n\nH 0 0 0\nH 0 0 0.74\n", "mol.xyz:1: the count line says 1 atoms but 2 atom lines follow"),
+    ("unknown element", "2\n\nH 0 0 0\nXx 0 0 0.74\n", "mol.xyz:4: unknown element 'Xx'"),
+    ("coordinate not a number", "2\n\nH 0 0 0\nH 0 0 0,74\n", "mol.xyz:4: the z coordinate '0,74' is not a finite number"),
+    ("coordinate not finite", "2\n\nH 0 0 0\nH 0 nan 0.74\n", "mol.xyz:4: the y coordinate 'nan' is not a finite number"),
+    ("atoms too close", "2\n\nH 0 0 0\nH 0 0 0.05\n", "mol.xyz:4: atom 2 is 0.05 Å from atom 1 (line 3)"),
+    ("odd electron count", "2\n\nO 0 0 0\nH 0 0 0.97\n", "RHF needs an even number"),
+]
+
+
+@pytest.mark.parametrize(("text", "fragment"), [c[1:] for c in BAD_GEOMETRIES], ids=[c[0] for c in BAD_GEOMETRIES])
+def test_bad_geometry_gives_one_line_exit_2_and_writes_nothing(tmp_path, text, fragment):
+    (tmp_path / "mol.xyz").write_text(text)
+    proc = hfcore_process("energy", "mol.xyz", "--json", "out.json", "--npz", "out.npz", cwd=tmp_path)
+    assert_one_line_error(proc, 2, fragment)
+    assert only_inputs_left(tmp_path, "mol.xyz")
+
+
+def test_missing_geometry_file(tmp_path):
+    proc = hfcore_process("energy", "nothere.xyz", "--json", "out.json", cwd=tmp_path)
+    assert_one_line_error(proc, 2, "nothere.xyz: no such file")
+    assert only_inputs_left(tmp_path)
+
+
+def test_odd_electrons_message_suggests_a_charge(tmp_path):
+    (tmp_path / "nh4.xyz").write_text(
+        "5\nammonium\nN 0 0 0\nH 0.59 0.59 0.59\nH -0.59 -0.59 0.59\nH -0.59 0.59 -0.59\nH 0.59 -0.59 -0.59\n"
+    )
+    proc = hfcore_process("energy", "nh4.xyz", cwd=tmp_path)
+    assert_one_line_error(proc, 2, "11 electrons", "closed shell", "--charge 1")
+
+
+@pytest.mark.parametrize(
+    ("basis", "element", "charge", "fragment"),
+    [
+        ("sto-3g", "Kr", "0", "mol.xyz:5: basis STO-3G does not cover element Kr"),
+        ("cc-pvdz", "K", "1", "mol.xyz:5: basis cc-pVDZ does not cover element K"),
+    ],
+)
+def test_element_the_basis_does_not_cover_exits_3(tmp_path, basis, element, charge, fragment):
+    (tmp_path / "mol.xyz").write_text(f"3\n\nH 0 0 0\nH 0 0 0.74\n{element} 0 0 3.5\n")
+    proc = hfcore_process("energy", "mol.xyz", "--basis", basis, "--charge", charge, "--json", "o.json", cwd=tmp_path)
+    assert_one_line_error(proc, 3, fragment)
+    assert only_inputs_left(tmp_path, "mol.xyz")
+
+
+def test_unknown_basis_name_exits_3(water):
+    proc = hfcore_process("energy", water.name, "--basis", "no-such-basis-zz", "--json", "o.json", cwd=water.parent)
+    assert_one_line_error(proc, 3, "no-such-basis-zz")
+    assert only_inputs_left(water.parent, water.name)
+
+
+@pytest.mark.parametrize(
+    ("item", "fragment"),
+    [
+        ("He", "He"),
+        ("O=abc", "abc"),
+        ("O=-1", "-1"),
+        ("Xx=1.0", "Xx"),
+        ("H:2sp=1.0", "2sp"),
+    ],
+)
+def test_bad_zeta_exits_2(water, item, fragment):
+    proc = hfcore_process("energy", water.name, "--zeta", item, "--json", "o.json", cwd=water.parent)
+    assert_one_line_error(proc, 2, "zeta", fragment)
+    assert only_inputs_left(water.parent, water.name)
+
+
+@pytest.mark.parametrize(
+    ("item", "code", "fragment"),
+    [
+        ("H", 2, "expected EL=NAME"),
+        ("H=", 2, "expected EL=NAME"),
+        ("Xx=cc-pvdz", 2, "unknown element 'Xx'"),
+        ("H=no-such-basis-zz", 3, "no-such-basis-zz"),
+    ],
+)
+def test_bad_basis_for(water, item, code, fragment):
+    proc = hfcore_process("energy", water.name, "--basis-for", item, "--json", "o.json", cwd=water.parent)
+    assert_one_line_error(proc, code, fragment)
+    assert only_inputs_left(water.parent, water.name)
+
+
+def test_bad_basis_file_exits_3(water):
+    (water.parent / "bad.json").write_text('{"format": "hfcore-basis/1", "name": "x", "elements": {"O": [}')
+    proc = hfcore_process("energy", water.name, "--basis-file", "bad.json", cwd=water.parent)
+    assert_one_line_error(proc, 3, "bad.json")
+
+
+def test_output_in_a_missing_directory_fails_before_computing(water):
+    proc = hfcore_process("energy", water.name, "--json", "nodir/out.json", cwd=water.parent)
+    assert_one_line_error(proc, 2, "nodir/out.json", "does not exist")
+
+
+@pytest.mark.parametrize(
+    "args",
+    [
+        ["energy"],
+        ["energy", "w.xyz", "--charge", "one"],
+        ["energy", "w.xyz", "--max-iterations", "0"],
+        ["energy", "w.xyz", "--energy-tol", "-1e-8"],
+        ["energy", "w.xyz", "--cartesian", "--spherical"],
+        ["energy", "w.xyz", "--no-such-flag"],
+        ["fit-sto", "--shell", "4f", "--gaussians", "3"],
+        ["no-such-command"],
+    ],
+)
+def test_usage_errors_exit_2_without_traceback(tmp_path, args):
+    proc = hfcore_process(*args, cwd=tmp_path)
+    assert proc.returncode == 2
+    assert "Traceback" not in proc.stderr
+    assert proc.stderr.strip().splitlines()[-1].startswith("hfcore")
+    assert proc.stdout == ""
+
+
+def test_scf_not_converged_exits_4_with_last_energy_and_gradient(water):
+    old = '{"kept": true}\n'
+    (water.parent / "o.json").write_text(old)
+    proc = hfcore_process("energy", water.name, "--max-iterations", "2", "--json", "o.json", "--quiet", cwd=water.parent)
+    assert proc.returncode == 4
+    assert "Traceback" not in proc.stderr
+    line = proc.stderr.strip()
+    assert line.startswith("hfcore: error: ") and "\n" not in line
+    assert "energy" in line and "gradient" in line
+    # a failed run leaves an existing output file as it was
+    assert (water.parent / "o.json").read_text() == old
+    assert only_inputs_left(water.parent, water.name, "o.json")
+
+
+def test_parse_basis_for_canonicalises_symbols():
+    assert parse_basis_for(["h=cc-pvdz", "CL=6-31g*"]) == {"H": "cc-pvdz", "Cl": "6-31g*"}
+    with pytest.raises(InputError, match="element H given twice"):
+        parse_basis_for(["H=cc-pvdz", "h=sto-3g"])
+
+
+# --- successful runs ------------------------------------------------------------------
+
+
+def test_json_to_stdout_is_pure_json_with_the_required_keys(water):
+    proc = hfcore_process("energy", water.name, "--basis", "sto-3g", "--json", "-", cwd=water.parent)
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stderr == ""
+    record = json.loads(proc.stdout)
+    for section, key in REQUIRED_JSON_KEYS:
+        assert key in record[section], (section, key)
+    assert "energy" in record["units"] and "length" in record["units"]
+    assert record["scf"]["converged"] is True
+    assert record["basis"]["n_functions"] == 7  # source: common practice — STO-3G water is 1s2s2p on O + 1s on each H
+    assert record["molecule"]["n_electrons"] == 10
+    assert record["orbitals"]["homo"] == 4 and record["orbitals"]["lumo"] == 5
+    assert record["orbitals"]["occupations"] == [2.0] * 5 + [0.0] * 2
+    e = record["energy"]
+    # source: exact property — the parts add up to the total
+    assert e["electronic"] == pytest.approx(e["one_electron"] + e["two_electron"], abs=1e-12)
+    assert e["total"] == pytest.approx(e["electronic"] + e["nuclear_repulsion"], abs=1e-12)
+    assert len(record["scf"]["history"]) == record["scf"]["iterations"]
+
+
+def test_json_file_matches_json_stdout_and_the_human_report(water):
+    code, out, err = run_main("energy", str(water), "--json", str(water.parent / "w.json"))
+    assert code == 0, err
+    record = json.loads((water.parent / "w.json").read_text())
+    # the human report shows the same total energy, to the digits it prints
+    assert f"{record['energy']['total']:22.12f}".strip() in out
+    for section in ("Molecule", "Basis", "SCF iterations", "Energy / Eh", "Orbitals", "Mulliken charges", "Dipole moment", "Timings"):
+        assert section in out
+    assert "HOMO" in out and "LUMO" in out
+    assert only_inputs_left(water.parent, water.name, "w.json")
+
+
+def test_human_report_prints_one_row_per_iteration_and_quiet_drops_them(water):
+    code, out, _ = run_main("energy", str(water), "--json", str(water.parent / "w.json"))
+    assert code == 0
+    iterations = json.loads((water.parent / "w.json").read_text())["scf"]["iterations"]
+    rows = [line for line in out.splitlines() if line.strip() and line.split()[0].isdigit() and len(line.split()) == 5]
+    assert [int(r.split()[0]) for r in rows] == list(range(1, iterations + 1))
+    code, quiet, _ = run_main("energy", str(water), "--quiet")
+    assert code == 0
+    assert "SCF iterations" not in quiet and "total energy" in quiet
+
+
+def test_npz_holds_the_arrays_for_prototyping(water):
+    path = water.parent / "w.npz"
+    code, _, err = run_main("energy", str(water), "--npz", str(path), "--json", str(water.parent / "w.json"))
+    assert code == 0, err
+    record = json.loads((water.parent / "w.json").read_text())
+    with np.load(path, allow_pickle=False) as data:
+        arrays = {k: data[k] for k in data.files}
+    nbf = 7
+    for key in ("overlap", "kinetic", "nuclear_attraction", "core_hamiltonian", "density", "fock"):
+        assert arrays[key].shape == (nbf, nbf) and arrays[key].dtype == np.float64
+    assert arrays["eri"].shape == (nbf,) * 4
+    assert arrays["coordinates"].shape == (3, 3)
+    assert arrays["atomic_numbers"].tolist() == [8, 1, 1]
+    # source: exact property — H = T + V
+    np.testing.assert_allclose(arrays["core_hamiltonian"], arrays["kinetic"] + arrays["nuclear_attraction"], atol=1e-12)
+    c_occ = arrays["coefficients"][:, arrays["occupations"] > 0]
+    # source: exact property — the total density is 2 C_occ C_occ^T
+    np.testing.assert_allclose(arrays["density"], 2 * c_occ @ c_occ.T, atol=1e-12)
+    np.testing.assert_allclose(arrays["coordinates"], record["molecule"]["coordinates_bohr"], rtol=0, atol=0)
+    assert float(arrays["energy_total"]) == record["energy"]["total"]
+    # source: exact property — the energy is recovered from the saved arrays:
+    # E = ½ tr D H + ½ tr D F + E_nuc, with F = H + J - ½K from the dense ERI
+    d, h, eri = arrays["density"], arrays["core_hamiltonian"], arrays["eri"]
+    f = h + np.einsum("ijkl,kl->ij", eri, d) - 0.5 * np.einsum("ikjl,kl->ij", eri, d)
+    energy = 0.5 * np.sum(d * (h + f)) + record["energy"]["nuclear_repulsion"]
+    assert energy == pytest.approx(record["energy"]["total"], abs=1e-8)
+
+
+def test_npz_leaves_out_the_eri_tensor_above_the_size_limit(water):
+    import hfcore
+
+    mol = hfcore.read_xyz(water)
+    result = hfcore.run_rhf(mol, hfcore.build_basis(mol, "sto-3g"))
+    assert "eri" in export.result_arrays(result)
+    assert "eri" not in export.result_arrays(result, eri_max_functions=6)
+
+
+def test_outputs_replace_existing_files_whole(water):
+    target = water.parent / "w.json"
+    target.write_text("old content that is longer than nothing\n" * 1000)
+    code, _, _ = run_main("energy", str(water), "--json", str(target), "--quiet")
+    assert code == 0
+    json.loads(target.read_text())
+    assert only_inputs_left(water.parent, water.name, "w.json")
+
+
+def test_staging_failure_writes_no_file_at_all(tmp_path):
+    files = {str(tmp_path / "a.json"): b"{}", str(tmp_path / "missing" / "b.npz"): b"x"}
+    with pytest.raises(InputError, match="b.npz: cannot write"):
+        export.write_files_atomically(files)
+    assert only_inputs_left(tmp_path)
+
+
+def test_json_and_npz_to_the_same_path_is_refused(water):
+    code, out, err = run_main("energy", str(water), "--json", "x.out", "--npz", "x.out")
+    assert code == 2 and "given for two outputs" in err and out == ""
+
+
+def test_json_mode_sends_errors_to_stderr_only(tmp_path):
+    (tmp_path / "mol.xyz").write_text("2\n\nH 0 0 0\nH 0 0 0.05\n")
+    code, out, err = run_main("energy", str(tmp_path / "mol.xyz"), "--json", "-")
+    assert code == 2 and out == "" and err.startswith("hfcore: error: ")
+
+
+def test_fit_sto_json_to_stdout(tmp_path):
+    proc = hfcore_process("fit-sto", "--shell", "1s", "--gaussians", "3", "--json", "-", cwd=tmp_path)
+    assert proc.returncode == 0 and proc.stderr == ""
+    fit = json.loads(proc.stdout)["fit"]
+    assert fit["shell"] == "1s" and fit["n_gaussians"] == 3 and fit["zeta"] == 1.0
+    # source: Szabo & Ostlund, Modern Quantum Chemistry (1996), ch. 3, STO-3G fit to a zeta = 1 Slater 1s (from memory)
+    np.testing.assert_allclose(fit["exponents"], [2.227660, 0.405771, 0.109818], rtol=1e-5)
+    np.testing.assert_allclose(fit["coefficients"]["s"], [0.154329, 0.535328, 0.444635], rtol=1e-5)
+    assert 0.99 < fit["overlaps"]["s"] < 1.0
+
+
+def test_fit_sto_zeta_scales_the_published_exponents():
+    code, out, _ = run_main("fit-sto", "--shell", "2sp", "--gaussians", "3", "--zeta", "2", "--json", "-")
+    assert code == 0
+    fit = json.loads(out)["fit"]
+    # source: Hehre, Stewart & Pople, J. Chem. Phys. 51, 2657 (1969), STO-3G 2sp at zeta = 1 (from memory);
+    # exponents scale as zeta**2 and coefficients not at all (exact property)
+    np.testing.assert_allclose(fit["exponents"], 4 * np.array([0.994203, 0.231031, 0.0751386]), rtol=1e-5)
+    np.testing.assert_allclose(fit["coefficients"]["s"], [-0.0999672, 0.399513, 0.700115], rtol=1e-5)
+    np.testing.assert_allclose(fit["coefficients"]["p"], [0.155916, 0.607684, 0.391957], rtol=1e-5)
+
+
+def test_fit_sto_human_report_lists_both_expansions():
+    code, out, _ = run_main("fit-sto", "--shell", "2sp", "--gaussians", "3")
+    assert code == 0
+    assert "d(s)" in out and "d(p)" in out
+    assert "overlap with the Slater s function" in out and "overlap with the Slater p function" in out
+
+
+def test_fit_sto_plot_writes_a_png(tmp_path):
+    pytest.importorskip("matplotlib")
+    png = tmp_path / "fit.png"
+    code, out, err = run_main("fit-sto", "--shell", "1s", "--gaussians", "2", "--plot", str(png))
+    assert code == 0, err
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert only_inputs_left(tmp_path, "fit.png")
+
+
+def test_bases_lists_shipped_and_fitted_sets():
+    code, out, _ = run_main("bases")
+    assert code == 0
+    for name in ("cc-pVDZ", "6-31G*", "def2-SVP", "STO-3G", "STO-6G"):
+        assert name in out
+
+
+def test_compare_json_rows_and_table(tmp_path):
+    (tmp_path / "h2.xyz").write_text("2\nH2\nH 0 0 0\nH 0 0 0.74\n")
+    proc = hfcore_process("compare", "h2.xyz", "--basis", "sto-3g,cc-pvdz,cc-pvtz", "--json", "-", cwd=tmp_path)
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stderr == ""
+    comparison = json.loads(proc.stdout)["comparison"]
+    rows = comparison["rows"]
+    assert [r["basis"] for r in rows] == ["sto-3g", "cc-pvdz", "cc-pvtz"]
+    for key in ("n_functions", "spherical", "energy_total", "delta_mEh", "delta_kcal_mol", "iterations", "wall_time", "converged"):
+        assert key in rows[0]
+    assert rows[-1]["delta_mEh"] == 0.0
+    # source: exact property (variational principle) — larger correlation-consistent sets give lower energies here
+    assert rows[0]["energy_total"] > rows[1]["energy_total"] > rows[2]["energy_total"]
+    assert len(comparison["estimates"]) >= 1
+    code, out, err = run_main("compare", str(tmp_path / "h2.xyz"), "--basis", "sto-3g,cc-pvdz,cc-pvtz")
+    assert code == 0
+    assert "Basis comparison" in out and "Basis-limit estimates" in out
+    assert err.count("hfcore: ") == 3  # one progress line per basis, on stderr
+
+
+def test_version_flag(tmp_path):
+    proc = hfcore_process("--version", cwd=tmp_path)
+    assert proc.returncode == 0 and proc.stdout.startswith("hfcore ")
+
+
+def test_interrupt_exits_130_with_one_line(monkeypatch, water):
+    import hfcore.cli as cli
+
+    def interrupted(*args, **kwargs):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(cli, "_read_molecule", interrupted)
+    code, out, err = run_main("energy", str(water))
+    assert code == 130 and out == "" and err == "hfcore: interrupted\n"
+    assert os.path.exists(water)
