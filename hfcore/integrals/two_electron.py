@@ -1,0 +1,458 @@
+"""Electron-repulsion integrals (μν|λσ) by McMurchie–Davidson, packed with 8-fold symmetry.
+
+Scheme
+------
+1. Shell pairs (a >= b) are grouped by shape (:mod:`hfcore.integrals.pairs`).
+   For every primitive pair the Hermite coefficients E^{ab}_{tuv} are built
+   once, with the contraction coefficients, the Cartesian normalisation or
+   spherical transform and the factor 1/p folded in. A generally contracted
+   shell therefore costs no extra primitive work: its contractions are just
+   more columns ("pair functions") of the folded E.
+2. Primitive pairs whose own Schwarz bound cannot reach ``threshold / 1000``
+   against any ket are dropped; pairs are regrouped by their number of
+   surviving primitive pairs and sorted by their Schwarz bound
+   Q_ab = max sqrt((ab|ab)).
+3. For each pair of groups (bra, ket), tiles of bra and ket pairs are formed
+   (about 16k primitive quartets each). Tiles with Q_bra Q_ket < threshold are
+   skipped. Inside a tile, for all primitive quartets at once: Boys function,
+   Hermite integrals R_{tuv}(alpha, P-Q) by the downward recursion on
+   (t, u, v), then two BLAS contractions:
+
+   * ket side: X[k] = M[k] @ R[k], where M folds the ket's signed E with the
+     index shift h_bra + h_ket, so the R array is never gathered into
+     (h_bra, h_ket) form;
+   * bra side: out[b] = Y[b] @ E_bra[b] (sum over bra primitives and h_bra).
+
+   The side with the smaller n_hermite(L_bra) × n_functions(ket) plays "ket".
+4. The contracted block is scattered into the packed store at the canonical
+   position of each (ij|kl).
+
+Packed storage
+--------------
+Pair index ij = i(i+1)/2 + j for i >= j; quartet index IJ(IJ+1)/2 + KL for
+IJ >= KL. One float64 (8 bytes) per unique integral; ``ERIStore.jk`` builds,
+on first use, a second packed array of the same size (8 more bytes per
+unique integral) holding the exchange kernel, so each Fock build is two
+packed symmetric matrix-vector products (BLAS ``spmv``).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from functools import lru_cache
+
+import numpy as np
+from scipy.linalg import blas
+
+from ..basis.shells import BasisSet, n_cartesian
+from ..errors import ResourceError
+from .boys import boys
+from .hermite import hermite_e, hermite_r, hermite_signs, n_hermite, sum_index
+from .pairs import PairGroup, group_pairs
+from .spherical import component_transform
+
+_ERI_CONST = 2.0 * np.pi**2.5
+_TILE_QUARTETS = 1 << 14
+_TILE_ELEMENTS = 1 << 19
+#: Largest dense (nbf,)*4 array ``to_dense`` will build, in bytes.
+DENSE_LIMIT_BYTES = 4 << 30
+
+
+@dataclass
+class _EriPairs:
+    """Shell pairs of one shape with folded Hermite coefficients.
+
+    ``e_bra`` has shape (n, nprim * nH, nf) ordered (primitive, hermite);
+    ``e_ket`` has shape (nH, n, nf, nprim) with the (-1)^{t+u+v} sign folded in.
+    """
+
+    L: int
+    p: np.ndarray  # (n, nprim)
+    P: np.ndarray  # (3, n, nprim)
+    e: np.ndarray  # (n, nprim, nH, nf)
+    pidx: np.ndarray  # (n, nf) packed function-pair index
+    q: np.ndarray = field(default=None)  # (n,) Schwarz bound
+    e_bra: np.ndarray = field(default=None)
+    e_ket: np.ndarray = field(default=None)
+
+    @property
+    def n(self) -> int:
+        return int(self.p.shape[0])
+
+    @property
+    def nprim(self) -> int:
+        return int(self.p.shape[1])
+
+    @property
+    def nf(self) -> int:
+        return int(self.e.shape[3])
+
+    def take(self, rows: np.ndarray) -> _EriPairs:
+        return _EriPairs(self.L, self.p[rows], self.P[:, rows], self.e[rows], self.pidx[rows])
+
+    def finish(self) -> None:
+        nh = self.e.shape[2]
+        self.e_bra = np.ascontiguousarray(self.e.reshape(self.n, self.nprim * nh, self.nf))
+        signed = self.e * hermite_signs(self.L)[None, None, :, None]
+        self.e_ket = np.ascontiguousarray(signed.transpose(2, 0, 3, 1))
+
+
+def _pair_index(i: np.ndarray, j: np.ndarray) -> np.ndarray:
+    hi = np.maximum(i, j)
+    return hi * (hi + 1) // 2 + np.minimum(i, j)
+
+
+def _function_indices(group: PairGroup, basis: BasisSet) -> np.ndarray:
+    """Packed pair index of every pair function, shape (n, nf)."""
+    off = basis.shell_offsets
+    sa, sb = basis.shells[group.shell_a[0]], basis.shells[group.shell_b[0]]
+    nfa = sa.n_functions(basis.spherical)
+    nfb = sb.n_functions(basis.spherical)
+    i = off[group.shell_a][:, None, None] + np.arange(nfa)[None, :, None]
+    j = off[group.shell_b][:, None, None] + np.arange(nfb)[None, None, :]
+    return _pair_index(i, j).reshape(group.n, nfa * nfb)
+
+
+def _fold(group: PairGroup, spherical: bool) -> np.ndarray:
+    """Folded Hermite coefficients, shape (n, npa*npb, nH, nf)."""
+    p = group.flat(group.p)
+    e3 = hermite_e(group.la, group.lb, group.pa(), group.pb(), p, group.flat(group.kab) / p)
+    nca, ncb = n_cartesian(group.la), n_cartesian(group.lb)
+    npa, npb = group.exp_a.shape[1], group.exp_b.shape[1]
+    e3 = e3.reshape(nca, ncb, e3.shape[1], group.n, npa, npb)
+    ta = component_transform(group.la, spherical)
+    tb = component_transform(group.lb, spherical)
+    out = np.einsum("xyhnij,nai,nbj,sx,ty->nijhasbt", e3, group.coef_a, group.coef_b, ta, tb, optimize=True)
+    nh = e3.shape[2]
+    return np.ascontiguousarray(out.reshape(group.n, npa * npb, nh, -1))
+
+
+def _diagonal(pairs: _EriPairs) -> np.ndarray:
+    """(f f | f f) for every pair function of every pair, shape (n, nf)."""
+    L = pairs.L
+    n, m = pairs.n, pairs.nprim
+    p = pairs.p[:, :, None]
+    q = pairs.p[:, None, :]
+    pq = pairs.P[:, :, :, None] - pairs.P[:, :, None, :]
+    R = _hermite_block(2 * L, p, q, pq).reshape(-1, n, m, m)
+    g = R[sum_index(L, L)]  # (nH, nH, n, m, m)
+    signed = pairs.e * hermite_signs(L)[None, None, :, None]
+    return np.einsum("nihf,njkf,hknij->nf", pairs.e, signed, g, optimize=True)
+
+
+def _hermite_block(L: int, p: np.ndarray, q: np.ndarray, pq: np.ndarray) -> np.ndarray:
+    """R_{tuv} with the ERI prefactor for broadcastable exponent arrays; shape (nH, N)."""
+    pq_sum = p + q
+    alpha = p * q / pq_sum
+    shape = np.broadcast_shapes(alpha.shape, pq.shape[1:])
+    alpha = np.broadcast_to(alpha, shape).reshape(-1)
+    pqf = np.broadcast_to(pq, (3,) + shape).reshape(3, -1)
+    t = alpha * np.einsum("kn,kn->n", pqf, pqf)
+    base = boys(L, t)
+    base *= (_ERI_CONST / np.sqrt(np.broadcast_to(pq_sum, shape).reshape(-1)))[None, :]
+    if L:
+        m2a = -2.0 * alpha
+        fac = m2a.copy()
+        for m in range(1, L + 1):
+            base[m] *= fac
+            if m < L:
+                fac *= m2a
+    return hermite_r(L, pqf, base)
+
+
+def _screen_primitives(groups: list[tuple[PairGroup, np.ndarray, np.ndarray]], L_of, eps: float) -> list[_EriPairs]:
+    """Drop primitive pairs with negligible Schwarz bounds; regroup by survivor count."""
+    staged = []
+    for group, e, pidx in groups:
+        n, m = e.shape[:2]
+        single = _EriPairs(
+            L_of(group),
+            group.flat(group.p).reshape(n * m, 1),
+            group.flat(group.P).reshape(3, n * m, 1),
+            e.reshape(n * m, 1, e.shape[2], e.shape[3]),
+            np.repeat(pidx, m, axis=0),
+        )
+        qprim = np.sqrt(np.abs(_diagonal(single)).max(axis=1)).reshape(n, m)
+        staged.append((group, e, pidx, qprim))
+    qsum = max((float(s[3].sum(axis=1).max()) for s in staged), default=0.0)
+    out: list[_EriPairs] = []
+    for group, e, pidx, qprim in staged:
+        keep = qprim * qsum >= eps
+        counts = keep.sum(axis=1)
+        p = group.flat(group.p).reshape(keep.shape)
+        P = group.flat(group.P).reshape((3,) + keep.shape)
+        for c in np.unique(counts):
+            if c == 0:
+                continue
+            rows = np.flatnonzero(counts == c)
+            mask = keep[rows]
+            sel = _EriPairs(
+                L_of(group),
+                p[rows][mask].reshape(rows.size, c),
+                P[:, rows][:, mask].reshape(3, rows.size, c),
+                e[rows][mask].reshape(rows.size, c, e.shape[2], e.shape[3]),
+                pidx[rows],
+            )
+            out.append(sel)
+    return out
+
+
+def _prepare(basis: BasisSet, threshold: float) -> list[_EriPairs]:
+    i, j = np.tril_indices(basis.n_shells)
+    groups = group_pairs(basis.shells, basis.shells, np.stack([i, j], axis=1))
+    folded = [(g, _fold(g, basis.spherical), _function_indices(g, basis)) for g in groups]
+    out = _screen_primitives(folded, lambda g: g.la + g.lb, threshold * 1e-3)
+    for pairs in out:
+        pairs.q = np.sqrt(np.abs(_diagonal(pairs)).max(axis=1))
+        order = np.argsort(-pairs.q, kind="stable")
+        q = pairs.q[order]
+        pairs.p, pairs.P, pairs.e, pairs.pidx = pairs.p[order], pairs.P[:, order], pairs.e[order], pairs.pidx[order]
+        pairs.q = q
+        pairs.finish()
+    return out
+
+
+@lru_cache(maxsize=None)
+def _m_layout(lb: int, lk: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    s = sum_index(lb, lk)
+    hb, hk = np.meshgrid(np.arange(s.shape[0]), np.arange(s.shape[1]), indexing="ij")
+    return hb.ravel(), hk.ravel(), s.ravel()
+
+
+def _ket_matrix(ket: _EriPairs, rows: slice, L_bra: int) -> np.ndarray:
+    """M^T[k, (h_bra, f_ket), (H, j)] = Σ δ(H = h_bra + h_ket) s(h_ket) E_ket[k, j, h_ket, f_ket]."""
+    ek = ket.e_ket[:, rows]  # (nHk, nk, fk, jq)
+    nk, fk, jq = ek.shape[1:]
+    nhb = n_hermite(L_bra)
+    nh = n_hermite(L_bra + ket.L)
+    mt = np.zeros((nk, nhb, fk, nh, jq))
+    hb, hk, H = _m_layout(L_bra, ket.L)
+    mt.transpose(1, 3, 0, 2, 4)[hb, H] = ek[hk]
+    return mt.reshape(nk, nhb * fk, nh * jq)
+
+
+def _tile(bra: _EriPairs, brows: slice, ket: _EriPairs, krows: slice) -> np.ndarray:
+    """Contracted integrals of a tile, shape (nb, nk, fk, fb)."""
+    L = bra.L + ket.L
+    p = bra.p[brows]  # (nb, ip)
+    q = ket.p[krows]  # (nk, jq)
+    nb, ip = p.shape
+    nk, jq = q.shape
+    # Quartet batch order (k, j, b, i) so R[k] is a (H*j) x (b*i) matrix after one transpose-free reshape.
+    pq = bra.P[:, brows][:, None, None, :, :] - ket.P[:, krows][:, :, :, None, None]
+    R = _hermite_block(L, p[None, None], q[:, :, None, None], pq)
+    nh = R.shape[0]
+    R = R.reshape(nh, nk, jq, nb * ip).transpose(1, 0, 2, 3).reshape(nk, nh * jq, nb * ip)
+    x = np.matmul(_ket_matrix(ket, krows, bra.L), R)  # (nk, nHb*fk, nb*ip)
+    nhb = n_hermite(bra.L)
+    fk = ket.nf
+    y = x.reshape(nk, nhb, fk, nb, ip).transpose(3, 0, 2, 4, 1).reshape(nb, nk * fk, ip * nhb)
+    out = np.matmul(y, bra.e_bra[brows])  # (nb, nk*fk, fb)
+    return out.reshape(nb, nk, fk, bra.nf)
+
+
+def _cost(bra: _EriPairs, ket: _EriPairs) -> int:
+    return n_hermite(bra.L) * ket.nf
+
+
+def _chunks(n: int, size: int) -> list[slice]:
+    return [slice(s, min(s + size, n)) for s in range(0, n, size)]
+
+
+def _tile_sizes(a: _EriPairs, b: _EriPairs) -> tuple[int, int]:
+    per = a.nprim * b.nprim
+    target = max(1, min(_TILE_QUARTETS, _TILE_ELEMENTS // n_hermite(a.L + b.L)) // per)
+    na = max(1, min(a.n, int(np.sqrt(target))))
+    nb = max(1, min(b.n, target // na))
+    return na, nb
+
+
+@dataclass
+class ERIStore:
+    """Unique electron-repulsion integrals of a basis, packed with 8-fold symmetry.
+
+    Attributes
+    ----------
+    n_functions : int
+        nbf.
+    packed : ndarray, shape (npair * (npair + 1) / 2,)
+        (ij|kl) at IJ(IJ+1)/2 + KL with IJ = i(i+1)/2 + j, i >= j, k >= l,
+        IJ >= KL; 8 bytes per unique integral. Quartets skipped by the
+        Schwarz screening hold zero.
+    threshold : float
+        Schwarz threshold used (hartree).
+    """
+
+    n_functions: int
+    packed: np.ndarray
+    threshold: float
+    _exchange: np.ndarray | None = field(default=None, repr=False)
+
+    @property
+    def n_pairs(self) -> int:
+        return self.n_functions * (self.n_functions + 1) // 2
+
+    @property
+    def nbytes(self) -> int:
+        """Memory held by the store in bytes (integrals plus exchange kernel once built)."""
+        extra = 0 if self._exchange is None else self._exchange.nbytes
+        return int(self.packed.nbytes + extra)
+
+    def _pair_map(self) -> np.ndarray:
+        i = np.arange(self.n_functions)
+        return _pair_index(i[:, None], i[None, :])
+
+    def to_dense(self) -> np.ndarray:
+        """All integrals (ij|kl), shape (nbf, nbf, nbf, nbf), chemists' notation.
+
+        Raises
+        ------
+        ResourceError
+            If the dense array would exceed :data:`DENSE_LIMIT_BYTES`.
+        """
+        n = self.n_functions
+        if 8 * n**4 > DENSE_LIMIT_BYTES:
+            raise ResourceError(f"a dense ERI tensor for {n} functions needs {8 * n**4 / 2**30:.1f} GiB")
+        pm = self._pair_map()
+        out = np.empty((n, n, n, n))
+        for i in range(n):
+            out[i] = self.packed[_pair_index(pm[i][:, None, None], pm[None, :, :])]
+        return out
+
+    def _exchange_kernel(self) -> np.ndarray:
+        """Packed W[ik, jl] = ((ij|kl) + (il|kj)) / 2, symmetric in (ik) <-> (jl)."""
+        if self._exchange is None:
+            n = self.n_functions
+            pm = self._pair_map()
+            first, second = np.tril_indices(n)
+            out = np.empty_like(self.packed)
+            rows_per = max(1, (1 << 22) // max(1, self.n_pairs))
+            for r0 in range(0, self.n_pairs, rows_per):
+                r1 = min(self.n_pairs, r0 + rows_per)
+                start, stop = r0 * (r0 + 1) // 2, r1 * (r1 + 1) // 2
+                pos = np.arange(start, stop)
+                row = np.repeat(np.arange(r0, r1), np.arange(r0, r1) + 1)
+                col = pos - row * (row + 1) // 2
+                i, k = first[row], second[row]
+                j, l = first[col], second[col]
+                a = self.packed[_pair_index(pm[i, j], pm[k, l])]
+                b = self.packed[_pair_index(pm[i, l], pm[k, j])]
+                out[start:stop] = 0.5 * (a + b)
+            self._exchange = out
+        return self._exchange
+
+    def jk(self, density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Coulomb and exchange matrices of a symmetric density.
+
+        Parameters
+        ----------
+        density : ndarray, shape (nbf, nbf)
+            Symmetric matrix D.
+
+        Returns
+        -------
+        J, K : ndarray, shape (nbf, nbf)
+            J_μν = Σ (μν|λσ) D_λσ and K_μν = Σ (μλ|νσ) D_λσ.
+        """
+        d = np.asarray(density, dtype=np.float64)
+        n = self.n_functions
+        first, second = np.tril_indices(n)
+        dp = d[first, second] * np.where(first == second, 1.0, 2.0)
+        jp = blas.dspmv(self.n_pairs, 1.0, self.packed, dp)
+        kp = blas.dspmv(self.n_pairs, 1.0, self._exchange_kernel(), dp)
+        return _unpack_symmetric(jp, n), _unpack_symmetric(kp, n)
+
+
+def _unpack_symmetric(vec: np.ndarray, n: int) -> np.ndarray:
+    out = np.zeros((n, n))
+    first, second = np.tril_indices(n)
+    out[first, second] = vec
+    out[second, first] = vec
+    return out
+
+
+def schwarz_bounds(basis: BasisSet) -> np.ndarray:
+    """Schwarz bounds of shell pairs, Q_ab = max over functions sqrt((ab|ab)).
+
+    Returns
+    -------
+    ndarray, shape (nshell, nshell)
+        Symmetric; in hartree^{1/2}.
+    """
+    out = np.zeros((basis.n_shells, basis.n_shells))
+    i, j = np.tril_indices(basis.n_shells)
+    for group in group_pairs(basis.shells, basis.shells, np.stack([i, j], axis=1)):
+        e = _fold(group, basis.spherical)
+        pairs = _EriPairs(group.la + group.lb, group.flat(group.p).reshape(e.shape[:2]),
+                          group.flat(group.P).reshape((3,) + e.shape[:2]), e, np.zeros((group.n, 1), dtype=np.intp))
+        q = np.sqrt(np.abs(_diagonal(pairs)).max(axis=1))
+        out[group.shell_a, group.shell_b] = q
+        out[group.shell_b, group.shell_a] = q
+    return out
+
+
+def compute_eri(
+    basis: BasisSet, *, threshold: float = 1e-12, progress: Callable[[float], None] | None = None
+) -> ERIStore:
+    """Compute all unique electron-repulsion integrals of a basis.
+
+    Parameters
+    ----------
+    basis : BasisSet
+    threshold : float
+        Schwarz screening threshold (hartree): shell quartets with
+        Q_ab Q_cd below it are skipped and primitive pairs that cannot
+        contribute more than ``threshold / 1000`` are dropped. 0 disables
+        all screening.
+    progress : callable, optional
+        Called with the fraction of the work done (0..1] as the pass proceeds.
+
+    Returns
+    -------
+    ERIStore
+    """
+    n = basis.n_functions
+    npair = n * (n + 1) // 2
+    packed = np.zeros(npair * (npair + 1) // 2)
+    groups = _prepare(basis, threshold)
+    jobs = [(a, b) for ia, a in enumerate(groups) for b in groups[: ia + 1]]
+    total = sum(a.n * a.nprim * b.n * b.nprim * n_hermite(a.L + b.L) for a, b in jobs) or 1
+    done = 0
+    for g1, g2 in jobs:
+        same = g1 is g2
+        bra, ket = (g1, g2) if _cost(g1, g2) <= _cost(g2, g1) else (g2, g1)
+        nb_size, nk_size = _tile_sizes(bra, ket)
+        if same:
+            nb_size = nk_size = min(nb_size, nk_size)
+        for ib, brows in enumerate(_chunks(bra.n, nb_size)):
+            qb = bra.q[brows.start]
+            for ik, krows in enumerate(_chunks(ket.n, nk_size)):
+                if same and ik > ib:
+                    break
+                if qb * ket.q[krows.start] < threshold:
+                    break
+                count = int(np.sum(bra.q[brows.start] * ket.q[krows] >= threshold))
+                krows = slice(krows.start, krows.start + max(count, 1))
+                block = _tile(bra, brows, ket, krows)
+                hi = np.maximum(bra.pidx[brows][:, None, None, :], ket.pidx[krows][None, :, :, None])
+                lo = np.minimum(bra.pidx[brows][:, None, None, :], ket.pidx[krows][None, :, :, None])
+                packed[hi * (hi + 1) // 2 + lo] = block
+        done += g1.n * g1.nprim * g2.n * g2.nprim * n_hermite(g1.L + g2.L)
+        if progress is not None:
+            progress(done / total)
+    return ERIStore(n, packed, float(threshold))
+
+
+def eri_tensor(basis: BasisSet) -> np.ndarray:
+    """All electron-repulsion integrals, dense and unscreened.
+
+    Returns
+    -------
+    ndarray, shape (nbf, nbf, nbf, nbf)
+        (μν|λσ) in chemists' notation, hartree. Meant for small systems.
+    """
+    return compute_eri(basis, threshold=0.0).to_dense()
+
+
+__all__ = ["ERIStore", "compute_eri", "eri_tensor", "schwarz_bounds", "DENSE_LIMIT_BYTES"]
