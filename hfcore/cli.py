@@ -314,6 +314,8 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
         return 0
     from .analysis import DEBYE_PER_AU
 
+    if console.quiet:
+        console.report(report.heading("SCF"))
     console.report(report.format_convergence(result))
     console.report(report.format_linear_dependence(result.n_dropped, options.lindep_threshold))
     console.report(report.format_energies(result))
@@ -382,10 +384,10 @@ def _stderr_progress(console: _Console) -> Callable[[str], None] | None:
 
 
 def _run_bases(args: argparse.Namespace, console: _Console) -> int:
-    from .basis.library import available_basis_sets
+    from .basis.library import available_basis_sets, find_family
 
-    fitted = [f"STO-{n}G" for n in range(1, 7)]
-    console.report(report.format_basis_list(available_basis_sets(), fitted))
+    fitted = [f"STO-{n}G" for n in range(1, MAX_GAUSSIANS + 1)]
+    console.report(report.format_basis_list([find_family(n) for n in available_basis_sets()], fitted))
     return 0
 
 

@@ -239,12 +239,39 @@ def format_comparison(comparison: Any) -> str:
     return "\n".join(lines)
 
 
-def format_basis_list(names: Sequence[str], fitted: Sequence[str]) -> str:
-    """The list of basis sets the command line accepts."""
-    lines = [heading("Basis sets shipped with hfcore")]
-    lines += [f"  {n}" for n in names]
-    lines.append(heading("Fitted Slater sets (any element H–Ar; --zeta to change exponents)"))
+def _element_span(atomic_numbers: Iterable[int]) -> str:
+    # Runs of consecutive elements read better as ranges: "H–Ar" rather than 18 symbols.
+    from . import elements
+
+    zs = sorted(atomic_numbers)
+    runs: list[list[int]] = []
+    for z in zs:
+        if runs and z == runs[-1][-1] + 1:
+            runs[-1].append(z)
+        else:
+            runs.append([z])
+    parts = [elements.symbol(r[0]) if len(r) == 1 else f"{elements.symbol(r[0])}–{elements.symbol(r[-1])}" for r in runs]
+    return ", ".join(parts)
+
+
+def format_basis_list(families: Sequence[Any], fitted: Sequence[str]) -> str:
+    """The basis sets the command line accepts.
+
+    Parameters
+    ----------
+    families : sequence of BasisFamily
+        The published sets shipped with hfcore.
+    fitted : sequence of str
+        Names of the fitted Slater sets.
+    """
+    width = max(len(f.name) for f in families)
+    lines = [heading("Basis sets shipped with hfcore"), f"  {'name':<{width}}   {'default form':<16} elements"]
+    for family in families:
+        form = "real spherical" if family.default_spherical else "Cartesian"
+        lines.append(f"  {family.name:<{width}}   {form:<16} {_element_span(family.elements())}")
+    lines.append(heading("Fitted Slater sets (H–Ar; --zeta changes their exponents)"))
     lines.append("  " + "  ".join(fitted))
+    lines.append("\n  Other published sets are found by name when the basis-set-exchange package is installed.")
     return "\n".join(lines)
 
 
