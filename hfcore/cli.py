@@ -17,7 +17,6 @@ from collections.abc import Callable, Sequence
 from typing import Any, TextIO
 
 from . import __version__, elements, export, report
-from .basis.sto import MAX_GAUSSIANS, SLATER_SHELLS, parse_zeta_overrides
 from .errors import HfcoreError, InputError
 
 #: Exit code after Ctrl-C (128 + SIGINT), the shell convention.
@@ -135,10 +134,10 @@ def build_parser() -> argparse.ArgumentParser:
     energy.set_defaults(handler=_run_energy)
 
     fit = sub.add_parser("fit-sto", help="least-squares Gaussian expansion of a Slater function")
-    fit.add_argument("--shell", required=True, choices=tuple(SLATER_SHELLS), help="Slater shell to fit")
-    fit.add_argument(
-        "--gaussians", required=True, type=_positive_int, metavar="N", help=f"number of Gaussians (1-{MAX_GAUSSIANS})"
-    )
+    # The fitter validates shell and count itself, so its (heavier) module is
+    # imported only when a fit is asked for.
+    fit.add_argument("--shell", required=True, metavar="SHELL", help="Slater shell to fit, e.g. 1s, 2sp or 3sp")
+    fit.add_argument("--gaussians", required=True, type=_positive_int, metavar="N", help="number of Gaussians, 1 to 6")
     fit.add_argument("--zeta", type=_positive_float, default=1.0, metavar="Z", help="Slater exponent (default 1)")
     _add_json_argument(fit)
     fit.add_argument("--plot", metavar="PNG", help="plot the Slater function, the fit and their difference")
@@ -246,6 +245,7 @@ def parse_basis_for(items: Sequence[str]) -> dict[str, str]:
 
 def _build_basis(args: argparse.Namespace, molecule: Any) -> Any:
     from .basis import build_basis
+    from .basis.sto import parse_zeta_overrides
 
     zeta = parse_zeta_overrides(args.zeta) if args.zeta else None
     per_element = parse_basis_for(args.basis_for)
@@ -385,6 +385,7 @@ def _stderr_progress(console: _Console) -> Callable[[str], None] | None:
 
 def _run_bases(args: argparse.Namespace, console: _Console) -> int:
     from .basis.library import available_basis_sets, find_family
+    from .basis.sto import MAX_GAUSSIANS
 
     fitted = [f"STO-{n}G" for n in range(1, MAX_GAUSSIANS + 1)]
     console.report(report.format_basis_list([find_family(n) for n in available_basis_sets()], fitted))

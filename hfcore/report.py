@@ -90,6 +90,11 @@ def history_header() -> str:
     return heading("SCF iterations") + "\n" + columns
 
 
+def _no_negative_zero(values: np.ndarray, decimals: int) -> np.ndarray:
+    # A value that rounds to zero should print as 0.000000, not -0.000000.
+    return np.round(np.asarray(values, dtype=np.float64), decimals) + 0.0
+
+
 def _signed_or_dash(value: float | None, spec: str, width: int) -> str:
     if value is None or not np.isfinite(value):
         return f"{'—':>{width}}"
@@ -163,9 +168,9 @@ def _hartree_in_ev() -> float:
 def format_charges(symbols: Sequence[str], charges: np.ndarray) -> str:
     """Mulliken atomic charges, one line per atom, in elementary charges."""
     lines = [heading("Mulliken charges / e")]
-    for k, (sym, q) in enumerate(zip(symbols, charges), start=1):
+    for k, (sym, q) in enumerate(zip(symbols, _no_negative_zero(charges, 6)), start=1):
         lines.append(f"  {k:>4}  {sym:<7}  {q:+10.6f}")
-    lines.append(f"  {'sum':>13}  {float(np.sum(charges)):+10.6f}")
+    lines.append(f"  {'sum':>13}  {float(_no_negative_zero(np.sum(charges), 6)):+10.6f}")
     return "\n".join(lines)
 
 
@@ -174,7 +179,7 @@ def format_dipole(dipole_au: np.ndarray, debye_per_au: float, charged: bool) -> 
     d = np.asarray(dipole_au, dtype=np.float64)
     lines = [heading("Dipole moment"), f"  {'':<8}{'x':>12}{'y':>12}{'z':>12}{'|μ|':>12}"]
     for unit, scale in (("debye", debye_per_au), ("e·bohr", 1.0)):
-        x, y, z = d * scale
+        x, y, z = _no_negative_zero(d * scale, 6)
         lines.append(f"  {unit:<8}{x:12.6f}{y:12.6f}{z:12.6f}{np.linalg.norm(d) * scale:12.6f}")
     if charged:
         lines.append("  (charged molecule: the dipole is taken about the centre of nuclear charge)")

@@ -270,7 +270,9 @@ def test_human_report_prints_one_row_per_iteration_and_quiet_drops_them(water):
     code, out, _ = run_main("energy", str(water), "--json", str(water.parent / "w.json"))
     assert code == 0
     iterations = json.loads((water.parent / "w.json").read_text())["scf"]["iterations"]
-    rows = [line for line in out.splitlines() if line.strip() and line.split()[0].isdigit() and len(line.split()) == 5]
+    lines = out.splitlines()
+    table = lines[lines.index("SCF iterations") + 3 : next(k for k, l in enumerate(lines) if "converged after" in l)]
+    rows = [line for line in table if line.strip()]
     assert [int(r.split()[0]) for r in rows] == list(range(1, iterations + 1))
     code, quiet, _ = run_main("energy", str(water), "--quiet")
     assert code == 0
