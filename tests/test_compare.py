@@ -71,11 +71,18 @@ def test_rows_keep_the_given_order_and_results(nested):
 def test_projected_guess_reaches_the_same_energy_as_atomic_guess(hydrogen_fluoride, nested):
     comparison, _ = nested
     atomic = compare_bases(hydrogen_fluoride, NESTED, guess="sad")
-    assert comparison.rows[0].guess == "projected from 6-31g"
     assert atomic.rows[0].guess == "sad"
     for a, b in zip(comparison.rows, atomic.rows):
         # source: exact property — the converged RHF state does not depend on the start (same state here)
         assert a.energy_total == pytest.approx(b.energy_total, abs=1e-8)
+
+
+def test_automatic_guess_projects_for_molecules_and_not_for_atoms(nested):
+    comparison, _ = nested
+    assert [r.guess for r in comparison.rows] == ["projected from 6-31g", "sad"]
+    neon = hfcore.Molecule(np.array([10]), np.zeros((1, 3)))
+    atom = compare_bases(neon, ["sto-3g", "6-31g"])
+    assert [r.guess for r in atom.rows] == ["sad", "sad"]
 
 
 def test_projection_keeps_a_density_in_the_same_basis(hydrogen_fluoride, nested):

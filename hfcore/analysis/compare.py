@@ -30,7 +30,7 @@ from .extrapolation import (
 #: kcal/mol per hartree (CODATA hartree energy × Avogadro constant / 4184 J per kcal).
 KCAL_MOL_PER_HARTREE: float = constants.physical_constants["Hartree energy"][0] * constants.Avogadro / 4184.0
 
-GUESSES: tuple[str, ...] = ("projected", "sad")
+GUESSES: tuple[str, ...] = ("auto", "projected", "sad")
 
 
 @dataclass(frozen=True)
@@ -219,7 +219,7 @@ def compare_bases(
     *,
     spherical: bool | None = None,
     options=None,
-    guess: str = "projected",
+    guess: str = "auto",
     progress: Callable[[str], None] | None = None,
 ) -> BasisComparison:
     """RHF energies of one molecule in several basis sets.
@@ -235,11 +235,15 @@ def compare_bases(
         basis; each family's own convention by default.
     options : SCFOptions, optional
         Settings of every SCF run.
-    guess : {"projected", "sad"}
+    guess : {"auto", "projected", "sad"}
         ``"projected"`` starts each basis after the first from the previous
         (next smaller) converged density projected into it
         (:func:`project_density`); ``"sad"`` starts every run from the
-        superposition of atomic densities.
+        superposition of atomic densities. ``"auto"`` (default) takes
+        ``"sad"`` for a single atom, whose atomic guess is already close to
+        the answer, and ``"projected"`` otherwise (measured: Ne cc-pVTZ
+        after cc-pVDZ 3 iterations with SAD, 6 projected; water, HF,
+        ammonia and methanol one iteration fewer projected than SAD).
     progress : callable, optional
         Called with a one-line message after each basis.
 
@@ -261,6 +265,8 @@ def compare_bases(
     if guess not in GUESSES:
         raise InputError(f"unknown guess {guess!r} for a basis comparison: use one of {', '.join(GUESSES)}")
     molecule.require_closed_shell()
+    if guess == "auto":
+        guess = "sad" if molecule.natom == 1 else "projected"
     bases = [build_basis(molecule, name, spherical=spherical) for name in labels]
     # Small to large, so that each projected guess comes from a smaller space.
     order = sorted(range(len(bases)), key=lambda k: bases[k].n_functions)

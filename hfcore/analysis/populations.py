@@ -78,6 +78,12 @@ def lowdin_populations(result) -> np.ndarray:
     ndarray, shape (nbf,)
         (S^½ D S^½)_μμ in electrons, the populations in the symmetrically
         orthogonalised basis.
+
+    Notes
+    -----
+    Unlike Mulliken populations, these change when single functions are
+    rescaled, so they hold for hfcore's convention of unit-normalised
+    functions (every Cartesian component included).
     """
     density, overlap = _density_and_overlap(result)
     # S is symmetric positive definite: its square root via eigenvectors stays real and symmetric.
