@@ -66,7 +66,7 @@ def test_mulliken_charges_match_reference(water):
     result, ref = water
     expected = ref.mulliken_pop(verbose=0)[1]
     # source: reference library run (PySCF), same shells, tight convergence
-    np.testing.assert_allclose(mulliken_charges(result), expected, atol=1e-7, rtol=0)
+    np.testing.assert_allclose(mulliken_charges(result), expected, atol=1e-9, rtol=0)
 
 
 def test_mulliken_populations_sum_to_electron_count(water):
@@ -90,7 +90,7 @@ def test_lowdin_charges_match_reference(water):
     dm_orth = s_half @ density @ s_half
     expected = ref.mulliken_pop(ref_mol, dm_orth, s=np.eye(s.shape[0]), verbose=0)[1]
     # source: reference library run (PySCF), Löwdin-orthogonalised density, same shells
-    np.testing.assert_allclose(lowdin_charges(result), expected, atol=1e-7, rtol=0)
+    np.testing.assert_allclose(lowdin_charges(result), expected, atol=1e-9, rtol=0)
     # source: exact property — the orthogonalised density keeps the electron count
     assert lowdin_populations(result).sum() == pytest.approx(result.molecule.n_electrons, abs=1e-9)
 
@@ -98,7 +98,7 @@ def test_lowdin_charges_match_reference(water):
 def test_dipole_matches_reference(water):
     result, ref = water
     # source: reference library run (PySCF), dipole in atomic units, same shells
-    np.testing.assert_allclose(dipole_moment(result), ref.dip_moment(unit="AU", verbose=0), atol=1e-7, rtol=0)
+    np.testing.assert_allclose(dipole_moment(result), ref.dip_moment(unit="AU", verbose=0), atol=1e-9, rtol=0)
 
 
 def test_dipole_of_neutral_molecule_does_not_depend_on_origin(water):
@@ -112,9 +112,9 @@ def test_mp2_correlation_matches_reference(water):
     mine = mp2_energy(result)
     theirs = mp.MP2(ref).run(verbose=0)
     # source: reference library run (PySCF MP2 on its own RHF), same shells
-    assert mine.correlation == pytest.approx(theirs.e_corr, abs=1e-8)
-    assert mine.same_spin == pytest.approx(theirs.e_corr_ss, abs=1e-8)
-    assert mine.opposite_spin == pytest.approx(theirs.e_corr_os, abs=1e-8)
+    assert mine.correlation == pytest.approx(theirs.e_corr, abs=1e-9)
+    assert mine.same_spin == pytest.approx(theirs.e_corr_ss, abs=1e-9)
+    assert mine.opposite_spin == pytest.approx(theirs.e_corr_os, abs=1e-9)
     # source: exact property — the total is the reference plus the correction
     assert mine.total == pytest.approx(result.energy_total + mine.correlation, abs=1e-12)
 
@@ -124,7 +124,7 @@ def test_mp2_frozen_core_matches_reference(water):
     mine = mp2_energy(result, frozen_core=core_orbital_count(result.molecule))
     theirs = mp.MP2(ref, frozen=1).run(verbose=0)
     # source: reference library run (PySCF MP2, lowest orbital frozen), same shells
-    assert mine.correlation == pytest.approx(theirs.e_corr, abs=1e-8)
+    assert mine.correlation == pytest.approx(theirs.e_corr, abs=1e-9)
     assert mine.frozen_core == 1
     assert mine.n_active_occupied == 4
 
