@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import sys
 from pathlib import Path
 
 import numpy as np
@@ -191,3 +192,11 @@ def test_plot_into_missing_directory_is_an_input_error(nested, tmp_path):
     comparison, _ = nested
     with pytest.raises(InputError, match="directory"):
         plot_comparison(comparison, tmp_path / "missing" / "compare.png")
+
+
+def test_plot_without_matplotlib_names_the_install_command(nested, tmp_path, monkeypatch):
+    comparison, _ = nested
+    # A None entry in sys.modules makes the import fail as if the package were absent.
+    monkeypatch.setitem(sys.modules, "matplotlib", None)
+    with pytest.raises(InputError, match=r"pip install 'hfcore\[plot\]'"):
+        plot_comparison(comparison, tmp_path / "compare.png")
