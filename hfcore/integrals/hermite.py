@@ -172,7 +172,7 @@ def hermite_r(L: int, pq: np.ndarray, base: np.ndarray) -> np.ndarray:
     ndarray, shape (n_hermite(L), n)
     """
     if L == 0:
-        return base[:1].copy()
+        return base[:1]
     axis, p1, p2, coef = _r_tables(L)
     cur = base[L:L + 1]
     for m in range(L - 1, -1, -1):
@@ -198,10 +198,12 @@ def sum_index(lb_total: int, lk_total: int) -> np.ndarray:
     -------
     ndarray, shape (n_hermite(lb_total), n_hermite(lk_total))
     """
-    hb = hermite_indices(lb_total)
-    hk = hermite_indices(lk_total)
-    pos = _position(lb_total + lk_total)
-    out = np.array([[pos[tuple(int(x) for x in a + b)] for b in hk] for a in hb], dtype=np.intp)
+    L = lb_total + lk_total
+    herm = hermite_indices(L)
+    lookup = np.zeros((L + 1,) * 3, dtype=np.intp)
+    lookup[herm[:, 0], herm[:, 1], herm[:, 2]] = np.arange(len(herm))
+    total = hermite_indices(lb_total)[:, None, :] + hermite_indices(lk_total)[None, :, :]
+    out = lookup[total[..., 0], total[..., 1], total[..., 2]]
     out.setflags(write=False)
     return out
 

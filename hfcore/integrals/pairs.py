@@ -100,7 +100,7 @@ class PairGroup:
         return np.ascontiguousarray(out.reshape(lead + (self.n, nfa, nfb)))
 
 
-def _build_group(la: int, lb: int, shells_a: Sequence[Shell], shells_b: Sequence[Shell], pairs: np.ndarray) -> PairGroup:
+def build_group(la: int, lb: int, shells_a: Sequence[Shell], shells_b: Sequence[Shell], pairs: np.ndarray) -> PairGroup:
     sa = [shells_a[i] for i in pairs[:, 0]]
     sb = [shells_b[j] for j in pairs[:, 1]]
     exp_a = np.array([s.exponents for s in sa])
@@ -151,7 +151,7 @@ def group_pairs(shells_a: Sequence[Shell], shells_b: Sequence[Shell], pairs: np.
         a, b = shells_a[i], shells_b[j]
         key = (a.l, b.l, a.n_primitives, b.n_primitives, a.n_contractions, b.n_contractions)
         keys.setdefault(key, []).append(k)
-    return [_build_group(key[0], key[1], shells_a, shells_b, pairs[np.array(idx)]) for key, idx in sorted(keys.items())]
+    return [build_group(key[0], key[1], shells_a, shells_b, pairs[np.array(idx)]) for key, idx in sorted(keys.items())]
 
 
-__all__ = ["PairGroup", "group_pairs"]
+__all__ = ["PairGroup", "build_group", "group_pairs"]

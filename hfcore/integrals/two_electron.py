@@ -49,12 +49,13 @@ from ..basis.shells import BasisSet, n_cartesian
 from ..errors import ResourceError
 from .boys import boys
 from .hermite import hermite_e, hermite_r, hermite_signs, n_hermite, sum_index
-from .pairs import PairGroup, group_pairs
+from .pairs import PairGroup, build_group, group_pairs
 from .spherical import component_transform
 
 _ERI_CONST = 2.0 * np.pi**2.5
 _TILE_QUARTETS = 1 << 14
 _TILE_ELEMENTS = 1 << 19
+_MERGE_FILL = 0.8
 #: Largest dense (nbf,)*4 array ``to_dense`` will build, in bytes.
 DENSE_LIMIT_BYTES = 4 << 30
 
@@ -64,7 +65,8 @@ class _EriPairs:
     """Shell pairs of one shape with folded Hermite coefficients.
 
     ``e_bra`` has shape (n, nprim * nH, nf) ordered (primitive, hermite);
-    ``e_ket`` has shape (nH, n, nf, nprim) with the (-1)^{t+u+v} sign folded in.
+    ``e_ket`` has shape (nH, n, nf, nprim) with the (-1)^{t+u+v} sign folded in;
+    ``e_ket_rows`` is the same as (n, nf, nH * nprim).
     """
 
     L: int
@@ -75,6 +77,7 @@ class _EriPairs:
     q: np.ndarray = field(default=None)  # (n,) Schwarz bound
     e_bra: np.ndarray = field(default=None)
     e_ket: np.ndarray = field(default=None)
+    e_ket_rows: np.ndarray = field(default=None)
 
     @property
     def n(self) -> int:
@@ -96,6 +99,7 @@ class _EriPairs:
         self.e_bra = np.ascontiguousarray(self.e.reshape(self.n, self.nprim * nh, self.nf))
         signed = self.e * hermite_signs(self.L)[None, None, :, None]
         self.e_ket = np.ascontiguousarray(signed.transpose(2, 0, 3, 1))
+        self.e_ket_rows = np.ascontiguousarray(signed.transpose(0, 3, 2, 1).reshape(self.n, self.nf, nh * self.nprim))
 
 
 def _pair_index(i: np.ndarray, j: np.ndarray) -> np.ndarray:
@@ -161,54 +165,157 @@ def _hermite_block(L: int, p: np.ndarray, q: np.ndarray, pq: np.ndarray) -> np.n
     return hermite_r(L, pqf, base)
 
 
-def _screen_primitives(groups: list[tuple[PairGroup, np.ndarray, np.ndarray]], L_of, eps: float) -> list[_EriPairs]:
-    """Drop primitive pairs with negligible Schwarz bounds; regroup by survivor count."""
-    staged = []
-    for group, e, pidx in groups:
-        n, m = e.shape[:2]
-        single = _EriPairs(
-            L_of(group),
-            group.flat(group.p).reshape(n * m, 1),
-            group.flat(group.P).reshape(3, n * m, 1),
-            e.reshape(n * m, 1, e.shape[2], e.shape[3]),
-            np.repeat(pidx, m, axis=0),
-        )
-        qprim = np.sqrt(np.abs(_diagonal(single)).max(axis=1)).reshape(n, m)
-        staged.append((group, e, pidx, qprim))
-    qsum = max((float(s[3].sum(axis=1).max()) for s in staged), default=0.0)
-    out: list[_EriPairs] = []
-    for group, e, pidx, qprim in staged:
-        keep = qprim * qsum >= eps
-        counts = keep.sum(axis=1)
-        p = group.flat(group.p).reshape(keep.shape)
-        P = group.flat(group.P).reshape((3,) + keep.shape)
-        for c in np.unique(counts):
-            if c == 0:
-                continue
-            rows = np.flatnonzero(counts == c)
-            mask = keep[rows]
-            sel = _EriPairs(
-                L_of(group),
-                p[rows][mask].reshape(rows.size, c),
-                P[:, rows][:, mask].reshape(3, rows.size, c),
-                e[rows][mask].reshape(rows.size, c, e.shape[2], e.shape[3]),
-                pidx[rows],
+def _primitive_bounds(pairs: _EriPairs) -> np.ndarray:
+    """Schwarz bound of every primitive pair (max over pair functions), shape (n, nprim)."""
+    n, m = pairs.n, pairs.nprim
+    single = _EriPairs(
+        pairs.L,
+        pairs.p.reshape(n * m, 1),
+        pairs.P.reshape(3, n * m, 1),
+        pairs.e.reshape(n * m, 1, pairs.e.shape[2], pairs.nf),
+        np.repeat(pairs.pidx, m, axis=0),
+    )
+    return np.sqrt(np.abs(_diagonal(single)).max(axis=1)).reshape(n, m)
+
+
+def _survivors(pairs: _EriPairs, keep: np.ndarray) -> list[_EriPairs]:
+    """Split pairs by number of kept primitive pairs, dropping the others."""
+    counts = keep.sum(axis=1)
+    out = []
+    for c in np.unique(counts):
+        if c == 0:
+            continue
+        rows = np.flatnonzero(counts == c)
+        mask = keep[rows]
+        out.append(
+            _EriPairs(
+                pairs.L,
+                pairs.p[rows][mask].reshape(rows.size, c),
+                pairs.P[:, rows][:, mask].reshape(3, rows.size, c),
+                pairs.e[rows][mask].reshape((rows.size, c) + pairs.e.shape[2:]),
+                pairs.pidx[rows],
             )
-            out.append(sel)
+        )
+    return out
+
+
+def _pad(pairs: _EriPairs, m: int) -> _EriPairs:
+    """Append primitive pairs with zero coefficients up to m per pair."""
+    extra = m - pairs.nprim
+    if extra == 0:
+        return pairs
+    n = pairs.n
+    p = np.concatenate([pairs.p, np.ones((n, extra))], axis=1)
+    P = np.concatenate([pairs.P, np.repeat(pairs.P[:, :, :1], extra, axis=2)], axis=2)
+    e = np.concatenate([pairs.e, np.zeros((n, extra) + pairs.e.shape[2:])], axis=1)
+    return _EriPairs(pairs.L, p, P, e, pairs.pidx)
+
+
+def _merge(parts: list[_EriPairs], fill: float) -> list[_EriPairs]:
+    """Merge same-class parts whose primitive counts differ little, padding with zeros.
+
+    Fewer, larger groups mean fewer and larger tiles; a part joins the current
+    group while its count is at least ``fill`` times the group's largest.
+    """
+    parts = sorted(parts, key=lambda x: -x.nprim)
+    merged: list[list[_EriPairs]] = []
+    for part in parts:
+        if merged and part.nprim >= fill * merged[-1][0].nprim:
+            merged[-1].append(part)
+        else:
+            merged.append([part])
+    out = []
+    for bunch in merged:
+        m = bunch[0].nprim
+        padded = [_pad(x, m) for x in bunch]
+        out.append(
+            _EriPairs(
+                bunch[0].L,
+                np.concatenate([x.p for x in padded]),
+                np.concatenate([x.P for x in padded], axis=1),
+                np.concatenate([x.e for x in padded]),
+                np.concatenate([x.pidx for x in padded]),
+            )
+        )
+    return out
+
+
+def _families(basis: BasisSet) -> list[list[int]]:
+    """Shells on one atom with identical exponents (e.g. the s and p of an sp shell), by first shell."""
+    out: list[list[int]] = []
+    for k, shell in enumerate(basis.shells):
+        for fam in out:
+            first = basis.shells[fam[0]]
+            if first.atom == shell.atom and np.array_equal(first.exponents, shell.exponents):
+                fam.append(k)
+                break
+        else:
+            out.append([k])
+    return out
+
+
+def _family_pairs(basis: BasisSet) -> dict[tuple, list[list[tuple[int, int]]]]:
+    """Pairs of shell families, each a list of shell pairs sharing one set of primitive pairs.
+
+    Keyed by the shape signature, so pairs with equal keys can be batched.
+    """
+    fams = _families(basis)
+    out: dict[tuple, list[list[tuple[int, int]]]] = {}
+    for ia, fa in enumerate(fams):
+        for fb in fams[: ia + 1]:
+            subs = [(a, b) for a in fa for b in fb if fa is not fb or a >= b]
+            key = tuple(
+                (basis.shells[a].l, basis.shells[b].l, basis.shells[a].n_contractions, basis.shells[b].n_contractions)
+                for a, b in subs
+            ) + ((basis.shells[fa[0]].n_primitives, basis.shells[fb[0]].n_primitives),)
+            out.setdefault(key, []).append(subs)
+    return out
+
+
+def _batched_family_pairs(basis: BasisSet) -> list[_EriPairs]:
+    """Folded Hermite data of every family pair; one entry per shape signature."""
+    out = []
+    for members in _family_pairs(basis).values():
+        subs = np.array(members)  # (n, nsub, 2)
+        groups = [build_group(basis.shells[a].l, basis.shells[b].l, basis.shells, basis.shells, subs[:, s])
+                  for s, (a, b) in enumerate(subs[0])]
+        L = max(g.la + g.lb for g in groups)
+        nh = n_hermite(L)
+        parts = []
+        for g in groups:
+            e = _fold(g, basis.spherical)
+            pad = np.zeros(e.shape[:2] + (nh, e.shape[3]))
+            pad[:, :, : e.shape[2]] = e
+            parts.append(pad)
+        g0 = groups[0]
+        n, m = parts[0].shape[:2]
+        out.append(
+            _EriPairs(
+                L,
+                g0.flat(g0.p).reshape(n, m),
+                g0.flat(g0.P).reshape(3, n, m),
+                np.concatenate(parts, axis=3),
+                np.concatenate([_function_indices(g, basis) for g in groups], axis=1),
+            )
+        )
     return out
 
 
 def _prepare(basis: BasisSet, threshold: float) -> list[_EriPairs]:
-    i, j = np.tril_indices(basis.n_shells)
-    groups = group_pairs(basis.shells, basis.shells, np.stack([i, j], axis=1))
-    folded = [(g, _fold(g, basis.spherical), _function_indices(g, basis)) for g in groups]
-    out = _screen_primitives(folded, lambda g: g.la + g.lb, threshold * 1e-3)
+    staged = [(x, _primitive_bounds(x)) for x in _batched_family_pairs(basis)]
+    qsum = max((float(q.sum(axis=1).max()) for _, q in staged), default=0.0)
+    eps = threshold * 1e-3
+    classes: dict[tuple[int, int], list[_EriPairs]] = {}
+    for pairs, qprim in staged:
+        classes.setdefault((pairs.L, pairs.nf), []).extend(_survivors(pairs, qprim * qsum >= eps))
+    out = []
+    for key in sorted(classes):
+        out.extend(_merge(classes[key], _MERGE_FILL))
     for pairs in out:
-        pairs.q = np.sqrt(np.abs(_diagonal(pairs)).max(axis=1))
-        order = np.argsort(-pairs.q, kind="stable")
-        q = pairs.q[order]
+        q = np.sqrt(np.abs(_diagonal(pairs)).max(axis=1))
+        order = np.argsort(-q, kind="stable")
         pairs.p, pairs.P, pairs.e, pairs.pidx = pairs.p[order], pairs.P[:, order], pairs.e[order], pairs.pidx[order]
-        pairs.q = q
+        pairs.q = q[order]
         pairs.finish()
     return out
 
@@ -232,28 +339,40 @@ def _ket_matrix(ket: _EriPairs, rows: slice, L_bra: int) -> np.ndarray:
     return mt.reshape(nk, nhb * fk, nh * jq)
 
 
-def _tile(bra: _EriPairs, brows: slice, ket: _EriPairs, krows: slice) -> np.ndarray:
+def _tile(bra: _EriPairs, brows: slice, ket: _EriPairs, krows: slice, use_m: bool) -> np.ndarray:
     """Contracted integrals of a tile, shape (nb, nk, fk, fb)."""
     L = bra.L + ket.L
     p = bra.p[brows]  # (nb, ip)
     q = ket.p[krows]  # (nk, jq)
     nb, ip = p.shape
     nk, jq = q.shape
-    # Quartet batch order (k, j, b, i) so R[k] is a (H*j) x (b*i) matrix after one transpose-free reshape.
+    # Quartet batch order (k, j, b, i): after one transpose R[k] is a (H, j) x (b, i) matrix.
     pq = bra.P[:, brows][:, None, None, :, :] - ket.P[:, krows][:, :, :, None, None]
     R = _hermite_block(L, p[None, None], q[:, :, None, None], pq)
     nh = R.shape[0]
-    R = R.reshape(nh, nk, jq, nb * ip).transpose(1, 0, 2, 3).reshape(nk, nh * jq, nb * ip)
-    x = np.matmul(_ket_matrix(ket, krows, bra.L), R)  # (nk, nHb*fk, nb*ip)
     nhb = n_hermite(bra.L)
     fk = ket.nf
+    R = R.reshape(nh, nk, jq, nb * ip).transpose(1, 0, 2, 3)
+    if use_m:
+        x = np.matmul(_ket_matrix(ket, krows, bra.L), R.reshape(nk, nh * jq, nb * ip))
+    else:
+        g = R[:, sum_index(bra.L, ket.L)]  # (nk, nHb, nHk, jq, nb*ip)
+        g = g.reshape(nk, nhb, -1, nb * ip)
+        x = np.matmul(ket.e_ket_rows[krows][:, None], g)  # (nk, nHb, fk, nb*ip)
     y = x.reshape(nk, nhb, fk, nb, ip).transpose(3, 0, 2, 4, 1).reshape(nb, nk * fk, ip * nhb)
     out = np.matmul(y, bra.e_bra[brows])  # (nb, nk*fk, fb)
     return out.reshape(nb, nk, fk, bra.nf)
 
 
 def _cost(bra: _EriPairs, ket: _EriPairs) -> int:
-    return n_hermite(bra.L) * ket.nf
+    return n_hermite(bra.L) * ket.nf * (n_hermite(ket.L) if MODE == "gather" else n_hermite(bra.L + ket.L))
+
+
+MODE = "gather"
+
+
+def _use_m(bra: _EriPairs, ket: _EriPairs) -> bool:
+    return MODE == "m"
 
 
 def _chunks(n: int, size: int) -> list[slice]:
@@ -422,6 +541,7 @@ def compute_eri(
     for g1, g2 in jobs:
         same = g1 is g2
         bra, ket = (g1, g2) if _cost(g1, g2) <= _cost(g2, g1) else (g2, g1)
+        use_m = _use_m(bra, ket)
         nb_size, nk_size = _tile_sizes(bra, ket)
         if same:
             nb_size = nk_size = min(nb_size, nk_size)
@@ -434,7 +554,7 @@ def compute_eri(
                     break
                 count = int(np.sum(bra.q[brows.start] * ket.q[krows] >= threshold))
                 krows = slice(krows.start, krows.start + max(count, 1))
-                block = _tile(bra, brows, ket, krows)
+                block = _tile(bra, brows, ket, krows, use_m)
                 hi = np.maximum(bra.pidx[brows][:, None, None, :], ket.pidx[krows][None, :, :, None])
                 lo = np.minimum(bra.pidx[brows][:, None, None, :], ket.pidx[krows][None, :, :, None])
                 packed[hi * (hi + 1) // 2 + lo] = block
