@@ -13,7 +13,7 @@ import argparse
 import contextlib
 import sys
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from typing import Any, TextIO
 
 from . import __version__, elements, export, report
@@ -323,8 +323,7 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
     console.report(report.format_charges(molecule.symbols, charges))
     console.report(report.format_dipole(dipole, DEBYE_PER_AU, molecule.charge != 0))
     console.report(report.format_timings(result.timings, time.perf_counter() - started))
-    for path in files:
-        console.report(f"\n  wrote {path}")
+    _report_written(console, files)
     return 0
 
 
@@ -344,8 +343,7 @@ def _run_fit_sto(args: argparse.Namespace, console: _Console) -> int:
         console.data(export.to_json(record))
         return 0
     console.report(report.format_sto_fit(fit))
-    for path in paths.values():
-        console.report(f"\n  wrote {path}")
+    _report_written(console, paths.values())
     return 0
 
 
@@ -370,9 +368,14 @@ def _run_compare(args: argparse.Namespace, console: _Console) -> int:
         console.data(export.to_json(record))
         return 0
     console.report(report.format_comparison(comparison))
-    for path in paths.values():
-        console.report(f"\n  wrote {path}")
+    _report_written(console, paths.values())
     return 0
+
+
+def _report_written(console: _Console, paths: Iterable[str]) -> None:
+    written = [f"  wrote {path}" for path in paths]
+    if written:
+        console.report("\n" + "\n".join(written))
 
 
 def _stderr_progress(console: _Console) -> Callable[[str], None] | None:

@@ -307,7 +307,7 @@ def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS
     }
     if basis.n_functions <= eri_max_functions:
         arrays["eri"] = integrals.eri_tensor(basis)
-    return {k: np.ascontiguousarray(v) for k, v in arrays.items()}
+    return {k: np.asarray(v, order="C") for k, v in arrays.items()}
 
 
 def npz_bytes(arrays: Mapping[str, np.ndarray]) -> bytes:
