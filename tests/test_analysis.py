@@ -177,3 +177,10 @@ def test_symmetric_square_root_used_for_lowdin_is_exact(hydroxide):
     root = np.real(scipy.linalg.sqrtm(hydroxide.overlap))
     expected = np.diag(root @ hydroxide.density @ root)
     np.testing.assert_allclose(lowdin_populations(hydroxide), expected, atol=1e-10)
+
+
+@pytest.mark.parametrize("analysis", [mulliken_charges, lowdin_charges, dipole_moment, mp2_energy])
+def test_analysis_needs_the_molecule_and_basis(hydroxide, analysis):
+    bare = dataclasses.replace(hydroxide, molecule=None, basis=None)
+    with pytest.raises(InputError, match="molecule and basis"):
+        analysis(bare)

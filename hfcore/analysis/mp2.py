@@ -16,6 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import ConvergenceError, InputError
+from ._checks import require_placed
 
 # Core orbitals per element by row of the periodic table (common practice:
 # the noble-gas core of the previous row): (highest Z of the row, core count).
@@ -111,6 +112,7 @@ def mp2_energy(result, *, frozen_core: int = 0) -> MP2Result:
     """
     from ..integrals import eri_tensor
 
+    require_placed(result, "MP2")
     if not result.converged:
         raise ConvergenceError("MP2 needs a converged RHF result; this one did not converge", result)
     occupied = np.flatnonzero(np.asarray(result.occupations) > 0.0)

@@ -10,6 +10,7 @@ import numpy as np
 from scipy import constants
 
 from ..errors import InputError
+from ._checks import require_placed
 
 #: One atomic unit of electric dipole moment (e·a0) in debye (1 D = 1e-21/c C·m).
 DEBYE_PER_AU: float = (
@@ -51,6 +52,7 @@ def dipole_moment(result, origin: np.ndarray | None = None) -> np.ndarray:
     """
     from ..integrals import multipole
 
+    require_placed(result, "the dipole moment")
     molecule = result.molecule
     o = nuclear_charge_centre(molecule) if origin is None else np.asarray(origin, dtype=np.float64).reshape(-1)
     if o.shape != (3,) or not np.all(np.isfinite(o)):

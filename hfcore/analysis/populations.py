@@ -11,9 +11,11 @@ import numpy as np
 import scipy.linalg
 
 from ..errors import InputError
+from ._checks import require_placed
 
 
 def _density_and_overlap(result) -> tuple[np.ndarray, np.ndarray]:
+    require_placed(result, "a population analysis")
     density = np.asarray(result.density, dtype=np.float64)
     overlap = np.asarray(result.overlap, dtype=np.float64)
     nbf = result.basis.n_functions

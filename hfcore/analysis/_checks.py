@@ -1,0 +1,15 @@
+"""Checks shared by the analysis functions."""
+
+from __future__ import annotations
+
+from ..errors import InputError
+
+
+def require_placed(result, what: str) -> None:
+    """Raise InputError unless the result carries its molecule and basis.
+
+    Results of the SCF on bare matrices have neither, and every analysis
+    needs to know which atom each basis function sits on.
+    """
+    if getattr(result, "molecule", None) is None or getattr(result, "basis", None) is None:
+        raise InputError(f"{what} needs an RHF result that carries its molecule and basis (from run_rhf)")
