@@ -1,0 +1,230 @@
+#!/usr/bin/env python
+"""Time hfcore against the reference library, side by side, on fixed cases.
+
+Each measurement runs in a fresh child process (so peak memory is the
+case's own and thread settings take effect before numpy loads), one after
+the other: hfcore, then the reference library if it is installed, on the
+same geometry, the same shells and the same convergence threshold.
+
+Usage::
+
+    python scripts/benchmark.py                 # the fixed cases, one thread
+    python scripts/benchmark.py --threads 2     # both programs on two threads
+    python scripts/benchmark.py --scaling       # add the water-cluster series
+    python scripts/benchmark.py --json out.json
+
+The table reports wall times (integrals and SCF separately for hfcore), the
+hfcore/reference ratio, the energy difference, iteration counts and peak
+resident memory. Benchmarks are not tests: nothing here asserts a time.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import multiprocessing as mp
+import os
+import sys
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent.parent
+INPUTS = ROOT / "inputs"
+
+#: (label, geometry file, basis, spherical or None for the family default)
+CASES = [
+    ("water/cc-pVDZ", "water.xyz", "cc-pvdz", None),
+    ("water/cc-pVTZ", "water.xyz", "cc-pvtz", None),
+    ("benzene/STO-3G", "benzene.xyz", "sto-3g", None),
+    ("benzene/6-31G*", "benzene.xyz", "6-31g*", None),
+    ("benzene/cc-pVDZ", "benzene.xyz", "cc-pvdz", None),
+]
+SCALING = [(f"(H2O){n}/6-31G", f"water_cluster_{n}.xyz", "6-31g", None) for n in range(1, 9)]
+
+ENERGY_TOL = 1e-10
+GRADIENT_TOL = 1e-7
+
+
+def _limit_threads(threads: int) -> None:
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        os.environ[var] = str(threads)
+
+
+def _peak_mib() -> float:
+    import resource
+
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+
+
+def _run_hfcore(path: str, basis_name: str, spherical, threads: int, queue) -> None:
+    _limit_threads(threads)
+    try:
+        import hfcore
+        from hfcore.scf import SCFOptions
+
+        t0 = time.perf_counter()
+        mol = hfcore.read_xyz(path)
+        basis = hfcore.build_basis(mol, basis_name, spherical=spherical)
+        res = hfcore.run_rhf(mol, basis, SCFOptions(energy_tol=ENERGY_TOL, gradient_tol=GRADIENT_TOL))
+        wall = time.perf_counter() - t0
+        timings = dict(res.timings)
+        queue.put(
+            {
+                "energy": res.energy_total,
+                "iterations": res.iterations,
+                "n_functions": basis.n_functions,
+                "spherical": basis.spherical,
+                "wall": wall,
+                "integrals": timings.get("integrals", math.nan),
+                "scf": timings.get("scf", math.nan),
+                "peak_mib": _peak_mib(),
+                "shells": _shell_dump(mol, basis),
+            }
+        )
+    except Exception as exc:  # report and keep benchmarking the other cases
+        queue.put({"error": f"{type(exc).__name__}: {exc}"})
+
+
+def _shell_dump(mol, basis) -> dict:
+    """The exact shells and geometry, so the reference library gets the same input."""
+    per_atom: dict[int, list] = {}
+    for s in basis.shells:
+        per_atom.setdefault(s.atom, []).append((s.l, s.exponents.tolist(), s.coefficients.tolist()))
+    return {
+        "atoms": [(int(z), list(map(float, r))) for z, r in zip(mol.atomic_numbers, mol.coordinates)],
+        "charge": mol.charge,
+        "per_atom": per_atom,
+    }
+
+
+def _run_reference(dump: dict, spherical: bool, threads: int, queue) -> None:
+    _limit_threads(threads)
+    try:
+        from pyscf import gto, lib, scf  # the reference library, benchmark-only
+
+        lib.num_threads(threads)
+        from hfcore import elements
+
+        atoms, basis = [], {}
+        for k, (z, r) in enumerate(dump["atoms"]):
+            label = f"{elements.symbol(z)}{k}"
+            atoms.append((label, r))
+            basis[label] = [[l] + [[e, *cs] for e, cs in zip(exps, zip(*coefs))] for l, exps, coefs in dump["per_atom"][k]]
+        t0 = time.perf_counter()
+        mol = gto.M(atom=atoms, basis=basis, unit="Bohr", charge=dump["charge"], cart=not spherical, verbose=0)
+        mf = scf.RHF(mol)
+        mf.conv_tol = ENERGY_TOL
+        mf.conv_tol_grad = GRADIENT_TOL
+        energy = mf.kernel()
+        wall = time.perf_counter() - t0
+        queue.put({"energy": float(energy), "iterations": int(getattr(mf, "cycles", -1)), "wall": wall, "peak_mib": _peak_mib()})
+    except ImportError:
+        queue.put({"error": "reference library not installed"})
+    except Exception as exc:
+        queue.put({"error": f"{type(exc).__name__}: {exc}"})
+
+
+def _in_child(target, *args) -> dict:
+    ctx = mp.get_context("spawn")
+    queue = ctx.Queue()
+    proc = ctx.Process(target=target, args=(*args, queue))
+    proc.start()
+    out = queue.get()
+    proc.join()
+    return out
+
+
+def run_case(label: str, geometry: str, basis: str, spherical, threads: int) -> dict:
+    """Measure one case with hfcore and the reference library, one child process each."""
+    row = {"case": label, "threads": threads}
+    path = str(INPUTS / geometry)
+    ours = _in_child(_run_hfcore, path, basis, spherical, threads)
+    if "error" in ours:
+        row["error"] = ours["error"]
+        return row
+    dump = ours.pop("shells")
+    row.update({f"hfcore_{k}": v for k, v in ours.items() if k not in {"n_functions", "spherical"}})
+    row["n_functions"] = ours["n_functions"]
+    row["spherical"] = ours["spherical"]
+    ref = _in_child(_run_reference, dump, ours["spherical"], threads)
+    if "error" in ref:
+        row["reference_error"] = ref["error"]
+    else:
+        row.update({f"reference_{k}": v for k, v in ref.items()})
+        row["ratio"] = ours["wall"] / ref["wall"]
+        row["energy_difference"] = ours["energy"] - ref["energy"]
+    return row
+
+
+def scaling_exponent(rows: list[dict], key: str) -> float | None:
+    """Slope of log(time) against log(number of functions), least squares."""
+    pts = [(r["n_functions"], r[key]) for r in rows if key in r and r[key] > 0]
+    if len(pts) < 3:
+        return None
+    xs = [math.log(n) for n, _ in pts]
+    ys = [math.log(t) for _, t in pts]
+    mx, my = sum(xs) / len(xs), sum(ys) / len(ys)
+    sxx = sum((x - mx) ** 2 for x in xs)
+    return sum((x - mx) * (y - my) for x, y in zip(xs, ys)) / sxx
+
+
+def _format(rows: list[dict]) -> str:
+    head = (
+        f"{'case':<18}{'nbf':>5}{'ints/s':>9}{'scf/s':>8}{'hfcore/s':>10}{'ref/s':>8}{'ratio':>7}"
+        f"{'dE/Eh':>10}{'it':>4}{'ref it':>7}{'MiB':>7}{'ref MiB':>8}"
+    )
+    lines = [head, "-" * len(head)]
+    for r in rows:
+        if "error" in r:
+            lines.append(f"{r['case']:<18} failed: {r['error']}")
+            continue
+        ref = "reference_wall" in r
+        lines.append(
+            f"{r['case']:<18}{r['n_functions']:>5}{r['hfcore_integrals']:>9.3f}{r['hfcore_scf']:>8.3f}"
+            f"{r['hfcore_wall']:>10.3f}"
+            + (f"{r['reference_wall']:>8.3f}{r['ratio']:>7.2f}{r['energy_difference']:>10.1e}" if ref else f"{'-':>8}{'-':>7}{'-':>10}")
+            + f"{r['hfcore_iterations']:>4}"
+            + (f"{r['reference_iterations']:>7}" if ref else f"{'-':>7}")
+            + f"{r['hfcore_peak_mib']:>7.0f}"
+            + (f"{r['reference_peak_mib']:>8.0f}" if ref else f"{'-':>8}")
+        )
+    return "\n".join(lines)
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--threads", type=int, default=1, help="threads for both programs (default 1)")
+    parser.add_argument("--scaling", action="store_true", help="also run the water-cluster series and fit the cost exponent")
+    parser.add_argument("--only", help="comma-separated case labels to run")
+    parser.add_argument("--json", help="write the rows as JSON to this path ('-' for stdout)")
+    args = parser.parse_args(argv)
+    cases = CASES + (SCALING if args.scaling else [])
+    if args.only:
+        wanted = {s.strip() for s in args.only.split(",")}
+        cases = [c for c in cases if c[0] in wanted]
+    rows = []
+    for label, geometry, basis, spherical in cases:
+        print(f"running {label} ...", file=sys.stderr, flush=True)
+        rows.append(run_case(label, geometry, basis, spherical, args.threads))
+    summary = {}
+    series = [r for r in rows if r["case"].startswith("(H2O)") and "error" not in r]
+    if series:
+        summary["scaling_exponent_hfcore"] = scaling_exponent(series, "hfcore_wall")
+        summary["scaling_exponent_reference"] = scaling_exponent(series, "reference_wall")
+    if args.json:
+        text = json.dumps({"threads": args.threads, "rows": rows, "summary": summary}, indent=2)
+        if args.json == "-":
+            print(text)
+            return 0
+        Path(args.json).write_text(text + "\n")
+    print(f"threads: {args.threads}; energy threshold {ENERGY_TOL:g} Eh, gradient {GRADIENT_TOL:g}")
+    print(_format(rows))
+    for key, value in summary.items():
+        if value is not None:
+            print(f"{key}: {value:.2f}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
