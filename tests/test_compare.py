@@ -200,3 +200,11 @@ def test_plot_without_matplotlib_names_the_install_command(nested, tmp_path, mon
     monkeypatch.setitem(sys.modules, "matplotlib", None)
     with pytest.raises(InputError, match=r"pip install 'hfcore\[plot\]'"):
         plot_comparison(comparison, tmp_path / "compare.png")
+
+
+def test_unconverged_runs_are_flagged_not_raised(hydrogen_fluoride):
+    comparison = compare_bases(hydrogen_fluoride, ["sto-3g", "6-31g"], options=hfcore.SCFOptions(max_iterations=2))
+    assert [r.converged for r in comparison.rows] == [False, False]
+    assert [r.iterations for r in comparison.rows] == [2, 2]
+    # Nothing converged, so nothing could be projected.
+    assert [r.guess for r in comparison.rows] == ["sad", "sad"]
