@@ -223,14 +223,14 @@ def format_comparison(comparison: Any) -> str:
     lines = [
         heading("Basis comparison"),
         f"  {'basis':<16} {'functions':>9}  {'form':<9} {'energy / Eh':>18} {'Δ / mEh':>11} "
-        f"{'Δ / kcal/mol':>12} {'iter':>4} {'time / s':>9}",
+        f"{'Δ / kcal/mol':>13} {'iter':>4} {'time / s':>9}",
     ]
     for row in comparison.rows:
         form = "spherical" if row.spherical else "Cartesian"
         flag = "" if row.converged else "  (not converged)"
         lines.append(
             f"  {row.basis:<16} {row.n_functions:>9}  {form:<9} {row.energy_total:18.10f} "
-            f"{row.delta_mEh:11.3f} {row.delta_kcal_mol:12.3f} {row.iterations:>4} {row.wall_time:9.2f}{flag}"
+            f"{row.delta_mEh:11.3f} {row.delta_kcal_mol:13.3f} {row.iterations:>4} {row.wall_time:9.2f}{flag}"
         )
     lines.append(f"  Δ: energy above {comparison.reference_basis}, the basis with the most functions")
     if comparison.estimates:
