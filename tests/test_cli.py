@@ -279,6 +279,57 @@ def test_human_report_prints_one_row_per_iteration_and_quiet_drops_them(water):
     assert "SCF iterations" not in quiet and "total energy" in quiet
 
 
+def energy_record(*args: str) -> dict:
+    code, out, err = run_main("energy", *args, "--json", "-")
+    assert code == 0, err
+    return json.loads(out)
+
+
+def test_basis_for_gives_one_element_another_basis(water):
+    record = energy_record(str(water), "--basis", "sto-3g", "--basis-for", "H=6-31g")
+    # source: common practice — STO-3G O has 5 functions, 6-31G H has 2
+    assert record["basis"]["n_functions"] == 5 + 2 * 2
+    assert "6-31G" in record["basis"]["name"]
+
+
+def test_cartesian_and_spherical_flags_change_the_d_functions(water):
+    spherical = energy_record(str(water), "--basis", "cc-pvdz", "--spherical", "--quiet")
+    cartesian = energy_record(str(water), "--basis", "cc-pvdz", "--cartesian", "--quiet")
+    # source: common practice — cc-pVDZ water: O 3s2p1d, H 2s1p; a d shell has 5 spherical or 6 Cartesian functions
+    assert (spherical["basis"]["n_functions"], cartesian["basis"]["n_functions"]) == (24, 25)
+    assert spherical["basis"]["spherical"] is True and cartesian["basis"]["spherical"] is False
+    # source: exact property (variational principle) — the Cartesian d space contains the spherical one
+    assert cartesian["energy"]["total"] < spherical["energy"]["total"]
+
+
+def test_basis_file_with_the_textbook_fit_reproduces_sto3g(tmp_path):
+    xyz = tmp_path / "h2.xyz"
+    xyz.write_text("2\n\nH 0 0 0\nH 0 0 1.4\n")
+    # source: Szabo & Ostlund (1996), ch. 3, STO-3G fit for zeta = 1 (from memory), scaled by zeta(H)**2 = 1.24**2
+    alphas = [str(a * 1.24**2) for a in (2.227660, 0.405771, 0.109818)]
+    shell = {"l": 0, "exponents": alphas, "coefficients": [["0.154329", "0.535328", "0.444635"]]}
+    (tmp_path / "mine.json").write_text(json.dumps({"format": "hfcore-basis/1", "name": "mine", "elements": {"H": [shell]}}))
+    mine = energy_record(str(xyz), "--units", "bohr", "--basis-file", str(tmp_path / "mine.json"))
+    fitted = energy_record(str(xyz), "--units", "bohr", "--basis", "sto-3g")
+    assert mine["basis"]["name"] == "mine"
+    # six-digit table values against hfcore's own fit: the same energy to well below the book's 1e-4
+    assert mine["energy"]["total"] == pytest.approx(fitted["energy"]["total"], abs=1e-6)
+
+
+def test_core_guess_reaches_the_same_energy(water):
+    sad = energy_record(str(water))
+    core = energy_record(str(water), "--guess", "core")
+    # source: exact property — the converged RHF state does not depend on the starting density here
+    assert core["energy"]["total"] == pytest.approx(sad["energy"]["total"], abs=1e-9)
+
+
+def test_scf_thresholds_are_passed_on(water):
+    record = energy_record(str(water), "--energy-tol", "1e-6", "--gradient-tol", "1e-4", "--diis-space", "4")
+    thresholds = record["scf"]["thresholds"]
+    assert (thresholds["energy_tol"], thresholds["gradient_tol"], thresholds["diis_space"]) == (1e-6, 1e-4, 4)
+    assert max(h["diis_size"] for h in record["scf"]["history"]) <= 4
+
+
 def test_npz_holds_the_arrays_for_prototyping(water):
     path = water.parent / "w.npz"
     code, _, err = run_main("energy", str(water), "--npz", str(path), "--json", str(water.parent / "w.json"))
