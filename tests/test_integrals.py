@@ -81,6 +81,16 @@ def dense_eri(case) -> np.ndarray:
     return eri_tensor(case.basis)
 
 
+@pytest.fixture(scope="module")
+def store(case):
+    return compute_eri(case.basis, threshold=0.0)
+
+
+def _small_basis() -> BasisSet:
+    atoms = [("Li", (0.0, 0.0, 0.0)), ("Li", (0.0, 1.0, 2.0))]
+    return _hfcore_basis(atoms, {"Li": _SHELLS["Li"][:2] + [_SHELLS["He"][2]]}, True)
+
+
 def test_function_count_matches_reference(case):
     assert case.basis.n_functions == case.mol.nao
 
@@ -148,34 +158,33 @@ def test_electron_repulsion_has_eightfold_symmetry(dense_eri):
         np.testing.assert_array_equal(e, e.transpose(perm))
 
 
-def test_store_to_dense_matches_eri_tensor(case, dense_eri):
-    store = compute_eri(case.basis, threshold=0.0)
+def test_store_to_dense_matches_eri_tensor(store, dense_eri):
     np.testing.assert_array_equal(store.to_dense(), dense_eri)
 
 
-def test_store_jk_equals_dense_contraction(case, dense_eri):
+def test_store_jk_equals_dense_contraction(case, store, dense_eri):
     rng = np.random.default_rng(7)
     d = rng.standard_normal((case.basis.n_functions,) * 2)
     d = d + d.T
-    store = compute_eri(case.basis, threshold=0.0)
     j, k = store.jk(d)
     # source: exact property, definitions J_mn = sum (mn|ls) D_ls, K_mn = sum (ml|ns) D_ls
     np.testing.assert_allclose(j, np.einsum("mnls,ls->mn", dense_eri, d), rtol=0, atol=1e-11)
     np.testing.assert_allclose(k, np.einsum("mlns,ls->mn", dense_eri, d), rtol=0, atol=1e-11)
 
 
-def test_store_reports_its_memory(case):
-    store = compute_eri(case.basis)
-    n = case.basis.n_functions
+def test_store_reports_its_memory():
+    basis = _small_basis()
+    store = compute_eri(basis)
+    n = basis.n_functions
     npair = n * (n + 1) // 2
     assert store.nbytes == 8 * npair * (npair + 1) // 2
     store.jk(np.eye(n))
     assert store.nbytes == 2 * 8 * npair * (npair + 1) // 2
 
 
-def test_progress_reports_fractions_up_to_one(case):
+def test_progress_reports_fractions_up_to_one():
     seen = []
-    compute_eri(case.basis, progress=seen.append)
+    compute_eri(_small_basis(), progress=seen.append)
     assert seen and seen[-1] == pytest.approx(1.0)
     assert all(b >= a for a, b in zip(seen, seen[1:]))
 
