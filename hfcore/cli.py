@@ -17,7 +17,7 @@ from collections.abc import Callable, Iterable, Sequence
 from typing import Any, TextIO
 
 from . import __version__, elements, export, report
-from .errors import HfcoreError, InputError
+from .errors import HfcoreError, InputError, ResourceError
 
 #: Exit code after Ctrl-C (128 + SIGINT), the shell convention.
 EXIT_INTERRUPTED: int = 130
@@ -400,6 +400,12 @@ def _run_bases(args: argparse.Namespace, console: _Console) -> int:
 # ----------------------------------------------------------------------------
 
 
+def _fail(err: TextIO, message: str, code: int) -> int:
+    one_line = " ".join(message.split())
+    print(f"hfcore: error: {one_line}", file=err, flush=True)
+    return code
+
+
 def main(argv: Sequence[str] | None = None, *, stdout: TextIO | None = None, stderr: TextIO | None = None) -> int:
     """Run the ``hfcore`` command.
 
@@ -430,9 +436,10 @@ def main(argv: Sequence[str] | None = None, *, stdout: TextIO | None = None, std
     try:
         return args.handler(args, console)
     except HfcoreError as exc:
-        message = " ".join(str(exc).split("\n"))
-        print(f"hfcore: error: {message}", file=err, flush=True)
-        return exc.exit_code
+        return _fail(err, str(exc), exc.exit_code)
+    except MemoryError:
+        # numpy's own allocation failures mean the same to a user as ours.
+        return _fail(err, "not enough memory for this run; try a smaller basis or molecule", ResourceError.exit_code)
     except KeyboardInterrupt:
         print("hfcore: interrupted", file=err, flush=True)
         return EXIT_INTERRUPTED

@@ -464,6 +464,18 @@ def test_version_flag(tmp_path):
     assert proc.returncode == 0 and proc.stdout.startswith("hfcore ")
 
 
+def test_numpy_out_of_memory_exits_5_with_one_line(monkeypatch, water):
+    import hfcore.cli as cli
+
+    def exhausted(*args, **kwargs):
+        raise MemoryError
+
+    monkeypatch.setattr(cli, "_read_molecule", exhausted)
+    code, out, err = run_main("energy", str(water))
+    assert code == 5 and out == ""
+    assert err.startswith("hfcore: error: not enough memory") and err.count("\n") == 1
+
+
 def test_interrupt_exits_130_with_one_line(monkeypatch, water):
     import hfcore.cli as cli
 
