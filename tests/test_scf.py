@@ -298,6 +298,15 @@ def test_sad_diis_needs_no_more_iterations_than_the_reference_library(name):
     assert result.iterations <= _reference_iterations(name)
 
 
+def _hfcore_matrices(molecule, basis):
+    from hfcore import integrals
+
+    hcore = integrals.kinetic(basis) + integrals.nuclear_attraction(
+        basis, molecule.atomic_numbers.astype(float), molecule.coordinates
+    )
+    return integrals.overlap(basis), hcore, integrals.compute_eri(basis)
+
+
 @pytest.mark.parametrize("name", ["H3O+", "OH-"])
 def test_ions_start_from_the_right_electron_count(name):
     from hfcore.basis import build_basis
@@ -306,11 +315,65 @@ def test_ions_start_from_the_right_electron_count(name):
 
     molecule = _driver_molecule(name)
     basis = build_basis(molecule, "sto-3g")
-    m = _matrices(DRIVER_MOLECULES[name][0].replace("\n", ";"), "sto-3g", molecule.charge)
+    overlap, hcore, jk = _hfcore_matrices(molecule, basis)
     guess = sad_density(basis, molecule.atomic_numbers)
     # exact property: the neutral-atom guess holds sum(Z) electrons, not N
-    assert np.trace(guess @ m.overlap) == pytest.approx(molecule.atomic_numbers.sum(), abs=1e-4)
-    problem = _Problem(m.overlap, m.hcore, m.jk, molecule.n_electrons // 2, Orthogonaliser.from_overlap(m.overlap, 1e-7))
+    assert np.trace(guess @ overlap) == pytest.approx(molecule.atomic_numbers.sum(), abs=1e-10)
+    problem = _Problem(overlap, hcore, jk, molecule.n_electrons // 2, Orthogonaliser.from_overlap(overlap, 1e-7))
     start, _ = _initial_density(problem, guess)
     # exact property: after the first diagonalisation tr(D S) = N
-    assert np.trace(start @ m.overlap) == pytest.approx(molecule.n_electrons, abs=1e-10)
+    assert np.trace(start @ overlap) == pytest.approx(molecule.n_electrons, abs=1e-10)
+
+
+def test_valence_averaged_atom_shares_its_valence_electrons_evenly():
+    mol = gto.M(atom="C 0 0 0", basis="cc-pvdz", spin=2, verbose=0)
+    s = mol.intor("int1e_ovlp")
+    density = fractional_scf(s, mol.intor("int1e_kin") + mol.intor("int1e_nuc"), DenseJK(mol.intor("int2e")), 6, 2)
+    values, vectors = np.linalg.eigh(s)
+    root = vectors @ np.diag(np.sqrt(values)) @ vectors.T
+    natural = np.sort(np.linalg.eigvalsh(root @ density @ root))[::-1]
+    # exact property of the construction: occupations 2 (1s), 1 (2s and three 2p), 0 (the rest)
+    np.testing.assert_allclose(natural, [2.0, 1.0, 1.0, 1.0, 1.0] + [0.0] * (natural.size - 5), atol=1e-8)
+
+
+def test_run_rhf_guesses_agree_and_record_their_timings():
+    from hfcore.scf import run_rhf
+
+    molecule = _driver_molecule("H2O")
+    sad = run_rhf(molecule, "sto-3g")
+    core = run_rhf(molecule, "sto-3g", guess="core")
+    given = run_rhf(molecule, "sto-3g", guess=sad.density)
+    # exact property: the converged energy does not depend on the start
+    assert core.energy_total == pytest.approx(sad.energy_total, abs=1e-9)
+    assert given.energy_total == pytest.approx(sad.energy_total, abs=1e-9)
+    assert given.iterations <= 2
+    assert set(sad.timings) == {"integrals", "guess", "scf", "total"}
+    assert sad.molecule is molecule and sad.basis.n_functions == 7
+
+
+def test_run_rhf_convergence_error_carries_the_molecule():
+    from hfcore.scf import run_rhf
+
+    molecule = _driver_molecule("H2O")
+    with pytest.raises(ConvergenceError, match="did not converge in 1 iterations") as info:
+        run_rhf(molecule, "sto-3g", SCFOptions(max_iterations=1))
+    assert info.value.result.molecule is molecule
+    assert "integrals" in info.value.result.timings
+
+
+@pytest.mark.parametrize(
+    "kwargs, match",
+    [({"guess": "huckel"}, "unknown SCF guess"), ({"guess": np.eye(2)}, "shape"), ({"options": SCFOptions(direct=True)}, "direct")],
+)
+def test_run_rhf_refuses_what_it_cannot_do(kwargs, match):
+    from hfcore.scf import run_rhf
+
+    with pytest.raises(InputError, match=match):
+        run_rhf(_driver_molecule("H2O"), "sto-3g", **kwargs)
+
+
+def test_run_rhf_refuses_an_open_shell():
+    from hfcore.scf import run_rhf
+
+    with pytest.raises(InputError, match="even"):
+        run_rhf(_driver_molecule("H2O").with_charge(1), "sto-3g")
