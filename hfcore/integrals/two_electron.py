@@ -440,24 +440,29 @@ class ERIStore:
         return out
 
     def _exchange_kernel(self) -> np.ndarray:
-        """Packed W[ik, jl] = ((ij|kl) + (il|kj)) / 2, symmetric in (ik) <-> (jl)."""
+        """Packed W[ik, jl] = ((ij|kl) + (il|kj)) / 2, symmetric in (ik) <-> (jl).
+
+        Built once, one first index i at a time: the rows (i, k), k <= i,
+        together with their columns form one contiguous stretch of the packed
+        array, so each step is a few whole-array gathers.
+        """
         if self._exchange is None:
             n = self.n_functions
             pm = self._pair_map()
             first, second = np.tril_indices(n)
             out = np.empty_like(self.packed)
-            rows_per = max(1, (1 << 22) // max(1, self.n_pairs))
-            for r0 in range(0, self.n_pairs, rows_per):
-                r1 = min(self.n_pairs, r0 + rows_per)
-                start, stop = r0 * (r0 + 1) // 2, r1 * (r1 + 1) // 2
-                pos = np.arange(start, stop)
-                row = np.repeat(np.arange(r0, r1), np.arange(r0, r1) + 1)
-                col = pos - row * (row + 1) // 2
-                i, k = first[row], second[row]
-                j, l = first[col], second[col]
-                a = self.packed[_pair_index(pm[i, j], pm[k, l])]
-                b = self.packed[_pair_index(pm[i, l], pm[k, j])]
-                out[start:stop] = 0.5 * (a + b)
+            for i in range(n):
+                row0 = i * (i + 1) // 2
+                ncol = row0 + i + 1
+                fj, sl = first[:ncol], second[:ncol]
+                k_rows = pm[: i + 1]
+                a = _pair_index(pm[i, fj][None, :], k_rows[:, sl])
+                b = _pair_index(pm[i, sl][None, :], k_rows[:, fj])
+                vals = self.packed[a]
+                vals += self.packed[b]
+                vals *= 0.5
+                keep = np.arange(ncol)[None, :] <= (row0 + np.arange(i + 1))[:, None]
+                out[row0 * (row0 + 1) // 2 : ncol * (ncol + 1) // 2] = vals[keep]
             self._exchange = out
         return self._exchange
 
