@@ -16,6 +16,8 @@ import time
 from collections.abc import Callable, Iterable, Sequence
 from typing import Any, TextIO
 
+import numpy as np
+
 from . import __version__, elements, export, report
 from .errors import HfcoreError, InputError, ResourceError
 
@@ -267,18 +269,17 @@ def _scf_options(args: argparse.Namespace) -> Any:
     return SCFOptions(**given)
 
 
-def _analysis(result: Any) -> tuple[dict[str, Any], Any, Any]:
+def _analysis(result: Any) -> dict[str, Any]:
+    """Mulliken charges and the dipole moment, in the units the JSON record states."""
     from .analysis import DEBYE_PER_AU, dipole_moment, mulliken_charges
 
-    charges = mulliken_charges(result)
     dipole = dipole_moment(result)
-    record = {
-        "mulliken_charges": charges,
+    return {
+        "mulliken_charges": mulliken_charges(result),
         "dipole_au": dipole,
         "dipole_debye": dipole * DEBYE_PER_AU,
-        "dipole_magnitude_debye": float((dipole @ dipole) ** 0.5 * DEBYE_PER_AU),
+        "dipole_magnitude_debye": float(np.linalg.norm(dipole)) * DEBYE_PER_AU,
     }
-    return record, charges, dipole
 
 
 # ----------------------------------------------------------------------------
@@ -299,32 +300,34 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
     console.report(report.format_basis(basis))
     console.live(report.history_header())
     result = run_rhf(molecule, basis, options, guess=args.guess, progress=lambda rec: console.live(report.format_iteration(rec)))
-    analysis, charges, dipole = _analysis(result)
-
+    record = export.result_record(result, _analysis(result))
     files: dict[str, bytes] = {}
-    record = export.result_record(result, analysis)
     if "json" in paths:
         files[paths["json"]] = export.to_json(record).encode("utf-8")
     if "npz" in paths:
         files[paths["npz"]] = export.npz_bytes(export.result_arrays(result))
     export.write_files_atomically(files)
-
     if args.json == "-":
         console.data(export.to_json(record))
-        return 0
+    else:
+        _report_energy(console, result, record["analysis"], time.perf_counter() - started)
+        _report_written(console, files)
+    return 0
+
+
+def _report_energy(console: _Console, result: Any, analysis: dict[str, Any], wall: float) -> None:
     from .analysis import DEBYE_PER_AU
 
+    molecule = result.molecule
     if console.quiet:
         console.report(report.heading("SCF"))
     console.report(report.format_convergence(result))
-    console.report(report.format_linear_dependence(result.n_dropped, options.lindep_threshold))
+    console.report(report.format_linear_dependence(result.n_dropped, result.options.lindep_threshold))
     console.report(report.format_energies(result))
     console.report(report.format_orbitals(result))
-    console.report(report.format_charges(molecule.symbols, charges))
-    console.report(report.format_dipole(dipole, DEBYE_PER_AU, molecule.charge != 0))
-    console.report(report.format_timings(result.timings, time.perf_counter() - started))
-    _report_written(console, files)
-    return 0
+    console.report(report.format_charges(molecule.symbols, analysis["mulliken_charges"]))
+    console.report(report.format_dipole(analysis["dipole_au"], DEBYE_PER_AU, molecule.charge != 0))
+    console.report(report.format_timings(result.timings, wall))
 
 
 def _run_fit_sto(args: argparse.Namespace, console: _Console) -> int:
