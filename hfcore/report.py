@@ -276,7 +276,7 @@ def format_basis_list(families: Sequence[Any], fitted: Sequence[str]) -> str:
         lines.append(f"  {family.name:<{width}}   {form:<16} {_element_span(family.elements())}")
     lines.append(heading("Fitted Slater sets (H–Ar; --zeta changes their exponents)"))
     lines.append("  " + "  ".join(fitted))
-    lines.append("\n  Other published sets are found by name when the basis-set-exchange package is installed.")
+    lines.append("\n  Other published sets are found by name with the optional extra: pip install 'hfcore[bse]'")
     return "\n".join(lines)
 
 
