@@ -174,18 +174,23 @@ def hermite_r(L: int, pq: np.ndarray, base: np.ndarray) -> np.ndarray:
     if L == 0:
         return base[:1]
     axis, p1, p2, coef = _r_tables(L)
+    # The Hermite list is ordered by degree, so every level uses a prefix of
+    # these tables and of the gathered P-Q rows.
+    xyz = pq[axis]
+    nz_all = np.flatnonzero(coef)
     cur = base[L:L + 1]
+    n = base.shape[1]
     for m in range(L - 1, -1, -1):
         size = n_hermite(L - m)
-        nxt = np.empty((size, base.shape[1]))
+        nxt = np.empty((size, n))
         nxt[0] = base[m]
-        sl = slice(0, size - 1)
-        body = pq[axis[sl]] * cur[p1[sl]]
-        c = coef[sl]
-        nz = np.flatnonzero(c)
+        body = nxt[1:]
+        np.multiply(xyz[: size - 1], cur[p1[: size - 1]], out=body)
+        nz = nz_all[nz_all < size - 1]
         if nz.size:
-            body[nz] += c[nz, None] * cur[p2[sl][nz]]
-        nxt[1:] = body
+            extra = cur[p2[nz]]
+            extra *= coef[nz, None]
+            body[nz] += extra
         cur = nxt
     return cur
 

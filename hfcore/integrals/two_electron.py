@@ -53,8 +53,8 @@ from .pairs import PairGroup, build_group, group_pairs
 from .spherical import component_transform
 
 _ERI_CONST = 2.0 * np.pi**2.5
-_TILE_QUARTETS = 1 << 14
-_TILE_ELEMENTS = 1 << 19
+_TILE_QUARTETS = 1 << 12
+_TILE_ELEMENTS = 1 << 16
 _MERGE_FILL = 0.8
 #: Largest dense (nbf,)*4 array ``to_dense`` will build, in bytes.
 DENSE_LIMIT_BYTES = 4 << 30
