@@ -148,33 +148,51 @@ def test_unknown_basis_name_exits_3(water):
     assert only_inputs_left(water.parent, water.name)
 
 
+def cli_result(*args: str, cwd: Path, via: str) -> subprocess.CompletedProcess:
+    """The command's outcome, from a real process or from :func:`main` in this one.
+
+    The variants of one kind of flag error share a code path, so one of each
+    kind runs as a process (the exit code the shell sees, no traceback) and
+    the rest in-process, where ``main``'s return value is that exit code.
+    """
+    if via == "process":
+        return hfcore_process(*args, cwd=cwd)
+    here = os.getcwd()
+    os.chdir(cwd)
+    try:
+        code, out, err = run_main(*args)
+    finally:
+        os.chdir(here)
+    return subprocess.CompletedProcess(list(args), code, out, err)
+
+
 @pytest.mark.parametrize(
-    ("item", "fragment"),
+    ("item", "fragment", "via"),
     [
-        ("He", "He"),
-        ("O=abc", "abc"),
-        ("O=-1", "-1"),
-        ("Xx=1.0", "Xx"),
-        ("H:2sp=1.0", "2sp"),
+        ("He", "He", "process"),
+        ("O=abc", "abc", "main"),
+        ("O=-1", "-1", "main"),
+        ("Xx=1.0", "Xx", "main"),
+        ("H:2sp=1.0", "2sp", "main"),
     ],
 )
-def test_bad_zeta_exits_2(water, item, fragment):
-    proc = hfcore_process("energy", water.name, "--zeta", item, "--json", "o.json", cwd=water.parent)
+def test_bad_zeta_exits_2(water, item, fragment, via):
+    proc = cli_result("energy", water.name, "--zeta", item, "--json", "o.json", cwd=water.parent, via=via)
     assert_one_line_error(proc, 2, "zeta", fragment)
     assert only_inputs_left(water.parent, water.name)
 
 
 @pytest.mark.parametrize(
-    ("item", "code", "fragment"),
+    ("item", "code", "fragment", "via"),
     [
-        ("H", 2, "expected EL=NAME"),
-        ("H=", 2, "expected EL=NAME"),
-        ("Xx=cc-pvdz", 2, "unknown element 'Xx'"),
-        ("H=no-such-basis-zz", 3, "no-such-basis-zz"),
+        ("H", 2, "expected EL=NAME", "process"),
+        ("H=", 2, "expected EL=NAME", "main"),
+        ("Xx=cc-pvdz", 2, "unknown element 'Xx'", "main"),
+        ("H=no-such-basis-zz", 3, "no-such-basis-zz", "process"),
     ],
 )
-def test_bad_basis_for(water, item, code, fragment):
-    proc = hfcore_process("energy", water.name, "--basis-for", item, "--json", "o.json", cwd=water.parent)
+def test_bad_basis_for(water, item, code, fragment, via):
+    proc = cli_result("energy", water.name, "--basis-for", item, "--json", "o.json", cwd=water.parent, via=via)
     assert_one_line_error(proc, code, fragment)
     assert only_inputs_left(water.parent, water.name)
 
@@ -191,20 +209,20 @@ def test_output_in_a_missing_directory_fails_before_computing(water):
 
 
 @pytest.mark.parametrize(
-    "args",
+    ("args", "via"),
     [
-        ["energy"],
-        ["energy", "w.xyz", "--charge", "one"],
-        ["energy", "w.xyz", "--max-iterations", "0"],
-        ["energy", "w.xyz", "--energy-tol", "-1e-8"],
-        ["energy", "w.xyz", "--cartesian", "--spherical"],
-        ["energy", "w.xyz", "--no-such-flag"],
-        ["fit-sto", "--shell", "4f", "--gaussians", "3"],
-        ["no-such-command"],
+        (["energy"], "process"),
+        (["energy", "w.xyz", "--charge", "one"], "main"),
+        (["energy", "w.xyz", "--max-iterations", "0"], "main"),
+        (["energy", "w.xyz", "--energy-tol", "-1e-8"], "main"),
+        (["energy", "w.xyz", "--cartesian", "--spherical"], "main"),
+        (["energy", "w.xyz", "--no-such-flag"], "main"),
+        (["fit-sto", "--shell", "4f", "--gaussians", "3"], "process"),
+        (["no-such-command"], "main"),
     ],
 )
-def test_usage_errors_exit_2_without_traceback(tmp_path, args):
-    proc = hfcore_process(*args, cwd=tmp_path)
+def test_usage_errors_exit_2_without_traceback(tmp_path, args, via):
+    proc = cli_result(*args, cwd=tmp_path, via=via)
     assert proc.returncode == 2
     assert "Traceback" not in proc.stderr
     assert proc.stderr.strip().splitlines()[-1].startswith("hfcore")
