@@ -257,7 +257,9 @@ def read_xyz(path: str | os.PathLike, units: str = "angstrom", charge: int = 0) 
     """
     source = os.fspath(path)
     try:
-        with open(source, encoding="utf-8") as handle:
+        # utf-8-sig: some editors start UTF-8 files with a byte-order mark,
+        # which would otherwise spoil the atom count on line 1.
+        with open(source, encoding="utf-8-sig") as handle:
             text = handle.read()
     except FileNotFoundError:
         raise InputError(f"{source}: no such file") from None

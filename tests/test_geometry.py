@@ -90,6 +90,13 @@ def test_fortran_exponent_letters_are_read(tmp_path):
     assert mol.coordinates_angstrom()[1, 2] == pytest.approx(0.74, rel=1e-14)
 
 
+def test_byte_order_mark_and_windows_line_ends_are_accepted(tmp_path):
+    path = tmp_path / "mol.xyz"
+    path.write_bytes(b"\xef\xbb\xbf2\r\nH2\r\nH 0 0 0\r\nH 0 0 0.74\r\n")
+    mol = read_xyz(path)
+    assert mol.natom == 2 and mol.comment == "H2"
+
+
 def test_charge_changes_electron_count_only(tmp_path):
     mol = read_xyz(write(tmp_path, "5\nammonium\nN 0 0 0\nH 0.59 0.59 0.59\nH -0.59 -0.59 0.59\nH -0.59 0.59 -0.59\nH 0.59 -0.59 -0.59\n"), charge=1)
     assert mol.charge == 1 and mol.n_electrons == 10
