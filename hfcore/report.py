@@ -11,11 +11,15 @@ from collections.abc import Iterable, Sequence
 from typing import Any
 
 import numpy as np
+from scipy import constants
 
 from .geometry import BOHR_IN_ANGSTROM
 
 #: Virtual orbitals listed after the LUMO before the list is cut short.
 MAX_VIRTUALS_SHOWN: int = 10
+
+#: One hartree in electronvolts (CODATA, via scipy.constants).
+EV_PER_HARTREE: float = constants.physical_constants["Hartree energy in eV"][0]
 
 _RULE_WIDTH = 64
 
@@ -150,19 +154,12 @@ def format_orbitals(result: Any, max_virtuals: int = MAX_VIRTUALS_SHOWN) -> str:
     homo, lumo = result.homo, result.lumo
     last = len(eps) if lumo is None else min(len(eps), lumo + max_virtuals)
     lines = [heading("Orbitals"), f"  {'#':>4}  {'energy / Eh':>16}  {'energy / eV':>12}  {'occupation':>10}"]
-    ev = _hartree_in_ev()
     for k in range(last):
         mark = "  HOMO" if k == homo else "  LUMO" if k == lumo else ""
-        lines.append(f"  {k + 1:>4}  {eps[k]:16.8f}  {eps[k] * ev:12.4f}  {occ[k]:10.1f}{mark}")
+        lines.append(f"  {k + 1:>4}  {eps[k]:16.8f}  {eps[k] * EV_PER_HARTREE:12.4f}  {occ[k]:10.1f}{mark}")
     if last < len(eps):
         lines.append(f"  ... {len(eps) - last} higher virtual orbitals not shown (all are in --json)")
     return "\n".join(lines)
-
-
-def _hartree_in_ev() -> float:
-    from scipy import constants
-
-    return constants.physical_constants["Hartree energy in eV"][0]
 
 
 def format_charges(symbols: Sequence[str], charges: np.ndarray) -> str:
@@ -282,6 +279,7 @@ def format_basis_list(families: Sequence[Any], fitted: Sequence[str]) -> str:
 
 __all__ = [
     "MAX_VIRTUALS_SHOWN",
+    "EV_PER_HARTREE",
     "heading",
     "format_molecule",
     "format_basis",

@@ -348,6 +348,16 @@ def test_scf_thresholds_are_passed_on(water):
     assert max(h["diis_size"] for h in record["scf"]["history"]) <= 4
 
 
+def test_long_orbital_lists_are_cut_after_ten_virtuals(water):
+    code, out, _ = run_main("energy", str(water), "--basis", "cc-pvdz", "--quiet")
+    assert code == 0
+    orbitals = out[out.index("Orbitals") : out.index("Mulliken charges")]
+    rows = [line for line in orbitals.splitlines() if line.strip()[:1].isdigit()]
+    # 5 occupied + the LUMO and 9 more virtuals are listed; 24 - 15 are counted
+    assert len(rows) == 15
+    assert "9 higher virtual orbitals not shown" in orbitals
+
+
 def test_npz_holds_the_arrays_for_prototyping(water):
     path = water.parent / "w.npz"
     code, _, err = run_main("energy", str(water), "--npz", str(path), "--json", str(water.parent / "w.json"))
