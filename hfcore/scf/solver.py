@@ -139,7 +139,7 @@ def solve_rhf(
     problem = _Problem(s, h, jk, n_occ, ortho)
     density, guess_energy = _initial_density(problem, guess_density)
     t_guess = time.perf_counter()
-    previous = 0.0 if guess_energy is None else guess_energy + energy_nuclear
+    previous = 0.0 if guess_energy is None else float(guess_energy + energy_nuclear)
     state = _iterate(problem, density, previous, energy_nuclear, options, progress)
     t_scf = time.perf_counter()
     result = _result(problem, state, energy_nuclear, options)
@@ -182,7 +182,7 @@ def _iterate(
     for iteration in range(1, options.max_iterations + 1):
         ev = problem.evaluate(density)
         error = problem.gradient(ev)
-        energy = ev.energy_electronic + energy_nuclear
+        energy = float(ev.energy_electronic + energy_nuclear)
         grad = float(np.max(np.abs(error))) if error.size else 0.0
         converged = abs(energy - previous) < options.energy_tol and grad < options.gradient_tol
         if not converged:
@@ -214,7 +214,7 @@ def _result(problem: _Problem, state: _State, energy_nuclear: float, options: SC
             f"last gradient {last.gradient_norm:.3e} (tolerance {options.gradient_tol:.1e})"
         )
     return RHFResult(
-        energy_total=ev.energy_electronic + energy_nuclear,
+        energy_total=float(ev.energy_electronic + energy_nuclear),
         energy_nuclear=float(energy_nuclear),
         energy_one_electron=ev.energy_one,
         energy_two_electron=ev.energy_two,
