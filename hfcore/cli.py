@@ -111,17 +111,20 @@ def build_parser() -> argparse.ArgumentParser:
     energy.add_argument("--basis-file", metavar="FILE.json", help="basis set file in hfcore's JSON format (replaces --basis)")
     energy.add_argument(
         "--basis-for",
-        action="append",
+        action="extend",
+        nargs="+",
         default=[],
         metavar="EL=NAME",
-        help="another basis for one element, e.g. H=cc-pvdz (repeat for several elements)",
+        help="another basis for an element, e.g. H=cc-pvdz; several items or repeated flags are fine",
     )
     energy.add_argument(
         "--zeta",
-        action="append",
+        action="extend",
+        nargs="+",
         default=[],
         metavar="EL=VALUE",
-        help="Slater exponent of a fitted STO-nG set: He=2.0925 (all shells) or C:2sp=1.80 (one shell); repeatable",
+        help="Slater exponent in a fitted STO-nG set: He=2.0925 (all shells of He) or C:2sp=1.80 (one shell); "
+        "several items or repeated flags are fine",
     )
     _add_scf_arguments(energy)
     energy.add_argument("--guess", choices=("sad", "core"), default="sad", help="starting density (default sad)")

@@ -310,6 +310,13 @@ def test_basis_for_gives_one_element_another_basis(water):
     assert "6-31G" in record["basis"]["name"]
 
 
+def test_several_items_after_one_flag_or_repeated_flags_are_the_same(water):
+    one = energy_record(str(water), "--basis", "sto-3g", "--zeta", "O=7.7", "H=1.3")
+    repeated = energy_record(str(water), "--basis", "sto-3g", "--zeta", "O=7.7", "--zeta", "H=1.3")
+    default = energy_record(str(water), "--basis", "sto-3g")
+    assert one["energy"]["total"] == repeated["energy"]["total"] != default["energy"]["total"]
+
+
 def test_cartesian_and_spherical_flags_change_the_d_functions(water):
     spherical = energy_record(str(water), "--basis", "cc-pvdz", "--spherical", "--quiet")
     cartesian = energy_record(str(water), "--basis", "cc-pvdz", "--cartesian", "--quiet")
