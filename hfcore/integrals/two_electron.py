@@ -40,7 +40,6 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass, field
-from functools import lru_cache
 
 import numpy as np
 from scipy.linalg import blas
@@ -64,9 +63,9 @@ DENSE_LIMIT_BYTES = 4 << 30
 class _EriPairs:
     """Shell pairs of one shape with folded Hermite coefficients.
 
-    ``e_bra`` has shape (n, nprim * nH, nf) ordered (primitive, hermite);
-    ``e_ket`` has shape (nH, n, nf, nprim) with the (-1)^{t+u+v} sign folded in;
-    ``e_ket_rows`` is the same as (n, nf, nH * nprim).
+    ``e_bra`` has shape (n, nH * nprim, nf) ordered (hermite, primitive);
+    ``e_ket`` has shape (n, nf, nprim * nH) ordered (primitive, hermite), with
+    the (-1)^{t+u+v} sign folded in.
     """
 
     L: int
@@ -77,7 +76,6 @@ class _EriPairs:
     q: np.ndarray = field(default=None)  # (n,) Schwarz bound
     e_bra: np.ndarray = field(default=None)
     e_ket: np.ndarray = field(default=None)
-    e_ket_rows: np.ndarray = field(default=None)
 
     @property
     def n(self) -> int:
@@ -96,10 +94,9 @@ class _EriPairs:
 
     def finish(self) -> None:
         nh = self.e.shape[2]
-        self.e_bra = np.ascontiguousarray(self.e.reshape(self.n, self.nprim * nh, self.nf))
+        self.e_bra = np.ascontiguousarray(self.e.transpose(0, 2, 1, 3).reshape(self.n, nh * self.nprim, self.nf))
         signed = self.e * hermite_signs(self.L)[None, None, :, None]
-        self.e_ket = np.ascontiguousarray(signed.transpose(2, 0, 3, 1))
-        self.e_ket_rows = np.ascontiguousarray(signed.transpose(0, 3, 2, 1).reshape(self.n, self.nf, nh * self.nprim))
+        self.e_ket = np.ascontiguousarray(signed.transpose(0, 3, 1, 2).reshape(self.n, self.nf, self.nprim * nh))
 
 
 def _pair_index(i: np.ndarray, j: np.ndarray) -> np.ndarray:
@@ -146,15 +143,16 @@ def _diagonal(pairs: _EriPairs) -> np.ndarray:
 
 
 def _hermite_block(L: int, p: np.ndarray, q: np.ndarray, pq: np.ndarray) -> np.ndarray:
-    """R_{tuv} with the ERI prefactor for broadcastable exponent arrays; shape (nH, N)."""
+    """R_{tuv} with the ERI prefactor for broadcastable exponent arrays; shape (nH, N).
+
+    ``p + q`` must broadcast to the full quartet shape of ``pq[0]``.
+    """
     pq_sum = p + q
-    alpha = p * q / pq_sum
-    shape = np.broadcast_shapes(alpha.shape, pq.shape[1:])
-    alpha = np.broadcast_to(alpha, shape).reshape(-1)
-    pqf = np.broadcast_to(pq, (3,) + shape).reshape(3, -1)
+    alpha = (p * q / pq_sum).reshape(-1)
+    pqf = pq.reshape(3, -1)
     t = alpha * np.einsum("kn,kn->n", pqf, pqf)
     base = boys(L, t)
-    base *= (_ERI_CONST / np.sqrt(np.broadcast_to(pq_sum, shape).reshape(-1)))[None, :]
+    base *= _ERI_CONST / np.sqrt(pq_sum.reshape(-1))
     if L:
         m2a = -2.0 * alpha
         fac = m2a.copy()
@@ -320,59 +318,30 @@ def _prepare(basis: BasisSet, threshold: float) -> list[_EriPairs]:
     return out
 
 
-@lru_cache(maxsize=None)
-def _m_layout(lb: int, lk: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    s = sum_index(lb, lk)
-    hb, hk = np.meshgrid(np.arange(s.shape[0]), np.arange(s.shape[1]), indexing="ij")
-    return hb.ravel(), hk.ravel(), s.ravel()
-
-
-def _ket_matrix(ket: _EriPairs, rows: slice, L_bra: int) -> np.ndarray:
-    """M^T[k, (h_bra, f_ket), (H, j)] = Σ δ(H = h_bra + h_ket) s(h_ket) E_ket[k, j, h_ket, f_ket]."""
-    ek = ket.e_ket[:, rows]  # (nHk, nk, fk, jq)
-    nk, fk, jq = ek.shape[1:]
-    nhb = n_hermite(L_bra)
-    nh = n_hermite(L_bra + ket.L)
-    mt = np.zeros((nk, nhb, fk, nh, jq))
-    hb, hk, H = _m_layout(L_bra, ket.L)
-    mt.transpose(1, 3, 0, 2, 4)[hb, H] = ek[hk]
-    return mt.reshape(nk, nhb * fk, nh * jq)
-
-
-def _tile(bra: _EriPairs, brows: slice, ket: _EriPairs, krows: slice, use_m: bool) -> np.ndarray:
+def _tile(bra: _EriPairs, brows: slice, ket: _EriPairs, krows: slice) -> np.ndarray:
     """Contracted integrals of a tile, shape (nb, nk, fk, fb)."""
     L = bra.L + ket.L
     p = bra.p[brows]  # (nb, ip)
     q = ket.p[krows]  # (nk, jq)
     nb, ip = p.shape
     nk, jq = q.shape
-    # Quartet batch order (k, j, b, i): after one transpose R[k] is a (H, j) x (b, i) matrix.
+    nbi = nb * ip
+    nhb = n_hermite(bra.L)
+    # Quartet batch order (k, j, b, i).
     pq = bra.P[:, brows][:, None, None, :, :] - ket.P[:, krows][:, :, :, None, None]
     R = _hermite_block(L, p[None, None], q[:, :, None, None], pq)
-    nh = R.shape[0]
-    nhb = n_hermite(bra.L)
-    fk = ket.nf
-    R = R.reshape(nh, nk, jq, nb * ip).transpose(1, 0, 2, 3)
-    if use_m:
-        x = np.matmul(_ket_matrix(ket, krows, bra.L), R.reshape(nk, nh * jq, nb * ip))
-    else:
-        g = R[:, sum_index(bra.L, ket.L)]  # (nk, nHb, nHk, jq, nb*ip)
-        g = g.reshape(nk, nhb, -1, nb * ip)
-        x = np.matmul(ket.e_ket_rows[krows][:, None], g)  # (nk, nHb, fk, nb*ip)
-    y = x.reshape(nk, nhb, fk, nb, ip).transpose(3, 0, 2, 4, 1).reshape(nb, nk * fk, ip * nhb)
-    out = np.matmul(y, bra.e_bra[brows])  # (nb, nk*fk, fb)
-    return out.reshape(nb, nk, fk, bra.nf)
+    # G[k, (j, h_ket), (h_bra, b, i)] = R[h_bra + h_ket] of the quartet (k, j, b, i)
+    g = R.reshape(R.shape[0], nk * jq, nbi).transpose(1, 0, 2)[:, sum_index(ket.L, bra.L)]
+    g = g.reshape(nk, -1, nhb * nbi)
+    x = np.matmul(ket.e_ket[krows], g)  # (nk, fk, nhb * nb * ip)
+    y = x.reshape(nk * ket.nf, nhb, nb, ip).transpose(2, 0, 1, 3).reshape(nb, nk * ket.nf, nhb * ip)
+    out = np.matmul(y, bra.e_bra[brows])  # (nb, nk * fk, fb)
+    return out.reshape(nb, nk, ket.nf, bra.nf)
 
 
-def _cost(bra: _EriPairs, ket: _EriPairs) -> int:
-    return n_hermite(bra.L) * ket.nf * (n_hermite(ket.L) if MODE == "gather" else n_hermite(bra.L + ket.L))
-
-
-MODE = "gather"
-
-
-def _use_m(bra: _EriPairs, ket: _EriPairs) -> bool:
-    return MODE == "m"
+def _cost(bra: _EriPairs, ket: _EriPairs) -> float:
+    """Relative cost of a tile with these roles (ket-side matmul plus the bra-side transpose)."""
+    return ket.nf * n_hermite(bra.L) * (n_hermite(ket.L) + 1.0 / ket.nprim)
 
 
 def _chunks(n: int, size: int) -> list[slice]:
@@ -546,7 +515,6 @@ def compute_eri(
     for g1, g2 in jobs:
         same = g1 is g2
         bra, ket = (g1, g2) if _cost(g1, g2) <= _cost(g2, g1) else (g2, g1)
-        use_m = _use_m(bra, ket)
         nb_size, nk_size = _tile_sizes(bra, ket)
         if same:
             nb_size = nk_size = min(nb_size, nk_size)
@@ -559,7 +527,7 @@ def compute_eri(
                     break
                 count = int(np.sum(bra.q[brows.start] * ket.q[krows] >= threshold))
                 krows = slice(krows.start, krows.start + max(count, 1))
-                block = _tile(bra, brows, ket, krows, use_m)
+                block = _tile(bra, brows, ket, krows)
                 hi = np.maximum(bra.pidx[brows][:, None, None, :], ket.pidx[krows][None, :, :, None])
                 lo = np.minimum(bra.pidx[brows][:, None, None, :], ket.pidx[krows][None, :, :, None])
                 packed[hi * (hi + 1) // 2 + lo] = block
