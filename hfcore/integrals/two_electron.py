@@ -104,6 +104,11 @@ def _pair_index(i: np.ndarray, j: np.ndarray) -> np.ndarray:
     return hi * (hi + 1) // 2 + np.minimum(i, j)
 
 
+def _canonical(a: np.ndarray, b: np.ndarray, tri: np.ndarray) -> np.ndarray:
+    """Packed quartet index of pair indices a, b (any order), via the table tri[P] = P(P+1)/2."""
+    return np.where(a >= b, tri[a] + b, tri[b] + a)
+
+
 def _function_indices(group: PairGroup, basis: BasisSet) -> np.ndarray:
     """Packed pair index of every pair function, shape (n, nf)."""
     off = basis.shell_offsets
@@ -412,23 +417,24 @@ class ERIStore:
         """Packed W[ik, jl] = ((ij|kl) + (il|kj)) / 2, symmetric in (ik) <-> (jl).
 
         Built once, one first index i at a time: the rows (i, k), k <= i,
-        together with their columns form one contiguous stretch of the packed
-        array, so each step is a few whole-array gathers.
+        and their columns form one contiguous stretch of the packed array.
+        Every column (j, l) of those rows has j <= i, so (ij) = i(i+1)/2 + j
+        needs no ordering; only the second pair is put in canonical order.
         """
         if self._exchange is None:
             n = self.n_functions
-            pm = self._pair_map()
-            first, second = np.tril_indices(n)
+            itype = np.int32 if self.packed.size < 2**31 else np.int64
+            pm = self._pair_map().astype(itype)
+            tri = (np.arange(self.n_pairs, dtype=np.int64) * (np.arange(self.n_pairs) + 1) // 2).astype(itype)
+            first, second = (x.astype(itype) for x in np.tril_indices(n))
             out = np.empty_like(self.packed)
             for i in range(n):
                 row0 = i * (i + 1) // 2
                 ncol = row0 + i + 1
                 fj, sl = first[:ncol], second[:ncol]
                 k_rows = pm[: i + 1]
-                a = _pair_index(pm[i, fj][None, :], k_rows[:, sl])
-                b = _pair_index(pm[i, sl][None, :], k_rows[:, fj])
-                vals = self.packed[a]
-                vals += self.packed[b]
+                vals = self.packed[_canonical(pm[i, fj][None, :], k_rows[:, sl], tri)]
+                vals += self.packed[_canonical(pm[i, sl][None, :], k_rows[:, fj], tri)]
                 vals *= 0.5
                 keep = np.arange(ncol)[None, :] <= (row0 + np.arange(i + 1))[:, None]
                 out[row0 * (row0 + 1) // 2 : ncol * (ncol + 1) // 2] = vals[keep]
