@@ -22,27 +22,32 @@ from hfcore.scf import run_rhf
 # (atomic numbers, coordinates, charge).
 MOLECULES = {
     "H2": ([1, 1], [[0.0, 0.0, 0.0], [0.0, 0.0, 1.4]], 0),
+    "H3+": ([1, 1, 1], [[0.0, 0.0, 0.0], [1.65, 0.0, 0.0], [0.825, 1.429, 0.0]], 1),
     "HeH+": ([2, 1], [[0.0, 0.0, 0.0], [0.0, 0.0, 1.4632]], 1),
+    "H-": ([1], [[0.0, 0.0, 0.0]], -1),
+    "He": ([2], [[0.0, 0.0, 0.0]], 0),
     "LiH": ([3, 1], [[0.0, 0.0, 0.0], [0.0, 0.0, 3.015]], 0),
-    "Be": ([4], [[0.0, 0.0, 0.0]], 0),
     "HF": ([9, 1], [[0.0, 0.0, 0.0], [0.0, 0.0, 1.733]], 0),
     "F-": ([9], [[0.0, 0.0, 0.0]], -1),
     "Ne": ([10], [[0.0, 0.0, 0.0]], 0),
+    "He2": ([2, 2], [[0.0, 0.0, 0.0], [0.0, 0.0, 5.6]], 0),
     "N2": ([7, 7], [[0.0, 0.0, -1.037], [0.0, 0.0, 1.037]], 0),
     "H2O": ([8, 1, 1], [[0.0, 0.0, 0.0], [0.0, 1.431, 1.108], [0.0, -1.431, 1.108]], 0),
     "OH-": ([8, 1], [[0.0, 0.0, 0.0], [0.0, 0.3, 1.81]], -1),
     "Na+": ([11], [[0.0, 0.0, 0.0]], 1),
-    "Mg": ([12], [[0.0, 0.0, 0.0]], 0),
     "HCl": ([17, 1], [[0.0, 0.0, 0.0], [0.1, 0.0, 2.409]], 0),
     "H2S": ([16, 1, 1], [[0.0, 0.0, 0.0], [0.0, 1.82, 1.73], [0.0, -1.82, 1.73]], 0),
     "Ar": ([18], [[0.0, 0.0, 0.0]], 0),
 }
 
-# Every family on eight systems spanning H-Ar, each list with a cation and an
-# anion; the larger sets on atoms and diatomics to keep the run short.
+# Every family on eight systems, each list with a cation and an anion, all
+# lists together spanning H-Ar; the larger sets on atoms and diatomics to
+# keep the run short.
 SMALL_SYSTEMS = ["H2", "HeH+", "LiH", "H2O", "OH-", "N2", "HCl", "H2S"]
 MEDIUM_SYSTEMS = ["H2", "HeH+", "LiH", "HF", "F-", "Ne", "Na+", "HCl"]
-LARGE_SYSTEMS = ["H2", "HeH+", "LiH", "Be", "F-", "Ne", "Mg", "Ar"]
+TRIPLE_ZETA_SYSTEMS = ["H2", "HeH+", "He", "LiH", "HF", "F-", "Ne", "OH-"]
+DIFFUSE_TRIPLE_ZETA_SYSTEMS = ["H2", "H3+", "HeH+", "He", "H-", "F-", "Ne", "Ar"]
+QUADRUPLE_ZETA_SYSTEMS = ["H2", "H3+", "HeH+", "He", "He2", "H-", "F-", "Ne"]
 FAMILIES = {
     "3-21G": SMALL_SYSTEMS,
     "6-31G": SMALL_SYSTEMS,
@@ -54,9 +59,9 @@ FAMILIES = {
     "def2-SVP": SMALL_SYSTEMS,
     "aug-cc-pVDZ": MEDIUM_SYSTEMS,
     "def2-TZVP": MEDIUM_SYSTEMS,
-    "cc-pVTZ": MEDIUM_SYSTEMS,
-    "aug-cc-pVTZ": LARGE_SYSTEMS,
-    "cc-pVQZ": LARGE_SYSTEMS,
+    "cc-pVTZ": TRIPLE_ZETA_SYSTEMS,
+    "aug-cc-pVTZ": DIFFUSE_TRIPLE_ZETA_SYSTEMS,
+    "cc-pVQZ": QUADRUPLE_ZETA_SYSTEMS,
 }
 CASES = [(basis, system) for basis, systems in FAMILIES.items() for system in systems]
 
@@ -98,7 +103,10 @@ def test_rhf_energy_matches_reference_library_with_the_same_shells(basis_name, s
     molecule = _molecule(system)
     basis = build_basis(molecule, basis_name)
     assert basis.spherical is find_family(basis_name).default_spherical
-    result = run_rhf(molecule, basis)
+    # The guess cannot change the converged closed-shell energy, and the core
+    # guess costs nothing, where an atomic-density guess repeats an SCF per
+    # element in the same (here large) basis.
+    result = run_rhf(molecule, basis, guess="core")
     assert result.converged
     # source: reference library run (PySCF), same shells, same geometry, same cart/spherical choice
     expected = _reference_energy(molecule, {int(z): basis_name for z in set(molecule.atomic_numbers)}, basis.spherical)
