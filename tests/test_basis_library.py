@@ -214,6 +214,13 @@ def test_unshipped_set_is_looked_up_in_the_basis_set_exchange_package(name, cart
         assert _canonical(_our_contractions(family.element_shells(z))) == expected
 
 
+def test_unshipped_set_with_h_functions_is_refused_per_element():
+    family = find_family("cc-pV5Z")
+    # source: basis-set-exchange package (cc-pV5Z gives oxygen h functions)
+    with pytest.raises(BasisError, match=r"basis cc-pV5Z: O shell \d+: angular momentum 5 is not supported \(s..g\)"):
+        family.element_shells(8)
+
+
 def test_name_unknown_everywhere_lists_close_names():
     with pytest.raises(BasisError, match=r"unknown .*close names: cc-pVDZ") as info:
         find_family("cc-pvdzz")
