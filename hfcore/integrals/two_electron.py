@@ -76,6 +76,7 @@ class _EriPairs:
     q: np.ndarray = field(default=None)  # (n,) Schwarz bound
     e_bra: np.ndarray = field(default=None)
     e_ket: np.ndarray = field(default=None)
+    tri: np.ndarray = field(default=None)  # pidx (pidx + 1) / 2
 
     @property
     def n(self) -> int:
@@ -89,14 +90,12 @@ class _EriPairs:
     def nf(self) -> int:
         return int(self.e.shape[3])
 
-    def take(self, rows: np.ndarray) -> _EriPairs:
-        return _EriPairs(self.L, self.p[rows], self.P[:, rows], self.e[rows], self.pidx[rows])
-
     def finish(self) -> None:
         nh = self.e.shape[2]
         self.e_bra = np.ascontiguousarray(self.e.transpose(0, 2, 1, 3).reshape(self.n, nh * self.nprim, self.nf))
         signed = self.e * hermite_signs(self.L)[None, None, :, None]
         self.e_ket = np.ascontiguousarray(signed.transpose(0, 3, 1, 2).reshape(self.n, self.nf, self.nprim * nh))
+        self.tri = self.pidx * (self.pidx + 1) // 2
 
 
 def _pair_index(i: np.ndarray, j: np.ndarray) -> np.ndarray:
@@ -534,9 +533,12 @@ def compute_eri(
                 count = int(np.sum(bra.q[brows.start] * ket.q[krows] >= threshold))
                 krows = slice(krows.start, krows.start + max(count, 1))
                 block = _tile(bra, brows, ket, krows)
-                hi = np.maximum(bra.pidx[brows][:, None, None, :], ket.pidx[krows][None, :, :, None])
-                lo = np.minimum(bra.pidx[brows][:, None, None, :], ket.pidx[krows][None, :, :, None])
-                packed[hi * (hi + 1) // 2 + lo] = block
+                b_idx = bra.pidx[brows][:, None, None, :]
+                k_idx = ket.pidx[krows][None, :, :, None]
+                target = np.where(
+                    b_idx >= k_idx, bra.tri[brows][:, None, None, :] + k_idx, ket.tri[krows][None, :, :, None] + b_idx
+                )
+                packed[target] = block
         done += g1.n * g1.nprim * g2.n * g2.nprim * n_hermite(g1.L + g2.L)
         if progress is not None:
             progress(done / total)
