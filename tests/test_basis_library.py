@@ -294,6 +294,14 @@ def test_user_file_name_defaults_to_the_file_stem(tmp_path):
     assert load_basis_file(path).name == "mine"
 
 
+def test_the_documented_example_is_a_valid_user_file(tmp_path):
+    text = (Path(__file__).parents[1] / "docs" / "basis-format.md").read_text(encoding="utf-8")
+    example = text.split("```json\n", 1)[1].split("```", 1)[0]
+    family = load_basis_file(_write(tmp_path, example))
+    assert family.name == "my-dz"
+    assert family.elements() == frozenset({1, 8})
+
+
 def test_shipped_file_loads_as_a_user_file():
     family = load_basis_file(DATA_DIR / "cc-pvdz.json")
     assert family.name == "cc-pVDZ"
