@@ -377,3 +377,19 @@ def test_run_rhf_refuses_an_open_shell():
 
     with pytest.raises(InputError, match="even"):
         run_rhf(_driver_molecule("H2O").with_charge(1), "sto-3g")
+
+
+def test_sad_from_the_molecular_integrals_equals_sad_from_atomic_ones(monkeypatch):
+    from hfcore import integrals
+    from hfcore.basis import build_basis
+    from hfcore.geometry import Molecule
+    from hfcore.scf import guess
+
+    molecule = Molecule(np.array([8, 1]), np.array([[0.0, 0.0, 0.0], [0.0, 0.0, 1.83]]), -1)
+    basis = build_basis(molecule, "cc-pvdz")
+    monkeypatch.setattr(guess, "_CACHE", {})
+    own = guess.sad_density(basis, molecule.atomic_numbers)
+    monkeypatch.setattr(guess, "_CACHE", {})
+    shared = guess.sad_density(basis, molecule.atomic_numbers, integrals.compute_eri(basis))
+    # exact property: a density confined to one atom needs only that atom's integrals
+    np.testing.assert_allclose(shared, own, atol=1e-9)

@@ -73,7 +73,7 @@ def run_rhf(
     jk = _jk_builder(basis, options)
     t_integrals = time.perf_counter()
     if isinstance(guess, str) and guess.lower() == "sad":
-        guess_density = sad_density(basis, molecule.atomic_numbers)
+        guess_density = sad_density(basis, molecule.atomic_numbers, jk)
     t_sad = time.perf_counter() - t_integrals
 
     def finish(result: RHFResult) -> RHFResult:

@@ -53,7 +53,7 @@ def core_electrons(z: int) -> int | None:
     return None
 
 
-def sad_density(basis: BasisSet, atomic_numbers: np.ndarray) -> np.ndarray:
+def sad_density(basis: BasisSet, atomic_numbers: np.ndarray, molecular_jk: JKBuilder | None = None) -> np.ndarray:
     """Block-diagonal superposition of neutral-atom densities.
 
     Parameters
@@ -62,6 +62,11 @@ def sad_density(basis: BasisSet, atomic_numbers: np.ndarray) -> np.ndarray:
         The molecular basis; the shells of each atom define its atomic SCF.
     atomic_numbers : ndarray of int, shape (natom,)
         Nuclear charges (each atom is neutral in its own SCF).
+    molecular_jk : JKBuilder, optional
+        The molecule's own two-electron integrals. An atom holding at least
+        half of the basis functions takes its J and K from them (a density
+        confined to the atom's block needs only the atom's integrals), so
+        they are not computed twice; for a lone atom that halves the cost.
 
     Returns
     -------
@@ -77,11 +82,28 @@ def sad_density(basis: BasisSet, atomic_numbers: np.ndarray) -> np.ndarray:
             continue
         start, stop = int(offsets[index[0]]), int(offsets[index[-1] + 1])
         shells = tuple(basis.shells[i] for i in index)
-        density[start:stop, start:stop] = atomic_density(int(z), shells, basis.spherical)
+        n = basis.n_functions
+        shared = _BlockJK(molecular_jk, start, stop, n) if molecular_jk is not None and 2 * (stop - start) >= n else None
+        density[start:stop, start:stop] = atomic_density(int(z), shells, basis.spherical, shared)
     return density
 
 
-def atomic_density(z: int, shells: tuple[Shell, ...], spherical: bool) -> np.ndarray:
+class _BlockJK:
+    """J and K of a density confined to one atom's block, from the molecular integrals."""
+
+    def __init__(self, jk: JKBuilder, start: int, stop: int, n: int) -> None:
+        self.molecular = jk
+        self.block = slice(start, stop)
+        self.n = n
+
+    def jk(self, density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        full = np.zeros((self.n, self.n))
+        full[self.block, self.block] = density
+        j, k = self.molecular.jk(full)
+        return np.ascontiguousarray(j[self.block, self.block]), np.ascontiguousarray(k[self.block, self.block])
+
+
+def atomic_density(z: int, shells: tuple[Shell, ...], spherical: bool, jk: JKBuilder | None = None) -> np.ndarray:
     """Spherically averaged density of a neutral atom in its own shells, cached.
 
     Parameters
@@ -92,6 +114,9 @@ def atomic_density(z: int, shells: tuple[Shell, ...], spherical: bool) -> np.nda
         The atom's shells (their centre is irrelevant).
     spherical : bool
         Real spherical (True) or Cartesian (False) components.
+    jk : JKBuilder, optional
+        The atom's two-electron integrals, if already at hand; computed
+        otherwise.
 
     Returns
     -------
@@ -100,11 +125,11 @@ def atomic_density(z: int, shells: tuple[Shell, ...], spherical: bool) -> np.nda
     """
     key = (z, spherical) + tuple((s.l, s.exponents.tobytes(), s.coefficients.tobytes()) for s in shells)
     if key not in _CACHE:
-        _CACHE[key] = _atomic_scf(z, shells, spherical)
+        _CACHE[key] = _atomic_scf(z, shells, spherical, jk)
     return _CACHE[key].copy()
 
 
-def _atomic_scf(z: int, shells: tuple[Shell, ...], spherical: bool) -> np.ndarray:
+def _atomic_scf(z: int, shells: tuple[Shell, ...], spherical: bool, jk: JKBuilder | None) -> np.ndarray:
     origin = np.zeros(3)
     placed = tuple(Shell(s.l, s.exponents, s.coefficients, origin, 0, s.label) for s in shells)
     atom_basis = BasisSet("atom", placed, spherical)
@@ -112,8 +137,9 @@ def _atomic_scf(z: int, shells: tuple[Shell, ...], spherical: bool) -> np.ndarra
     h = integrals.kinetic(atom_basis) + integrals.nuclear_attraction(
         atom_basis, np.array([float(z)]), origin.reshape(1, 3)
     )
-    eri = integrals.compute_eri(atom_basis)
-    return fractional_scf(s, h, eri, z, core_electrons(z))
+    if jk is None:
+        jk = integrals.compute_eri(atom_basis)
+    return fractional_scf(s, h, jk, z, core_electrons(z))
 
 
 def fractional_scf(
