@@ -2,7 +2,15 @@
 
 Public contract: every function takes a :class:`~hfcore.basis.shells.BasisSet`
 and returns matrices in the basis' own form (Cartesian or real spherical,
-per ``basis.spherical``), in atomic units.
+per ``basis.spherical``), in atomic units, functions ordered as
+:mod:`hfcore.basis.shells` documents.
+
+* :func:`overlap`, :func:`kinetic`, :func:`nuclear_attraction`,
+  :func:`multipole` — one-electron matrices (:mod:`.one_electron`).
+* :func:`compute_eri` → :class:`ERIStore` (packed unique integrals, J/K
+  builds), :func:`eri_tensor` (dense), :func:`schwarz_bounds`
+  (:mod:`.two_electron`).
+* :func:`boys` (:mod:`.boys`), :func:`c2s` (:mod:`.spherical`).
 """
 
 from __future__ import annotations

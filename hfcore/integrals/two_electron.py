@@ -2,28 +2,31 @@
 
 Scheme
 ------
-1. Shell pairs (a >= b) are grouped by shape (:mod:`hfcore.integrals.pairs`).
-   For every primitive pair the Hermite coefficients E^{ab}_{tuv} are built
-   once, with the contraction coefficients, the Cartesian normalisation or
-   spherical transform and the factor 1/p folded in. A generally contracted
-   shell therefore costs no extra primitive work: its contractions are just
-   more columns ("pair functions") of the folded E.
-2. Primitive pairs whose own Schwarz bound cannot reach ``threshold / 1000``
-   against any ket are dropped; pairs are regrouped by their number of
-   surviving primitive pairs and sorted by their Schwarz bound
-   Q_ab = max sqrt((ab|ab)).
-3. For each pair of groups (bra, ket), tiles of bra and ket pairs are formed
-   (about 16k primitive quartets each). Tiles with Q_bra Q_ket < threshold are
-   skipped. Inside a tile, for all primitive quartets at once: Boys function,
-   Hermite integrals R_{tuv}(alpha, P-Q) by the downward recursion on
-   (t, u, v), then two BLAS contractions:
+1. Shells on one atom that share their exponents (the s and p of an sp
+   shell, or several segmented contractions over one primitive set) form a
+   *family*; pairs of families share one set of primitive pairs, so their
+   Boys function and Hermite integrals are computed once for all member
+   shell pairs. For every primitive pair the Hermite coefficients
+   E^{ab}_{tuv} are built once, with the contraction coefficients, the
+   Cartesian normalisation or spherical transform and the factor 1/p folded
+   in. A generally contracted shell costs no extra primitive work: its
+   contractions are just more columns ("pair functions") of the folded E.
+2. Primitive pairs whose own Schwarz bound, times the largest contracted
+   bound, stays below ``threshold / 1000`` are dropped. Pairs are regrouped
+   by (L, number of pair functions, number of kept primitive pairs; counts
+   within 20 % are merged by padding with zero coefficients) and sorted by
+   their Schwarz bound Q = max sqrt((ab|ab)).
+3. For each pair of groups (bra, ket), tiles of about 4k primitive quartets
+   (and at most 64k Hermite integrals, so a tile stays in cache) are formed;
+   tiles with Q_bra Q_ket < threshold are skipped. Inside a tile, for all
+   primitive quartets at once: Boys function, Hermite integrals
+   R_{tuv}(alpha, P-Q) by the downward recursion on (t, u, v), then
 
-   * ket side: X[k] = M[k] @ R[k], where M folds the ket's signed E with the
-     index shift h_bra + h_ket, so the R array is never gathered into
-     (h_bra, h_ket) form;
-   * bra side: out[b] = Y[b] @ E_bra[b] (sum over bra primitives and h_bra).
+   * one gather R[h_bra + h_ket] into G[k, (j, h_ket), (h_bra, b, i)],
+   * ket side: X[k] = E_ket[k] @ G[k] (BLAS, sum over ket primitives j and h_ket),
+   * bra side: out[b] = Y[b] @ E_bra[b] (BLAS, sum over bra primitives i and h_bra).
 
-   The side with the smaller n_hermite(L_bra) × n_functions(ket) plays "ket".
+   The roles are chosen per group pair to keep the ket-side product small.
 4. The contracted block is scattered into the packed store at the canonical
    position of each (ij|kl).
 
@@ -45,7 +48,7 @@ import numpy as np
 from scipy.linalg import blas
 
 from ..basis.shells import BasisSet, n_cartesian
-from ..errors import ResourceError
+from ..errors import InputError, ResourceError
 from .boys import boys
 from .hermite import hermite_e, hermite_r, hermite_signs, n_hermite, sum_index
 from .pairs import PairGroup, build_group, group_pairs
@@ -57,6 +60,8 @@ _TILE_ELEMENTS = 1 << 16
 _MERGE_FILL = 0.8
 #: Largest dense (nbf,)*4 array ``to_dense`` will build, in bytes.
 DENSE_LIMIT_BYTES = 4 << 30
+#: Largest store (integrals plus exchange kernel) ``compute_eri`` will build, in bytes.
+STORE_LIMIT_BYTES = 12 << 30
 
 
 @dataclass
@@ -509,10 +514,26 @@ def compute_eri(
     Returns
     -------
     ERIStore
+
+    Raises
+    ------
+    InputError
+        If ``threshold`` is negative.
+    ResourceError
+        If the store and its exchange kernel (16 bytes per unique integral)
+        would exceed :data:`STORE_LIMIT_BYTES`.
     """
+    if threshold < 0:
+        raise InputError(f"the screening threshold must be >= 0, not {threshold}")
     n = basis.n_functions
     npair = n * (n + 1) // 2
-    packed = np.zeros(npair * (npair + 1) // 2)
+    size = npair * (npair + 1) // 2
+    if 16 * size > STORE_LIMIT_BYTES:
+        raise ResourceError(
+            f"stored integrals for {n} functions need {16 * size / 2**30:.1f} GiB "
+            f"(limit {STORE_LIMIT_BYTES / 2**30:.0f} GiB)"
+        )
+    packed = np.zeros(size)
     groups = _prepare(basis, threshold)
     jobs = [(a, b) for ia, a in enumerate(groups) for b in groups[: ia + 1]]
     total = sum(a.n * a.nprim * b.n * b.nprim * n_hermite(a.L + b.L) for a, b in jobs) or 1
@@ -556,4 +577,4 @@ def eri_tensor(basis: BasisSet) -> np.ndarray:
     return compute_eri(basis, threshold=0.0).to_dense()
 
 
-__all__ = ["ERIStore", "compute_eri", "eri_tensor", "schwarz_bounds", "DENSE_LIMIT_BYTES"]
+__all__ = ["ERIStore", "compute_eri", "eri_tensor", "schwarz_bounds", "DENSE_LIMIT_BYTES", "STORE_LIMIT_BYTES"]
