@@ -15,19 +15,29 @@ from hfcore.integrals import (
     overlap,
     schwarz_bounds,
 )
+from hfcore.errors import InputError, ResourceError
+from hfcore.integrals import two_electron
 from hfcore.integrals.spherical import _cartesian_gram
 
 # Three centres carrying s, p, d, f and g shells; He's s shell and Be's d
-# shell are generally contracted (two functions sharing exponents). Shells
-# are listed by increasing l, the order the reference library uses.
+# shell are generally contracted (two functions sharing exponents). He's
+# second p shell shares the exponents of its s shell (like an sp shell) and
+# Li's second s shell those of its f shell, so shell families are exercised.
+# Shells are listed by increasing l, the order the reference library uses.
 _ATOMS = [("He", (0.0, 0.0, 0.0)), ("Li", (0.3, -0.4, 1.9)), ("Be", (-1.2, 0.8, 0.5))]
 _SHELLS = {
     "He": [
         ElementShell(0, [3.1, 0.6, 0.15], [[0.3, 0.5, 0.4], [0.0, -0.6, 1.0]]),
         ElementShell(1, [1.1, 0.3], [[0.6, 0.5]]),
+        ElementShell(1, [3.1, 0.6, 0.15], [[0.2, 0.6, 0.5]]),
         ElementShell(2, [0.8], [[1.0]]),
     ],
-    "Li": [ElementShell(0, [1.3], [[1.0]]), ElementShell(1, [0.5], [[1.0]]), ElementShell(3, [0.9, 0.35], [[0.4, 0.7]])],
+    "Li": [
+        ElementShell(0, [1.3], [[1.0]]),
+        ElementShell(0, [0.9, 0.35], [[0.3, 0.8]]),
+        ElementShell(1, [0.5], [[1.0]]),
+        ElementShell(3, [0.9, 0.35], [[0.4, 0.7]]),
+    ],
     "Be": [
         ElementShell(0, [0.7], [[1.0]]),
         ElementShell(2, [1.5, 0.4], [[0.5, 0.6], [1.0, -0.3]]),
@@ -88,7 +98,7 @@ def store(case):
 
 def _small_basis() -> BasisSet:
     atoms = [("Li", (0.0, 0.0, 0.0)), ("Li", (0.0, 1.0, 2.0))]
-    return _hfcore_basis(atoms, {"Li": _SHELLS["Li"][:2] + [_SHELLS["He"][2]]}, True)
+    return _hfcore_basis(atoms, {"Li": [_SHELLS["Li"][0], _SHELLS["Li"][2], _SHELLS["He"][3]]}, True)
 
 
 def test_function_count_matches_reference(case):
@@ -221,6 +231,18 @@ def test_screening_at_1e12_moves_j_and_k_by_less_than_1e10():
     for a, b in zip(exact.jk(d), screened.jk(d)):
         # source: design notes, common practice: Schwarz screening at 1e-12 must not move results beyond 1e-10
         assert np.max(np.abs(a - b)) < 1e-10
+
+
+def test_negative_threshold_is_rejected():
+    with pytest.raises(InputError):
+        compute_eri(_small_basis(), threshold=-1.0)
+
+
+def test_dense_tensor_beyond_the_memory_limit_is_refused(monkeypatch):
+    store = compute_eri(_small_basis())
+    monkeypatch.setattr(two_electron, "DENSE_LIMIT_BYTES", 1024)
+    with pytest.raises(ResourceError):
+        store.to_dense()
 
 
 def test_spherical_transform_rows_are_orthonormal():
