@@ -393,3 +393,12 @@ def test_sad_from_the_molecular_integrals_equals_sad_from_atomic_ones(monkeypatc
     shared = guess.sad_density(basis, molecule.atomic_numbers, integrals.compute_eri(basis))
     # exact property: a density confined to one atom needs only that atom's integrals
     np.testing.assert_allclose(shared, own, atol=1e-9)
+
+
+def test_a_ready_accelerator_can_be_plugged_in(water_dz, water_dz_result):
+    from hfcore.scf import Chain, LevelShift
+
+    result = water_dz.solve(accelerator=Chain([DIIS(space=4), LevelShift(0.3)]))
+    # exact property: acceleration changes the path, not the fixed point
+    assert result.energy_total == pytest.approx(water_dz_result.energy_total, abs=1e-9)
+    assert max(h.diis_size for h in result.history) == 4

@@ -48,6 +48,11 @@ class Accelerator(ABC):
     state between calls; :meth:`reset` clears it. An accelerator that
     holds a subspace reports its size in :attr:`subspace_size`. Accelerators
     never print and never change the arrays they are given.
+
+    An instance goes to :func:`hfcore.scf.solve_rhf` as ``accelerator=``;
+    to make one selectable by name, add the name to
+    ``hfcore.scf.options.ACCELERATOR_NAMES`` and a branch to
+    :func:`build_accelerator`.
     """
 
     @abstractmethod

@@ -9,7 +9,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..errors import ConvergenceError, InputError
-from .accelerators import FockStep, build_accelerator
+from .accelerators import Accelerator, FockStep, build_accelerator
 from .jk import JKBuilder
 from .options import SCFOptions
 from .orthogonalise import Orthogonaliser
@@ -85,6 +85,7 @@ def solve_rhf(
     guess_density: np.ndarray | None = None,
     *,
     progress: Progress | None = None,
+    accelerator: Accelerator | None = None,
 ) -> RHFResult:
     """Run closed-shell Roothaan-Hall iterations on given matrices.
 
@@ -140,7 +141,10 @@ def solve_rhf(
     density, guess_energy = _initial_density(problem, guess_density)
     t_guess = time.perf_counter()
     previous = 0.0 if guess_energy is None else float(guess_energy + energy_nuclear)
-    state = _iterate(problem, density, previous, energy_nuclear, options, progress)
+    if accelerator is None:
+        accelerator = build_accelerator(options)
+    accelerator.reset()
+    state = _iterate(problem, density, previous, energy_nuclear, options, accelerator, progress)
     t_scf = time.perf_counter()
     result = _result(problem, state, energy_nuclear, options)
     timings = {"guess": t_guess - t0, "scf": t_scf - t_guess, "total": time.perf_counter() - t0}
@@ -174,10 +178,10 @@ def _iterate(
     previous: float,
     energy_nuclear: float,
     options: SCFOptions,
+    accelerator: Accelerator,
     progress: Progress | None,
 ) -> _State:
     """Iterate from ``density``; ``previous`` is the total energy the first change is measured from."""
-    accelerator = build_accelerator(options)
     history: list[SCFIteration] = []
     for iteration in range(1, options.max_iterations + 1):
         ev = problem.evaluate(density)
