@@ -2,9 +2,10 @@
 
 Scheme
 ------
-* ``T < T_switch(m_max)``: a sixth-order Taylor expansion of F_{m_max}
-  about the nearest point of a grid with spacing 1/16 (the derivative is
-  dF_m/dT = -F_{m+1}, so the expansion needs only tabulated F values), then
+* ``T < T_switch(m_max)``: a fifth-order Taylor expansion of F_{m_max}
+  about the nearest point of a grid with spacing 1/32 (the derivative is
+  dF_m/dT = -F_{m+1}, so the expansion needs only tabulated F values; the
+  truncation error is below (1/64)^6/6! ≈ 2e-14 relative), then
   downward recursion F_m = (2T F_{m+1} + e^{-T}) / (2m+1), which is stable
   because every term is positive.
 * ``T >= T_switch(m_max)``: the asymptotic form
@@ -24,8 +25,8 @@ import numpy as np
 
 #: Highest order the table supports.
 M_MAX: int = 32
-_TAYLOR_TERMS = 7
-_STEP = 1.0 / 16.0
+_TAYLOR_TERMS = 6
+_STEP = 1.0 / 32.0
 
 
 def _series_table(m: int, grid: np.ndarray) -> np.ndarray:
