@@ -8,7 +8,7 @@ Scheme
   truncation error is below (1/64)^6/6! ≈ 2e-14 relative), then
   downward recursion F_m = (2T F_{m+1} + e^{-T}) / (2m+1), which is stable
   because every term is positive.
-* ``T >= T_switch(m_max)``: the asymptotic form
+* ``T > T_switch(m_max)``: the asymptotic form
   F_m(T) = (2m-1)!! / 2^{m+1} sqrt(pi / T^{2m+1}), whose relative error
   Γ(m+½, T)/Γ(m+½) is below 1e-16 there.
 
