@@ -58,10 +58,6 @@ class PairGroup:
     def n(self) -> int:
         return int(self.shell_a.shape[0])
 
-    @property
-    def n_prim_pairs(self) -> int:
-        return int(self.p[0].size)
-
     def flat(self, arr: np.ndarray) -> np.ndarray:
         """Reshape a per-primitive-pair array (..., n, npa, npb) to (..., n*npa*npb)."""
         return arr.reshape(arr.shape[: arr.ndim - 3] + (-1,))
