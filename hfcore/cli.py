@@ -339,12 +339,14 @@ def _run_fit_sto(args: argparse.Namespace, console: _Console) -> int:
     paths = _output_paths(args, "json", "plot")
     fit = fit_sto(args.shell, args.gaussians, args.zeta)
     record = export.sto_fit_record(fit)
-    if "json" in paths:
-        export.write_file_atomically(paths["json"], export.to_json(record))
+    # The plot goes first: it is the step that can fail (no matplotlib), and
+    # a failed run must leave no file behind.
     if "plot" in paths:
         from .plots import plot_sto_fit
 
         plot_sto_fit([fit], paths["plot"])
+    if "json" in paths:
+        export.write_file_atomically(paths["json"], export.to_json(record))
     if args.json == "-":
         console.data(export.to_json(record))
         return 0
@@ -364,12 +366,12 @@ def _run_compare(args: argparse.Namespace, console: _Console) -> int:
     console.report(report.format_molecule(molecule))
     comparison = compare_bases(molecule, names, spherical=args.spherical, progress=_stderr_progress(console))
     record = export.comparison_record(comparison)
-    if "json" in paths:
-        export.write_file_atomically(paths["json"], export.to_json(record))
     if "plot" in paths:
         from .plots import plot_comparison
 
         plot_comparison(comparison, paths["plot"])
+    if "json" in paths:
+        export.write_file_atomically(paths["json"], export.to_json(record))
     if args.json == "-":
         console.data(export.to_json(record))
         return 0

@@ -467,6 +467,20 @@ def test_fit_sto_plot_writes_a_png(tmp_path):
     assert only_inputs_left(tmp_path, "fit.png")
 
 
+def test_plot_failure_leaves_no_json_behind(monkeypatch, tmp_path):
+    import hfcore.plots
+
+    def no_matplotlib(*args, **kwargs):
+        raise InputError("plotting needs matplotlib")
+
+    monkeypatch.setattr(hfcore.plots, "plot_sto_fit", no_matplotlib)
+    code, out, err = run_main(
+        "fit-sto", "--shell", "1s", "--gaussians", "2", "--json", str(tmp_path / "f.json"), "--plot", str(tmp_path / "f.png")
+    )
+    assert code == 2 and out == "" and err.startswith("hfcore: error: plotting needs matplotlib")
+    assert only_inputs_left(tmp_path)
+
+
 def test_bases_lists_shipped_and_fitted_sets():
     code, out, _ = run_main("bases")
     assert code == 0
