@@ -9,11 +9,26 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
 from ..basis.shells import Shell
 from .spherical import component_transform
+
+
+@lru_cache(maxsize=4096)
+def _einsum_path(subscripts: str, shapes: tuple[tuple[int, ...], ...]) -> list:
+    return np.einsum_path(subscripts, *(np.empty(s) for s in shapes), optimize="greedy")[0]
+
+
+def contract_einsum(subscripts: str, *operands: np.ndarray) -> np.ndarray:
+    """``numpy.einsum`` with an optimised contraction order, searched once per shape.
+
+    The order search costs far more than the contraction for the small
+    per-group arrays of the integral layer, and the same shapes recur.
+    """
+    return np.einsum(subscripts, *operands, optimize=_einsum_path(subscripts, tuple(o.shape for o in operands)))
 
 
 @dataclass(frozen=True)
@@ -90,7 +105,7 @@ class PairGroup:
         prim = prim.reshape((-1, nx, ny, self.n, npa, npb))
         ta = component_transform(self.la, spherical_a)
         tb = component_transform(self.lb, spherical_b)
-        out = np.einsum("zxynij,nai,nbj,sx,ty->znasbt", prim, self.coef_a, self.coef_b, ta, tb, optimize=True)
+        out = contract_einsum("zxynij,nai,nbj,sx,ty->znasbt", prim, self.coef_a, self.coef_b, ta, tb)
         nfa = out.shape[2] * out.shape[3]
         nfb = out.shape[4] * out.shape[5]
         return np.ascontiguousarray(out.reshape(lead + (self.n, nfa, nfb)))
@@ -150,4 +165,4 @@ def group_pairs(shells_a: Sequence[Shell], shells_b: Sequence[Shell], pairs: np.
     return [build_group(key[0], key[1], shells_a, shells_b, pairs[np.array(idx)]) for key, idx in sorted(keys.items())]
 
 
-__all__ = ["PairGroup", "build_group", "group_pairs"]
+__all__ = ["PairGroup", "build_group", "group_pairs", "contract_einsum"]

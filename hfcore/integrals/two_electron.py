@@ -51,7 +51,7 @@ from ..basis.shells import BasisSet, n_cartesian
 from ..errors import InputError, ResourceError
 from .boys import boys
 from .hermite import hermite_e, hermite_r, hermite_signs, n_hermite, sum_index
-from .pairs import PairGroup, build_group, group_pairs
+from .pairs import PairGroup, build_group, contract_einsum, group_pairs
 from .spherical import component_transform
 
 _ERI_CONST = 2.0 * np.pi**2.5
@@ -133,7 +133,7 @@ def _fold(group: PairGroup, spherical: bool) -> np.ndarray:
     e3 = e3.reshape(nca, ncb, e3.shape[1], group.n, npa, npb)
     ta = component_transform(group.la, spherical)
     tb = component_transform(group.lb, spherical)
-    out = np.einsum("xyhnij,nai,nbj,sx,ty->nijhasbt", e3, group.coef_a, group.coef_b, ta, tb, optimize=True)
+    out = contract_einsum("xyhnij,nai,nbj,sx,ty->nijhasbt", e3, group.coef_a, group.coef_b, ta, tb)
     nh = e3.shape[2]
     return np.ascontiguousarray(out.reshape(group.n, npa * npb, nh, -1))
 
@@ -148,7 +148,7 @@ def _diagonal(pairs: _EriPairs) -> np.ndarray:
     R = _hermite_block(2 * L, p, q, pq).reshape(-1, n, m, m)
     g = R[sum_index(L, L)]  # (nH, nH, n, m, m)
     signed = pairs.e * hermite_signs(L)[None, None, :, None]
-    return np.einsum("nihf,njkf,hknij->nf", pairs.e, signed, g, optimize=True)
+    return contract_einsum("nihf,njkf,hknij->nf", pairs.e, signed, g)
 
 
 def _hermite_block(L: int, p: np.ndarray, q: np.ndarray, pq: np.ndarray) -> np.ndarray:
