@@ -422,8 +422,9 @@ class ERIStore:
 
         Built once, one first index i at a time: the rows (i, k), k <= i,
         and their columns form one contiguous stretch of the packed array.
-        Every column (j, l) of those rows has j <= i, so (ij) = i(i+1)/2 + j
-        needs no ordering; only the second pair is put in canonical order.
+        Every column (j, l) of those rows has l <= j <= i, so the pair (ij)
+        always sorts after (kl) and its quartet index needs no comparison;
+        only (il|kj) is put in canonical order.
         """
         if self._exchange is None:
             n = self.n_functions
@@ -437,7 +438,7 @@ class ERIStore:
                 ncol = row0 + i + 1
                 fj, sl = first[:ncol], second[:ncol]
                 k_rows = pm[: i + 1]
-                vals = self.packed[_canonical(pm[i, fj][None, :], k_rows[:, sl], tri)]
+                vals = self.packed[tri[pm[i, fj]][None, :] + k_rows[:, sl]]
                 vals += self.packed[_canonical(pm[i, sl][None, :], k_rows[:, fj], tri)]
                 vals *= 0.5
                 keep = np.arange(ncol)[None, :] <= (row0 + np.arange(i + 1))[:, None]
