@@ -339,8 +339,11 @@ def _tile(bra: _EriPairs, brows: slice, ket: _EriPairs, krows: slice) -> np.ndar
     # Quartet batch order (k, j, b, i).
     pq = bra.P[:, brows][:, None, None, :, :] - ket.P[:, krows][:, :, :, None, None]
     R = _hermite_block(L, p[None, None], q[:, :, None, None], pq)
-    # G[k, (j, h_ket), (h_bra, b, i)] = R[h_bra + h_ket] of the quartet (k, j, b, i)
-    g = R.reshape(R.shape[0], nk * jq, nbi).transpose(1, 0, 2)[:, sum_index(ket.L, bra.L)]
+    # G[k, (j, h_ket), (h_bra, b, i)] = R[h_bra + h_ket] of the quartet (k, j, b, i);
+    # for an s-type ket (h_ket = 0 only) this is a plain transpose.
+    g = R.reshape(R.shape[0], nk * jq, nbi).transpose(1, 0, 2)
+    if ket.L:
+        g = g[:, sum_index(ket.L, bra.L)]
     g = g.reshape(nk, -1, nhb * nbi)
     x = np.matmul(ket.e_ket[krows], g)  # (nk, fk, nhb * nb * ip)
     y = x.reshape(nk * ket.nf, nhb, nb, ip).transpose(2, 0, 1, 3).reshape(nb, nk * ket.nf, nhb * ip)
