@@ -108,8 +108,13 @@ def boys(m_max: int, T: np.ndarray) -> np.ndarray:
         top += np.take(coeffs[k], idx, out=buf)
     large = t > t_switch
     if large.any():
-        tl = t[large]
-        top[large] = _ASYM[m_max] * tl ** (-(m_max + 0.5))
+        # T^{-m-1/2} by repeated multiplication: several times cheaper than a general power.
+        inv = 1.0 / t[large]
+        val = np.sqrt(inv)
+        val *= _ASYM[m_max]
+        for _ in range(m_max):
+            val *= inv
+        top[large] = val
     if m_max:
         expt = np.exp(-t)
         two_t = 2.0 * t
