@@ -499,6 +499,32 @@ def schwarz_bounds(basis: BasisSet) -> np.ndarray:
     return out
 
 
+def _group_pair(g1: _EriPairs, g2: _EriPairs, threshold: float, packed: np.ndarray) -> None:
+    """All tiles of one pair of groups that survive the Schwarz test, into the packed store."""
+    same = g1 is g2
+    bra, ket = (g1, g2) if _cost(g1, g2) <= _cost(g2, g1) else (g2, g1)
+    nb_size, nk_size = _tile_sizes(bra, ket)
+    if same:
+        nb_size = nk_size = min(nb_size, nk_size)
+    for ib, brows in enumerate(_chunks(bra.n, nb_size)):
+        qb = bra.q[brows.start]
+        for ik, krows in enumerate(_chunks(ket.n, nk_size)):
+            # Pairs are sorted by decreasing bound, so the first failing ket ends the row.
+            if (same and ik > ib) or qb * ket.q[krows.start] < threshold:
+                break
+            count = int(np.sum(qb * ket.q[krows] >= threshold))
+            krows = slice(krows.start, krows.start + max(count, 1))
+            _store(bra, brows, ket, krows, _tile(bra, brows, ket, krows), packed)
+
+
+def _store(bra: _EriPairs, brows: slice, ket: _EriPairs, krows: slice, block: np.ndarray, packed: np.ndarray) -> None:
+    """Write a tile (nb, nk, fk, fb) at the canonical packed position of each element."""
+    b_idx = bra.pidx[brows][:, None, None, :]
+    k_idx = ket.pidx[krows][None, :, :, None]
+    target = np.where(b_idx >= k_idx, bra.tri[brows][:, None, None, :] + k_idx, ket.tri[krows][None, :, :, None] + b_idx)
+    packed[target] = block
+
+
 def compute_eri(
     basis: BasisSet, *, threshold: float = 1e-12, progress: Callable[[float], None] | None = None
 ) -> ERIStore:
@@ -543,27 +569,7 @@ def compute_eri(
     total = sum(a.n * a.nprim * b.n * b.nprim * n_hermite(a.L + b.L) for a, b in jobs) or 1
     done = 0
     for g1, g2 in jobs:
-        same = g1 is g2
-        bra, ket = (g1, g2) if _cost(g1, g2) <= _cost(g2, g1) else (g2, g1)
-        nb_size, nk_size = _tile_sizes(bra, ket)
-        if same:
-            nb_size = nk_size = min(nb_size, nk_size)
-        for ib, brows in enumerate(_chunks(bra.n, nb_size)):
-            qb = bra.q[brows.start]
-            for ik, krows in enumerate(_chunks(ket.n, nk_size)):
-                if same and ik > ib:
-                    break
-                if qb * ket.q[krows.start] < threshold:
-                    break
-                count = int(np.sum(bra.q[brows.start] * ket.q[krows] >= threshold))
-                krows = slice(krows.start, krows.start + max(count, 1))
-                block = _tile(bra, brows, ket, krows)
-                b_idx = bra.pidx[brows][:, None, None, :]
-                k_idx = ket.pidx[krows][None, :, :, None]
-                target = np.where(
-                    b_idx >= k_idx, bra.tri[brows][:, None, None, :] + k_idx, ket.tri[krows][None, :, :, None] + b_idx
-                )
-                packed[target] = block
+        _group_pair(g1, g2, threshold, packed)
         done += g1.n * g1.nprim * g2.n * g2.nprim * n_hermite(g1.L + g2.L)
         if progress is not None:
             progress(done / total)
