@@ -161,14 +161,13 @@ def _hermite_block(L: int, p: np.ndarray, q: np.ndarray, pq: np.ndarray) -> np.n
     pqf = pq.reshape(3, -1)
     t = alpha * np.einsum("kn,kn->n", pqf, pqf)
     base = boys(L, t)
-    base *= _ERI_CONST / np.sqrt(pq_sum.reshape(-1))
-    if L:
-        m2a = -2.0 * alpha
-        fac = m2a.copy()
-        for m in range(1, L + 1):
-            base[m] *= fac
-            if m < L:
-                fac *= m2a
+    # Row m gets 2 pi^{5/2} / sqrt(p+q) * (-2 alpha)^m, built as a running product.
+    fac = _ERI_CONST / np.sqrt(pq_sum.reshape(-1))
+    base[0] *= fac
+    m2a = -2.0 * alpha
+    for m in range(1, L + 1):
+        fac *= m2a
+        base[m] *= fac
     return hermite_r(L, pqf, base)
 
 
