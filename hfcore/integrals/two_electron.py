@@ -381,6 +381,13 @@ class ERIStore:
         Schwarz screening hold zero.
     threshold : float
         Schwarz threshold used (hartree).
+
+    Notes
+    -----
+    The first :meth:`jk` call builds the exchange kernel, a second packed
+    array of the same length (another 8 bytes per unique integral, reported
+    by :attr:`nbytes`); every call is then two BLAS packed symmetric
+    matrix-vector products over npair(npair+1)/2 elements.
     """
 
     n_functions: int
