@@ -24,7 +24,7 @@ Scheme
 
    * one gather R[h_bra + h_ket] into G[k, (j, h_ket), (h_bra, b, i)],
    * ket side: X[k] = E_ket[k] @ G[k] (BLAS, sum over ket primitives j and h_ket),
-   * bra side: out[b] = Y[b] @ E_bra[b] (BLAS, sum over bra primitives i and h_bra).
+   * bra side: out[b] = E_bra[b] @ Y[b] (BLAS, sum over bra primitives i and h_bra).
 
    The roles are chosen per group pair to keep the ket-side product small.
 4. The contracted block is scattered into the packed store at the canonical
@@ -68,7 +68,7 @@ STORE_LIMIT_BYTES = 12 << 30
 class _EriPairs:
     """Shell pairs of one shape with folded Hermite coefficients.
 
-    ``e_bra`` has shape (n, nH * nprim, nf) ordered (hermite, primitive);
+    ``e_bra`` has shape (n, nf, nH * nprim) ordered (hermite, primitive);
     ``e_ket`` has shape (n, nf, nprim * nH) ordered (primitive, hermite), with
     the (-1)^{t+u+v} sign folded in.
     """
@@ -97,7 +97,7 @@ class _EriPairs:
 
     def finish(self) -> None:
         nh = self.e.shape[2]
-        self.e_bra = np.ascontiguousarray(self.e.transpose(0, 2, 1, 3).reshape(self.n, nh * self.nprim, self.nf))
+        self.e_bra = np.ascontiguousarray(self.e.transpose(0, 3, 2, 1).reshape(self.n, self.nf, nh * self.nprim))
         signed = self.e * hermite_signs(self.L)[None, None, :, None]
         self.e_ket = np.ascontiguousarray(signed.transpose(0, 3, 1, 2).reshape(self.n, self.nf, self.nprim * nh))
         self.tri = self.pidx * (self.pidx + 1) // 2
@@ -327,7 +327,7 @@ def _prepare(basis: BasisSet, threshold: float) -> list[_EriPairs]:
 
 
 def _tile(bra: _EriPairs, brows: slice, ket: _EriPairs, krows: slice) -> np.ndarray:
-    """Contracted integrals of a tile, shape (nb, nk, fk, fb)."""
+    """Contracted integrals of a tile, shape (nb, fb, nk * fk)."""
     L = bra.L + ket.L
     p = bra.p[brows]  # (nb, ip)
     q = ket.p[krows]  # (nk, jq)
@@ -345,9 +345,8 @@ def _tile(bra: _EriPairs, brows: slice, ket: _EriPairs, krows: slice) -> np.ndar
         g = g[:, sum_index(ket.L, bra.L)]
     g = g.reshape(nk, -1, nhb * nbi)
     x = np.matmul(ket.e_ket[krows], g)  # (nk, fk, nhb * nb * ip)
-    y = x.reshape(nk * ket.nf, nhb, nb, ip).transpose(2, 0, 1, 3).reshape(nb, nk * ket.nf, nhb * ip)
-    out = np.matmul(y, bra.e_bra[brows])  # (nb, nk * fk, fb)
-    return out.reshape(nb, nk, ket.nf, bra.nf)
+    y = x.reshape(nk * ket.nf, nhb, nb, ip).transpose(2, 1, 3, 0).reshape(nb, nhb * ip, nk * ket.nf)
+    return np.matmul(bra.e_bra[brows], y)  # (nb, fb, nk * fk)
 
 
 def _cost(bra: _EriPairs, ket: _EriPairs) -> float:
@@ -524,11 +523,11 @@ def _group_pair(g1: _EriPairs, g2: _EriPairs, threshold: float, packed: np.ndarr
 
 
 def _store(bra: _EriPairs, brows: slice, ket: _EriPairs, krows: slice, block: np.ndarray, packed: np.ndarray) -> None:
-    """Write a tile (nb, nk, fk, fb) at the canonical packed position of each element."""
-    b_idx = bra.pidx[brows][:, None, None, :]
-    k_idx = ket.pidx[krows][None, :, :, None]
-    target = np.where(b_idx >= k_idx, bra.tri[brows][:, None, None, :] + k_idx, ket.tri[krows][None, :, :, None] + b_idx)
-    packed[target] = block
+    """Write a tile (nb, fb, nk * fk) at the canonical packed position of each element."""
+    b_idx = bra.pidx[brows].reshape(-1, 1)
+    k_idx = ket.pidx[krows].reshape(1, -1)
+    target = np.where(b_idx >= k_idx, bra.tri[brows].reshape(-1, 1) + k_idx, ket.tri[krows].reshape(1, -1) + b_idx)
+    packed[target] = block.reshape(target.shape)
 
 
 def compute_eri(
