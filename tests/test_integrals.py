@@ -102,6 +102,7 @@ def _small_basis() -> BasisSet:
 
 
 def test_function_count_matches_reference(case):
+    # source: reference library run (PySCF Mole.nao), same shells
     assert case.basis.n_functions == case.mol.nao
 
 
@@ -187,6 +188,7 @@ def test_store_reports_its_memory():
     store = compute_eri(basis)
     n = basis.n_functions
     npair = n * (n + 1) // 2
+    # source: exact property: npair(npair+1)/2 unique quartets, 8 bytes each
     assert store.nbytes == 8 * npair * (npair + 1) // 2
     store.jk(np.eye(n))
     assert store.nbytes == 2 * 8 * npair * (npair + 1) // 2
