@@ -581,6 +581,263 @@ def compute_eri(
     return ERIStore(n, packed, float(threshold))
 
 
+def estimate_eri_memory(basis: BasisSet) -> int:
+    """Bytes the stored integrals need for J/K builds, before any is computed.
+
+    The packed store holds one float64 per unique integral and its exchange
+    kernel another, so 16 bytes per unique integral, npair(npair+1)/2 of
+    them with npair = nbf(nbf+1)/2. Screening does not shrink the packed
+    arrays, so the estimate is exact.
+
+    Parameters
+    ----------
+    basis : BasisSet
+
+    Returns
+    -------
+    int
+        Bytes.
+    """
+    npair = basis.n_functions * (basis.n_functions + 1) // 2
+    return 16 * (npair * (npair + 1) // 2)
+
+
+@dataclass(frozen=True)
+class DirectPassStats:
+    """Work of one direct J/K pass, counted in primitive quartets.
+
+    Attributes
+    ----------
+    quartets_schwarz : int
+        Primitive quartets in tiles that pass the plain Schwarz test (what a
+        stored pass computes).
+    quartets_computed : int
+        Those of them in tiles that also pass the density-weighted test.
+    """
+
+    quartets_schwarz: int
+    quartets_computed: int
+
+    @property
+    def skipped_fraction(self) -> float:
+        """Share of the Schwarz-surviving quartets the density weighting skipped."""
+        if self.quartets_schwarz == 0:
+            return 0.0
+        return 1.0 - self.quartets_computed / self.quartets_schwarz
+
+
+@dataclass
+class _DirectGroup:
+    """Index data of one pair group for the contraction into J and K."""
+
+    pairs: _EriPairs
+    hi: np.ndarray  # (n, nf) larger function index of each pair function
+    lo: np.ndarray  # (n, nf) smaller function index
+    weight: np.ndarray  # (n, nf) 1/2 for functions of a shell with itself, else 1
+    fam_a: np.ndarray  # (n,) family of the first function
+    fam_b: np.ndarray  # (n,) family of the second function
+
+
+class _Accumulator:
+    """Scatter-adds into J (packed pairs) and the half-exchange N, flushed in batches.
+
+    One bincount per batch instead of one per tile keeps the cost of the
+    nbf^2-long output arrays off every small tile.
+    """
+
+    _FLUSH = 1 << 22
+
+    def __init__(self, n: int) -> None:
+        self.n = n
+        self.j = np.zeros(n * (n + 1) // 2)
+        self.k = np.zeros(n * n)
+        self._jparts: list[tuple[np.ndarray, np.ndarray]] = []
+        self._kparts: list[tuple[np.ndarray, np.ndarray]] = []
+        self._size = 0
+
+    def add(self, j_index: np.ndarray, j_value: np.ndarray, k_index: np.ndarray, k_value: np.ndarray) -> None:
+        self._jparts.append((j_index, j_value))
+        self._kparts.append((k_index, k_value))
+        self._size += k_index.size
+        if self._size >= self._FLUSH:
+            self.flush()
+
+    def flush(self) -> None:
+        for parts, out in ((self._jparts, self.j), (self._kparts, self.k)):
+            if parts:
+                index = np.concatenate([p[0].ravel() for p in parts])
+                value = np.concatenate([p[1].ravel() for p in parts])
+                out += np.bincount(index, value, minlength=out.size)
+                parts.clear()
+        self._size = 0
+
+    def result(self) -> tuple[np.ndarray, np.ndarray]:
+        """(J, K), each symmetric (nbf, nbf)."""
+        self.flush()
+        n = self.n
+        m = np.zeros((n, n))
+        first, second = np.tril_indices(n)
+        m[first, second] = self.j
+        half = self.k.reshape(n, n)
+        return m + m.T, half + half.T
+
+
+class DirectERI:
+    """J and K by recomputing the screened integrals on every call (direct mode).
+
+    The integrals come in the same tiles as :func:`compute_eri` builds, each
+    contracted with the density at once and dropped, so memory stays at a
+    few nbf^2 arrays. Every unique integral is used once with all eight of
+    its index permutations; a tile is skipped when its Schwarz bound times
+    the largest density element over the six shell-family blocks it touches
+    (ab, cd, ac, ad, bc, bd) is below the threshold, which makes builds from
+    small density changes cheap.
+
+    Parameters
+    ----------
+    basis : BasisSet
+    threshold : float
+        Screening threshold (hartree), as in :func:`compute_eri`.
+
+    Attributes
+    ----------
+    last_stats : DirectPassStats or None
+        Work of the latest :meth:`jk` call.
+    """
+
+    def __init__(self, basis: BasisSet, *, threshold: float = 1e-12) -> None:
+        if threshold < 0:
+            raise InputError(f"the screening threshold must be >= 0, not {threshold}")
+        self.n_functions = basis.n_functions
+        self.threshold = float(threshold)
+        self._families = _function_families(basis)
+        shell_of = np.repeat(np.arange(basis.n_shells), [s.n_functions(basis.spherical) for s in basis.shells])
+        first, second = np.tril_indices(basis.n_functions)
+        self._groups = []
+        for pairs in _prepare(basis, threshold):
+            hi, lo = first[pairs.pidx], second[pairs.pidx]
+            weight = np.where(shell_of[hi] == shell_of[lo], 0.5, 1.0)
+            fam = self._families
+            self._groups.append(_DirectGroup(pairs, hi, lo, weight, fam[hi[:, 0]], fam[lo[:, 0]]))
+        self.last_stats: DirectPassStats | None = None
+
+    def jk(self, density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Coulomb and exchange matrices of a symmetric density.
+
+        Parameters
+        ----------
+        density : ndarray, shape (nbf, nbf)
+            Symmetric matrix D (a full density or a density change).
+
+        Returns
+        -------
+        J, K : ndarray, shape (nbf, nbf)
+            J_μν = Σ (μν|λσ) D_λσ and K_μν = Σ (μλ|νσ) D_λσ.
+        """
+        d = np.ascontiguousarray(density, dtype=np.float64)
+        block_max = _block_max(np.abs(d), self._families)
+        acc = _Accumulator(self.n_functions)
+        counts = np.zeros(2, dtype=np.int64)
+        for ia, g1 in enumerate(self._groups):
+            for g2 in self._groups[: ia + 1]:
+                self._group_pair(g1, g2, d, block_max, acc, counts)
+        self.last_stats = DirectPassStats(int(counts[0]), int(counts[1]))
+        return acc.result()
+
+    def _group_pair(
+        self, g1: _DirectGroup, g2: _DirectGroup, d: np.ndarray, block_max: np.ndarray, acc: _Accumulator,
+        counts: np.ndarray,
+    ) -> None:
+        same = g1 is g2
+        bra, ket = (g1, g2) if _cost(g1.pairs, g2.pairs) <= _cost(g2.pairs, g1.pairs) else (g2, g1)
+        nb_size, nk_size = _tile_sizes(bra.pairs, ket.pairs)
+        if same:
+            nb_size = nk_size = min(nb_size, nk_size)
+        dmax = float(block_max.max()) if block_max.size else 0.0
+        per = bra.pairs.nprim * ket.pairs.nprim
+        for ib, brows in enumerate(_chunks(bra.pairs.n, nb_size)):
+            qb = bra.pairs.q[brows.start]
+            for ik, krows in enumerate(_chunks(ket.pairs.n, nk_size)):
+                if (same and ik > ib) or qb * ket.pairs.q[krows.start] < self.threshold:
+                    break
+                diagonal = same and ik == ib
+                if not diagonal:
+                    # A diagonal tile must keep every row on both sides so each
+                    # bra-ket pair appears in both orders and the 1/2 weight holds.
+                    count = int(np.sum(qb * ket.pairs.q[krows] >= self.threshold))
+                    krows = slice(krows.start, krows.start + max(count, 1))
+                quartets = (brows.stop - brows.start) * (krows.stop - krows.start) * per
+                counts[0] += quartets
+                if qb * ket.pairs.q[krows.start] * dmax < self.threshold:
+                    continue
+                if _weighted_bound(bra, brows, ket, krows, block_max) < self.threshold:
+                    continue
+                counts[1] += quartets
+                block = _tile(bra.pairs, brows, ket.pairs, krows)
+                _contract(bra, brows, ket, krows, block, 0.5 if diagonal else 1.0, d, acc)
+
+
+def _function_families(basis: BasisSet) -> np.ndarray:
+    """Family index (shells of one atom sharing exponents) of every basis function, shape (nbf,)."""
+    out = np.empty(basis.n_functions, dtype=np.intp)
+    off = basis.shell_offsets
+    for f, members in enumerate(_families(basis)):
+        for s in members:
+            out[off[s] : off[s] + basis.shells[s].n_functions(basis.spherical)] = f
+    return out
+
+
+def _block_max(absd: np.ndarray, families: np.ndarray) -> np.ndarray:
+    """Largest |D| element of every family-family block, shape (nfam, nfam)."""
+    nfam = int(families.max()) + 1 if families.size else 0
+    rows = np.full((nfam, absd.shape[1]), 0.0)
+    np.maximum.at(rows, families, absd)
+    out = np.full((nfam, nfam), 0.0)
+    np.maximum.at(out.T, families, rows.T)
+    return out
+
+
+def _weighted_bound(bra: _DirectGroup, brows: slice, ket: _DirectGroup, krows: slice, m: np.ndarray) -> float:
+    """Largest Q_ab Q_cd max|D| over the tile, D over the blocks ab, cd, ac, ad, bc, bd."""
+    a, b = bra.fam_a[brows], bra.fam_b[brows]
+    c, d = ket.fam_a[krows], ket.fam_b[krows]
+    dm = np.maximum(m[a, b][:, None], m[c, d][None, :])
+    for x in (a, b):
+        dm = np.maximum(dm, np.maximum(m[x][:, c], m[x][:, d]))
+    return float(np.max(bra.pairs.q[brows][:, None] * ket.pairs.q[krows][None, :] * dm))
+
+
+def _contract(
+    bra: _DirectGroup, brows: slice, ket: _DirectGroup, krows: slice, block: np.ndarray, scale: float,
+    d: np.ndarray, acc: _Accumulator,
+) -> None:
+    """Add a tile's integrals, with all eight index permutations, to J and K.
+
+    Each tile value v of (ij|kl) is weighted by 1/2 for a shell paired with
+    itself on either side and 1/2 in a diagonal tile, which is exactly one
+    over the number of times the tiles hold that integral times the share of
+    its eight permutations that coincide. Then J_ij, J_kl get 2 w v D_kl,
+    2 w v D_ij and the half-exchange N gets w v D_jl at (i, k) and likewise
+    for (j,k), (i,l), (j,l); J and K are the symmetrised sums.
+    """
+    n = d.shape[0]
+    ih, il = bra.hi[brows].ravel(), bra.lo[brows].ravel()
+    kh, kl = ket.hi[krows].ravel(), ket.lo[krows].ravel()
+    wv = block.reshape(ih.size, kh.size)
+    wv = wv * (bra.weight[brows].reshape(-1, 1) * (scale * ket.weight[krows].reshape(1, -1)))
+    dflat = d.ravel()
+    j_bra = 2.0 * (wv @ dflat[kh * n + kl])
+    j_ket = 2.0 * (dflat[ih * n + il] @ wv)
+    j_index = np.concatenate([bra.pairs.pidx[brows].ravel(), ket.pairs.pidx[krows].ravel()])
+    k_index = []
+    k_value = []
+    for r1, r2 in ((ih, il), (il, ih)):
+        for c1, c2 in ((kh, kl), (kl, kh)):
+            k_index.append(r1[:, None] * n + c1[None, :])
+            k_value.append(wv * dflat[r2[:, None] * n + c2[None, :]])
+    acc.add(j_index, np.concatenate([j_bra, j_ket]), np.concatenate(k_index), np.concatenate(k_value))
+
+
 def eri_tensor(basis: BasisSet) -> np.ndarray:
     """All electron-repulsion integrals, dense and unscreened.
 
@@ -592,4 +849,14 @@ def eri_tensor(basis: BasisSet) -> np.ndarray:
     return compute_eri(basis, threshold=0.0).to_dense()
 
 
-__all__ = ["ERIStore", "compute_eri", "eri_tensor", "schwarz_bounds", "DENSE_LIMIT_BYTES", "STORE_LIMIT_BYTES"]
+__all__ = [
+    "ERIStore",
+    "DirectERI",
+    "DirectPassStats",
+    "compute_eri",
+    "estimate_eri_memory",
+    "eri_tensor",
+    "schwarz_bounds",
+    "DENSE_LIMIT_BYTES",
+    "STORE_LIMIT_BYTES",
+]
