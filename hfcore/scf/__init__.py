@@ -15,9 +15,9 @@ layer never prints; pass ``progress`` to watch the iterations.
 from __future__ import annotations
 
 from .accelerators import DIIS, Accelerator, Chain, Damping, FockStep, LevelShift, build_accelerator
-from .driver import GUESSES, run_rhf
+from .driver import GUESSES, JKPlan, plan_jk, run_rhf
 from .guess import sad_density
-from .jk import DenseJK, JKBuilder
+from .jk import DenseJK, IncrementalJK, JKBuilder
 from .options import SCFOptions
 from .orthogonalise import Orthogonaliser
 from .result import RHFResult, SCFIteration
@@ -25,6 +25,8 @@ from .solver import solve_rhf
 
 __all__ = [
     "run_rhf",
+    "plan_jk",
+    "JKPlan",
     "solve_rhf",
     "GUESSES",
     "sad_density",
@@ -41,4 +43,5 @@ __all__ = [
     "build_accelerator",
     "JKBuilder",
     "DenseJK",
+    "IncrementalJK",
 ]

@@ -3,17 +3,18 @@
 from __future__ import annotations
 
 import time
-from dataclasses import replace
+from collections.abc import Callable
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from .. import integrals
 from ..basis import build_basis
 from ..basis.shells import BasisSet
-from ..errors import ConvergenceError, InputError
+from ..errors import ConvergenceError, InputError, ResourceError
 from ..geometry import Molecule
 from .guess import sad_density
-from .jk import JKBuilder
+from .jk import IncrementalJK, JKBuilder
 from .options import SCFOptions
 from .result import RHFResult
 from .solver import Progress, solve_rhf
@@ -28,6 +29,7 @@ def run_rhf(
     *,
     guess: str | np.ndarray = "sad",
     progress: Progress | None = None,
+    integral_progress: Callable[[float], None] | None = None,
 ) -> RHFResult:
     """Restricted Hartree-Fock energy and orbitals of a closed-shell molecule.
 
@@ -46,16 +48,24 @@ def run_rhf(
         basis).
     progress : callable, optional
         Called with each :class:`SCFIteration` as it is made.
+    integral_progress : callable, optional
+        Called with the fraction (0..1] of the stored-integral pass done;
+        the direct mode has no such pass (its cost shows per iteration).
 
     Returns
     -------
     RHFResult
-        Timings hold "integrals", "guess", "scf" and "total" seconds.
+        Timings hold "integrals", "guess", "scf" and "total" seconds;
+        ``jk_mode`` and ``eri_bytes`` say how J and K were built
+        (see :func:`plan_jk`).
 
     Raises
     ------
     InputError
         Open-shell molecule, unknown guess, malformed guess density.
+    ResourceError
+        Stored integrals forced (``options.direct=False``) beyond
+        ``options.memory_limit``, raised before any is computed.
     ConvergenceError
         No convergence within ``options.max_iterations``; ``.result`` holds
         the unconverged record (with molecule and basis filled in).
@@ -70,10 +80,14 @@ def run_rhf(
     hcore = integrals.kinetic(basis) + integrals.nuclear_attraction(
         basis, molecule.atomic_numbers.astype(np.float64), molecule.coordinates
     )
-    jk = _jk_builder(basis, options)
+    plan = plan_jk(basis, options)
+    jk = _jk_builder(basis, options, plan, integral_progress)
     t_integrals = time.perf_counter()
     if isinstance(guess, str) and guess.lower() == "sad":
         guess_density = sad_density(basis, molecule.atomic_numbers, jk)
+        if isinstance(jk, IncrementalJK):
+            # The SCF starts from a full build, not from a change to an atom's density.
+            jk.reset()
     t_sad = time.perf_counter() - t_integrals
 
     def finish(result: RHFResult) -> RHFResult:
@@ -83,7 +97,9 @@ def run_rhf(
             "scf": result.timings["scf"],
             "total": time.perf_counter() - t0,
         }
-        return replace(result, molecule=molecule, basis=basis, timings=timings)
+        return replace(
+            result, molecule=molecule, basis=basis, timings=timings, jk_mode=plan.mode, eri_bytes=plan.eri_bytes
+        )
 
     try:
         result = solve_rhf(
@@ -108,11 +124,68 @@ def _checked_guess(guess: str | np.ndarray, basis: BasisSet) -> np.ndarray | Non
     return density
 
 
-def _jk_builder(basis: BasisSet, options: SCFOptions) -> JKBuilder:
-    """Stored integrals; the direct mode is reserved in the options but not built yet."""
-    if options.direct:
-        raise InputError("direct SCF (recomputing integrals every iteration) is not available yet; use direct=False")
-    return integrals.compute_eri(basis, threshold=options.screening)
+@dataclass(frozen=True)
+class JKPlan:
+    """How an RHF run will build J and K, decided before any integral is computed.
+
+    Attributes
+    ----------
+    mode : {"stored", "direct"}
+        Store the integrals once, or recompute them every iteration.
+    eri_bytes : int
+        Memory the stored integrals need (bytes), from
+        :func:`hfcore.integrals.estimate_eri_memory`.
+    limit_bytes : int
+        The budget they were measured against (bytes).
+    """
+
+    mode: str
+    eri_bytes: int
+    limit_bytes: int
 
 
-__all__ = ["run_rhf", "GUESSES"]
+def plan_jk(basis: BasisSet, options: SCFOptions | None = None) -> JKPlan:
+    """Choose stored or direct J/K builds for a basis, per ``options.direct``.
+
+    Parameters
+    ----------
+    basis : BasisSet
+    options : SCFOptions, optional
+        ``direct`` True or False forces the mode; None picks stored if it
+        fits within ``memory_limit``, else direct.
+
+    Returns
+    -------
+    JKPlan
+
+    Raises
+    ------
+    ResourceError
+        If stored integrals are forced (``direct=False``) and do not fit.
+    """
+    options = options or SCFOptions()
+    need = integrals.estimate_eri_memory(basis)
+    limit = options.memory_limit_bytes
+    if options.direct is None:
+        mode = "stored" if need <= limit else "direct"
+    else:
+        mode = "direct" if options.direct else "stored"
+    if mode == "stored" and need > limit:
+        raise ResourceError(
+            f"stored integrals for {basis.n_functions} functions need {need / 2**20:.1f} MiB but "
+            f"{limit / 2**20:.1f} MiB are allowed; use the direct mode (--direct, direct=True) "
+            f"or raise the limit (--memory MIB, memory_limit)"
+        )
+    return JKPlan(mode, need, limit)
+
+
+def _jk_builder(
+    basis: BasisSet, options: SCFOptions, plan: JKPlan, integral_progress: Callable[[float], None] | None
+) -> JKBuilder:
+    if plan.mode == "direct":
+        engine = integrals.DirectERI(basis, threshold=options.screening)
+        return IncrementalJK(engine, options.rebuild_interval)
+    return integrals.compute_eri(basis, threshold=options.screening, progress=integral_progress)
+
+
+__all__ = ["run_rhf", "plan_jk", "JKPlan", "GUESSES"]

@@ -6,6 +6,8 @@ from typing import Protocol
 
 import numpy as np
 
+from ..errors import InputError
+
 
 class JKBuilder(Protocol):
     """Anything that turns a density into Coulomb and exchange matrices.
@@ -40,4 +42,55 @@ class DenseJK:
         return j, k
 
 
-__all__ = ["JKBuilder", "DenseJK"]
+class IncrementalJK:
+    """A :class:`JKBuilder` that builds J and K from density changes.
+
+    J and K are linear in the density, so J(D_n) = J(D_{n-1}) + J(D_n - D_{n-1}).
+    Near convergence the change is small and a density-screened engine
+    (such as :class:`hfcore.integrals.DirectERI`) skips most integrals.
+    Every ``rebuild_interval`` builds, or after :meth:`reset`, J and K are
+    rebuilt from the full density so that round-off cannot pile up.
+
+    Parameters
+    ----------
+    engine : JKBuilder
+        Computes J and K of any symmetric matrix.
+    rebuild_interval : int
+        Builds between two full rebuilds (the first build is always full).
+
+    Attributes
+    ----------
+    builds : list of str
+        "full" or "change" for every build so far, in order.
+    """
+
+    def __init__(self, engine: JKBuilder, rebuild_interval: int = 8) -> None:
+        if rebuild_interval < 1:
+            raise InputError(f"the rebuild interval must be at least 1, got {rebuild_interval}")
+        self.engine = engine
+        self.rebuild_interval = int(rebuild_interval)
+        self.builds: list[str] = []
+        self.reset()
+
+    def reset(self) -> None:
+        """Forget the previous density so the next build is a full one."""
+        self._density: np.ndarray | None = None
+        self._jk: tuple[np.ndarray, np.ndarray] | None = None
+        self._since_full = 0
+
+    def jk(self, density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        d = np.array(density, dtype=np.float64)
+        if self._density is None or self._since_full >= self.rebuild_interval:
+            j, k = self.engine.jk(d)
+            self._since_full = 1
+            self.builds.append("full")
+        else:
+            dj, dk = self.engine.jk(d - self._density)
+            j, k = self._jk[0] + dj, self._jk[1] + dk
+            self._since_full += 1
+            self.builds.append("change")
+        self._density, self._jk = d, (j, k)
+        return j.copy(), k.copy()
+
+
+__all__ = ["JKBuilder", "DenseJK", "IncrementalJK"]

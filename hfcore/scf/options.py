@@ -24,6 +24,31 @@ def _count(name: str, value: object, minimum: int) -> int:
     return int(value)
 
 
+#: Share of the available memory the stored integrals may take by default.
+MEMORY_FRACTION: float = 0.5
+#: Budget in MiB when the available memory cannot be read.
+FALLBACK_MEMORY_MIB: float = 4096.0
+
+
+def default_memory_limit(meminfo: str = "/proc/meminfo") -> float:
+    """Default budget for stored integrals in MiB: half of ``MemAvailable``.
+
+    Parameters
+    ----------
+    meminfo : str
+        The kernel's memory report; when it is missing or has no
+        ``MemAvailable`` line, :data:`FALLBACK_MEMORY_MIB` is used.
+    """
+    try:
+        with open(meminfo, encoding="ascii") as handle:
+            for line in handle:
+                if line.startswith("MemAvailable:"):
+                    return MEMORY_FRACTION * float(line.split()[1]) / 1024.0
+    except (OSError, ValueError, IndexError):
+        pass
+    return FALLBACK_MEMORY_MIB
+
+
 @dataclass(frozen=True)
 class SCFOptions:
     """Convergence, acceleration and numerical settings of an RHF run.
@@ -60,7 +85,17 @@ class SCFOptions:
         The convergence accelerator.
     direct : bool or None
         Recompute two-electron integrals every iteration instead of storing
-        them (True), store them (False), or let hfcore choose (None).
+        them (True), store them (False), or let hfcore choose (None): stored
+        when :func:`hfcore.integrals.estimate_eri_memory` fits within
+        ``memory_limit``, direct otherwise.
+    memory_limit : float or None
+        Memory the stored integrals may take, in MiB (2^20 bytes). None
+        means half of the memory the system reports available
+        (:func:`default_memory_limit`).
+    rebuild_interval : int
+        In direct mode J and K are built from the density change of each
+        iteration; every this many builds they are rebuilt from the full
+        density so round-off cannot accumulate.
 
     Raises
     ------
@@ -79,6 +114,8 @@ class SCFOptions:
     level_shift: float = 0.0
     accelerator: str = "diis"
     direct: bool | None = None
+    memory_limit: float | None = None
+    rebuild_interval: int = 8
 
     def __post_init__(self) -> None:
         for name in ("energy_tol", "gradient_tol", "lindep_threshold"):
@@ -90,6 +127,15 @@ class SCFOptions:
         self._check_accelerator()
         if self.direct is not None and not isinstance(self.direct, bool):
             raise InputError(f"SCF option direct must be True, False or None, got {self.direct!r}")
+        if self.memory_limit is not None:
+            object.__setattr__(self, "memory_limit", _positive("memory_limit", self.memory_limit))
+        object.__setattr__(self, "rebuild_interval", _count("rebuild_interval", self.rebuild_interval, 1))
+
+    @property
+    def memory_limit_bytes(self) -> int:
+        """The memory budget of the stored integrals in bytes (``memory_limit`` or the default)."""
+        mib = default_memory_limit() if self.memory_limit is None else self.memory_limit
+        return int(mib * 2**20)
 
     def _check_ranges(self) -> None:
         if self.lindep_threshold >= 1.0:
@@ -111,4 +157,4 @@ class SCFOptions:
             raise InputError("damping > 0 needs accelerator 'damping' or 'diis', not 'none'")
 
 
-__all__ = ["SCFOptions", "ACCELERATOR_NAMES"]
+__all__ = ["SCFOptions", "ACCELERATOR_NAMES", "default_memory_limit", "MEMORY_FRACTION", "FALLBACK_MEMORY_MIB"]

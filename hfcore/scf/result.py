@@ -98,6 +98,12 @@ class RHFResult:
         The settings used.
     message : str
         Why the run stopped, in words.
+    jk_mode : {"stored", "direct", "given"}
+        How J and K were built: from stored integrals, by recomputing them
+        every iteration, or by a builder handed to :func:`solve_rhf`.
+    eri_bytes : int
+        Predicted memory of the stored integrals (bytes), whichever mode
+        ran; 0 when unknown (bare matrices).
     """
 
     energy_total: float
@@ -121,6 +127,8 @@ class RHFResult:
     message: str
     molecule: "Molecule | None" = None
     basis: "BasisSet | None" = None
+    jk_mode: str = "given"
+    eri_bytes: int = 0
 
     @property
     def n_occupied(self) -> int:
