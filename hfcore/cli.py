@@ -84,6 +84,14 @@ def _add_scf_arguments(parser: argparse.ArgumentParser) -> None:
         metavar="X",
         help="drop overlap eigenvectors with eigenvalue below X (1e-7)",
     )
+    memory = parser.add_argument_group("two-electron integrals (default: stored if they fit in --memory, else direct)")
+    mode = memory.add_mutually_exclusive_group()
+    mode.add_argument("--direct", dest="direct", action="store_const", const=True, default=None,
+                      help="recompute the integrals every iteration instead of storing them")
+    mode.add_argument("--stored", dest="direct", action="store_const", const=False,
+                      help="store the integrals; fail up front if they exceed --memory")
+    memory.add_argument("--memory", type=_positive_float, metavar="MIB",
+                        help="memory the stored integrals may use, in MiB (default: half of the available memory)")
 
 
 def _add_json_argument(parser: argparse.ArgumentParser) -> None:
@@ -267,8 +275,10 @@ def _build_basis(args: argparse.Namespace, molecule: Any) -> Any:
 def _scf_options(args: argparse.Namespace) -> Any:
     from .scf import SCFOptions
 
-    names = ("energy_tol", "gradient_tol", "max_iterations", "diis_space", "lindep_threshold")
-    given = {name: getattr(args, name) for name in names if getattr(args, name) is not None}
+    names = ("energy_tol", "gradient_tol", "max_iterations", "diis_space", "lindep_threshold", "direct")
+    given = {name: getattr(args, name) for name in names if getattr(args, name, None) is not None}
+    if getattr(args, "memory", None) is not None:
+        given["memory_limit"] = args.memory
     return SCFOptions(**given)
 
 
@@ -290,8 +300,36 @@ def _analysis(result: Any) -> dict[str, Any]:
 # ----------------------------------------------------------------------------
 
 
+class _IntegralProgress:
+    """Progress of the stored-integral pass on stderr, once it has taken a while.
+
+    On a terminal one line is rewritten in place; elsewhere (a log file) a
+    plain line is written at each quarter so the log stays short.
+    """
+
+    DELAY_S = 1.0
+
+    def __init__(self, stream: TextIO) -> None:
+        self.stream = stream
+        self.tty = bool(getattr(stream, "isatty", lambda: False)())
+        self.started = time.perf_counter()
+        self.shown = 0.0
+
+    def __call__(self, fraction: float) -> None:
+        if time.perf_counter() - self.started < self.DELAY_S and fraction < 1.0:
+            return
+        if self.tty:
+            end = "\n" if fraction >= 1.0 else ""
+            print(f"\rhfcore: two-electron integrals {100 * fraction:5.1f} %", end=end, file=self.stream, flush=True)
+        elif fraction >= 1.0 or fraction - self.shown >= 0.25:
+            if self.shown == 0.0 and fraction >= 1.0:
+                return  # a pass that ended before the first report needs none
+            print(f"hfcore: two-electron integrals {100 * fraction:5.1f} % done", file=self.stream, flush=True)
+        self.shown = fraction
+
+
 def _run_energy(args: argparse.Namespace, console: _Console) -> int:
-    from .scf import run_rhf
+    from .scf import plan_jk, run_rhf
 
     started = time.perf_counter()
     paths = _output_paths(args, "json", "npz")
@@ -300,9 +338,13 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
     options = _scf_options(args)
     console.report(f"hfcore {__version__} · restricted Hartree–Fock")
     console.report(report.format_molecule(molecule))
-    console.report(report.format_basis(basis))
+    console.report(report.format_basis(basis, plan_jk(basis, options)))
+    integral_progress = None if console.json_to_stdout or console.quiet else _IntegralProgress(console.stderr)
     console.live(report.history_header())
-    result = run_rhf(molecule, basis, options, guess=args.guess, progress=lambda rec: console.live(report.format_iteration(rec)))
+    result = run_rhf(
+        molecule, basis, options, guess=args.guess, progress=lambda rec: console.live(report.format_iteration(rec)),
+        integral_progress=integral_progress,
+    )
     record = export.result_record(result, _analysis(result))
     files: dict[str, bytes] = {}
     if "json" in paths:

@@ -192,6 +192,8 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
         "scf": {
             "converged": result.converged,
             "iterations": result.iterations,
+            "jk_mode": result.jk_mode,
+            "eri_memory_bytes": result.eri_bytes,
             "thresholds": {
                 "energy_tol": opts.energy_tol,
                 "gradient_tol": opts.gradient_tol,

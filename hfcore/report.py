@@ -61,12 +61,15 @@ def format_molecule(molecule: Any) -> str:
     return "\n".join(lines)
 
 
-def format_basis(basis: Any) -> str:
+def format_basis(basis: Any, plan: Any = None) -> str:
     """The basis section: name, function form, counts of functions and shells.
 
     Parameters
     ----------
     basis : BasisSet
+    plan : JKPlan, optional
+        When given, the section also says how J and K will be built and
+        what storing the integrals costs, before the integral pass starts.
     """
     primitives = sum(s.n_primitives for s in basis.shells)
     info = [
@@ -75,7 +78,24 @@ def format_basis(basis: Any) -> str:
         ("shells", f"{basis.n_shells} ({primitives} primitive Gaussians)"),
         ("highest l", "spdfghi"[basis.max_l]),
     ]
+    if plan is not None:
+        info.extend(_jk_rows(plan))
     return heading("Basis") + "\n" + _pairs(info)
+
+
+def _mib(n_bytes: int) -> str:
+    return f"{n_bytes / 2**20:.1f} MiB"
+
+
+def _jk_rows(plan: Any) -> list[tuple[str, str]]:
+    if plan.mode == "stored":
+        how = "stored once, reused every iteration"
+    else:
+        how = "direct: recomputed every iteration from density changes"
+    return [
+        ("two-electron", how),
+        ("stored size", f"{_mib(plan.eri_bytes)} predicted (limit {_mib(plan.limit_bytes)})"),
+    ]
 
 
 def format_linear_dependence(n_dropped: int, threshold: float) -> str:
