@@ -319,13 +319,14 @@ class _IntegralProgress:
         if time.perf_counter() - self.started < self.DELAY_S and fraction < 1.0:
             return
         if self.tty:
-            end = "\n" if fraction >= 1.0 else ""
-            print(f"\rhfcore: two-electron integrals {100 * fraction:5.1f} %", end=end, file=self.stream, flush=True)
-        elif fraction >= 1.0 or fraction - self.shown >= 0.25:
             if self.shown == 0.0 and fraction >= 1.0:
                 return  # a pass that ended before the first report needs none
+            end = "\n" if fraction >= 1.0 else ""
+            print(f"\rhfcore: two-electron integrals {100 * fraction:5.1f} %", end=end, file=self.stream, flush=True)
+            self.shown = fraction
+        elif fraction - self.shown >= 0.25 or (fraction >= 1.0 and self.shown > 0.0):
             print(f"hfcore: two-electron integrals {100 * fraction:5.1f} % done", file=self.stream, flush=True)
-        self.shown = fraction
+            self.shown = fraction
 
 
 def _run_energy(args: argparse.Namespace, console: _Console) -> int:
@@ -336,9 +337,10 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
     molecule = _read_molecule(args)
     basis = _build_basis(args, molecule)
     options = _scf_options(args)
+    plan = plan_jk(basis, options)  # a forced store that cannot fit fails before any output
     console.report(f"hfcore {__version__} · restricted Hartree–Fock")
     console.report(report.format_molecule(molecule))
-    console.report(report.format_basis(basis, plan_jk(basis, options)))
+    console.report(report.format_basis(basis, plan))
     integral_progress = None if console.json_to_stdout or console.quiet else _IntegralProgress(console.stderr)
     console.live(report.history_header())
     result = run_rhf(

@@ -84,7 +84,7 @@ def format_basis(basis: Any, plan: Any = None) -> str:
 
 
 def _mib(n_bytes: int) -> str:
-    return f"{n_bytes / 2**20:.1f} MiB"
+    return f"{n_bytes / 2**20:.3g} MiB"
 
 
 def _jk_rows(plan: Any) -> list[tuple[str, str]]:

@@ -172,8 +172,8 @@ def plan_jk(basis: BasisSet, options: SCFOptions | None = None) -> JKPlan:
         mode = "direct" if options.direct else "stored"
     if mode == "stored" and need > limit:
         raise ResourceError(
-            f"stored integrals for {basis.n_functions} functions need {need / 2**20:.1f} MiB but "
-            f"{limit / 2**20:.1f} MiB are allowed; use the direct mode (--direct, direct=True) "
+            f"stored integrals for {basis.n_functions} functions need {need / 2**20:.3g} MiB but "
+            f"{limit / 2**20:.3g} MiB are allowed; use the direct mode (--direct, direct=True) "
             f"or raise the limit (--memory MIB, memory_limit)"
         )
     return JKPlan(mode, need, limit)

@@ -1,0 +1,251 @@
+"""Direct SCF mode: integrals recomputed for every J/K build, the memory guard and the mode choice."""
+
+from __future__ import annotations
+
+import io
+import json
+
+import numpy as np
+import pytest
+
+import hfcore
+from hfcore import integrals
+from hfcore.cli import _IntegralProgress, main
+from hfcore.errors import InputError, ResourceError
+from hfcore.geometry import parse_xyz
+from hfcore.scf import IncrementalJK, SCFOptions, plan_jk, run_rhf, solve_rhf
+from hfcore.scf.options import FALLBACK_MEMORY_MIB, MEMORY_FRACTION, default_memory_limit
+
+WATER = """3
+water
+O   0.000000   0.000000   0.117300
+H   0.000000   0.757200  -0.469200
+H   0.000000  -0.757200  -0.469200
+"""
+
+HYDROGEN_FLUORIDE = """2
+hydrogen fluoride
+F   0.000000   0.000000   0.000000
+H   0.000000   0.000000   0.917000
+"""
+
+AMMONIA = """4
+ammonia
+N   0.000000   0.000000   0.116700
+H   0.000000   0.939700  -0.272300
+H   0.813800  -0.469800  -0.272300
+H  -0.813800  -0.469800  -0.272300
+"""
+
+
+def molecule(text: str) -> hfcore.Molecule:
+    return parse_xyz(text, source="test")
+
+
+def random_symmetric(n: int, seed: int = 7) -> np.ndarray:
+    a = np.random.default_rng(seed).standard_normal((n, n))
+    return a + a.T
+
+
+@pytest.mark.parametrize(
+    "text, basis, spherical",
+    [(WATER, "6-31g*", False), (HYDROGEN_FLUORIDE, "cc-pvdz", True), (AMMONIA, "3-21g", None)],
+)
+def test_direct_jk_equals_stored_jk(text, basis, spherical):
+    # exact property: both modes contract the same screened integrals
+    # (Cartesian and spherical d, sp families, general contractions)
+    b = hfcore.build_basis(molecule(text), basis, spherical=spherical)
+    d = random_symmetric(b.n_functions)
+    j_ref, k_ref = integrals.compute_eri(b).jk(d)
+    j, k = integrals.DirectERI(b).jk(d)
+    np.testing.assert_allclose(j, j_ref, rtol=0, atol=1e-11)
+    np.testing.assert_allclose(k, k_ref, rtol=0, atol=1e-11)
+
+
+@pytest.mark.parametrize("text, basis", [(WATER, "6-31g*"), (HYDROGEN_FLUORIDE, "cc-pvdz"), (AMMONIA, "sto-3g")])
+def test_direct_energy_equals_stored_energy(text, basis):
+    mol = molecule(text)
+    b = hfcore.build_basis(mol, basis)
+    stored = run_rhf(mol, b, SCFOptions(direct=False))
+    direct = run_rhf(mol, b, SCFOptions(direct=True))
+    assert (stored.jk_mode, direct.jk_mode) == ("stored", "direct")
+    # exact property: same integrals, so the same energy within the SCF tolerance
+    assert abs(direct.energy_total - stored.energy_total) < 1e-9
+    assert direct.eri_bytes == stored.eri_bytes == integrals.estimate_eri_memory(b)
+
+
+def _direct_solve(mol, b, interval: int) -> tuple[float, IncrementalJK]:
+    s = integrals.overlap(b)
+    h = integrals.kinetic(b) + integrals.nuclear_attraction(b, mol.atomic_numbers.astype(float), mol.coordinates)
+    jk = IncrementalJK(integrals.DirectERI(b), rebuild_interval=interval)
+    result = solve_rhf(s, h, jk, mol.n_electrons, mol.nuclear_repulsion())
+    return result.energy_total, jk
+
+
+def test_incremental_builds_with_periodic_rebuild_reach_the_full_build_energy():
+    mol = molecule(WATER)
+    b = hfcore.build_basis(mol, "6-31g*")
+    e_full, jk_full = _direct_solve(mol, b, interval=1)
+    e_inc, jk_inc = _direct_solve(mol, b, interval=4)
+    assert set(jk_full.builds) == {"full"}
+    # common practice: a full rebuild every `interval` builds, density changes between
+    assert jk_inc.builds[::4] == ["full"] * len(jk_inc.builds[::4])
+    assert jk_inc.builds.count("change") == len(jk_inc.builds) - len(jk_inc.builds[::4])
+    # exact property: J and K are linear in the density
+    assert abs(e_inc - e_full) < 1e-9
+
+
+def test_small_density_changes_skip_quartets():
+    b = hfcore.build_basis(molecule(WATER), "6-31g*")
+    direct = integrals.DirectERI(b)
+    d = random_symmetric(b.n_functions)
+    direct.jk(d)
+    assert direct.last_stats.skipped_fraction == 0.0
+    direct.jk(1e-11 * d)
+    assert 0.0 < direct.last_stats.skipped_fraction < 1.0
+    j, k = direct.jk(np.zeros_like(d))
+    # exact property: no density, no quartet worth computing, J = K = 0
+    assert direct.last_stats.quartets_computed == 0
+    assert not j.any() and not k.any()
+
+
+def test_density_in_one_atom_block_screens_the_rest():
+    # exact property: quartets whose six density blocks are all zero add nothing
+    mol = molecule(WATER)
+    b = hfcore.build_basis(mol, "6-31g*")
+    n_o = sum(s.n_functions(b.spherical) for s in b.shells if s.atom == 0)
+    d = np.zeros((b.n_functions, b.n_functions))
+    d[:n_o, :n_o] = random_symmetric(n_o)
+    direct = integrals.DirectERI(b)
+    j, k = direct.jk(d)
+    j_ref, k_ref = integrals.compute_eri(b).jk(d)
+    assert direct.last_stats.skipped_fraction > 0.0
+    np.testing.assert_allclose(j, j_ref, rtol=0, atol=1e-11)
+    np.testing.assert_allclose(k, k_ref, rtol=0, atol=1e-11)
+
+
+def test_memory_estimate_is_the_size_of_the_store():
+    b = hfcore.build_basis(molecule(WATER), "6-31g*")
+    store = integrals.compute_eri(b)
+    store.jk(np.eye(b.n_functions))
+    # exact property: two packed float64 arrays of npair(npair+1)/2 elements
+    assert integrals.estimate_eri_memory(b) == store.nbytes
+    npair = 19 * 20 // 2
+    assert integrals.estimate_eri_memory(b) == 16 * npair * (npair + 1) // 2
+
+
+def test_automatic_mode_stores_when_it_fits_and_goes_direct_when_not():
+    mol = molecule(WATER)
+    b = hfcore.build_basis(mol, "sto-3g")
+    assert plan_jk(b, SCFOptions()).mode == "stored"
+    small = SCFOptions(memory_limit=integrals.estimate_eri_memory(b) / 2**20 / 2)
+    assert plan_jk(b, small).mode == "direct"
+    result = run_rhf(mol, b, small)
+    assert result.jk_mode == "direct"
+    assert result.converged
+
+
+def test_forced_stored_mode_beyond_the_budget_fails_before_allocating(monkeypatch):
+    def no_integrals(*args, **kwargs):
+        raise AssertionError("integrals were computed before the memory check")
+
+    monkeypatch.setattr(integrals, "compute_eri", no_integrals)
+    monkeypatch.setattr(integrals, "DirectERI", no_integrals)
+    with pytest.raises(ResourceError) as info:
+        run_rhf(molecule(WATER), "6-31g*", SCFOptions(direct=False, memory_limit=0.1))
+    message = str(info.value)
+    assert "0.277 MiB" in message and "0.1 MiB" in message  # exact property: 16 * 18145 bytes
+    assert "--direct" in message and "--memory" in message
+
+
+def test_default_budget_is_half_the_available_memory(tmp_path):
+    meminfo = tmp_path / "meminfo"
+    meminfo.write_text("MemTotal:       16000000 kB\nMemAvailable:    8388608 kB\n")
+    # common practice: /proc/meminfo reports kB (KiB)
+    assert default_memory_limit(str(meminfo)) == MEMORY_FRACTION * 8192.0
+    meminfo.write_text("MemTotal:       16000000 kB\n")
+    assert default_memory_limit(str(meminfo)) == FALLBACK_MEMORY_MIB
+    assert default_memory_limit(str(tmp_path / "missing")) == FALLBACK_MEMORY_MIB
+
+
+@pytest.mark.parametrize("kwargs", [{"memory_limit": 0}, {"memory_limit": -5.0}, {"rebuild_interval": 0}])
+def test_bad_memory_options_are_input_errors(kwargs):
+    with pytest.raises(InputError, match=next(iter(kwargs))):
+        SCFOptions(**kwargs)
+
+
+def run_main(*args: str) -> tuple[int, str, str]:
+    out, err = io.StringIO(), io.StringIO()
+    code = main(list(args), stdout=out, stderr=err)
+    return code, out.getvalue(), err.getvalue()
+
+
+@pytest.fixture()
+def water_file(tmp_path):
+    path = tmp_path / "water.xyz"
+    path.write_text(WATER)
+    return str(path)
+
+
+def test_cli_direct_mode_shows_in_json(water_file):
+    code, out, err = run_main("energy", water_file, "--direct", "--json", "-")
+    assert code == 0, err
+    assert err == ""
+    record = json.loads(out)
+    assert record["scf"]["jk_mode"] == "direct"
+    assert record["scf"]["eri_memory_bytes"] == 16 * 28 * 29 // 2
+    code, out, _ = run_main("energy", water_file, "--json", "-")
+    assert json.loads(out)["scf"]["jk_mode"] == "stored"
+
+
+def test_cli_report_states_the_mode_before_the_iterations(water_file):
+    code, out, _ = run_main("energy", water_file, "--memory", "1e-6")
+    assert code == 0
+    head = out[: out.index("SCF iterations")]
+    assert "direct" in head and "MiB predicted" in head
+
+
+def test_cli_stored_beyond_memory_fails_with_resource_code(water_file):
+    code, out, err = run_main("energy", water_file, "--stored", "--memory", "1e-6")
+    assert code == ResourceError.exit_code
+    assert "--direct" in err and out == ""
+
+
+def test_cli_direct_and_stored_exclude_each_other(water_file):
+    code, _, err = run_main("energy", water_file, "--direct", "--stored")
+    assert code == 2
+    assert "not allowed" in err
+
+
+class _Stream(io.StringIO):
+    def __init__(self, tty: bool) -> None:
+        super().__init__()
+        self._tty = tty
+
+    def isatty(self) -> bool:
+        return self._tty
+
+
+@pytest.mark.parametrize("tty", [True, False])
+def test_integral_progress_updates_in_place_only_on_a_terminal(monkeypatch, tty):
+    monkeypatch.setattr(_IntegralProgress, "DELAY_S", 0.0)
+    stream = _Stream(tty)
+    progress = _IntegralProgress(stream)
+    for step in range(1, 101):
+        progress(step / 100)
+    text = stream.getvalue()
+    if tty:
+        assert text.count("\r") == 100 and text.endswith("100.0 %\n")
+    else:
+        assert "\r" not in text
+        assert len(text.splitlines()) == 4  # one line per quarter
+        assert text.splitlines()[-1].endswith("100.0 % done")
+
+
+def test_api_reports_integral_progress_only_to_its_callback(capsys):
+    fractions: list[float] = []
+    run_rhf(molecule(WATER), "sto-3g", integral_progress=fractions.append)
+    assert fractions and fractions[-1] == pytest.approx(1.0)
+    assert all(a <= b for a, b in zip(fractions, fractions[1:]))
+    captured = capsys.readouterr()
+    assert captured.out == "" and captured.err == ""
