@@ -10,7 +10,6 @@ import pytest
 import scipy.linalg
 
 import hfcore
-from hfcore import elements
 from hfcore.analysis import (
     DEBYE_PER_AU,
     core_orbital_count,
@@ -24,32 +23,12 @@ from hfcore.analysis import (
 from hfcore.errors import ConvergenceError, InputError
 
 import pyscf.lo
-from pyscf import gto, mp, scf
+from pyscf import mp
+from reference import family_shells, reference_mole, reference_rhf, unit_norm_scale
 
 INPUTS = Path(__file__).resolve().parent.parent / "inputs"
 TIGHT = dict(energy_tol=1e-12, gradient_tol=1e-9)
-
-
-def reference_molecule(molecule, basis_name: str, spherical: bool):
-    """The reference library's molecule with exactly our shells (coefficients of normalised primitives)."""
-    family = hfcore.get_family(basis_name)
-    shells = {}
-    for z in sorted({int(z) for z in molecule.atomic_numbers}):
-        shells[elements.symbol(z)] = [
-            [es.l, *[[float(e), *map(float, es.coefficients[:, k])] for k, e in enumerate(es.exponents)]]
-            for es in family.element_shells(z)
-        ]
-    atoms = [(elements.symbol(int(z)), tuple(r)) for z, r in zip(molecule.atomic_numbers, molecule.coordinates)]
-    return gto.M(atom=atoms, basis=shells, unit="Bohr", charge=molecule.charge, cart=not spherical, verbose=0)
-
-
-def reference_rhf(ref_mol):
-    mf = scf.RHF(ref_mol)
-    mf.conv_tol = 1e-12
-    mf.conv_tol_grad = 1e-9
-    mf.kernel()
-    assert mf.converged
-    return mf
+REFERENCE_TIGHT = dict(conv_tol=1e-12, conv_tol_grad=1e-9)
 
 
 @pytest.fixture(scope="module", params=[("cc-pvdz", True), ("6-31g*", False)], ids=["cc-pVDZ spherical", "6-31G* Cartesian"])
@@ -58,7 +37,7 @@ def water(request):
     mol = hfcore.read_xyz(INPUTS / "water.xyz")
     basis = hfcore.build_basis(mol, name, spherical=spherical)
     result = hfcore.run_rhf(mol, basis, hfcore.SCFOptions(**TIGHT))
-    ref = reference_rhf(reference_molecule(mol, name, spherical))
+    ref = reference_rhf(reference_mole(mol, family_shells(mol, name), spherical=spherical), **REFERENCE_TIGHT)
     return result, ref
 
 
@@ -82,7 +61,7 @@ def test_lowdin_charges_match_reference(water):
     # Löwdin populations depend on the scale of each function: hfcore makes every
     # Cartesian component a unit function, the reference library does not (xy vs xx),
     # so rescale its functions to unit norm first (a no-op for spherical sets).
-    scale = 1.0 / np.sqrt(np.diag(ref.get_ovlp()))
+    scale = unit_norm_scale(ref_mol)
     s = ref.get_ovlp() * np.outer(scale, scale)
     density = ref.make_rdm1() / np.outer(scale, scale)
     # The reference library's symmetric orthogonaliser S^-1/2; D in that basis is S^1/2 D S^1/2.

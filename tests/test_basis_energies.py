@@ -10,9 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from pyscf import gto, scf
+from reference import family_shells, reference_energy, reference_mole
 
-from hfcore import elements
 from hfcore.basis import build_basis
 from hfcore.basis.library import find_family
 from hfcore.geometry import Molecule
@@ -71,31 +70,9 @@ def _molecule(system: str) -> Molecule:
     return Molecule(np.array(z), np.array(xyz), charge, source=system)
 
 
-def _reference_shells(family_name: str, z: int) -> list:
-    """hfcore's shells of element z as the reference library's shell lists."""
-    return [
-        [es.l, *([e, *es.coefficients[:, k]] for k, e in enumerate(es.exponents))]
-        for es in find_family(family_name).element_shells(z)
-    ]
-
-
-def _reference_energy(molecule: Molecule, basis_names: dict[int, str], spherical: bool) -> float:
-    """RHF energy from the reference library, given element -> hfcore basis name."""
-    symbols = [elements.symbol(int(z)) for z in molecule.atomic_numbers]
-    mol = gto.M(
-        atom=[(s, tuple(r)) for s, r in zip(symbols, molecule.coordinates)],
-        unit="Bohr",
-        basis={elements.symbol(z): _reference_shells(name, z) for z, name in basis_names.items()},
-        charge=molecule.charge,
-        spin=0,
-        cart=not spherical,
-        verbose=0,
-    )
-    mf = scf.RHF(mol)
-    mf.conv_tol = 1e-11
-    energy = mf.kernel()
-    assert mf.converged
-    return float(energy)
+def _reference_energy(molecule: Molecule, basis_names: str | dict[str, str], spherical: bool) -> float:
+    """RHF energy from the reference library, given hfcore basis name(s) per element symbol."""
+    return reference_energy(reference_mole(molecule, family_shells(molecule, basis_names), spherical=spherical))
 
 
 @pytest.mark.parametrize("basis_name, system", CASES, ids=[f"{b}-{s}" for b, s in CASES])
@@ -109,7 +86,7 @@ def test_rhf_energy_matches_reference_library_with_the_same_shells(basis_name, s
     result = run_rhf(molecule, basis, guess="core")
     assert result.converged
     # source: reference library run (PySCF), same shells, same geometry, same cart/spherical choice
-    expected = _reference_energy(molecule, {int(z): basis_name for z in set(molecule.atomic_numbers)}, basis.spherical)
+    expected = _reference_energy(molecule, basis_name, basis.spherical)
     assert abs(result.energy_total - expected) < 1e-8
 
 
@@ -119,5 +96,5 @@ def test_mixed_basis_energy_matches_reference_library():
     result = run_rhf(molecule, basis)
     assert result.converged
     # source: reference library run (PySCF), same mixed shells, spherical as the main set
-    expected = _reference_energy(molecule, {8: "cc-pVDZ", 1: "6-31G"}, spherical=True)
+    expected = _reference_energy(molecule, {"O": "cc-pVDZ", "H": "6-31G"}, spherical=True)
     assert abs(result.energy_total - expected) < 1e-8

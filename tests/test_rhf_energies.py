@@ -9,11 +9,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from pyscf import gto, scf
+from reference import family_shells, named_reference_mole, reference_energy, reference_mole
 from scipy.spatial.transform import Rotation
 
-from hfcore import elements
-from hfcore.basis import build_basis, get_family
+from hfcore.basis import build_basis
 from hfcore.geometry import Molecule
 from hfcore.scf import run_rhf
 
@@ -38,30 +37,6 @@ def _molecule(system: str) -> Molecule:
     return Molecule(np.array(z), np.array(xyz, dtype=float), charge, source=system)
 
 
-def _reference_mol(molecule: Molecule, basis) -> gto.Mole:
-    symbols = [elements.symbol(int(z)) for z in molecule.atomic_numbers]
-    atoms = [[s, tuple(r)] for s, r in zip(symbols, molecule.coordinates)]
-    return gto.M(atom=atoms, unit="Bohr", basis=basis, charge=molecule.charge, cart=True, verbose=0)
-
-
-def _hfcore_shells_for_reference(name: str, molecule: Molecule) -> dict[str, list]:
-    """hfcore's fitted shells per element, as the reference library's shell lists."""
-    family = get_family(name)
-    out = {}
-    for z in sorted(set(int(z) for z in molecule.atomic_numbers)):
-        out[elements.symbol(z)] = [
-            [es.l, *([e, *es.coefficients[:, k]] for k, e in enumerate(es.exponents))]
-            for es in family.element_shells(z)
-        ]
-    return out
-
-
-def _reference_energy(mol: gto.Mole) -> float:
-    mf = scf.RHF(mol)
-    mf.conv_tol = 1e-11
-    return float(mf.kernel())
-
-
 @pytest.fixture(scope="module")
 def energies() -> dict[tuple[str, str], float]:
     """hfcore's RHF energy per (basis, system), computed once."""
@@ -81,18 +56,18 @@ CASES = [("sto-3g", s) for s in STO3G_SYSTEMS] + [("sto-6g", s) for s in STO6G_S
 @pytest.mark.parametrize("name, system", CASES)
 def test_energy_matches_reference_library_with_the_same_shells(energies, name, system):
     molecule = _molecule(system)
-    mol = _reference_mol(molecule, _hfcore_shells_for_reference(name, molecule))
+    mol = reference_mole(molecule, family_shells(molecule, name), spherical=False)
     # source: reference library run (PySCF), same shells and coordinates, conv_tol 1e-11
-    assert energies[name, system] == pytest.approx(_reference_energy(mol), abs=1e-8)
+    assert energies[name, system] == pytest.approx(reference_energy(mol), abs=1e-8)
 
 
 @pytest.mark.parametrize("name, system", CASES)
 def test_energy_is_close_to_reference_library_named_set(energies, name, system):
     molecule = _molecule(system)
-    mol = _reference_mol(molecule, name)
+    mol = named_reference_mole(molecule, name, spherical=False)
     # source: reference library run (PySCF) with its own named STO-nG set; our
     # fit reproduces the published contraction to about 1e-6 (common practice)
-    assert energies[name, system] == pytest.approx(_reference_energy(mol), abs=1e-6)
+    assert energies[name, system] == pytest.approx(reference_energy(mol), abs=1e-6)
 
 
 def test_energy_is_invariant_under_translation_and_rotation(energies):

@@ -12,6 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 import pytest
 from pyscf import gto, scf
+from reference import reference_energy, reference_rhf
 
 from hfcore.errors import ConvergenceError, InputError
 from hfcore.scf import DIIS, DenseJK, FockStep, Orthogonaliser, SCFIteration, SCFOptions, solve_rhf
@@ -35,9 +36,7 @@ class Matrices:
         )
 
     def reference_energy(self) -> float:
-        mf = scf.RHF(self.mol)
-        mf.conv_tol = 1e-11
-        return float(mf.kernel())
+        return reference_energy(self.mol)
 
 
 def _matrices(atom: str, basis, charge: int = 0) -> Matrices:
@@ -167,10 +166,8 @@ def test_near_linear_dependence_is_dropped_and_counted(monkeypatch):
     assert result.coefficients.shape == (m.mol.nao, m.mol.nao - 2)
     monkeypatch.setattr(scf.hf, "remove_overlap_zero_eigenvalue", True)
     monkeypatch.setattr(scf.hf, "overlap_zero_eigenvalue_threshold", 1e-7)
-    mf = scf.RHF(m.mol)
-    mf.conv_tol = 1e-11
     # source: reference library run (PySCF) with canonical orthogonalisation at the same threshold
-    assert result.energy_total == pytest.approx(mf.kernel(), abs=1e-8)
+    assert result.energy_total == pytest.approx(reference_energy(m.mol), abs=1e-8)
 
 
 def test_orthogonaliser_gives_an_orthonormal_basis(water_dz):
@@ -281,11 +278,9 @@ def _driver_molecule(name: str):
 
 def _reference_iterations(name: str) -> int:
     body, charge = DRIVER_MOLECULES[name]
-    mf = scf.RHF(gto.M(atom=body.replace("\n", ";"), basis="sto-3g", charge=charge, verbose=0))
-    mf.conv_tol, mf.conv_tol_grad = 1e-10, 1e-7
+    mol = gto.M(atom=body.replace("\n", ";"), basis="sto-3g", charge=charge, verbose=0)
     cycles = []
-    mf.callback = lambda env: cycles.append(env["cycle"])
-    mf.kernel()
+    reference_rhf(mol, conv_tol=1e-10, conv_tol_grad=1e-7, callback=lambda env: cycles.append(env["cycle"]))
     return cycles[-1] + 1
 
 
