@@ -3,6 +3,7 @@
 import numpy as np
 import pytest
 from pyscf import gto
+from reference import reference_mole, unit_norm_scale
 
 from hfcore.basis.shells import BasisSet, ElementShell, Shell, cartesian_components
 from hfcore.integrals import (
@@ -15,7 +16,9 @@ from hfcore.integrals import (
     overlap,
     schwarz_bounds,
 )
+from hfcore.elements import atomic_number
 from hfcore.errors import InputError, ResourceError
+from hfcore.geometry import Molecule
 from hfcore.integrals import two_electron
 from hfcore.integrals.spherical import _cartesian_gram
 
@@ -44,6 +47,7 @@ _SHELLS = {
         ElementShell(4, [1.2], [[1.0]]),
     ],
 }
+_MOLECULE = Molecule(np.array([atomic_number(sym) for sym, _ in _ATOMS]), np.array([r for _, r in _ATOMS]))
 TOL = 1e-10
 
 
@@ -56,25 +60,15 @@ def _hfcore_basis(atoms, shells, spherical: bool) -> BasisSet:
     return BasisSet("test", tuple(placed), spherical)
 
 
-def _reference_mol(atoms, shells, spherical: bool) -> gto.Mole:
-    basis = {
-        sym: [[es.l] + [[e] + list(es.coefficients[:, i]) for i, e in enumerate(es.exponents)] for es in shs]
-        for sym, shs in shells.items()
-    }
-    electrons = sum(gto.charge(sym) for sym, _ in atoms)
-    return gto.M(atom=[[s, r] for s, r in atoms], basis=basis, unit="Bohr", cart=not spherical, spin=electrons % 2)
-
-
 class Case:
     """hfcore basis, reference molecule and the rescaling to unit-norm functions."""
 
     def __init__(self, spherical: bool):
         self.spherical = spherical
         self.basis = _hfcore_basis(_ATOMS, _SHELLS, spherical)
-        self.mol = _reference_mol(_ATOMS, _SHELLS, spherical)
+        self.mol = reference_mole(_MOLECULE, _SHELLS, spherical=spherical)
         self.suffix = "_sph" if spherical else "_cart"
-        # The reference library's Cartesian functions are not all unit-normalised; hfcore's are.
-        self.scale = 1.0 / np.sqrt(np.diag(self.mol.intor("int1e_ovlp" + self.suffix)))
+        self.scale = unit_norm_scale(self.mol)
 
     def ref1(self, name: str) -> np.ndarray:
         m = self.mol.intor(name + self.suffix)
@@ -147,8 +141,8 @@ def test_cross_overlap_matches_reference_library(case):
         "Be": [ElementShell(3, [0.6], [[1.0]])],
     }
     other = _hfcore_basis(_ATOMS, other_shells, case.spherical)
-    other_mol = _reference_mol(_ATOMS, other_shells, case.spherical)
-    other_scale = 1.0 / np.sqrt(np.diag(other_mol.intor("int1e_ovlp" + case.suffix)))
+    other_mol = reference_mole(_MOLECULE, other_shells, spherical=case.spherical)
+    other_scale = unit_norm_scale(other_mol)
     ref = gto.intor_cross("int1e_ovlp" + case.suffix, case.mol, other_mol) * case.scale[:, None] * other_scale[None, :]
     # source: reference library run (PySCF intor_cross int1e_ovlp), same shells
     np.testing.assert_allclose(overlap(case.basis, other), ref, rtol=0, atol=TOL)
