@@ -42,7 +42,7 @@ def family_shells(molecule: Molecule, names: str | Mapping[str, str]) -> dict[st
     return {s: get_family(per_element[s]).element_shells(z) for s, z in numbers.items()}
 
 
-def shell_lists(shells: Sequence[ElementShell]) -> list[list]:
+def _shell_lists(shells: Sequence[ElementShell]) -> list[list]:
     """ElementShells as the reference library's shell lists ``[l, [exponent, c_1, ..., c_k], ...]``."""
     return [
         [es.l, *([float(e), *map(float, es.coefficients[:, k])] for k, e in enumerate(es.exponents))]
@@ -67,7 +67,7 @@ def reference_mole(molecule: Molecule, shells: Mapping[str, Sequence[ElementShel
     -------
     pyscf.gto.Mole
     """
-    return _mole(molecule, {s: shell_lists(shs) for s, shs in shells.items()}, spherical)
+    return _mole(molecule, {s: _shell_lists(shs) for s, shs in shells.items()}, spherical)
 
 
 def named_reference_mole(molecule: Molecule, name: str, *, spherical: bool) -> gto.Mole:
