@@ -642,34 +642,44 @@ class _Accumulator:
     """Scatter-adds into J (packed pairs) and the half-exchange N, flushed in batches.
 
     One bincount per batch instead of one per tile keeps the cost of the
-    nbf^2-long output arrays off every small tile.
+    nbf^2-long output arrays off every small tile; tiles write their
+    exchange terms straight into reused buffers.
     """
 
-    _FLUSH = 1 << 22
+    _BATCH = 1 << 21
 
     def __init__(self, n: int) -> None:
         self.n = n
         self.j = np.zeros(n * (n + 1) // 2)
         self.k = np.zeros(n * n)
         self._jparts: list[tuple[np.ndarray, np.ndarray]] = []
-        self._kparts: list[tuple[np.ndarray, np.ndarray]] = []
-        self._size = 0
+        self._kindex = np.empty(self._BATCH, dtype=np.intp)
+        self._kvalue = np.empty(self._BATCH)
+        self._used = 0
 
-    def add(self, j_index: np.ndarray, j_value: np.ndarray, k_index: np.ndarray, k_value: np.ndarray) -> None:
-        self._jparts.append((j_index, j_value))
-        self._kparts.append((k_index, k_value))
-        self._size += k_index.size
-        if self._size >= self._FLUSH:
+    def add_j(self, index: np.ndarray, value: np.ndarray) -> None:
+        self._jparts.append((index, value))
+
+    def k_slot(self, rows: int, cols: int) -> tuple[np.ndarray, np.ndarray]:
+        """Index and value buffers, shape (rows, cols) each, for exchange terms to add."""
+        size = rows * cols
+        if self._used + size > self._kindex.size:
             self.flush()
+            if size > self._kindex.size:
+                self._kindex = np.empty(size, dtype=np.intp)
+                self._kvalue = np.empty(size)
+        start, self._used = self._used, self._used + size
+        return (self._kindex[start : self._used].reshape(rows, cols), self._kvalue[start : self._used].reshape(rows, cols))
 
     def flush(self) -> None:
-        for parts, out in ((self._jparts, self.j), (self._kparts, self.k)):
-            if parts:
-                index = np.concatenate([p[0].ravel() for p in parts])
-                value = np.concatenate([p[1].ravel() for p in parts])
-                out += np.bincount(index, value, minlength=out.size)
-                parts.clear()
-        self._size = 0
+        if self._jparts:
+            index = np.concatenate([p[0] for p in self._jparts])
+            value = np.concatenate([p[1] for p in self._jparts])
+            self.j += np.bincount(index, value, minlength=self.j.size)
+            self._jparts.clear()
+        if self._used:
+            self.k += np.bincount(self._kindex[: self._used], self._kvalue[: self._used], minlength=self.k.size)
+            self._used = 0
 
     def result(self) -> tuple[np.ndarray, np.ndarray]:
         """(J, K), each symmetric (nbf, nbf)."""
@@ -826,16 +836,14 @@ def _contract(
     wv = block.reshape(ih.size, kh.size)
     wv = wv * (bra.weight[brows].reshape(-1, 1) * (scale * ket.weight[krows].reshape(1, -1)))
     dflat = d.ravel()
-    j_bra = 2.0 * (wv @ dflat[kh * n + kl])
-    j_ket = 2.0 * (dflat[ih * n + il] @ wv)
-    j_index = np.concatenate([bra.pairs.pidx[brows].ravel(), ket.pairs.pidx[krows].ravel()])
-    k_index = []
-    k_value = []
+    acc.add_j(bra.pairs.pidx[brows].ravel(), 2.0 * (wv @ dflat[kh * n + kl]))
+    acc.add_j(ket.pairs.pidx[krows].ravel(), 2.0 * (dflat[ih * n + il] @ wv))
     for r1, r2 in ((ih, il), (il, ih)):
+        r1n = r1[:, None] * n
         for c1, c2 in ((kh, kl), (kl, kh)):
-            k_index.append(r1[:, None] * n + c1[None, :])
-            k_value.append(wv * dflat[r2[:, None] * n + c2[None, :]])
-    acc.add(j_index, np.concatenate([j_bra, j_ket]), np.concatenate(k_index), np.concatenate(k_value))
+            index, value = acc.k_slot(ih.size, kh.size)
+            np.add(r1n, c1[None, :], out=index)
+            np.multiply(wv, d[np.ix_(r2, c2)], out=value)
 
 
 def eri_tensor(basis: BasisSet) -> np.ndarray:
