@@ -10,6 +10,8 @@ from __future__ import annotations
 
 from abc import ABC, abstractmethod
 
+from .. import elements
+from ..errors import BasisError
 from .shells import ElementShell
 
 
@@ -54,3 +56,29 @@ class BasisFamily(ABC):
 
     def __repr__(self) -> str:
         return f"<{type(self).__name__} {self.name}>"
+
+
+class CachedFamily(BasisFamily):
+    """A family that reads each element's shells once, on first use.
+
+    Subclasses implement :meth:`elements` and :meth:`_read_element_shells`,
+    and may set :attr:`origin` to prefix the missing-element message (e.g.
+    with a file name).
+    """
+
+    origin: str = ""
+
+    def __init__(self) -> None:
+        self._cache: dict[int, list[ElementShell]] = {}
+
+    @abstractmethod
+    def _read_element_shells(self, z: int) -> list[ElementShell]:
+        """Read (and validate) the shells of element ``z``, which the family defines."""
+
+    def element_shells(self, z: int) -> list[ElementShell]:
+        if z not in self.elements():
+            raise BasisError(f"{self.origin}basis {self.name} does not define element {elements.symbol(z)}")
+        if z not in self._cache:
+            self._cache[z] = self._read_element_shells(z)
+        # A copy, so a caller that edits its list leaves the cache intact.
+        return list(self._cache[z])

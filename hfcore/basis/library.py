@@ -37,7 +37,7 @@ from typing import Any
 
 from .. import elements
 from ..errors import BasisError
-from .family import BasisFamily
+from .family import BasisFamily, CachedFamily
 from .shells import ElementShell
 from .userfile import DocumentFamily, citation_text, load_basis_file, parse_element_shells
 
@@ -254,7 +254,7 @@ def published_citations(references: Sequence[Mapping[str, Any]]) -> list[dict[st
     return list(by_key.values())
 
 
-class BSEFamily(BasisFamily):
+class BSEFamily(CachedFamily):
     """A published set looked up in the installed ``basis_set_exchange`` package.
 
     Shells are fetched per element on first use, converted by
@@ -269,6 +269,7 @@ class BSEFamily(BasisFamily):
     """
 
     def __init__(self, module: Any, name: str) -> None:
+        super().__init__()
         self._bse = module
         meta = module.get_metadata()[module.misc.transform_basis_name(name)]
         self.name = meta["display_name"]
@@ -276,7 +277,6 @@ class BSEFamily(BasisFamily):
         self._bse_name = name
         zs = (int(z) for z in meta["versions"][meta["latest_version"]]["elements"])
         self._elements = frozenset(z for z in zs if z <= elements.MAX_Z)
-        self._cache: dict[int, list[ElementShell]] = {}
         self._citation: str | None = None
 
     @property
@@ -289,17 +289,12 @@ class BSEFamily(BasisFamily):
     def elements(self) -> frozenset[int]:
         return self._elements
 
-    def element_shells(self, z: int) -> list[ElementShell]:
+    def _read_element_shells(self, z: int) -> list[ElementShell]:
         symbol = elements.symbol(z)
-        if z not in self._elements:
-            raise BasisError(f"basis {self.name} does not define element {symbol}")
-        if z not in self._cache:
-            data = self._bse.get_basis(self._bse_name, elements=[z], header=False)["elements"][str(z)]
-            if data.get("ecp_potentials"):
-                raise BasisError(f"basis {self.name} uses an effective core potential for {symbol}, which hfcore does not support")
-            records = shells_from_published(data.get("electron_shells", []))
-            self._cache[z] = parse_element_shells(symbol, records, f"basis {self.name}")
-        return list(self._cache[z])
+        data = self._bse.get_basis(self._bse_name, elements=[z], header=False)["elements"][str(z)]
+        if data.get("ecp_potentials"):
+            raise BasisError(f"basis {self.name} uses an effective core potential for {symbol}, which hfcore does not support")
+        return parse_element_shells(symbol, shells_from_published(data.get("electron_shells", [])), f"basis {self.name}")
 
 
 def _close_names(name: str, candidates: Sequence[str]) -> str:

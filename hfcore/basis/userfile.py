@@ -30,7 +30,7 @@ import numpy as np
 
 from .. import elements
 from ..errors import BasisError
-from .family import BasisFamily
+from .family import BasisFamily, CachedFamily
 from .shells import L_LETTERS, MAX_L, ElementShell
 
 #: The value of the ``"format"`` key that marks a document as ours.
@@ -170,7 +170,7 @@ def citation_text(citations: Sequence[Mapping[str, Any]]) -> str:
     return "; ".join(parts)
 
 
-class DocumentFamily(BasisFamily):
+class DocumentFamily(CachedFamily):
     """A basis family held in one document of hfcore's format.
 
     Element shells are validated on first use and cached.
@@ -186,23 +186,20 @@ class DocumentFamily(BasisFamily):
     """
 
     def __init__(self, document: Mapping[str, Any], source: str, default_name: str = "") -> None:
+        super().__init__()
         self.name, self.default_spherical, self.citation = _header(document, source, default_name or source)
         self.description = str(document.get("description", ""))
         self.source = source
+        self.origin = f"{source}: "
         self._document = document
         self._keys = element_keys(document, source)
-        self._cache: dict[int, list[ElementShell]] = {}
 
     def elements(self) -> frozenset[int]:
         return frozenset(self._keys)
 
-    def element_shells(self, z: int) -> list[ElementShell]:
-        if z not in self._keys:
-            raise BasisError(f"{self.source}: basis {self.name} does not define element {elements.symbol(z)}")
-        if z not in self._cache:
-            key = self._keys[z]
-            self._cache[z] = parse_element_shells(key, self._document["elements"][key], self.source)
-        return list(self._cache[z])
+    def _read_element_shells(self, z: int) -> list[ElementShell]:
+        key = self._keys[z]
+        return parse_element_shells(key, self._document["elements"][key], self.source)
 
     def validate(self) -> None:
         """Parse every element now, so a bad entry fails at load time."""
