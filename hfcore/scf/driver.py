@@ -13,6 +13,7 @@ from ..basis import build_basis
 from ..basis.shells import BasisSet
 from ..errors import ConvergenceError, InputError, ResourceError
 from ..geometry import Molecule
+from ..integrals.two_electron import STORE_LIMIT_BYTES
 from .guess import sad_density
 from .jk import IncrementalJK, JKBuilder
 from .options import SCFOptions
@@ -136,7 +137,8 @@ class JKPlan:
         Memory the stored integrals need (bytes), from
         :func:`hfcore.integrals.estimate_eri_memory`.
     limit_bytes : int
-        The budget they were measured against (bytes).
+        The budget they were measured against (bytes): ``memory_limit``,
+        capped at :data:`hfcore.integrals.two_electron.STORE_LIMIT_BYTES`.
     """
 
     mode: str
@@ -165,7 +167,7 @@ def plan_jk(basis: BasisSet, options: SCFOptions | None = None) -> JKPlan:
     """
     options = options or SCFOptions()
     need = integrals.estimate_eri_memory(basis)
-    limit = options.memory_limit_bytes
+    limit = min(options.memory_limit_bytes, STORE_LIMIT_BYTES)
     if options.direct is None:
         mode = "stored" if need <= limit else "direct"
     else:
