@@ -326,8 +326,8 @@ def _prepare(basis: BasisSet, threshold: float) -> list[_EriPairs]:
     return out
 
 
-def _tile(bra: _EriPairs, brows: slice, ket: _EriPairs, krows: slice) -> np.ndarray:
-    """Contracted integrals of a tile, shape (nb, fb, nk * fk)."""
+def _tile(bra: _EriPairs, brows: slice | np.ndarray, ket: _EriPairs, krows: slice | np.ndarray) -> np.ndarray:
+    """Contracted integrals of a tile of bra and ket rows (slices or index arrays), shape (nb, fb, nk * fk)."""
     L = bra.L + ket.L
     p = bra.p[brows]  # (nb, ip)
     q = ket.p[krows]  # (nk, jq)
@@ -698,10 +698,11 @@ class DirectERI:
     The integrals come in the same tiles as :func:`compute_eri` builds, each
     contracted with the density at once and dropped, so memory stays at a
     few nbf^2 arrays. Every unique integral is used once with all eight of
-    its index permutations; a tile is skipped when its Schwarz bound times
-    the largest density element over the six shell-family blocks it touches
-    (ab, cd, ac, ad, bc, bd) is below the threshold, which makes builds from
-    small density changes cheap.
+    its index permutations. A quartet counts as negligible when its Schwarz
+    bound Q_ab Q_cd times the largest density element over the six
+    shell-family blocks it touches (ab, cd, ac, ad, bc, bd) is below the
+    threshold; tiles shrink to the bra and ket rows that hold a quartet
+    that is not, which makes builds from small density changes cheap.
 
     Parameters
     ----------
@@ -776,15 +777,15 @@ class DirectERI:
                     # bra-ket pair appears in both orders and the 1/2 weight holds.
                     count = int(np.sum(qb * ket.pairs.q[krows] >= self.threshold))
                     krows = slice(krows.start, krows.start + max(count, 1))
-                quartets = (brows.stop - brows.start) * (krows.stop - krows.start) * per
-                counts[0] += quartets
+                counts[0] += (brows.stop - brows.start) * (krows.stop - krows.start) * per
                 if qb * ket.pairs.q[krows.start] * dmax < self.threshold:
                     continue
-                if _weighted_bound(bra, brows, ket, krows, block_max) < self.threshold:
+                rows, cols = _significant(bra, brows, ket, krows, block_max, self.threshold, diagonal)
+                if rows.size == 0 or cols.size == 0:
                     continue
-                counts[1] += quartets
-                block = _tile(bra.pairs, brows, ket.pairs, krows)
-                _contract(bra, brows, ket, krows, block, 0.5 if diagonal else 1.0, d, acc)
+                counts[1] += rows.size * cols.size * per
+                block = _tile(bra.pairs, rows, ket.pairs, cols)
+                _contract(bra, rows, ket, cols, block, 0.5 if diagonal else 1.0, d, acc)
 
 
 def _function_families(basis: BasisSet) -> np.ndarray:
@@ -807,18 +808,30 @@ def _block_max(absd: np.ndarray, families: np.ndarray) -> np.ndarray:
     return out
 
 
-def _weighted_bound(bra: _DirectGroup, brows: slice, ket: _DirectGroup, krows: slice, m: np.ndarray) -> float:
-    """Largest Q_ab Q_cd max|D| over the tile, D over the blocks ab, cd, ac, ad, bc, bd."""
+def _significant(
+    bra: _DirectGroup, brows: slice, ket: _DirectGroup, krows: slice, m: np.ndarray, threshold: float, diagonal: bool
+) -> tuple[np.ndarray, np.ndarray]:
+    """Bra and ket rows of a tile with some Q_ab Q_cd max|D| at or above the threshold.
+
+    The density bound of a quartet takes the largest |D| over the family
+    blocks ab, cd, ac, ad, bc, bd, the ones J and K read. In a diagonal tile
+    the bound matrix is symmetric and both sides keep the same rows, so
+    each bra-ket pair still appears in both orders.
+    """
     a, b = bra.fam_a[brows], bra.fam_b[brows]
     c, d = ket.fam_a[krows], ket.fam_b[krows]
     dm = np.maximum(m[a, b][:, None], m[c, d][None, :])
     for x in (a, b):
         dm = np.maximum(dm, np.maximum(m[x][:, c], m[x][:, d]))
-    return float(np.max(bra.pairs.q[brows][:, None] * ket.pairs.q[krows][None, :] * dm))
+    keep = bra.pairs.q[brows][:, None] * ket.pairs.q[krows][None, :] * dm >= threshold
+    row_keep, col_keep = keep.any(axis=1), keep.any(axis=0)
+    if diagonal:
+        row_keep = col_keep = row_keep | col_keep
+    return np.flatnonzero(row_keep) + brows.start, np.flatnonzero(col_keep) + krows.start
 
 
 def _contract(
-    bra: _DirectGroup, brows: slice, ket: _DirectGroup, krows: slice, block: np.ndarray, scale: float,
+    bra: _DirectGroup, brows: np.ndarray, ket: _DirectGroup, krows: np.ndarray, block: np.ndarray, scale: float,
     d: np.ndarray, acc: _Accumulator,
 ) -> None:
     """Add a tile's integrals, with all eight index permutations, to J and K.
