@@ -669,7 +669,8 @@ class _Accumulator:
                 self._kindex = np.empty(size, dtype=np.intp)
                 self._kvalue = np.empty(size)
         start, self._used = self._used, self._used + size
-        return (self._kindex[start : self._used].reshape(rows, cols), self._kvalue[start : self._used].reshape(rows, cols))
+        window = slice(start, self._used)
+        return self._kindex[window].reshape(rows, cols), self._kvalue[window].reshape(rows, cols)
 
     def flush(self) -> None:
         if self._jparts:
@@ -697,7 +698,7 @@ class DirectERI:
 
     The integrals come in the same tiles as :func:`compute_eri` builds, each
     contracted with the density at once and dropped, so memory stays at a
-    few nbf^2 arrays. Every unique integral is used once with all eight of
+    few nbf^2 arrays plus a 32 MiB scatter buffer. Every unique integral is used once with all eight of
     its index permutations. A quartet counts as negligible when its Schwarz
     bound Q_ab Q_cd times the largest density element over the six
     shell-family blocks it touches (ab, cd, ac, ad, bc, bd) is below the
