@@ -240,13 +240,17 @@ def published_citations(references: Sequence[Mapping[str, Any]]) -> list[dict[st
     -------
     list of dict
         ``{"text": str, "doi": str, "elements": [symbols]}``, one per distinct
-        reference, in first-seen order.
+        journal article, in first-seen order. Records of other kinds (a
+        software manual standing in for a paper) are left out: hfcore cites
+        publications only.
     """
     by_key: dict[str, dict[str, Any]] = {}
     for group in references:
         symbols = [elements.symbol(int(z)) for z in group["elements"]]
         for info in group["reference_info"]:
             for key, data in info["reference_data"]:
+                if data.get("_entry_type", "article") != "article":
+                    continue
                 if key not in by_key:
                     text, doi = _reference_text(data)
                     by_key[key] = {"text": text, "doi": doi, "elements": []}
