@@ -318,13 +318,13 @@ class _IntegralProgress:
     def __call__(self, fraction: float) -> None:
         if time.perf_counter() - self.started < self.DELAY_S and fraction < 1.0:
             return
+        if fraction <= self.shown or (self.shown == 0.0 and fraction >= 1.0):
+            return  # nothing new, or a pass that ended before the first report needs none
         if self.tty:
-            if self.shown == 0.0 and fraction >= 1.0:
-                return  # a pass that ended before the first report needs none
             end = "\n" if fraction >= 1.0 else ""
             print(f"\rhfcore: two-electron integrals {100 * fraction:5.1f} %", end=end, file=self.stream, flush=True)
             self.shown = fraction
-        elif fraction - self.shown >= 0.25 or (fraction >= 1.0 and self.shown > 0.0):
+        elif fraction - self.shown >= 0.25 or fraction >= 1.0:
             print(f"hfcore: two-electron integrals {100 * fraction:5.1f} % done", file=self.stream, flush=True)
             self.shown = fraction
 

@@ -242,6 +242,15 @@ def test_integral_progress_updates_in_place_only_on_a_terminal(monkeypatch, tty)
         assert text.splitlines()[-1].endswith("100.0 % done")
 
 
+@pytest.mark.parametrize("tty", [True, False])
+def test_a_pass_that_ends_before_the_delay_prints_nothing(tty):
+    stream = _Stream(tty)
+    progress = _IntegralProgress(stream)
+    for step in range(1, 5):
+        progress(step / 4)
+    assert stream.getvalue() == ""
+
+
 def test_api_reports_integral_progress_only_to_its_callback(capsys):
     fractions: list[float] = []
     run_rhf(molecule(WATER), "sto-3g", integral_progress=fractions.append)
