@@ -13,6 +13,7 @@ import argparse
 import contextlib
 import sys
 import time
+import typing
 from collections.abc import Callable, Iterable, Sequence
 from typing import Any, TextIO
 
@@ -55,6 +56,15 @@ def _charge(text: str) -> int:
         return int(text)
     except ValueError:
         raise argparse.ArgumentTypeError(f"the charge must be a whole number, found {text!r}") from None
+
+
+class _Parser(argparse.ArgumentParser):
+    """An argument parser whose usage errors are one line, like every other error."""
+
+    def error(self, message: str) -> typing.NoReturn:
+        command = self.prog.partition(" ")[2]
+        where = f"{command}: " if command else ""
+        self.exit(2, f"hfcore: error: {where}{message} (see '{self.prog} --help')\n")
 
 
 def _add_geometry_arguments(parser: argparse.ArgumentParser) -> None:
@@ -104,7 +114,7 @@ def _add_json_argument(parser: argparse.ArgumentParser) -> None:
 
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser of the ``hfcore`` command."""
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="hfcore",
         description="Restricted Hartree-Fock energies of small closed-shell molecules.",
         epilog="Exit codes: 0 success, 2 bad input, 3 basis problem, 4 SCF not converged, "
