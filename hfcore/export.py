@@ -63,6 +63,17 @@ def check_output_path(path: str | os.PathLike) -> str:
     return target
 
 
+def _creation_mode() -> int:
+    """The permissions a newly created file gets under the process umask.
+
+    Temporary files start private (0600); the finished output should carry
+    the permissions any other new file of the user would.
+    """
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
 def write_files_atomically(files: Mapping[str, bytes]) -> None:
     """Write several files so that either all of them appear or none does.
 
@@ -81,11 +92,13 @@ def write_files_atomically(files: Mapping[str, bytes]) -> None:
     """
     staged: list[tuple[str, str]] = []
     current = ""
+    mode = _creation_mode()
     try:
         for current, data in files.items():
             directory = os.path.dirname(os.path.abspath(current))
             handle, temp = tempfile.mkstemp(prefix=".hfcore-", suffix=".part", dir=directory)
             staged.append((temp, current))
+            os.chmod(temp, mode)
             with os.fdopen(handle, "wb") as out:
                 out.write(data)
                 out.flush()

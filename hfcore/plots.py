@@ -6,10 +6,11 @@ imported only when a figure is drawn.
 
 from __future__ import annotations
 
+import io
 import os
-import tempfile
 
 from .errors import InputError
+from .export import write_file_atomically
 
 
 def _pyplot():
@@ -25,17 +26,10 @@ def _pyplot():
 
 
 def _save_atomically(figure, path: str | os.PathLike) -> None:
-    """Write the figure to a temporary file beside ``path``, then rename it into place."""
-    target = os.fspath(path)
-    directory = os.path.dirname(os.path.abspath(target))
-    handle, temporary = tempfile.mkstemp(prefix=".tmp-", suffix=".png", dir=directory)
-    os.close(handle)
-    try:
-        figure.savefig(temporary, format="png", dpi=120)
-        os.replace(temporary, target)
-    except BaseException:
-        os.unlink(temporary)
-        raise
+    """Render the figure as PNG in memory, then write it whole (see :mod:`hfcore.export`)."""
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="png", dpi=120)
+    write_file_atomically(path, buffer.getvalue())
 
 
 def _series(rows) -> dict[str, list]:

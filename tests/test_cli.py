@@ -408,6 +408,18 @@ def test_outputs_replace_existing_files_whole(water):
     assert only_inputs_left(water.parent, water.name, "w.json")
 
 
+def test_outputs_get_the_permissions_of_any_new_file(water):
+    previous = os.umask(0o027)
+    try:
+        code, _, err = run_main("energy", str(water), "--json", str(water.parent / "w.json"), "--npz", str(water.parent / "w.npz"))
+    finally:
+        os.umask(previous)
+    assert code == 0, err
+    for name in ("w.json", "w.npz"):
+        # common practice: a new file gets 0666 less the umask, not a temporary file's private 0600
+        assert (water.parent / name).stat().st_mode & 0o777 == 0o640
+
+
 def test_staging_failure_writes_no_file_at_all(tmp_path):
     files = {str(tmp_path / "a.json"): b"{}", str(tmp_path / "missing" / "b.npz"): b"x"}
     with pytest.raises(InputError, match="b.npz: cannot write"):
