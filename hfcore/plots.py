@@ -8,9 +8,15 @@ from __future__ import annotations
 
 import io
 import os
+from collections.abc import Sequence
+from typing import TYPE_CHECKING
 
 from .errors import InputError
 from .export import write_file_atomically
+
+if TYPE_CHECKING:
+    from .analysis.compare import BasisComparison
+    from .basis.sto import STOFit
 
 
 def _pyplot():
@@ -43,7 +49,7 @@ def _series(rows) -> dict[str, list]:
     return groups
 
 
-def plot_comparison(comparison, path: str | os.PathLike) -> None:
+def plot_comparison(comparison: BasisComparison, path: str | os.PathLike) -> None:
     """Draw RHF energy against the number of basis functions.
 
     Each basis is a labelled point; basis-limit estimates are horizontal
@@ -89,12 +95,12 @@ def plot_comparison(comparison, path: str | os.PathLike) -> None:
         plt.close(figure)
 
 
-def _radial_range(fits) -> float:
+def _radial_range(fits: Sequence[STOFit]) -> float:
     """Outer radius (bohr) where the most diffuse Slater function has fallen to a few per cent."""
     return max((2.5 * f.principal + 2.0) / f.zeta for f in fits)
 
 
-def plot_sto_fit(fits, path: str | os.PathLike) -> None:
+def plot_sto_fit(fits: Sequence[STOFit], path: str | os.PathLike) -> None:
     """Draw Slater radial functions, their Gaussian fits and the differences.
 
     The upper panel shows each distinct Slater radial function R(r) and

@@ -2,10 +2,15 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from ..errors import InputError
 
+if TYPE_CHECKING:
+    from ..scf.result import RHFResult
 
-def require_placed(result, what: str) -> None:
+
+def require_placed(result: RHFResult, what: str) -> None:
     """Raise InputError unless the result carries its molecule and basis.
 
     Results of the SCF on bare matrices have neither, and every analysis

@@ -13,6 +13,7 @@ from __future__ import annotations
 import time
 from collections.abc import Callable, Sequence
 from dataclasses import asdict, dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 import scipy.linalg
@@ -26,6 +27,12 @@ from .extrapolation import (
     feller_three_point,
     karton_martin_two_point,
 )
+
+if TYPE_CHECKING:
+    from ..basis.shells import BasisSet
+    from ..geometry import Molecule
+    from ..scf.options import SCFOptions
+    from ..scf.result import RHFResult
 
 #: kcal/mol per hartree (CODATA hartree energy × Avogadro constant / 4184 J per kcal).
 KCAL_MOL_PER_HARTREE: float = constants.physical_constants["Hartree energy"][0] * constants.Avogadro / 4184.0
@@ -153,7 +160,7 @@ def _estimate_dict(estimate: BasisLimitEstimate) -> dict:
     return out
 
 
-def project_density(density: np.ndarray, basis_old, basis_new, *, lindep_threshold: float = 1e-7) -> np.ndarray:
+def project_density(density: np.ndarray, basis_old: BasisSet, basis_new: BasisSet, *, lindep_threshold: float = 1e-7) -> np.ndarray:
     """Carry a density matrix from one basis into another.
 
     D_new = S_new⁻¹ S_new,old D_old S_old,new S_new⁻¹, the density of the
@@ -200,7 +207,7 @@ def _check_names(names: Sequence[str]) -> list[str]:
     return out
 
 
-def _run_one(molecule, basis, options, guess):
+def _run_one(molecule: Molecule, basis: BasisSet, options: SCFOptions | None, guess: str | np.ndarray) -> tuple[RHFResult, bool]:
     """(result, converged); an unconverged run keeps its last result."""
     from ..scf import run_rhf
 
@@ -214,11 +221,11 @@ def _run_one(molecule, basis, options, guess):
 
 
 def compare_bases(
-    molecule,
+    molecule: Molecule,
     names: Sequence[str],
     *,
     spherical: bool | None = None,
-    options=None,
+    options: SCFOptions | None = None,
     guess: str = "auto",
     progress: Callable[[str], None] | None = None,
 ) -> BasisComparison:
@@ -289,7 +296,7 @@ def compare_bases(
     return _assemble(labels, bases, runs)
 
 
-def _lindep(options) -> float:
+def _lindep(options: SCFOptions | None) -> float:
     return 1e-7 if options is None else float(options.lindep_threshold)
 
 

@@ -12,11 +12,16 @@ Dense integrals cost nbf⁴ doubles of memory, so this suits small systems.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from ..errors import ConvergenceError, InputError
 from ._checks import require_placed
+
+if TYPE_CHECKING:
+    from ..geometry import Molecule
+    from ..scf.result import RHFResult
 
 # Core orbitals per element by row of the periodic table (common practice:
 # the noble-gas core of the previous row): (highest Z of the row, core count).
@@ -57,7 +62,7 @@ class MP2Result:
     n_virtual: int
 
 
-def core_orbital_count(molecule) -> int:
+def core_orbital_count(molecule: Molecule) -> int:
     """Number of core orbitals by the usual noble-gas-core rule.
 
     Parameters
@@ -86,7 +91,7 @@ def _ovov_integrals(eri: np.ndarray, c_occ: np.ndarray, c_vir: np.ndarray) -> np
     return np.ascontiguousarray(full)
 
 
-def mp2_energy(result, *, frozen_core: int = 0) -> MP2Result:
+def mp2_energy(result: RHFResult, *, frozen_core: int = 0) -> MP2Result:
     """Canonical closed-shell MP2 correlation energy from a converged RHF run.
 
     Parameters

@@ -6,11 +6,18 @@ mu = sum_A Z_A (R_A - O) - sum_{μν} D_μν <μ| r - O |ν>, in atomic units
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy import constants
 
 from ..errors import InputError
 from ._checks import require_placed
+
+if TYPE_CHECKING:
+    from ..geometry import Molecule
+    from ..scf.result import RHFResult
 
 #: One atomic unit of electric dipole moment (e·a0) in debye (1 D = 1e-21/c C·m).
 DEBYE_PER_AU: float = (
@@ -18,7 +25,7 @@ DEBYE_PER_AU: float = (
 )
 
 
-def nuclear_charge_centre(molecule) -> np.ndarray:
+def nuclear_charge_centre(molecule: Molecule) -> np.ndarray:
     """Centre of nuclear charge sum_A Z_A R_A / sum_A Z_A.
 
     Parameters
@@ -34,7 +41,7 @@ def nuclear_charge_centre(molecule) -> np.ndarray:
     return z @ np.asarray(molecule.coordinates, dtype=np.float64) / z.sum()
 
 
-def dipole_moment(result, origin: np.ndarray | None = None) -> np.ndarray:
+def dipole_moment(result: RHFResult, origin: ArrayLike | None = None) -> np.ndarray:
     """Electric dipole moment, nuclei and electrons together.
 
     Parameters

@@ -7,14 +7,19 @@ bookkeeping device, not an observable.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 import scipy.linalg
 
 from ..errors import InputError
 from ._checks import require_placed
 
+if TYPE_CHECKING:
+    from ..scf.result import RHFResult
 
-def _density_and_overlap(result) -> tuple[np.ndarray, np.ndarray]:
+
+def _density_and_overlap(result: RHFResult) -> tuple[np.ndarray, np.ndarray]:
     require_placed(result, "a population analysis")
     density = np.asarray(result.density, dtype=np.float64)
     overlap = np.asarray(result.overlap, dtype=np.float64)
@@ -26,7 +31,7 @@ def _density_and_overlap(result) -> tuple[np.ndarray, np.ndarray]:
     return density, overlap
 
 
-def _atom_charges(result, populations: np.ndarray) -> np.ndarray:
+def _atom_charges(result: RHFResult, populations: np.ndarray) -> np.ndarray:
     """Nuclear charge minus the electron population gathered on each atom."""
     atoms = result.basis.function_atoms()
     natom = result.molecule.natom
@@ -34,7 +39,7 @@ def _atom_charges(result, populations: np.ndarray) -> np.ndarray:
     return np.asarray(result.molecule.atomic_numbers, dtype=np.float64) - electrons
 
 
-def mulliken_populations(result) -> np.ndarray:
+def mulliken_populations(result: RHFResult) -> np.ndarray:
     """Mulliken gross population of every basis function.
 
     Parameters
@@ -52,7 +57,7 @@ def mulliken_populations(result) -> np.ndarray:
     return np.einsum("ij,ji->i", density, overlap)
 
 
-def mulliken_charges(result) -> np.ndarray:
+def mulliken_charges(result: RHFResult) -> np.ndarray:
     """Mulliken partial charge of every atom.
 
     Parameters
@@ -68,7 +73,7 @@ def mulliken_charges(result) -> np.ndarray:
     return _atom_charges(result, mulliken_populations(result))
 
 
-def lowdin_populations(result) -> np.ndarray:
+def lowdin_populations(result: RHFResult) -> np.ndarray:
     """Löwdin population of every basis function.
 
     Parameters
@@ -94,7 +99,7 @@ def lowdin_populations(result) -> np.ndarray:
     return np.einsum("ij,jk,ki->i", root, density, root)
 
 
-def lowdin_charges(result) -> np.ndarray:
+def lowdin_charges(result: RHFResult) -> np.ndarray:
     """Löwdin partial charge of every atom.
 
     Parameters

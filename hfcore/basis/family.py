@@ -44,6 +44,17 @@ class BasisFamily(ABC):
     def element_shells(self, z: int) -> list[ElementShell]:
         """The shells of element ``z``, in the family's order.
 
+        Parameters
+        ----------
+        z : int
+            Atomic number.
+
+        Returns
+        -------
+        list of ElementShell
+            Unplaced shell templates (exponents in bohr⁻², coefficients of
+            normalised primitives), in the order the basis functions take.
+
         Raises
         ------
         BasisError

@@ -57,7 +57,19 @@ class Accelerator(ABC):
 
     @abstractmethod
     def next_fock(self, step: FockStep) -> np.ndarray:
-        """The matrix to diagonalise for the next orbitals, shape (nmo, nmo)."""
+        """The matrix to diagonalise for the next orbitals.
+
+        Parameters
+        ----------
+        step : FockStep
+            The current iteration's Fock matrix, orbital gradient and
+            occupied-space projector, all in the orthonormal basis.
+
+        Returns
+        -------
+        ndarray, shape (nmo, nmo)
+            A symmetric matrix in hartree, in the same orthonormal basis.
+        """
 
     def reset(self) -> None:
         """Forget everything stored from earlier iterations."""

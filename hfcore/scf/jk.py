@@ -17,7 +17,20 @@ class JKBuilder(Protocol):
     """
 
     def jk(self, density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """J_μν = Σ (μν|λσ) D_λσ and K_μν = Σ (μλ|νσ) D_λσ for a symmetric D, each (nbf, nbf)."""
+        """Coulomb and exchange matrices of a density.
+
+        Parameters
+        ----------
+        density : ndarray, shape (nbf, nbf)
+            A symmetric matrix in the atomic-orbital basis (a total density
+            or a density change).
+
+        Returns
+        -------
+        J, K : ndarray, shape (nbf, nbf)
+            J_μν = Σ (μν|λσ) D_λσ and K_μν = Σ (μλ|νσ) D_λσ, in hartree
+            when D is a density in electrons.
+        """
         ...
 
 
