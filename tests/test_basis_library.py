@@ -258,7 +258,8 @@ def test_per_element_basis_mixes_shipped_sets():
 def test_per_element_basis_accepts_a_user_file(tmp_path):
     path = _write(tmp_path, {"name": "tiny-h", "elements": {"H": [_shell(0, ["1.0"], [["1.0"]])]}})
     mixed = build_basis(_water(), "cc-pVDZ", per_element={"H": load_basis_file(path)})
-    assert mixed.n_functions == 14 + 2 * 1  # cc-pVDZ O: 3s2p1d spherical = 14
+    # source: common practice — cc-pVDZ O is 3s2p1d, 14 spherical functions; the file gives H one s
+    assert mixed.n_functions == 14 + 2 * 1
     assert mixed.spherical is True
 
 

@@ -259,6 +259,7 @@ def test_json_to_stdout_is_pure_json_with_the_required_keys(water):
     assert "energy" in record["units"] and "length" in record["units"]
     assert record["scf"]["converged"] is True
     assert record["basis"]["n_functions"] == 7  # source: common practice — STO-3G water is 1s2s2p on O + 1s on each H
+    # source: exact property — 8 + 1 + 1 electrons, five doubly occupied orbitals (0-based HOMO 4)
     assert record["molecule"]["n_electrons"] == 10
     assert record["orbitals"]["homo"] == 4 and record["orbitals"]["lumo"] == 5
     assert record["orbitals"]["occupations"] == [2.0] * 5 + [0.0] * 2
@@ -358,6 +359,7 @@ def test_long_orbital_lists_are_cut_after_ten_virtuals(water):
     orbitals = out[out.index("Orbitals") : out.index("Mulliken charges")]
     rows = [line for line in orbitals.splitlines() if line.strip()[:1].isdigit()]
     # 5 occupied + the LUMO and 9 more virtuals are listed; 24 - 15 are counted
+    # (source: common practice — cc-pVDZ water has 24 spherical functions)
     assert len(rows) == 15
     assert "9 higher virtual orbitals not shown" in orbitals
 
@@ -446,6 +448,7 @@ def test_fit_sto_json_to_stdout(tmp_path):
     # source: Szabo & Ostlund, Modern Quantum Chemistry (1996), ch. 3, STO-3G fit to a zeta = 1 Slater 1s (from memory)
     np.testing.assert_allclose(fit["exponents"], [2.227660, 0.405771, 0.109818], rtol=1e-5)
     np.testing.assert_allclose(fit["coefficients"]["s"], [0.154329, 0.535328, 0.444635], rtol=1e-5)
+    # source: exact property — two different unit functions overlap by less than 1 (Cauchy–Schwarz)
     assert 0.99 < fit["overlaps"]["s"] < 1.0
 
 
@@ -472,6 +475,7 @@ def test_fit_sto_plot_writes_a_png(tmp_path):
     png = tmp_path / "fit.png"
     code, out, err = run_main("fit-sto", "--shell", "1s", "--gaussians", "2", "--plot", str(png))
     assert code == 0, err
+    # source: common practice — the PNG file signature
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert only_inputs_left(tmp_path, "fit.png")
 

@@ -184,6 +184,7 @@ def test_plot_writes_a_png(nested, tmp_path):
     comparison, _ = nested
     path = tmp_path / "compare.png"
     plot_comparison(comparison, path)
+    # source: common practice — the PNG file signature
     assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert [p.name for p in tmp_path.iterdir()] == ["compare.png"]
 

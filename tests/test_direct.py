@@ -193,6 +193,7 @@ def test_cli_direct_mode_shows_in_json(water_file):
     assert err == ""
     record = json.loads(out)
     assert record["scf"]["jk_mode"] == "direct"
+    # exact property: STO-3G water has 7 functions, 28 pairs, 28·29/2 unique quartets at 16 bytes
     assert record["scf"]["eri_memory_bytes"] == 16 * 28 * 29 // 2
     code, out, _ = run_main("energy", water_file, "--json", "-")
     assert json.loads(out)["scf"]["jk_mode"] == "stored"

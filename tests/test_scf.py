@@ -114,9 +114,11 @@ def test_energy_components_add_up(water_dz_result):
 
 def test_occupations_and_frontier_orbitals(water_dz_result):
     r = water_dz_result
+    # exact property: ten electrons fill five orbitals in pairs
     assert r.n_occupied == 5
     assert list(r.occupations[:6]) == [2.0, 2.0, 2.0, 2.0, 2.0, 0.0]
     assert (r.homo, r.lumo) == (4, 5)
+    # common practice: a bound closed-shell molecule has a negative HOMO and, here, a positive LUMO
     assert r.homo_energy < 0.0 < r.lumo_energy
 
 

@@ -198,6 +198,8 @@ def test_fit_rejects_bad_arguments(args):
 
 def test_element_shells_follow_occupied_slater_shells():
     family = STOFamily(3)
+    # source: Hehre, Stewart & Pople (1969) and Hehre et al. (1970) — one Slater shell per occupied shell,
+    # 2s/2p and 3s/3p sharing exponents (from memory)
     layout = {1: [(0, "1s")], 6: [(0, "1s"), (0, "2sp"), (1, "2sp")],
               17: [(0, "1s"), (0, "2sp"), (1, "2sp"), (0, "3sp"), (1, "3sp")]}
     for z, expected in layout.items():

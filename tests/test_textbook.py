@@ -51,6 +51,7 @@ def heh(tmp_path_factory) -> dict:
 
 
 def test_h2_uses_two_basis_functions_and_two_electrons(h2):
+    # source: Szabo & Ostlund (1996), ch. 3 — the minimal basis is one 1s function per atom
     assert h2["basis"]["n_functions"] == 2
     assert h2["molecule"]["n_electrons"] == 2
     assert h2["scf"]["converged"] is True
