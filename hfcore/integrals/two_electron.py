@@ -43,6 +43,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from functools import lru_cache
 
 import numpy as np
 from scipy.linalg import blas
@@ -277,15 +278,35 @@ def _family_pairs(basis: BasisSet) -> dict[tuple, list[list[tuple[int, int]]]]:
             key = tuple(
                 (basis.shells[a].l, basis.shells[b].l, basis.shells[a].n_contractions, basis.shells[b].n_contractions)
                 for a, b in subs
-            ) + ((basis.shells[fa[0]].n_primitives, basis.shells[fb[0]].n_primitives),)
+            ) + ((basis.shells[fa[0]].n_primitives, basis.shells[fb[0]].n_primitives, fa is fb),)
             out.setdefault(key, []).append(subs)
     return out
+
+
+@lru_cache(maxsize=None)
+def _symmetric_primitive_pairs(m: int) -> tuple[np.ndarray, np.ndarray]:
+    """Flat primitive-pair positions (i, j) and (j, i), i <= j, of an m x m pair block."""
+    i, j = np.triu_indices(m)
+    return i * m + j, j * m + i
+
+
+def _fold_transposed(pairs: _EriPairs, m: int) -> _EriPairs:
+    """Merge primitive pairs (i, j) and (j, i) of a family paired with itself.
+
+    Both sit on one centre with the same exponent sum, so they have the same
+    p, P and Hermite functions: one pair carrying the summed folded
+    coefficients gives the same integrals with m(m+1)/2 instead of m^2
+    primitive pairs.
+    """
+    ij, ji = _symmetric_primitive_pairs(m)
+    e = pairs.e[:, ij] + np.where((ij != ji)[None, :, None, None], pairs.e[:, ji], 0.0)
+    return _EriPairs(pairs.L, pairs.p[:, ij], pairs.P[:, :, ij], e, pairs.pidx)
 
 
 def _batched_family_pairs(basis: BasisSet) -> list[_EriPairs]:
     """Folded Hermite data of every family pair; one entry per shape signature."""
     out = []
-    for members in _family_pairs(basis).values():
+    for key, members in _family_pairs(basis).items():
         subs = np.array(members)  # (n, nsub, 2)
         groups = [build_group(basis.shells[a].l, basis.shells[b].l, basis.shells, basis.shells, subs[:, s])
                   for s, (a, b) in enumerate(subs[0])]
@@ -299,15 +320,14 @@ def _batched_family_pairs(basis: BasisSet) -> list[_EriPairs]:
             parts.append(pad)
         g0 = groups[0]
         n, m = parts[0].shape[:2]
-        out.append(
-            _EriPairs(
-                L,
-                g0.flat(g0.p).reshape(n, m),
-                g0.flat(g0.P).reshape(3, n, m),
-                np.concatenate(parts, axis=3),
-                np.concatenate([_function_indices(g, basis) for g in groups], axis=1),
-            )
+        pairs = _EriPairs(
+            L,
+            g0.flat(g0.p).reshape(n, m),
+            g0.flat(g0.P).reshape(3, n, m),
+            np.concatenate(parts, axis=3),
+            np.concatenate([_function_indices(g, basis) for g in groups], axis=1),
         )
+        out.append(_fold_transposed(pairs, g0.exp_a.shape[1]) if key[-1][2] else pairs)
     return out
 
 
