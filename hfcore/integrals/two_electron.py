@@ -2,11 +2,14 @@
 
 Scheme
 ------
-1. Shells on one atom that share their exponents (the s and p of an sp
-   shell, or several segmented contractions over one primitive set) form a
-   *family*; pairs of families share one set of primitive pairs, so their
+1. Shells on one atom whose exponents all occur in one shell (the s and p
+   of an sp shell, several segmented contractions over one primitive set,
+   or a primitive published again on its own, as the outermost s and p of
+   correlation-consistent sets) form a *family* over that shell's
+   primitives; pairs of families share one set of primitive pairs, so their
    Boys function and Hermite integrals are computed once for all member
-   shell pairs. For every primitive pair the Hermite coefficients
+   shell pairs. In a family paired with itself the primitive pairs (i, j)
+   and (j, i) coincide and are merged. For every primitive pair the Hermite coefficients
    E^{ab}_{tuv} are built once, with the contraction coefficients, the
    Cartesian normalisation or spherical transform and the factor 1/p folded
    in. A generally contracted shell costs no extra primitive work: its
@@ -48,7 +51,7 @@ from functools import lru_cache
 import numpy as np
 from scipy.linalg import blas
 
-from ..basis.shells import BasisSet, n_cartesian
+from ..basis.shells import BasisSet, Shell, n_cartesian
 from ..errors import InputError, ResourceError
 from .boys import boys
 from .hermite import hermite_e, hermite_r, hermite_signs, n_hermite, sum_index
@@ -252,12 +255,20 @@ def _merge(parts: list[_EriPairs], fill: float) -> list[_EriPairs]:
 
 
 def _families(basis: BasisSet) -> list[list[int]]:
-    """Shells on one atom with identical exponents (e.g. the s and p of an sp shell), by first shell."""
+    """Shells on one atom whose exponents all occur in the family's first shell, by first shell.
+
+    This joins the s and p of an sp shell, and also a single primitive
+    published twice, once inside a general contraction and once on its own
+    (the outermost s or p of a correlation-consistent set): its pairs are
+    then columns of the family's pairs instead of primitive pairs of their own.
+    """
+    order = sorted(range(basis.n_shells), key=lambda k: (basis.shells[k].atom, -basis.shells[k].n_primitives, k))
     out: list[list[int]] = []
-    for k, shell in enumerate(basis.shells):
+    for k in order:
+        shell = basis.shells[k]
         for fam in out:
             first = basis.shells[fam[0]]
-            if first.atom == shell.atom and np.array_equal(first.exponents, shell.exponents):
+            if first.atom == shell.atom and np.isin(shell.exponents, first.exponents).all():
                 fam.append(k)
                 break
         else:
@@ -265,20 +276,33 @@ def _families(basis: BasisSet) -> list[list[int]]:
     return out
 
 
-def _family_pairs(basis: BasisSet) -> dict[tuple, list[list[tuple[int, int]]]]:
+def _family_shells(basis: BasisSet, fams: list[list[int]]) -> list[Shell]:
+    """The shells, each written over the primitives of its family's first shell (zero coefficients elsewhere)."""
+    out = list(basis.shells)
+    for fam in fams:
+        base = basis.shells[fam[0]].exponents
+        for k in fam[1:]:
+            shell = basis.shells[k]
+            if np.array_equal(shell.exponents, base):
+                continue
+            coef = np.zeros((shell.n_contractions, base.size))
+            coef[:, [int(np.flatnonzero(base == x)[0]) for x in shell.exponents]] = shell.coefficients
+            out[k] = Shell(shell.l, base, coef, shell.center, shell.atom, shell.label)
+    return out
+
+
+def _family_pairs(fams: list[list[int]], shells: list[Shell]) -> dict[tuple, list[list[tuple[int, int]]]]:
     """Pairs of shell families, each a list of shell pairs sharing one set of primitive pairs.
 
     Keyed by the shape signature, so pairs with equal keys can be batched.
     """
-    fams = _families(basis)
     out: dict[tuple, list[list[tuple[int, int]]]] = {}
     for ia, fa in enumerate(fams):
         for fb in fams[: ia + 1]:
             subs = [(a, b) for a in fa for b in fb if fa is not fb or a >= b]
             key = tuple(
-                (basis.shells[a].l, basis.shells[b].l, basis.shells[a].n_contractions, basis.shells[b].n_contractions)
-                for a, b in subs
-            ) + ((basis.shells[fa[0]].n_primitives, basis.shells[fb[0]].n_primitives, fa is fb),)
+                (shells[a].l, shells[b].l, shells[a].n_contractions, shells[b].n_contractions) for a, b in subs
+            ) + ((shells[fa[0]].n_primitives, shells[fb[0]].n_primitives, fa is fb),)
             out.setdefault(key, []).append(subs)
     return out
 
@@ -306,10 +330,11 @@ def _fold_transposed(pairs: _EriPairs, m: int) -> _EriPairs:
 def _batched_family_pairs(basis: BasisSet) -> list[_EriPairs]:
     """Folded Hermite data of every family pair; one entry per shape signature."""
     out = []
-    for key, members in _family_pairs(basis).items():
+    fams = _families(basis)
+    shells = _family_shells(basis, fams)
+    for key, members in _family_pairs(fams, shells).items():
         subs = np.array(members)  # (n, nsub, 2)
-        groups = [build_group(basis.shells[a].l, basis.shells[b].l, basis.shells, basis.shells, subs[:, s])
-                  for s, (a, b) in enumerate(subs[0])]
+        groups = [build_group(shells[a].l, shells[b].l, shells, shells, subs[:, s]) for s, (a, b) in enumerate(subs[0])]
         L = max(g.la + g.lb for g in groups)
         nh = n_hermite(L)
         parts = []
