@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import os
 import sys
 import time
 import typing
@@ -24,6 +25,8 @@ from .errors import HfcoreError, InputError, ResourceError
 
 #: Exit code after Ctrl-C (128 + SIGINT), the shell convention.
 EXIT_INTERRUPTED: int = 130
+#: Exit code when the reader of stdout went away (128 + SIGPIPE), the shell convention.
+EXIT_BROKEN_PIPE: int = 141
 
 
 # ----------------------------------------------------------------------------
@@ -118,7 +121,7 @@ def build_parser() -> argparse.ArgumentParser:
         prog="hfcore",
         description="Restricted Hartree-Fock energies of small closed-shell molecules.",
         epilog="Exit codes: 0 success, 2 bad input, 3 basis problem, 4 SCF not converged, "
-        "5 not enough memory, 130 interrupted.",
+        "5 not enough memory, 130 interrupted, 141 output pipe closed.",
     )
     parser.add_argument("--version", action="version", version=f"hfcore {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
@@ -417,7 +420,6 @@ def _run_compare(args: argparse.Namespace, console: _Console) -> int:
     if not names:
         raise InputError("--basis: give at least one basis name, e.g. sto-3g,cc-pvdz")
     molecule = _read_molecule(args)
-    console.report(report.format_molecule(molecule))
     comparison = compare_bases(molecule, names, spherical=args.spherical, progress=_stderr_progress(console))
     record = export.comparison_record(comparison)
     if "plot" in paths:
@@ -429,6 +431,9 @@ def _run_compare(args: argparse.Namespace, console: _Console) -> int:
     if args.json == "-":
         console.data(export.to_json(record))
         return 0
+    # The report comes whole after the runs, so a bad name or an open shell
+    # found by compare_bases leaves stdout empty, as for every other error.
+    console.report(report.format_molecule(molecule))
     console.report(report.format_comparison(comparison))
     _report_written(console, paths.values())
     return 0
@@ -460,6 +465,21 @@ def _run_bases(args: argparse.Namespace, console: _Console) -> int:
 # ----------------------------------------------------------------------------
 # entry point
 # ----------------------------------------------------------------------------
+
+
+def _detach(stream: TextIO) -> None:
+    """Point a closed pipe's file descriptor at the null device.
+
+    Otherwise the interpreter's final flush of the stream fails once more
+    and prints a message of its own.
+    """
+    try:
+        fd = stream.fileno()
+    except (AttributeError, OSError, ValueError):
+        return  # an in-memory stream: nothing to flush at exit
+    devnull = os.open(os.devnull, os.O_WRONLY)
+    os.dup2(devnull, fd)
+    os.close(devnull)
 
 
 def _fail(err: TextIO, message: str, code: int) -> int:
@@ -505,6 +525,10 @@ def main(argv: Sequence[str] | None = None, *, stdout: TextIO | None = None, std
     except KeyboardInterrupt:
         print("hfcore: interrupted", file=err, flush=True)
         return EXIT_INTERRUPTED
+    except BrokenPipeError:
+        # The reader stopped early (``| head``): stop too, without a message.
+        _detach(out)
+        return EXIT_BROKEN_PIPE
 
 
-__all__ = ["build_parser", "main", "parse_basis_for", "EXIT_INTERRUPTED"]
+__all__ = ["build_parser", "main", "parse_basis_for", "EXIT_INTERRUPTED", "EXIT_BROKEN_PIPE"]

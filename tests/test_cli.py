@@ -148,6 +148,16 @@ def test_unknown_basis_name_exits_3(water):
     assert only_inputs_left(water.parent, water.name)
 
 
+@pytest.mark.parametrize(
+    ("names", "code", "fragment"),
+    [("sto-3g,no-such-basis-zz", 3, "no-such-basis-zz"), ("sto-3g,STO-3G", 2, "more than once")],
+)
+def test_compare_with_a_bad_basis_list_prints_only_the_error(water, names, code, fragment):
+    proc = hfcore_process("compare", water.name, "--basis", names, "--json", "o.json", cwd=water.parent)
+    assert_one_line_error(proc, code, fragment)
+    assert only_inputs_left(water.parent, water.name)
+
+
 def cli_result(*args: str, cwd: Path, via: str) -> subprocess.CompletedProcess:
     """The command's outcome, from a real process or from :func:`main` in this one.
 
@@ -537,6 +547,18 @@ def test_numpy_out_of_memory_exits_5_with_one_line(monkeypatch, water):
     code, out, err = run_main("energy", str(water))
     assert code == 5 and out == ""
     assert err.startswith("hfcore: error: not enough memory") and err.count("\n") == 1
+
+
+class _ClosedPipe(io.StringIO):
+    def write(self, text: str) -> int:
+        raise BrokenPipeError(32, "Broken pipe")
+
+
+def test_reader_that_goes_away_ends_the_run_quietly_with_141(water):
+    err = io.StringIO()
+    code = main(["energy", str(water)], stdout=_ClosedPipe(), stderr=err)
+    # common practice: 128 + SIGPIPE, and no message, as for a pipeline member killed by the signal
+    assert code == 141 and err.getvalue() == ""
 
 
 def test_interrupt_exits_130_with_one_line(monkeypatch, water):
