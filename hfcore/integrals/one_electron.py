@@ -15,6 +15,7 @@ from __future__ import annotations
 from math import comb
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from ..basis.shells import BasisSet, cartesian_components
 from .boys import boys
@@ -138,7 +139,7 @@ def kinetic(basis: BasisSet) -> np.ndarray:
     return _one_body(basis, _kinetic_block)
 
 
-def multipole(basis: BasisSet, order: int = 1, origin=(0.0, 0.0, 0.0)) -> np.ndarray:
+def multipole(basis: BasisSet, order: int = 1, origin: ArrayLike = (0.0, 0.0, 0.0)) -> np.ndarray:
     """Cartesian multipole integrals <mu| (x-O_x)^a (y-O_y)^b (z-O_z)^c |nu>, a+b+c = order.
 
     Parameters
