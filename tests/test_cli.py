@@ -15,6 +15,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import assert_valid_png
 
 from hfcore import export
 from hfcore.cli import main, parse_basis_for
@@ -481,12 +482,10 @@ def test_fit_sto_human_report_lists_both_expansions():
 
 
 def test_fit_sto_plot_writes_a_png(tmp_path):
-    pytest.importorskip("matplotlib")
     png = tmp_path / "fit.png"
     code, out, err = run_main("fit-sto", "--shell", "1s", "--gaussians", "2", "--plot", str(png))
     assert code == 0, err
-    # source: common practice — the PNG file signature
-    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert_valid_png(png)
     assert only_inputs_left(tmp_path, "fit.png")
 
 

@@ -8,6 +8,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import assert_valid_png
 
 import hfcore
 from hfcore.analysis import (
@@ -184,8 +185,7 @@ def test_plot_writes_a_png(nested, tmp_path):
     comparison, _ = nested
     path = tmp_path / "compare.png"
     plot_comparison(comparison, path)
-    # source: common practice — the PNG file signature
-    assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert_valid_png(path)
     assert [p.name for p in tmp_path.iterdir()] == ["compare.png"]
 
 
