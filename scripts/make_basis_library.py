@@ -50,6 +50,8 @@ class SetSpec:
 POPLE = "pople"
 CC = "correlation-consistent"
 KARLSRUHE = "karlsruhe"
+#: Auxiliary sets for density-fitted Coulomb and exchange, not orbital sets.
+JK_FITTING = "jk-fitting"
 
 SETS = (
     SetSpec("3-21G", "3-21g.json", (), POPLE, False, "Split-valence set: inner shells of 3 Gaussians, valence split 2+1."),
@@ -65,6 +67,10 @@ SETS = (
     SetSpec("aug-cc-pVTZ", "aug-cc-pvtz.json", (), CC, True, "cc-pVTZ augmented with one diffuse function per angular momentum."),
     SetSpec("def2-SVP", "def2-svp.json", (), KARLSRUHE, True, "Split-valence set with polarisation, second generation of the Karlsruhe sets."),
     SetSpec("def2-TZVP", "def2-tzvp.json", (), KARLSRUHE, True, "Valence triple-zeta set with polarisation, second generation of the Karlsruhe sets."),
+    SetSpec("def2-universal-JKFIT", "def2-universal-jkfit.json", (), JK_FITTING, True, "Fitting set for density-fitted Coulomb and exchange with any def2 orbital set."),
+    SetSpec("cc-pVTZ-JKFIT", "cc-pvtz-jkfit.json", (), JK_FITTING, True, "Fitting set for density-fitted Coulomb and exchange with cc-pVTZ (and cc-pVDZ)."),
+    SetSpec("cc-pVQZ-JKFIT", "cc-pvqz-jkfit.json", (), JK_FITTING, True, "Fitting set for density-fitted Coulomb and exchange with cc-pVQZ."),
+    SetSpec("cc-pV5Z-JKFIT", "cc-pv5z-jkfit.json", (), JK_FITTING, True, "Fitting set for density-fitted Coulomb and exchange with cc-pV5Z."),
 )
 
 
