@@ -38,7 +38,7 @@ from typing import Any
 from .. import elements
 from ..errors import BasisError
 from .family import BasisFamily, CachedFamily
-from .shells import ElementShell
+from .shells import MAX_FIT_L, MAX_L, ElementShell
 from .userfile import DocumentFamily, citation_text, load_basis_file, parse_element_shells
 
 _INDEX_FILE = "index.json"
@@ -282,6 +282,7 @@ class BSEFamily(CachedFamily):
         zs = (int(z) for z in meta["versions"][meta["latest_version"]]["elements"])
         self._elements = frozenset(z for z in zs if z <= elements.MAX_Z)
         self._citation: str | None = None
+        self.max_l = MAX_FIT_L if meta.get("role", "orbital") != "orbital" else MAX_L
 
     @property
     def citation(self) -> str:  # type: ignore[override]
@@ -298,7 +299,7 @@ class BSEFamily(CachedFamily):
         data = self._bse.get_basis(self._bse_name, elements=[z], header=False)["elements"][str(z)]
         if data.get("ecp_potentials"):
             raise BasisError(f"basis {self.name} uses an effective core potential for {symbol}, which hfcore does not support")
-        return parse_element_shells(symbol, shells_from_published(data.get("electron_shells", [])), f"basis {self.name}")
+        return parse_element_shells(symbol, shells_from_published(data.get("electron_shells", [])), f"basis {self.name}", self.max_l)
 
 
 def _close_names(name: str, candidates: Sequence[str]) -> str:

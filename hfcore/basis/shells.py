@@ -41,8 +41,11 @@ import numpy as np
 
 from ..errors import BasisError
 
-#: Highest angular momentum the integral layer supports (g functions).
+#: Highest angular momentum of an orbital basis (g functions).
 MAX_L: int = 4
+#: Highest angular momentum of a fitting set (i functions); the three- and
+#: two-centre integrals reach l_P + 2 MAX_L.
+MAX_FIT_L: int = 6
 
 L_LETTERS = "spdfghi"
 
@@ -169,8 +172,8 @@ class ElementShell:
         c = np.ascontiguousarray(np.atleast_2d(np.asarray(self.coefficients, dtype=np.float64)))
         if c.shape[1] != e.shape[0]:
             raise BasisError(f"shell {self.label or L_LETTERS[self.l]}: {e.shape[0]} exponents but {c.shape[1]} coefficients")
-        if not 0 <= self.l <= MAX_L:
-            raise BasisError(f"angular momentum l = {self.l} is not supported (s..g, l <= {MAX_L})")
+        if not 0 <= self.l <= MAX_FIT_L:
+            raise BasisError(f"angular momentum l = {self.l} is not supported (s..i, l <= {MAX_FIT_L})")
         if np.any(~np.isfinite(e)) or np.any(e <= 0):
             raise BasisError("Gaussian exponents must be positive finite numbers")
         e.setflags(write=False)
@@ -345,6 +348,7 @@ class BasisSet:
 
 __all__ = [
     "MAX_L",
+    "MAX_FIT_L",
     "ElementShell",
     "Shell",
     "BasisSet",

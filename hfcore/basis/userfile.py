@@ -31,10 +31,12 @@ import numpy as np
 from .. import elements
 from ..errors import BasisError
 from .family import BasisFamily, CachedFamily
-from .shells import L_LETTERS, MAX_L, ElementShell
+from .shells import L_LETTERS, MAX_FIT_L, MAX_L, ElementShell
 
 #: The value of the ``"format"`` key that marks a document as ours.
 FORMAT_TAG = "hfcore-basis/1"
+#: The ``family`` value of a fitting set (for density-fitted J and K), whose shells may reach MAX_FIT_L.
+FITTING_FAMILY = "jk-fitting"
 
 
 def _number(value: Any, what: str, where: str) -> float:
@@ -56,7 +58,7 @@ def _require_list(value: Any, what: str, where: str) -> list:
     return value
 
 
-def parse_shell(record: Any, where: str) -> ElementShell:
+def parse_shell(record: Any, where: str, max_l: int = MAX_L) -> ElementShell:
     """Validate one shell record and turn it into an :class:`ElementShell`.
 
     Parameters
@@ -65,6 +67,9 @@ def parse_shell(record: Any, where: str) -> ElementShell:
         ``{"l": int, "exponents": [...], "coefficients": [[...], ...]}``.
     where : str
         Prefix for error messages, e.g. ``"my.json: O shell 3"``.
+    max_l : int
+        Highest angular momentum accepted: :data:`MAX_L` for orbital sets,
+        :data:`MAX_FIT_L` for fitting sets.
 
     Returns
     -------
@@ -83,8 +88,8 @@ def parse_shell(record: Any, where: str) -> ElementShell:
     l = record["l"]
     if isinstance(l, bool) or not isinstance(l, int) or l < 0:
         raise BasisError(f"{where}: angular momentum {l!r} is not a non-negative integer")
-    if l > MAX_L:
-        raise BasisError(f"{where}: angular momentum {l} is not supported (s..{L_LETTERS[MAX_L]})")
+    if l > max_l:
+        raise BasisError(f"{where}: angular momentum {l} is not supported (s..{L_LETTERS[max_l]})")
     raw_exponents = _require_list(record["exponents"], "'exponents'", where)
     exponents = [_number(e, "exponent", where) for e in raw_exponents]
     for raw, e in zip(raw_exponents, exponents):
@@ -103,7 +108,7 @@ def parse_shell(record: Any, where: str) -> ElementShell:
     return ElementShell(l, np.array(exponents), np.array(matrix))
 
 
-def parse_element_shells(symbol: str, records: Any, source: str) -> list[ElementShell]:
+def parse_element_shells(symbol: str, records: Any, source: str, max_l: int = MAX_L) -> list[ElementShell]:
     """Validate the shell list of one element.
 
     Parameters
@@ -113,9 +118,11 @@ def parse_element_shells(symbol: str, records: Any, source: str) -> list[Element
     records : list of mapping
     source : str
         File name (or other origin) for messages.
+    max_l : int
+        Highest angular momentum accepted, as in :func:`parse_shell`.
     """
     records = _require_list(records, f"element {symbol!r}: the shell list", source)
-    return [parse_shell(r, f"{source}: {symbol} shell {i}") for i, r in enumerate(records, start=1)]
+    return [parse_shell(r, f"{source}: {symbol} shell {i}", max_l) for i, r in enumerate(records, start=1)]
 
 
 def element_keys(document: Mapping[str, Any], source: str) -> dict[int, str]:
@@ -193,13 +200,15 @@ class DocumentFamily(CachedFamily):
         self.origin = f"{source}: "
         self._document = document
         self._keys = element_keys(document, source)
+        # Fitting sets reach higher angular momentum than orbital sets.
+        self.max_l = MAX_FIT_L if document.get("family") == FITTING_FAMILY else MAX_L
 
     def elements(self) -> frozenset[int]:
         return frozenset(self._keys)
 
     def _read_element_shells(self, z: int) -> list[ElementShell]:
         key = self._keys[z]
-        return parse_element_shells(key, self._document["elements"][key], self.source)
+        return parse_element_shells(key, self._document["elements"][key], self.source, self.max_l)
 
     def validate(self) -> None:
         """Parse every element now, so a bad entry fails at load time."""
@@ -247,4 +256,4 @@ def load_basis_file(path: str | Path) -> BasisFamily:
     return family
 
 
-__all__ = ["FORMAT_TAG", "DocumentFamily", "load_basis_file", "parse_shell", "parse_element_shells", "read_document", "citation_text"]
+__all__ = ["FORMAT_TAG", "FITTING_FAMILY", "DocumentFamily", "load_basis_file", "parse_shell", "parse_element_shells", "read_document", "citation_text"]

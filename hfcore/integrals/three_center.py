@@ -1,0 +1,285 @@
+"""Three-centre (P|μν) and two-centre (P|Q) Coulomb integrals over a fitting set.
+
+Scheme
+------
+A fitting function P is a Gaussian "pair" of P with a unit s function of
+exponent 0: its product centre is P's centre, its exponent sum P's
+exponent, and its Hermite expansion the one-centre E^{l0}_{tuv}. So the
+fitting shells become pair groups of the same kind the four-centre passes
+use (:mod:`hfcore.integrals.two_electron`), and a three-centre integral is a
+tile of orbital pairs against fitting "pairs", a two-centre integral a tile
+of fitting "pairs" against themselves. The Boys function and Hermite
+integrals then go up to l_P + l_μ + l_ν (14 for i fitting functions with g
+orbital pairs), which the tables cover (:data:`hfcore.integrals.boys.M_MAX`).
+
+Storage
+-------
+(P|μν) is held as an array of shape (naux, npair), npair = nbf(nbf+1)/2,
+column μ(μ+1)/2 + ν for μ >= ν: 8 bytes per fitting function and orbital
+pair. :class:`ThreeCenterEngine` computes it whole or in blocks of fitting
+functions, so a fitted J/K build can recompute it block by block when the
+whole does not fit in memory. Orbital pairs come with the Schwarz bounds of
+the four-centre passes; a tile is skipped when Q_μν (P|P)^{1/2} is below
+the threshold.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..basis.shells import BasisSet
+from ..errors import InputError
+from .pairs import PairGroup
+from .two_electron import _chunks, _cost, _diagonal, _EriPairs, _fold, _prepare, _tile, _tile_sizes
+
+#: Fitting functions per block handed out by :meth:`ThreeCenterEngine.blocks`
+#: when no smaller size is asked for.
+DEFAULT_BLOCK_FUNCTIONS = 256
+
+
+def _fitting_groups(aux: BasisSet) -> list[_EriPairs]:
+    """Fitting shells as pair groups with a unit s partner; ``pidx`` holds fitting-function indices.
+
+    Grouped by (l, primitives, contractions) and sorted within a group by
+    decreasing (P|P)^{1/2}.
+    """
+    keys: dict[tuple[int, int, int], list[int]] = {}
+    for k, shell in enumerate(aux.shells):
+        keys.setdefault((shell.l, shell.n_primitives, shell.n_contractions), []).append(k)
+    offsets = aux.shell_offsets
+    out = []
+    for (l, nprim, _), members in sorted(keys.items()):
+        shells = [aux.shells[k] for k in members]
+        n = len(shells)
+        index = np.array(members, dtype=np.intp)
+        exp_a = np.array([s.exponents for s in shells])
+        center = np.array([s.center for s in shells], dtype=np.float64)
+        p = exp_a[:, :, None].copy()
+        P = np.ascontiguousarray(np.broadcast_to(center.T[:, :, None, None], (3, n, nprim, 1)))
+        group = PairGroup(
+            la=l, lb=0, shell_a=index, shell_b=index, exp_a=exp_a, exp_b=np.zeros((n, 1)),
+            coef_a=np.array([s.norm_coefficients for s in shells]), coef_b=np.ones((n, 1, 1)),
+            center_a=center, center_b=center, p=p, P=P, kab=np.ones((n, nprim, 1)),
+        )
+        e = _fold(group, aux.spherical)  # (n, nprim, nH, nf)
+        nf = e.shape[3]
+        pidx = offsets[index][:, None] + np.arange(nf)[None, :]
+        pairs = _EriPairs(l, p.reshape(n, nprim), P.reshape(3, n, nprim), e, pidx)
+        q = np.sqrt(np.abs(_diagonal(pairs)).max(axis=1))
+        order = np.argsort(-q, kind="stable")
+        pairs.p, pairs.P, pairs.e, pairs.pidx = pairs.p[order], pairs.P[:, order], pairs.e[order], pairs.pidx[order]
+        pairs.q = q[order]
+        pairs.finish()
+        out.append(pairs)
+    return out
+
+
+@dataclass(frozen=True)
+class _Piece:
+    """Rows of one fitting group that belong to a block."""
+
+    group: int
+    rows: slice
+
+
+def two_center_integrals(aux: BasisSet) -> np.ndarray:
+    """The Coulomb metric (P|Q) of a fitting set, unscreened.
+
+    Parameters
+    ----------
+    aux : BasisSet
+        The fitting set placed on the molecule.
+
+    Returns
+    -------
+    ndarray, shape (naux, naux)
+        (P|Q) = ∫∫ P(r₁) Q(r₂) / r₁₂ in hartree, symmetric.
+    """
+    groups = _fitting_groups(aux)
+    n = aux.n_functions
+    out = np.zeros((n, n))
+    for ia, g1 in enumerate(groups):
+        for g2 in groups[: ia + 1]:
+            bra, ket = (g1, g2) if _cost(g1, g2) <= _cost(g2, g1) else (g2, g1)
+            nb_size, nk_size = _tile_sizes(bra, ket)
+            for brows in _chunks(bra.n, nb_size):
+                for krows in _chunks(ket.n, nk_size):
+                    block = _tile(bra, brows, ket, krows)
+                    b_idx = bra.pidx[brows].reshape(-1, 1)
+                    k_idx = ket.pidx[krows].reshape(1, -1)
+                    values = block.reshape(b_idx.size, k_idx.size)
+                    out[b_idx, k_idx] = values
+                    out[k_idx.T, b_idx.T] = values.T
+    return out
+
+
+class ThreeCenterEngine:
+    """Three-centre integrals (P|μν) of an orbital basis and a fitting set, whole or in blocks.
+
+    Parameters
+    ----------
+    basis : BasisSet
+        The orbital basis.
+    aux : BasisSet
+        The fitting set on the same molecule.
+    threshold : float
+        Screening threshold (hartree): tiles with Q_μν (P|P)^{1/2} below it
+        are skipped, and orbital primitive pairs are dropped as in the
+        four-centre passes. 0 disables screening.
+
+    Attributes
+    ----------
+    n_functions : int
+        nbf of the orbital basis.
+    n_aux : int
+        naux of the fitting set.
+    n_pairs : int
+        nbf(nbf+1)/2, the columns of every block.
+    """
+
+    def __init__(self, basis: BasisSet, aux: BasisSet, *, threshold: float = 1e-12) -> None:
+        if threshold < 0:
+            raise InputError(f"the screening threshold must be >= 0, not {threshold}")
+        self.n_functions = basis.n_functions
+        self.n_aux = aux.n_functions
+        self.n_pairs = self.n_functions * (self.n_functions + 1) // 2
+        self.threshold = float(threshold)
+        self._pairs = _prepare(basis, threshold)
+        self._aux = _fitting_groups(aux)
+
+    def _pieces(self, block_functions: int) -> list[list[_Piece]]:
+        """Fitting rows cut into blocks of at most ``block_functions`` functions (at least one shell)."""
+        blocks: list[list[_Piece]] = []
+        current: list[_Piece] = []
+        used = 0
+        for gi, group in enumerate(self._aux):
+            rows_per = max(1, block_functions // group.nf)
+            for rows in _chunks(group.n, rows_per):
+                size = (rows.stop - rows.start) * group.nf
+                if current and used + size > block_functions:
+                    blocks.append(current)
+                    current, used = [], 0
+                current.append(_Piece(gi, rows))
+                used += size
+        if current:
+            blocks.append(current)
+        return blocks
+
+    def largest_block(self, block_functions: int) -> int:
+        """The most fitting functions any block of :meth:`blocks` holds for this size."""
+        return max((sum((p.rows.stop - p.rows.start) * self._aux[p.group].nf for p in b)
+                    for b in self._pieces(block_functions)), default=0)
+
+    def blocks(self, block_functions: int = DEFAULT_BLOCK_FUNCTIONS) -> Iterator[tuple[np.ndarray, np.ndarray]]:
+        """Compute (P|μν) a block of fitting functions at a time.
+
+        Parameters
+        ----------
+        block_functions : int
+            Largest number of fitting functions per block (a single shell
+            with more functions still forms one block).
+
+        Yields
+        ------
+        index : ndarray of int, shape (nblock,)
+            The fitting functions of the block.
+        values : ndarray, shape (nblock, npair)
+            (P|μν) at column μ(μ+1)/2 + ν, μ >= ν, hartree.
+        """
+        for pieces in self._pieces(block_functions):
+            index = np.concatenate([self._aux[p.group].pidx[p.rows].ravel() for p in pieces])
+            out = np.zeros((index.size, self.n_pairs))
+            start = 0
+            for piece in pieces:
+                group = self._aux[piece.group]
+                nrow = (piece.rows.stop - piece.rows.start) * group.nf
+                self._fill(group, piece.rows, out[start : start + nrow])
+                start += nrow
+            yield index, out
+
+    def compute(self) -> np.ndarray:
+        """All of (P|μν), shape (naux, npair), in fitting-function order."""
+        out = np.empty((self.n_aux, self.n_pairs))
+        for index, values in self.blocks(self.n_aux):
+            out[index] = values
+        return out
+
+    def _fill(self, aux: _EriPairs, rows: slice, out: np.ndarray) -> None:
+        """(P|μν) of fitting rows ``rows`` of one group into ``out`` (nrows * nf, npair)."""
+        local = np.arange(out.shape[0]).reshape(rows.stop - rows.start, aux.nf)
+        for orb in self._pairs:
+            aux_bra = _cost(aux, orb) <= _cost(orb, aux)
+            bra, ket = (aux, orb) if aux_bra else (orb, aux)
+            nb_size, nk_size = _tile_sizes(bra, ket)
+            a_size, o_size = (nb_size, nk_size) if aux_bra else (nk_size, nb_size)
+            for arows in _chunks(rows.stop - rows.start, a_size):
+                arows = slice(arows.start + rows.start, arows.stop + rows.start)
+                qa = aux.q[arows.start]
+                for orows in _chunks(orb.n, o_size):
+                    # Both sides are sorted by decreasing bound: the first failing tile ends the row.
+                    if qa * orb.q[orows.start] < self.threshold:
+                        break
+                    count = int(np.sum(qa * orb.q[orows] >= self.threshold))
+                    orows = slice(orows.start, orows.start + max(count, 1))
+                    a_local = local[arows.start - rows.start : arows.stop - rows.start].reshape(-1)
+                    o_cols = orb.pidx[orows].reshape(-1)
+                    if aux_bra:
+                        block = _tile(aux, arows, orb, orows)
+                        out[a_local[:, None], o_cols[None, :]] = block.reshape(a_local.size, o_cols.size)
+                    else:
+                        block = _tile(orb, orows, aux, arows)
+                        out[a_local[None, :], o_cols[:, None]] = block.reshape(o_cols.size, a_local.size)
+
+
+def three_center_integrals(basis: BasisSet, aux: BasisSet, *, threshold: float = 0.0) -> np.ndarray:
+    """All three-centre integrals (P|μν), dense.
+
+    Parameters
+    ----------
+    basis : BasisSet
+        The orbital basis.
+    aux : BasisSet
+        The fitting set.
+    threshold : float
+        Screening threshold (hartree); 0 (default) computes every integral.
+
+    Returns
+    -------
+    ndarray, shape (naux, nbf, nbf)
+        (P|μν) = ∫∫ P(r₁) μ(r₂) ν(r₂) / r₁₂ in hartree, symmetric in μν.
+    """
+    packed = ThreeCenterEngine(basis, aux, threshold=threshold).compute()
+    n = basis.n_functions
+    first, second = np.tril_indices(n)
+    pair = np.zeros((n, n), dtype=np.intp)
+    pair[first, second] = np.arange(first.size)
+    pair[second, first] = np.arange(first.size)
+    return packed[:, pair]
+
+
+def estimate_three_center_memory(basis: BasisSet, aux: BasisSet) -> int:
+    """Bytes the whole (P|μν) array needs: 8 naux nbf(nbf+1)/2.
+
+    Parameters
+    ----------
+    basis, aux : BasisSet
+        Orbital basis and fitting set.
+
+    Returns
+    -------
+    int
+    """
+    n = basis.n_functions
+    return 8 * aux.n_functions * (n * (n + 1) // 2)
+
+
+__all__ = [
+    "ThreeCenterEngine",
+    "three_center_integrals",
+    "two_center_integrals",
+    "estimate_three_center_memory",
+    "DEFAULT_BLOCK_FUNCTIONS",
+]
