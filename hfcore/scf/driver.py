@@ -10,10 +10,12 @@ import numpy as np
 
 from .. import integrals
 from ..basis import build_basis
+from ..basis.fitting import FittingChoice, fitting_basis
 from ..basis.shells import BasisSet
 from ..errors import ConvergenceError, InputError, ResourceError
 from ..geometry import Molecule
 from ..integrals.two_electron import STORE_LIMIT_BYTES
+from .fitted_jk import FittedJK, FittingPlan, plan_fitting
 from .guess import sad_density
 from .jk import IncrementalJK, JKBuilder
 from .options import SCFOptions
@@ -81,7 +83,10 @@ def run_rhf(
     hcore = integrals.kinetic(basis) + integrals.nuclear_attraction(
         basis, molecule.atomic_numbers.astype(np.float64), molecule.coordinates
     )
-    plan = plan_jk(basis, options)
+    fitting = None
+    if options.fit_basis is not None:
+        fitting = fitting_basis(molecule, basis, options.fit_basis)
+    plan = plan_jk(basis, options, fitting=fitting, n_occupied=molecule.n_electrons // 2)
     jk = _jk_builder(basis, options, plan, integral_progress)
     t_integrals = time.perf_counter()
     if isinstance(guess, str) and guess.lower() == "sad":
@@ -98,8 +103,15 @@ def run_rhf(
             "scf": result.timings["scf"],
             "total": time.perf_counter() - t0,
         }
+        fitted = {}
+        if plan.fitting is not None:
+            fitted = {
+                "fit_basis": plan.fit_basis, "fit_notes": plan.fit_notes, "fit_storage": plan.fitting.storage,
+                "fit_dropped": getattr(jk, "n_dropped", 0),
+            }
         return replace(
-            result, molecule=molecule, basis=basis, timings=timings, jk_mode=plan.mode, eri_bytes=plan.eri_bytes
+            result, molecule=molecule, basis=basis, timings=timings, jk_mode=plan.mode, eri_bytes=plan.eri_bytes,
+            **fitted,
         )
 
     try:
@@ -131,23 +143,35 @@ class JKPlan:
 
     Attributes
     ----------
-    mode : {"stored", "direct"}
-        Store the integrals once, or recompute them every iteration.
+    mode : {"stored", "direct", "fitted"}
+        Store the integrals once, recompute them every iteration, or fit them.
     eri_bytes : int
         Memory the stored integrals need (bytes), from
-        :func:`hfcore.integrals.estimate_eri_memory`.
+        :func:`hfcore.integrals.estimate_eri_memory`; in fitted mode the
+        predicted peak of the fitted way chosen.
     limit_bytes : int
         The budget they were measured against (bytes): ``memory_limit``,
         capped at :data:`hfcore.integrals.two_electron.STORE_LIMIT_BYTES`.
+    fitting : FittingPlan or None
+        Stored or blocked fitted factors (fitted mode only).
+    fit_basis : BasisSet or None
+        The fitting set (fitted mode only).
+    fit_notes : tuple of str
+        How it was chosen.
     """
 
     mode: str
     eri_bytes: int
     limit_bytes: int
+    fitting: FittingPlan | None = None
+    fit_basis: BasisSet | None = None
+    fit_notes: tuple[str, ...] = ()
 
 
-def plan_jk(basis: BasisSet, options: SCFOptions | None = None) -> JKPlan:
-    """Choose stored or direct J/K builds for a basis, per ``options.direct``.
+def plan_jk(
+    basis: BasisSet, options: SCFOptions | None = None, *, fitting: FittingChoice | None = None, n_occupied: int = 1
+) -> JKPlan:
+    """Choose stored, direct or fitted J/K builds for a basis, per ``options``.
 
     Parameters
     ----------
@@ -155,6 +179,12 @@ def plan_jk(basis: BasisSet, options: SCFOptions | None = None) -> JKPlan:
     options : SCFOptions, optional
         ``direct`` True or False forces the mode; None picks stored if it
         fits within ``memory_limit``, else direct.
+    fitting : FittingChoice, optional
+        The placed fitting set when ``options.fit_basis`` is set (from
+        :func:`hfcore.basis.fitting.fitting_basis`); the plan is then
+        "fitted", with stored or blocked factors per :func:`plan_fitting`.
+    n_occupied : int
+        Doubly occupied orbitals (sizes the blocked fitted way).
 
     Returns
     -------
@@ -163,9 +193,18 @@ def plan_jk(basis: BasisSet, options: SCFOptions | None = None) -> JKPlan:
     Raises
     ------
     ResourceError
-        If stored integrals are forced (``direct=False``) and do not fit.
+        If stored integrals are forced (``direct=False``) and do not fit,
+        or fitted ones do not fit even in blocks.
+    InputError
+        If ``options.fit_basis`` is set but no ``fitting`` is given.
     """
     options = options or SCFOptions()
+    if options.fit_basis is not None:
+        if fitting is None:
+            raise InputError("plan_jk: options.fit_basis is set; pass fitting=fitting_basis(molecule, basis, choice)")
+        limit = min(options.memory_limit_bytes, STORE_LIMIT_BYTES)
+        fplan = plan_fitting(basis, fitting.basis, n_occupied, limit)
+        return JKPlan("fitted", fplan.need_bytes, limit, fplan, fitting.basis, fitting.notes)
     need = integrals.estimate_eri_memory(basis)
     limit = min(options.memory_limit_bytes, STORE_LIMIT_BYTES)
     if options.direct is None:
@@ -184,6 +223,8 @@ def plan_jk(basis: BasisSet, options: SCFOptions | None = None) -> JKPlan:
 def _jk_builder(
     basis: BasisSet, options: SCFOptions, plan: JKPlan, integral_progress: Callable[[float], None] | None
 ) -> JKBuilder:
+    if plan.mode == "fitted":
+        return FittedJK(basis, plan.fit_basis, plan.fitting, threshold=options.screening)
     if plan.mode == "direct":
         engine = integrals.DirectERI(basis, threshold=options.screening)
         return IncrementalJK(engine, options.rebuild_interval)

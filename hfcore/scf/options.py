@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 from ..errors import InputError
 
@@ -96,6 +97,11 @@ class SCFOptions:
         In direct mode J and K are built from the density change of each
         iteration; every this many builds they are rebuilt from the full
         density so round-off cannot accumulate.
+    fit_basis : str, BasisFamily, BasisSet or None
+        Density-fitted J and K with this fitting set: ``"auto"`` (see
+        :func:`hfcore.basis.fitting.fitting_basis`), a set's name such as
+        ``"cc-pvtz-jkfit"``, a family or a placed set. None (default) uses
+        the exact integrals. Excludes ``direct``.
 
     Raises
     ------
@@ -116,6 +122,7 @@ class SCFOptions:
     direct: bool | None = None
     memory_limit: float | None = None
     rebuild_interval: int = 8
+    fit_basis: Any = None
 
     def __post_init__(self) -> None:
         for name in ("energy_tol", "gradient_tol", "lindep_threshold"):
@@ -130,6 +137,22 @@ class SCFOptions:
         if self.memory_limit is not None:
             object.__setattr__(self, "memory_limit", _positive("memory_limit", self.memory_limit))
         object.__setattr__(self, "rebuild_interval", _count("rebuild_interval", self.rebuild_interval, 1))
+        self._check_fit_basis()
+
+    def _check_fit_basis(self) -> None:
+        from ..basis.family import BasisFamily
+        from ..basis.shells import BasisSet
+
+        value = self.fit_basis
+        if value is None:
+            return
+        if isinstance(value, str):
+            if not value.strip():
+                raise InputError("SCF option fit_basis must name a fitting set or be 'auto', not an empty string")
+        elif not isinstance(value, (BasisFamily, BasisSet)):
+            raise InputError(f"SCF option fit_basis must be a name, a BasisFamily or a BasisSet, got {value!r}")
+        if self.direct is not None:
+            raise InputError("SCF options fit_basis and direct exclude each other: fitted J and K need no stored or direct integrals")
 
     @property
     def memory_limit_bytes(self) -> int:

@@ -98,12 +98,22 @@ class RHFResult:
         The settings used.
     message : str
         Why the run stopped, in words.
-    jk_mode : {"stored", "direct", "given"}
+    jk_mode : {"stored", "direct", "fitted", "given"}
         How J and K were built: from stored integrals, by recomputing them
-        every iteration, or by a builder handed to :func:`solve_rhf`.
+        every iteration, by density fitting, or by a builder handed to
+        :func:`solve_rhf`.
     eri_bytes : int
         Predicted memory of the stored integrals (bytes), whichever mode
-        ran; 0 when unknown (bare matrices).
+        ran; 0 when unknown (bare matrices). In fitted mode, the predicted
+        peak of the fitted factors.
+    fit_basis : BasisSet or None
+        The fitting set of a fitted run.
+    fit_notes : tuple of str
+        How the fitting set was chosen (``auto``), and what it lacked.
+    fit_storage : {"stored", "blocked", ""}
+        Fitted factors kept, or recomputed in blocks every iteration.
+    fit_dropped : int
+        Metric eigenvectors dropped as near-singular.
     """
 
     energy_total: float
@@ -129,6 +139,10 @@ class RHFResult:
     basis: "BasisSet | None" = None
     jk_mode: str = "given"
     eri_bytes: int = 0
+    fit_basis: "BasisSet | None" = None
+    fit_notes: tuple[str, ...] = ()
+    fit_storage: str = ""
+    fit_dropped: int = 0
 
     @property
     def n_occupied(self) -> int:

@@ -1,0 +1,340 @@
+"""Density-fitted J and K with the Coulomb metric.
+
+Method
+------
+The orbital products are fitted in a fitting set {P} with the Coulomb
+metric (Whitten, J. Chem. Phys. 58, 4496 (1973); Vahtras, Almlöf and
+Feyereisen, Chem. Phys. Lett. 213, 514 (1993)):
+(μν|λσ) ≈ Σ_PQ (μν|P) [M⁻¹]_PQ (Q|λσ), M_PQ = (P|Q). With M = L Lᵀ and
+the whitened factors B = L⁻¹ (P|μν):
+
+* J_μν = Σ_P B_Pμν g_P with g = B d, d the packed density (two BLAS
+  matrix-vector products over the factors);
+* K_μν = Σ_P Σ_k w_k Y_Pkμ Y_Pkν with Y_Pk· = Σ_μ v_μk B_Pμ·, where
+  D = Σ_k w_k v_k v_kᵀ is the density factored by its eigenvectors
+  (weights of either sign, so a guess or a density change works too; the
+  SCF density 2 C_occ C_occᵀ has nocc non-zero weights), so a K build costs
+  O(naux · nocc · nbf²) in matrix products.
+
+The metric is factored by Cholesky; when it fails or a pivot falls below
+:data:`METRIC_THRESHOLD`, by eigen-decomposition instead, dropping the
+eigenvectors below that threshold and reporting how many
+(:attr:`FittedJK.n_dropped`), as for near-linear dependence in the overlap.
+
+Memory
+------
+With the whole factor array (8 naux nbf(nbf+1)/2 bytes) in the budget it is
+computed once ("stored"). Otherwise each J/K build recomputes (P|μν) in
+blocks of fitting functions ("blocked"): one pass forms g and the
+half-transformed Σ_μ v_μk (P|μν) (8 naux · rank · nbf bytes), a second
+forms J from the fitted coefficients M⁻¹ g. :func:`plan_fitting` predicts
+both before anything is computed.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.linalg
+
+from ..basis.shells import BasisSet
+from ..errors import ResourceError
+from ..integrals.three_center import ThreeCenterEngine, estimate_three_center_memory, two_center_integrals
+
+#: Smallest metric eigenvalue (or Cholesky pivot squared) kept, hartree.
+METRIC_THRESHOLD: float = 1e-10
+#: Unpacked (P|μν) rows per K step are limited to about this many bytes.
+_WORK_BYTES = 64 << 20
+#: Orbital-pair columns whitened at a time.
+_COLUMN_CHUNK = 4096
+
+
+@dataclass(frozen=True)
+class FittingPlan:
+    """How fitted J and K will be built, decided before any integral is computed.
+
+    Attributes
+    ----------
+    storage : {"stored", "blocked"}
+        Factors computed once and kept, or recomputed in blocks every build.
+    need_bytes : int
+        Predicted peak memory of the chosen way (bytes).
+    stored_bytes : int
+        What keeping the factors would need (bytes).
+    limit_bytes : int
+        The budget.
+    block_functions : int
+        Fitting functions per block in the blocked way (naux when stored).
+    half_bytes : int
+        Room for the half-transformed factors in the blocked way (bytes);
+        a density of higher rank than fits is taken in several passes.
+    """
+
+    storage: str
+    need_bytes: int
+    stored_bytes: int
+    limit_bytes: int
+    block_functions: int
+    half_bytes: int = 0
+
+
+def _metric_bytes(naux: int) -> int:
+    return 16 * naux * naux
+
+
+def _work_rows(nbf: int) -> int:
+    return max(1, _WORK_BYTES // max(1, 8 * nbf * nbf))
+
+
+def plan_fitting(basis: BasisSet, aux: BasisSet, n_occupied: int, limit_bytes: int) -> FittingPlan:
+    """Choose stored or blocked factors for a memory budget.
+
+    Parameters
+    ----------
+    basis, aux : BasisSet
+        Orbital basis and fitting set.
+    n_occupied : int
+        Doubly occupied orbitals: the rank of the SCF density, which sets
+        the size of the half-transformed factors of the blocked way.
+    limit_bytes : int
+        Memory budget (bytes).
+
+    Returns
+    -------
+    FittingPlan
+
+    Raises
+    ------
+    ResourceError
+        If even the blocked way with the smallest blocks exceeds the budget.
+    """
+    nbf, naux = basis.n_functions, aux.n_functions
+    npair = nbf * (nbf + 1) // 2
+    work = 8 * min(_work_rows(nbf), naux) * nbf * nbf * 2
+    fixed = _metric_bytes(naux) + 8 * nbf * nbf * 8
+    stored = estimate_three_center_memory(basis, aux) + fixed + work
+    if stored <= limit_bytes:
+        return FittingPlan("stored", stored, stored, limit_bytes, naux)
+    half = 8 * naux * max(1, n_occupied) * nbf
+    smallest = max(s.n_functions(aux.spherical) for s in aux.shells)
+    per_function = 8 * (npair + nbf * nbf)  # a block row, packed and unpacked
+    room = limit_bytes - fixed - half
+    if room < smallest * per_function:
+        minimum = fixed + half + smallest * per_function
+        raise ResourceError(
+            f"density fitting with {naux} fitting and {nbf} orbital functions needs at least "
+            f"{minimum / 2**20:.3g} MiB even in blocks, but {limit_bytes / 2**20:.3g} MiB are allowed; "
+            f"raise the limit (--memory MIB, memory_limit)"
+        )
+    block = int(min(naux, room // per_function))
+    return FittingPlan(
+        "blocked", fixed + half + block * per_function, stored, limit_bytes, block,
+        limit_bytes - fixed - block * per_function,
+    )
+
+
+class MetricFactor:
+    """A factorisation of the Coulomb metric, M ≈ Wᵀ W restricted to its well-conditioned part.
+
+    Parameters
+    ----------
+    metric : ndarray, shape (naux, naux)
+        (P|Q).
+    threshold : float
+        Cholesky is used when every pivot squared is above it; otherwise
+        eigenvectors with eigenvalue below it are dropped.
+
+    Attributes
+    ----------
+    method : {"cholesky", "eigen"}
+    n_dropped : int
+        Eigenvectors dropped (0 with Cholesky).
+    n_kept : int
+        Rows of the whitened factors.
+    """
+
+    def __init__(self, metric: np.ndarray, threshold: float = METRIC_THRESHOLD) -> None:
+        naux = metric.shape[0]
+        try:
+            lower = scipy.linalg.cholesky(metric, lower=True, check_finite=False)
+            ok = bool(np.all(np.diag(lower) ** 2 > threshold))
+        except np.linalg.LinAlgError:
+            ok = False
+        if ok:
+            self.method = "cholesky"
+            self._lower = lower
+            self.n_dropped = 0
+            self.n_kept = naux
+        else:
+            values, vectors = np.linalg.eigh(metric)
+            keep = values > threshold
+            self.method = "eigen"
+            self._w = np.ascontiguousarray((vectors[:, keep] / np.sqrt(values[keep])).T)  # (nkeep, naux)
+            self.n_dropped = int(naux - keep.sum())
+            self.n_kept = int(keep.sum())
+
+    def whiten(self, x: np.ndarray) -> np.ndarray:
+        """W x for x of shape (naux, m): L⁻¹ x (Cholesky) or λ^{-1/2} Uᵀ x; shape (n_kept, m).
+
+        Works in column chunks, writing into the leading rows of ``x``
+        (which is overwritten); returns that view.
+        """
+        for start in range(0, x.shape[1], _COLUMN_CHUNK):
+            cols = slice(start, min(start + _COLUMN_CHUNK, x.shape[1]))
+            if self.method == "cholesky":
+                x[:, cols] = scipy.linalg.solve_triangular(self._lower, x[:, cols], lower=True, check_finite=False)
+            else:
+                x[: self.n_kept, cols] = self._w @ x[:, cols]
+        return x[: self.n_kept]
+
+    def solve(self, g: np.ndarray) -> np.ndarray:
+        """M⁻¹ g on the kept space, shape (naux,)."""
+        if self.method == "cholesky":
+            return scipy.linalg.cho_solve((self._lower, True), g, check_finite=False)
+        return self._w.T @ (self._w @ g)
+
+
+def factor_density(density: np.ndarray, tolerance: float = 1e-13) -> tuple[np.ndarray, np.ndarray]:
+    """Eigen-factor a symmetric matrix: D ≈ Σ_k w_k v_k v_kᵀ, dropping |w_k| below tolerance · max |w|.
+
+    Returns
+    -------
+    vectors : ndarray, shape (nbf, rank)
+        v_k sqrt|w_k|, positive weights first.
+    signs : ndarray, shape (rank,)
+        +1 or -1.
+    """
+    w, v = np.linalg.eigh(density)
+    big = np.abs(w).max() if w.size else 0.0
+    keep = np.abs(w) > tolerance * big if big > 0 else np.zeros(w.shape, dtype=bool)
+    order = np.argsort(-w[keep], kind="stable")
+    wk, vk = w[keep][order], v[:, keep][:, order]
+    return np.ascontiguousarray(vk * np.sqrt(np.abs(wk))), np.sign(wk)
+
+
+class FittedJK:
+    """A J/K builder from density-fitted integrals (see the module notes).
+
+    Parameters
+    ----------
+    basis : BasisSet
+        Orbital basis.
+    aux : BasisSet
+        Fitting set on the same molecule.
+    plan : FittingPlan
+        From :func:`plan_fitting`.
+    threshold : float
+        Screening threshold of the three-centre integrals (hartree).
+    metric_threshold : float
+        See :class:`MetricFactor`.
+
+    Attributes
+    ----------
+    n_dropped : int
+        Metric eigenvectors dropped as near-singular.
+    storage : {"stored", "blocked"}
+    """
+
+    def __init__(
+        self, basis: BasisSet, aux: BasisSet, plan: FittingPlan, *, threshold: float = 1e-12,
+        metric_threshold: float = METRIC_THRESHOLD,
+    ) -> None:
+        self.n_functions = basis.n_functions
+        self.n_aux = aux.n_functions
+        self.storage = plan.storage
+        self._plan = plan
+        self._engine = ThreeCenterEngine(basis, aux, threshold=threshold)
+        self._metric = MetricFactor(two_center_integrals(aux), metric_threshold)
+        self.n_dropped = self._metric.n_dropped
+        n = self.n_functions
+        first, second = np.tril_indices(n)
+        pair = np.empty((n, n), dtype=np.intp)
+        pair[first, second] = np.arange(first.size)
+        pair[second, first] = np.arange(first.size)
+        self._pair = pair.ravel()
+        self._first, self._second = first, second
+        self._factors: np.ndarray | None = None
+        if self.storage == "stored":
+            self._factors = self._metric.whiten(self._engine.compute())
+
+    def _packed(self, density: np.ndarray) -> np.ndarray:
+        d = density[self._first, self._second]
+        return d * np.where(self._first == self._second, 1.0, 2.0)
+
+    def _unpack(self, rows: np.ndarray) -> np.ndarray:
+        return rows[:, self._pair].reshape(rows.shape[0], self.n_functions, self.n_functions)
+
+    @staticmethod
+    def _exchange(y: np.ndarray, signs: np.ndarray) -> np.ndarray:
+        """Σ_P Σ_k s_k Y_Pkμ Y_Pkν for y of shape (nP, rank, nbf)."""
+        npos = int(np.count_nonzero(signs > 0))
+        k = np.zeros((y.shape[2], y.shape[2]))
+        for part, sign in ((slice(0, npos), 1.0), (slice(npos, y.shape[1]), -1.0)):
+            if part.stop > part.start:
+                flat = np.ascontiguousarray(y[:, part]).reshape(-1, y.shape[2])
+                k += sign * (flat.T @ flat)
+        return k
+
+    def jk(self, density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Fitted Coulomb and exchange matrices of a symmetric density.
+
+        Parameters
+        ----------
+        density : ndarray, shape (nbf, nbf)
+
+        Returns
+        -------
+        J, K : ndarray, shape (nbf, nbf)
+            J_μν ≈ Σ (μν|λσ) D_λσ and K_μν ≈ Σ (μλ|νσ) D_λσ with the fitted integrals.
+        """
+        d = np.asarray(density, dtype=np.float64)
+        vectors, signs = factor_density(d)
+        dp = self._packed(d)
+        if self._factors is not None:
+            b = self._factors
+            jp = b.T @ (b @ dp)
+            k = np.zeros((self.n_functions, self.n_functions))
+            if signs.size:
+                step = _work_rows(self.n_functions)
+                for start in range(0, b.shape[0], step):
+                    y = np.matmul(vectors.T, self._unpack(b[start : start + step]))  # (nP, rank, nbf)
+                    k += self._exchange(y, signs)
+        else:
+            jp, k = self._blocked(dp, vectors, signs)
+        j = np.empty((self.n_functions, self.n_functions))
+        j[self._first, self._second] = jp
+        j[self._second, self._first] = jp
+        return j, 0.5 * (k + k.T)
+
+    def _blocked(self, dp: np.ndarray, vectors: np.ndarray, signs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """J (packed) and K recomputing (P|μν) in blocks; the density rank is taken in chunks that fit."""
+        n, naux = self.n_functions, self.n_aux
+        block = self._plan.block_functions
+        rank = vectors.shape[1]
+        chunk = max(1, min(rank, self._plan.half_bytes // (8 * naux * n))) if rank else 0
+        gamma = np.zeros(naux)
+        k = np.zeros((n, n))
+        first = True
+        for r0 in range(0, max(rank, 1), max(chunk, 1)):
+            cols = slice(r0, min(r0 + chunk, rank))
+            half = np.zeros((naux, cols.stop - cols.start, n)) if rank else None
+            for index, values in self._engine.blocks(block):
+                if first:
+                    gamma[index] = values @ dp
+                if half is not None:
+                    step = _work_rows(n)
+                    for s in range(0, index.size, step):
+                        half[index[s : s + step]] = np.matmul(vectors[:, cols].T, self._unpack(values[s : s + step]))
+            first = False
+            if half is not None:
+                y = self._metric.whiten(half.reshape(naux, -1)).reshape(-1, cols.stop - cols.start, n)
+                k += self._exchange(y, signs[cols])
+        coef = self._metric.solve(gamma)
+        jp = np.zeros(dp.size)
+        for index, values in self._engine.blocks(block):
+            jp += values.T @ coef[index]
+        return jp, k
+
+
+__all__ = ["FittedJK", "FittingPlan", "MetricFactor", "plan_fitting", "factor_density", "METRIC_THRESHOLD"]
