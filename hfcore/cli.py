@@ -107,6 +107,15 @@ def _add_scf_arguments(parser: argparse.ArgumentParser) -> None:
                         help="memory the stored integrals may use, in MiB (default: half of the available memory)")
 
 
+def _add_fit_argument(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument(
+        "--fit-basis",
+        metavar="NAME",
+        help="density-fitted J and K with this fitting set (e.g. cc-pvtz-jkfit, def2-universal-jkfit); "
+        "'auto' takes the set made for the orbital basis, else def2-universal-JKFIT",
+    )
+
+
 def _add_json_argument(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--json",
@@ -148,6 +157,7 @@ def build_parser() -> argparse.ArgumentParser:
         "several items or repeated flags are fine",
     )
     _add_scf_arguments(energy)
+    _add_fit_argument(energy)
     energy.add_argument("--guess", choices=("sad", "core"), default="sad", help="starting density (default sad)")
     _add_json_argument(energy)
     energy.add_argument(
@@ -174,6 +184,7 @@ def build_parser() -> argparse.ArgumentParser:
     compare.add_argument(
         "--basis", required=True, metavar="NAMES", help="comma-separated basis names, e.g. sto-3g,6-31g*,cc-pvdz"
     )
+    _add_fit_argument(compare)
     _add_json_argument(compare)
     compare.add_argument("--plot", metavar="PNG", help="plot energy against the number of basis functions")
     compare.set_defaults(handler=_run_compare)
@@ -292,6 +303,8 @@ def _scf_options(args: argparse.Namespace) -> Any:
     given = {name: getattr(args, name) for name in names if getattr(args, name, None) is not None}
     if getattr(args, "memory", None) is not None:
         given["memory_limit"] = args.memory
+    if getattr(args, "fit_basis", None) is not None:
+        given["fit_basis"] = args.fit_basis
     return SCFOptions(**given)
 
 
@@ -350,7 +363,13 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
     molecule = _read_molecule(args)
     basis = _build_basis(args, molecule)
     options = _scf_options(args)
-    plan = plan_jk(basis, options)  # a forced store that cannot fit fails before any output
+    fitting = None
+    if options.fit_basis is not None:
+        from .basis.fitting import fitting_basis
+
+        fitting = fitting_basis(molecule, basis, options.fit_basis)
+    # A forced store, or a fitting set, that cannot fit fails before any output.
+    plan = plan_jk(basis, options, fitting=fitting, n_occupied=molecule.n_electrons // 2)
     console.report(f"hfcore {__version__} · restricted Hartree–Fock")
     console.report(report.format_molecule(molecule))
     console.report(report.format_basis(basis, plan))
@@ -420,7 +439,10 @@ def _run_compare(args: argparse.Namespace, console: _Console) -> int:
     if not names:
         raise InputError("--basis: give at least one basis name, e.g. sto-3g,cc-pvdz")
     molecule = _read_molecule(args)
-    comparison = compare_bases(molecule, names, spherical=args.spherical, progress=_stderr_progress(console))
+    options = _scf_options(args) if args.fit_basis is not None else None
+    comparison = compare_bases(
+        molecule, names, spherical=args.spherical, options=options, progress=_stderr_progress(console)
+    )
     record = export.comparison_record(comparison)
     if "plot" in paths:
         from .plots import plot_comparison
@@ -435,6 +457,8 @@ def _run_compare(args: argparse.Namespace, console: _Console) -> int:
     # found by compare_bases leaves stdout empty, as for every other error.
     console.report(report.format_molecule(molecule))
     console.report(report.format_comparison(comparison))
+    if args.fit_basis is not None:
+        console.report(f"  note: J and K density-fitted in every basis (--fit-basis {args.fit_basis})")
     _report_written(console, paths.values())
     return 0
 

@@ -194,6 +194,8 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
             "n_functions": basis.n_functions,
             "n_shells": basis.n_shells,
             "n_dropped": result.n_dropped,
+            "fit_name": None if result.fit_basis is None else result.fit_basis.name,
+            "fit_n_functions": None if result.fit_basis is None else result.fit_basis.n_functions,
         },
         "energy": {
             "total": result.energy_total,
@@ -207,6 +209,9 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
             "iterations": result.iterations,
             "jk_mode": result.jk_mode,
             "eri_memory_bytes": result.eri_bytes,
+            "fit_storage": result.fit_storage or None,
+            "fit_notes": list(result.fit_notes),
+            "fit_metric_dropped": result.fit_dropped,
             "thresholds": {
                 "energy_tol": opts.energy_tol,
                 "gradient_tol": opts.gradient_tol,

@@ -88,6 +88,20 @@ def _mib(n_bytes: int) -> str:
 
 
 def _jk_rows(plan: Any) -> list[tuple[str, str]]:
+    if plan.mode == "fitted":
+        fit = plan.fit_basis
+        if plan.fitting.storage == "stored":
+            how = "density-fitted: fitted factors stored once"
+        else:
+            how = f"density-fitted: factors recomputed every iteration in blocks of {plan.fitting.block_functions}"
+        rows = [
+            ("two-electron", how),
+            ("fitting set", f"{fit.name}, {fit.n_functions} functions ({fit.n_shells} shells, highest l "
+                            f"{'spdfghi'[fit.max_l]})"),
+            ("fitted size", f"{_mib(plan.eri_bytes)} predicted (limit {_mib(plan.limit_bytes)}; "
+                            f"all factors {_mib(plan.fitting.stored_bytes)})"),
+        ]
+        return rows + [("fitting note", note) for note in plan.fit_notes]
     if plan.mode == "stored":
         how = "stored once, reused every iteration"
     else:

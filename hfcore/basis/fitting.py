@@ -84,7 +84,7 @@ def fitting_basis(molecule: Molecule, orbital: BasisSet, choice: str | BasisFami
 
 def _auto(molecule: Molecule, orbital: BasisSet) -> FittingChoice:
     main = orbital.name.split(" (")[0]
-    match = _MATCHING.get(name_key(main))
+    match = {name_key(k): v for k, v in _MATCHING.items()}.get(name_key(main))
     if match is None:
         note = f"auto: {UNIVERSAL} (no exchange-fitting set made for {main})"
         return FittingChoice(build_basis(molecule, UNIVERSAL), (note,))
