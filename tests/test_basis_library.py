@@ -30,12 +30,16 @@ DATA_DIR = Path(library.__file__).parent / "data"
 SHIPPED = [
     "3-21G", "6-31G", "6-31G*", "6-31G**", "6-31+G*", "6-311G**",
     "cc-pVDZ", "cc-pVTZ", "cc-pVQZ", "aug-cc-pVDZ", "aug-cc-pVTZ", "def2-SVP", "def2-TZVP",
+    "def2-universal-JKFIT", "cc-pVTZ-JKFIT", "cc-pVQZ-JKFIT", "cc-pV5Z-JKFIT",
 ]  # fmt: skip
 
 
 @lru_cache(maxsize=None)
 def _published_elements(name: str) -> dict:
-    return bse.get_basis(name, elements=list(range(1, 19)), header=False)["elements"]
+    # The fitting sets leave some of H-Ar out; ask only for those the set defines.
+    meta = bse.get_metadata()[bse.misc.transform_basis_name(name)]
+    defined = [int(z) for z in meta["versions"][meta["latest_version"]]["elements"] if int(z) <= 18]
+    return bse.get_basis(name, elements=defined, header=False)["elements"]
 
 
 def _published_shells(name: str, z: int) -> list[dict]:
