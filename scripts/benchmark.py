@@ -41,6 +41,15 @@ CASES = [
     ("benzene/cc-pVDZ", "benzene.xyz", "cc-pvdz", None),
 ]
 SCALING = [(f"(H2O){n}/6-31G", f"water_cluster_{n}.xyz", "6-31g", None) for n in range(1, 9)]
+#: Density-fitted cases: (label, geometry file, basis, fitting set); run with --fitted.
+FITTED_CASES = [
+    ("benzene/cc-pVTZ/DF", "benzene.xyz", "cc-pvtz", "cc-pvtz-jkfit"),
+    ("benzene/cc-pVQZ/DF", "benzene.xyz", "cc-pvqz", "cc-pvqz-jkfit"),
+]
+#: Fitted water-cluster series in cc-pVTZ (58 functions per water); run with --fitted-scaling.
+FITTED_SCALING = [
+    (f"(H2O){n}/cc-pVTZ/DF", f"water_cluster_{n}.xyz", "cc-pvtz", "cc-pvtz-jkfit") for n in (2, 4, 6, 8, 10, 14)
+]
 
 ENERGY_TOL = 1e-10
 GRADIENT_TOL = 1e-7
@@ -125,6 +134,91 @@ def _run_reference(dump: dict, spherical: bool, threads: int, queue) -> None:
         queue.put({"error": f"{type(exc).__name__}: {exc}"})
 
 
+def _run_hfcore_fitted(path: str, basis_name: str, fit_name: str, threads: int, queue) -> None:
+    _limit_threads(threads)
+    try:
+        import hfcore
+        from hfcore.scf import SCFOptions
+
+        t0 = time.perf_counter()
+        mol = hfcore.read_xyz(path)
+        basis = hfcore.build_basis(mol, basis_name)
+        options = SCFOptions(energy_tol=ENERGY_TOL, gradient_tol=GRADIENT_TOL, fit_basis=fit_name)
+        res = hfcore.run_rhf(mol, basis, options)
+        wall = time.perf_counter() - t0
+        queue.put(
+            {
+                "energy": res.energy_total,
+                "iterations": res.iterations,
+                "n_functions": basis.n_functions,
+                "n_fit_functions": res.fit_basis.n_functions,
+                "spherical": basis.spherical,
+                "wall": wall,
+                "integrals": res.timings.get("integrals", math.nan),
+                "scf": res.timings.get("scf", math.nan),
+                "peak_mib": _peak_mib(),
+                "shells": _shell_dump(mol, basis),
+                "fit_shells": _shell_dump(mol, res.fit_basis),
+            }
+        )
+    except Exception as exc:
+        queue.put({"error": f"{type(exc).__name__}: {exc}"})
+
+
+def _reference_basis(dump: dict) -> tuple[list, dict]:
+    from hfcore import elements
+
+    atoms, basis = [], {}
+    for k, (z, r) in enumerate(dump["atoms"]):
+        label = f"{elements.symbol(z)}{k}"
+        atoms.append((label, r))
+        basis[label] = [[l] + [[e, *cs] for e, cs in zip(exps, zip(*coefs))] for l, exps, coefs in dump["per_atom"][k]]
+    return atoms, basis
+
+
+def _run_reference_fitted(dump: dict, fit_dump: dict, spherical: bool, threads: int, queue) -> None:
+    _limit_threads(threads)
+    try:
+        from pyscf import gto, lib, scf  # the reference library, benchmark-only
+
+        lib.num_threads(threads)
+        atoms, basis = _reference_basis(dump)
+        _, auxbasis = _reference_basis(fit_dump)
+        t0 = time.perf_counter()
+        mol = gto.M(atom=atoms, basis=basis, unit="Bohr", charge=dump["charge"], cart=not spherical, verbose=0)
+        mf = scf.RHF(mol).density_fit(auxbasis=auxbasis)
+        mf.conv_tol = ENERGY_TOL
+        mf.conv_tol_grad = GRADIENT_TOL
+        energy = mf.kernel()
+        wall = time.perf_counter() - t0
+        queue.put({"energy": float(energy), "iterations": int(getattr(mf, "cycles", -1)), "wall": wall, "peak_mib": _peak_mib()})
+    except ImportError:
+        queue.put({"error": "reference library not installed"})
+    except Exception as exc:
+        queue.put({"error": f"{type(exc).__name__}: {exc}"})
+
+
+def run_fitted_case(label: str, geometry: str, basis: str, fit: str, threads: int) -> dict:
+    """Measure one density-fitted case with hfcore and the reference library, same orbital and fitting shells."""
+    row = {"case": label, "threads": threads, "fit_basis": fit}
+    ours = _in_child(_run_hfcore_fitted, str(INPUTS / geometry), basis, fit, threads)
+    if "error" in ours:
+        row["error"] = ours["error"]
+        return row
+    dump, fit_dump = ours.pop("shells"), ours.pop("fit_shells")
+    row.update({f"hfcore_{k}": v for k, v in ours.items() if k not in {"n_functions", "spherical", "n_fit_functions"}})
+    row["n_functions"], row["n_fit_functions"], row["spherical"] = ours["n_functions"], ours["n_fit_functions"], ours["spherical"]
+    ref = _in_child(_run_reference_fitted, dump, fit_dump, ours["spherical"], threads)
+    if "error" in ref:
+        row["reference_error"] = ref["error"]
+    else:
+        row.update({f"reference_{k}": v for k, v in ref.items()})
+        row["ratio"] = ours["wall"] / ref["wall"]
+        row["memory_ratio"] = ours["peak_mib"] / ref["peak_mib"]
+        row["energy_difference"] = ours["energy"] - ref["energy"]
+    return row
+
+
 def _in_child(target, *args) -> dict:
     ctx = mp.get_context("spawn")
     queue = ctx.Queue()
@@ -196,6 +290,9 @@ def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--threads", type=int, default=1, help="threads for both programs (default 1)")
     parser.add_argument("--scaling", action="store_true", help="also run the water-cluster series and fit the cost exponent")
+    parser.add_argument("--fitted", action="store_true", help="also run the density-fitted benzene cases")
+    parser.add_argument("--fitted-scaling", action="store_true",
+                        help="also run the fitted water-cluster series in cc-pVTZ and fit its cost exponent")
     parser.add_argument("--only", help="comma-separated case labels to run")
     parser.add_argument("--json", help="write the rows as JSON to this path ('-' for stdout)")
     args = parser.parse_args(argv)
@@ -203,12 +300,22 @@ def main(argv: list[str] | None = None) -> int:
     if args.only:
         wanted = {s.strip() for s in args.only.split(",")}
         cases = [c for c in cases if c[0] in wanted]
+    fitted = (FITTED_CASES if args.fitted else []) + (FITTED_SCALING if args.fitted_scaling else [])
+    if args.only:
+        fitted = [c for c in fitted if c[0] in wanted]
     rows = []
     for label, geometry, basis, spherical in cases:
         print(f"running {label} ...", file=sys.stderr, flush=True)
         rows.append(run_case(label, geometry, basis, spherical, args.threads))
+    for label, geometry, basis, fit in fitted:
+        print(f"running {label} ...", file=sys.stderr, flush=True)
+        rows.append(run_fitted_case(label, geometry, basis, fit, args.threads))
     summary = {}
-    series = [r for r in rows if r["case"].startswith("(H2O)") and "error" not in r]
+    fitted_series = [r for r in rows if r["case"].startswith("(H2O)") and r["case"].endswith("/DF") and "error" not in r]
+    if fitted_series:
+        summary["fitted_scaling_exponent_hfcore"] = scaling_exponent(fitted_series, "hfcore_wall")
+        summary["fitted_scaling_exponent_reference"] = scaling_exponent(fitted_series, "reference_wall")
+    series = [r for r in rows if r["case"].startswith("(H2O)") and not r["case"].endswith("/DF") and "error" not in r]
     if series:
         summary["scaling_exponent_hfcore"] = scaling_exponent(series, "hfcore_wall")
         summary["scaling_exponent_reference"] = scaling_exponent(series, "reference_wall")
