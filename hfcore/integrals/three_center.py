@@ -207,6 +207,17 @@ class ThreeCenterEngine:
             out[index] = values
         return out
 
+    def compute_pair_major(self) -> np.ndarray:
+        """All of (P|μν) transposed, shape (npair, naux): row μ(μ+1)/2 + ν holds every fitting function.
+
+        The layout of fitted exchange builds, whose matrix products run over
+        the fitting index for one orbital pair after another.
+        """
+        out = np.empty((self.n_pairs, self.n_aux))
+        for index, values in self.blocks():
+            out[:, index] = values.T
+        return out
+
     def _fill(self, aux: _EriPairs, rows: slice, out: np.ndarray) -> None:
         """(P|μν) of fitting rows ``rows`` of one group into ``out`` (nrows * nf, npair)."""
         local = np.arange(out.shape[0]).reshape(rows.stop - rows.start, aux.nf)

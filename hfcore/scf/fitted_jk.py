@@ -188,6 +188,24 @@ class MetricFactor:
                 x[: self.n_kept, cols] = self._w @ x[:, cols]
         return x[: self.n_kept]
 
+    def whiten_pair_major(self, xt: np.ndarray) -> np.ndarray:
+        """(W xtᵀ)ᵀ for xt of shape (npair, naux), in place in row chunks; returns shape (npair, n_kept).
+
+        With Cholesky every chunk is a triangular solve on its transpose
+        (Fortran-ordered, so no copy of the whole array); with the
+        eigen-decomposition the kept columns are the leading ones (a view).
+        """
+        for start in range(0, xt.shape[0], _COLUMN_CHUNK):
+            rows = slice(start, min(start + _COLUMN_CHUNK, xt.shape[0]))
+            if self.method == "cholesky":
+                solved = scipy.linalg.solve_triangular(
+                    self._lower, xt[rows].T, lower=True, overwrite_b=True, check_finite=False
+                )
+                xt[rows] = solved.T
+            else:
+                xt[rows, : self.n_kept] = xt[rows] @ self._w.T
+        return xt[:, : self.n_kept]
+
     def solve(self, g: np.ndarray) -> np.ndarray:
         """M⁻¹ g on the kept space, shape (naux,)."""
         if self.method == "cholesky":
@@ -254,9 +272,12 @@ class FittedJK:
         pair[second, first] = np.arange(first.size)
         self._pair = pair.ravel()
         self._first, self._second = first, second
+        # Stored factors are pair-major, (npair, n_kept): see _exchange_stored.
         self._factors: np.ndarray | None = None
         if self.storage == "stored":
-            self._factors = self._metric.whiten(self._engine.compute())
+            self._factors = self._metric.whiten_pair_major(self._engine.compute_pair_major())
+            # Row p(μ, ν) for ν > μ, per μ: the rows the packed lower triangle does not hold in one run.
+            self._upper_rows = [self._pair.reshape(n, n)[mu, mu + 1 :] for mu in range(n)]
 
     def _packed(self, density: np.ndarray) -> np.ndarray:
         d = density[self._first, self._second]
@@ -293,19 +314,36 @@ class FittedJK:
         dp = self._packed(d)
         if self._factors is not None:
             b = self._factors
-            jp = b.T @ (b @ dp)
+            jp = b @ (dp @ b)
             k = np.zeros((self.n_functions, self.n_functions))
-            if signs.size:
-                step = _work_rows(self.n_functions)
-                for start in range(0, b.shape[0], step):
-                    y = np.matmul(vectors.T, self._unpack(b[start : start + step]))  # (nP, rank, nbf)
-                    k += self._exchange(y, signs)
+            for sign in (1.0, -1.0):
+                part = vectors[:, signs == sign]
+                if part.shape[1]:
+                    z = self._half_transform(part).reshape(self.n_functions, -1)
+                    k += sign * (z @ z.T)
         else:
             jp, k = self._blocked(dp, vectors, signs)
         j = np.empty((self.n_functions, self.n_functions))
         j[self._first, self._second] = jp
         j[self._second, self._first] = jp
         return j, 0.5 * (k + k.T)
+
+    def _half_transform(self, c: np.ndarray) -> np.ndarray:
+        """Z[μ, P, k] = Σ_ν B_Pμν c_νk from the pair-major factors, shape (nbf, n_kept, rank).
+
+        For each μ the rows p(μ, ν ≤ μ) are one contiguous run of the packed
+        layout, used in place; the rows p(μ, ν > μ) are gathered whole
+        (each a contiguous row over P), so every step is a matrix product.
+        """
+        b = self._factors
+        n = self.n_functions
+        z = np.empty((n, b.shape[1], c.shape[1]))
+        for mu in range(n):
+            start = mu * (mu + 1) // 2
+            np.matmul(b[start : start + mu + 1].T, c[: mu + 1], out=z[mu])
+            if mu + 1 < n:
+                z[mu] += b[self._upper_rows[mu]].T @ c[mu + 1 :]
+        return z
 
     def _blocked(self, dp: np.ndarray, vectors: np.ndarray, signs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """J (packed) and K recomputing (P|μν) in blocks; the density rank is taken in chunks that fit."""
