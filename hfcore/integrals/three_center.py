@@ -213,14 +213,21 @@ class ThreeCenterEngine:
         The layout of fitted exchange builds, whose matrix products run over
         the fitting index for one orbital pair after another.
         """
-        out = np.empty((self.n_pairs, self.n_aux))
-        for index, values in self.blocks():
-            out[:, index] = values.T
+        out = np.zeros((self.n_pairs, self.n_aux))
+        for group in self._aux:
+            self._fill(group, slice(0, group.n), out, pair_major=True)
         return out
 
-    def _fill(self, aux: _EriPairs, rows: slice, out: np.ndarray) -> None:
-        """(P|μν) of fitting rows ``rows`` of one group into ``out`` (nrows * nf, npair)."""
-        local = np.arange(out.shape[0]).reshape(rows.stop - rows.start, aux.nf)
+    def _fill(self, aux: _EriPairs, rows: slice, out: np.ndarray, pair_major: bool = False) -> None:
+        """(P|μν) of fitting rows ``rows`` of one group into ``out``.
+
+        ``out`` has shape (nrows * nf, npair), rows in block order, or with
+        ``pair_major`` shape (npair, naux), columns by fitting-function index.
+        """
+        if pair_major:
+            local = aux.pidx[rows]
+        else:
+            local = np.arange(out.shape[0]).reshape(rows.stop - rows.start, aux.nf)
         for orb in self._pairs:
             aux_bra = _cost(aux, orb) <= _cost(orb, aux)
             bra, ket = (aux, orb) if aux_bra else (orb, aux)
@@ -238,11 +245,13 @@ class ThreeCenterEngine:
                     a_local = local[arows.start - rows.start : arows.stop - rows.start].reshape(-1)
                     o_cols = orb.pidx[orows].reshape(-1)
                     if aux_bra:
-                        block = _tile(aux, arows, orb, orows)
-                        out[a_local[:, None], o_cols[None, :]] = block.reshape(a_local.size, o_cols.size)
+                        block = _tile(aux, arows, orb, orows).reshape(a_local.size, o_cols.size)
                     else:
-                        block = _tile(orb, orows, aux, arows)
-                        out[a_local[None, :], o_cols[:, None]] = block.reshape(o_cols.size, a_local.size)
+                        block = _tile(orb, orows, aux, arows).reshape(o_cols.size, a_local.size).T
+                    if pair_major:
+                        out[o_cols[:, None], a_local[None, :]] = block.T
+                    else:
+                        out[a_local[:, None], o_cols[None, :]] = block
 
 
 def three_center_integrals(basis: BasisSet, aux: BasisSet, *, threshold: float = 0.0) -> np.ndarray:
