@@ -6,7 +6,7 @@ A fitting function P is a Gaussian "pair" of P with a unit s function of
 exponent 0: its product centre is P's centre, its exponent sum P's
 exponent, and its Hermite expansion the one-centre E^{l0}_{tuv}. So the
 fitting shells become pair groups of the same kind the four-centre passes
-use (:mod:`hfcore.integrals.two_electron`), and a three-centre integral is a
+use (:mod:`hfcore.integrals.tiles`), and a three-centre integral is a
 tile of orbital pairs against fitting "pairs", a two-centre integral a tile
 of fitting "pairs" against themselves. The Boys function and Hermite
 integrals then go up to l_P + l_μ + l_ν (14 for i fitting functions with g
@@ -32,49 +32,12 @@ import numpy as np
 
 from ..basis.shells import BasisSet
 from ..errors import InputError
-from .pairs import PairGroup
-from .two_electron import _chunks, _cost, _diagonal, _EriPairs, _fold, _prepare, _tile, _tile_sizes
+from .eri_pairs import prepare_pairs, shell_batches
+from .tiles import PairBatch, batch_pairs, chunks, iter_tiles, tile_cost, tile_integrals, tile_sizes
 
 #: Fitting functions per block handed out by :meth:`ThreeCenterEngine.blocks`
 #: when no smaller size is asked for.
 DEFAULT_BLOCK_FUNCTIONS = 256
-
-
-def _fitting_groups(aux: BasisSet) -> list[_EriPairs]:
-    """Fitting shells as pair groups with a unit s partner; ``pidx`` holds fitting-function indices.
-
-    Grouped by (l, primitives, contractions) and sorted within a group by
-    decreasing (P|P)^{1/2}.
-    """
-    keys: dict[tuple[int, int, int], list[int]] = {}
-    for k, shell in enumerate(aux.shells):
-        keys.setdefault((shell.l, shell.n_primitives, shell.n_contractions), []).append(k)
-    offsets = aux.shell_offsets
-    out = []
-    for (l, nprim, _), members in sorted(keys.items()):
-        shells = [aux.shells[k] for k in members]
-        n = len(shells)
-        index = np.array(members, dtype=np.intp)
-        exp_a = np.array([s.exponents for s in shells])
-        center = np.array([s.center for s in shells], dtype=np.float64)
-        p = exp_a[:, :, None].copy()
-        P = np.ascontiguousarray(np.broadcast_to(center.T[:, :, None, None], (3, n, nprim, 1)))
-        group = PairGroup(
-            la=l, lb=0, shell_a=index, shell_b=index, exp_a=exp_a, exp_b=np.zeros((n, 1)),
-            coef_a=np.array([s.norm_coefficients for s in shells]), coef_b=np.ones((n, 1, 1)),
-            center_a=center, center_b=center, p=p, P=P, kab=np.ones((n, nprim, 1)),
-        )
-        e = _fold(group, aux.spherical)  # (n, nprim, nH, nf)
-        nf = e.shape[3]
-        pidx = offsets[index][:, None] + np.arange(nf)[None, :]
-        pairs = _EriPairs(l, p.reshape(n, nprim), P.reshape(3, n, nprim), e, pidx)
-        q = np.sqrt(np.abs(_diagonal(pairs)).max(axis=1))
-        order = np.argsort(-q, kind="stable")
-        pairs.p, pairs.P, pairs.e, pairs.pidx = pairs.p[order], pairs.P[:, order], pairs.e[order], pairs.pidx[order]
-        pairs.q = q[order]
-        pairs.finish()
-        out.append(pairs)
-    return out
 
 
 @dataclass(frozen=True)
@@ -98,21 +61,15 @@ def two_center_integrals(aux: BasisSet) -> np.ndarray:
     ndarray, shape (naux, naux)
         (P|Q) = ∫∫ P(r₁) Q(r₂) / r₁₂ in hartree, symmetric.
     """
-    groups = _fitting_groups(aux)
     n = aux.n_functions
     out = np.zeros((n, n))
-    for ia, g1 in enumerate(groups):
-        for g2 in groups[: ia + 1]:
-            bra, ket = (g1, g2) if _cost(g1, g2) <= _cost(g2, g1) else (g2, g1)
-            nb_size, nk_size = _tile_sizes(bra, ket)
-            for brows in _chunks(bra.n, nb_size):
-                for krows in _chunks(ket.n, nk_size):
-                    block = _tile(bra, brows, ket, krows)
-                    b_idx = bra.pidx[brows].reshape(-1, 1)
-                    k_idx = ket.pidx[krows].reshape(1, -1)
-                    values = block.reshape(b_idx.size, k_idx.size)
-                    out[b_idx, k_idx] = values
-                    out[k_idx.T, b_idx.T] = values.T
+    for g1, g2 in batch_pairs(shell_batches(aux.shells, aux.spherical)):
+        for tile in iter_tiles(g1, g2, 0.0):
+            b_idx = tile.bra.pidx[tile.brows].reshape(-1, 1)
+            k_idx = tile.ket.pidx[tile.krows].reshape(1, -1)
+            values = tile.integrals().reshape(b_idx.size, k_idx.size)
+            out[b_idx, k_idx] = values
+            out[k_idx.T, b_idx.T] = values.T
     return out
 
 
@@ -147,8 +104,8 @@ class ThreeCenterEngine:
         self.n_aux = aux.n_functions
         self.n_pairs = self.n_functions * (self.n_functions + 1) // 2
         self.threshold = float(threshold)
-        self._pairs = _prepare(basis, threshold)
-        self._aux = _fitting_groups(aux)
+        self._pairs = prepare_pairs(basis, threshold)
+        self._aux = shell_batches(aux.shells, aux.spherical)
 
     def _pieces(self, block_functions: int) -> list[list[_Piece]]:
         """Fitting rows cut into blocks of at most ``block_functions`` functions (at least one shell)."""
@@ -157,7 +114,7 @@ class ThreeCenterEngine:
         used = 0
         for gi, group in enumerate(self._aux):
             rows_per = max(1, block_functions // group.nf)
-            for rows in _chunks(group.n, rows_per):
+            for rows in chunks(group.n, rows_per):
                 size = (rows.stop - rows.start) * group.nf
                 if current and used + size > block_functions:
                     blocks.append(current)
@@ -214,29 +171,33 @@ class ThreeCenterEngine:
         the fitting index for one orbital pair after another.
         """
         out = np.zeros((self.n_pairs, self.n_aux))
-        for group in self._aux:
-            self._fill(group, slice(0, group.n), out, pair_major=True)
+        for aux, orb in batch_pairs(self._aux, self._pairs):
+            for tile in iter_tiles(aux, orb, self.threshold):
+                block = tile.integrals()
+                if tile.bra is aux:
+                    a_idx, o_idx = tile.bra.pidx[tile.brows].reshape(-1), tile.ket.pidx[tile.krows].reshape(-1)
+                    out[o_idx[:, None], a_idx[None, :]] = block.reshape(a_idx.size, o_idx.size).T
+                else:
+                    o_idx, a_idx = tile.bra.pidx[tile.brows].reshape(-1), tile.ket.pidx[tile.krows].reshape(-1)
+                    out[o_idx[:, None], a_idx[None, :]] = block.reshape(o_idx.size, a_idx.size)
         return out
 
-    def _fill(self, aux: _EriPairs, rows: slice, out: np.ndarray, pair_major: bool = False) -> None:
-        """(P|μν) of fitting rows ``rows`` of one group into ``out``.
+    def _fill(self, aux: PairBatch, rows: slice, out: np.ndarray) -> None:
+        """(P|μν) of fitting rows ``rows`` of one group into ``out`` (nrows * nf, npair), rows in block order.
 
-        ``out`` has shape (nrows * nf, npair), rows in block order, or with
-        ``pair_major`` shape (npair, naux), columns by fitting-function index.
+        The tile generator's loop (:func:`hfcore.integrals.tiles.iter_tiles`)
+        restricted to a range of fitting rows.
         """
-        if pair_major:
-            local = aux.pidx[rows]
-        else:
-            local = np.arange(out.shape[0]).reshape(rows.stop - rows.start, aux.nf)
+        local = np.arange(out.shape[0]).reshape(rows.stop - rows.start, aux.nf)
         for orb in self._pairs:
-            aux_bra = _cost(aux, orb) <= _cost(orb, aux)
+            aux_bra = tile_cost(aux, orb) <= tile_cost(orb, aux)
             bra, ket = (aux, orb) if aux_bra else (orb, aux)
-            nb_size, nk_size = _tile_sizes(bra, ket)
+            nb_size, nk_size = tile_sizes(bra, ket)
             a_size, o_size = (nb_size, nk_size) if aux_bra else (nk_size, nb_size)
-            for arows in _chunks(rows.stop - rows.start, a_size):
+            for arows in chunks(rows.stop - rows.start, a_size):
                 arows = slice(arows.start + rows.start, arows.stop + rows.start)
                 qa = aux.q[arows.start]
-                for orows in _chunks(orb.n, o_size):
+                for orows in chunks(orb.n, o_size):
                     # Both sides are sorted by decreasing bound: the first failing tile ends the row.
                     if qa * orb.q[orows.start] < self.threshold:
                         break
@@ -245,13 +206,10 @@ class ThreeCenterEngine:
                     a_local = local[arows.start - rows.start : arows.stop - rows.start].reshape(-1)
                     o_cols = orb.pidx[orows].reshape(-1)
                     if aux_bra:
-                        block = _tile(aux, arows, orb, orows).reshape(a_local.size, o_cols.size)
+                        block = tile_integrals(aux, arows, orb, orows).reshape(a_local.size, o_cols.size)
                     else:
-                        block = _tile(orb, orows, aux, arows).reshape(o_cols.size, a_local.size).T
-                    if pair_major:
-                        out[o_cols[:, None], a_local[None, :]] = block.T
-                    else:
-                        out[a_local[:, None], o_cols[None, :]] = block
+                        block = tile_integrals(orb, orows, aux, arows).reshape(o_cols.size, a_local.size).T
+                    out[a_local[:, None], o_cols[None, :]] = block
 
 
 def three_center_integrals(basis: BasisSet, aux: BasisSet, *, threshold: float = 0.0) -> np.ndarray:

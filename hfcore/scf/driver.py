@@ -14,7 +14,7 @@ from ..basis.fitting import FittingChoice, fitting_basis
 from ..basis.shells import BasisSet
 from ..errors import ConvergenceError, InputError, ResourceError
 from ..geometry import Molecule
-from ..integrals.two_electron import STORE_LIMIT_BYTES
+from ..integrals.store import STORE_LIMIT_BYTES
 from .fitted_jk import FittedJK, FittingPlan, plan_fitting
 from .guess import sad_density
 from .jk import IncrementalJK, JKBuilder
@@ -151,7 +151,7 @@ class JKPlan:
         predicted peak of the fitted way chosen.
     limit_bytes : int
         The budget they were measured against (bytes): ``memory_limit``,
-        capped at :data:`hfcore.integrals.two_electron.STORE_LIMIT_BYTES`.
+        capped at :data:`hfcore.integrals.store.STORE_LIMIT_BYTES`.
     fitting : FittingPlan or None
         Stored or blocked fitted factors (fitted mode only).
     fit_basis : BasisSet or None
