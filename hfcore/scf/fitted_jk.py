@@ -320,7 +320,9 @@ class FittedJK:
                 part = vectors[:, signs == sign]
                 if part.shape[1]:
                     z = self._half_transform(part).reshape(self.n_functions, -1)
-                    k += sign * (z @ z.T)
+                    # z zᵀ is symmetric: the rank-k update computes one triangle (half the flops).
+                    upper = scipy.linalg.blas.dsyrk(1.0, z.T, trans=1)  # z.T is Fortran-ordered: no copy
+                    k += sign * (upper + np.triu(upper, 1).T)
         else:
             jp, k = self._blocked(dp, vectors, signs)
         j = np.empty((self.n_functions, self.n_functions))
