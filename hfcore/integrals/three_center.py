@@ -164,23 +164,39 @@ class ThreeCenterEngine:
             out[index] = values
         return out
 
-    def compute_pair_major(self) -> np.ndarray:
-        """All of (P|μν) transposed, shape (npair, naux): row μ(μ+1)/2 + ν holds every fitting function.
+    def compute_pair_major(self) -> tuple[np.ndarray, np.ndarray]:
+        """All of (P|μν) transposed: row μ(μ+1)/2 + ν holds every fitting function.
 
         The layout of fitted exchange builds, whose matrix products run over
-        the fitting index for one orbital pair after another.
+        the fitting index for one orbital pair after another. Columns come in
+        the tile generator's order (fitting batch, then row, then function),
+        so each tile fills a contiguous column range.
+
+        Returns
+        -------
+        values : ndarray, shape (npair, naux)
+        order : ndarray of int, shape (naux,)
+            Fitting-function index of every column.
         """
         out = np.zeros((self.n_pairs, self.n_aux))
+        start = {}
+        column = 0
+        for aux in self._aux:
+            start[id(aux)] = column
+            column += aux.n * aux.nf
+        order = np.concatenate([aux.pidx.reshape(-1) for aux in self._aux])
         for aux, orb in batch_pairs(self._aux, self._pairs):
+            base = start[id(aux)]
             for tile in iter_tiles(aux, orb, self.threshold):
                 block = tile.integrals()
                 if tile.bra is aux:
-                    a_idx, o_idx = tile.bra.pidx[tile.brows].reshape(-1), tile.ket.pidx[tile.krows].reshape(-1)
-                    out[o_idx[:, None], a_idx[None, :]] = block.reshape(a_idx.size, o_idx.size).T
+                    rows, o_idx = tile.brows, tile.ket.pidx[tile.krows].reshape(-1)
+                    block = block.reshape(-1, o_idx.size).T
                 else:
-                    o_idx, a_idx = tile.bra.pidx[tile.brows].reshape(-1), tile.ket.pidx[tile.krows].reshape(-1)
-                    out[o_idx[:, None], a_idx[None, :]] = block.reshape(o_idx.size, a_idx.size)
-        return out
+                    rows, o_idx = tile.krows, tile.bra.pidx[tile.brows].reshape(-1)
+                    block = block.reshape(o_idx.size, -1)
+                out[o_idx, base + rows.start * aux.nf : base + rows.stop * aux.nf] = block
+        return out, order
 
     def _fill(self, aux: PairBatch, rows: slice, out: np.ndarray) -> None:
         """(P|μν) of fitting rows ``rows`` of one group into ``out`` (nrows * nf, npair), rows in block order.

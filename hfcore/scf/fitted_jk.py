@@ -263,7 +263,13 @@ class FittedJK:
         self.storage = plan.storage
         self._plan = plan
         self._engine = ThreeCenterEngine(basis, aux, threshold=threshold)
-        self._metric = MetricFactor(two_center_integrals(aux), metric_threshold)
+        metric = two_center_integrals(aux)
+        factors = order = None
+        if self.storage == "stored":
+            # The pair-major factors come in the tile generator's column order; the metric follows it.
+            factors, order = self._engine.compute_pair_major()
+            metric = metric[np.ix_(order, order)]
+        self._metric = MetricFactor(metric, metric_threshold)
         self.n_dropped = self._metric.n_dropped
         n = self.n_functions
         first, second = np.tril_indices(n)
@@ -272,10 +278,10 @@ class FittedJK:
         pair[second, first] = np.arange(first.size)
         self._pair = pair.ravel()
         self._first, self._second = first, second
-        # Stored factors are pair-major, (npair, n_kept): see _exchange_stored.
+        # Stored factors are pair-major, (npair, n_kept): see _half_transform.
         self._factors: np.ndarray | None = None
         if self.storage == "stored":
-            self._factors = self._metric.whiten_pair_major(self._engine.compute_pair_major())
+            self._factors = self._metric.whiten_pair_major(factors)
             # Row p(μ, ν) for ν > μ, per μ: the rows the packed lower triangle does not hold in one run.
             self._upper_rows = [self._pair.reshape(n, n)[mu, mu + 1 :] for mu in range(n)]
 
