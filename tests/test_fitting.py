@@ -96,7 +96,7 @@ def test_fitted_energy_matches_reference_library(geometry, orbital, fitting):
 def test_blocked_fitted_energy_matches_reference_library():
     # source: reference library run, density-fitted RHF; a budget below the whole factors forces blocks
     mol = read_xyz(INPUTS / "water.xyz")
-    result = run_rhf(mol, "cc-pvdz", SCFOptions(fit_basis="cc-pvtz-jkfit", memory_limit=1.2, **TIGHT))
+    result = run_rhf(mol, "cc-pvdz", SCFOptions(fit_basis="cc-pvtz-jkfit", memory_limit=0.8, **TIGHT))
     assert result.fit_storage == "blocked"
     assert abs(result.energy_total - _reference_fitted_energy(mol, "cc-pvdz", "cc-pvtz-jkfit")) < 1e-8
 

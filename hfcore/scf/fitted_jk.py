@@ -44,8 +44,6 @@ from ..integrals.three_center import ThreeCenterEngine, estimate_three_center_me
 
 #: Smallest metric eigenvalue (or Cholesky pivot squared) kept, hartree.
 METRIC_THRESHOLD: float = 1e-10
-#: Unpacked (P|μν) rows per K step are limited to about this many bytes.
-_WORK_BYTES = 64 << 20
 #: Orbital-pair columns whitened at a time.
 _COLUMN_CHUNK = 4096
 
@@ -80,11 +78,8 @@ class FittingPlan:
 
 
 def _metric_bytes(naux: int) -> int:
-    return 16 * naux * naux
-
-
-def _work_rows(nbf: int) -> int:
-    return max(1, _WORK_BYTES // max(1, 8 * nbf * nbf))
+    # The metric, its reordered copy and its factor.
+    return 24 * naux * naux
 
 
 def plan_fitting(basis: BasisSet, aux: BasisSet, n_occupied: int, limit_bytes: int) -> FittingPlan:
@@ -111,14 +106,14 @@ def plan_fitting(basis: BasisSet, aux: BasisSet, n_occupied: int, limit_bytes: i
     """
     nbf, naux = basis.n_functions, aux.n_functions
     npair = nbf * (nbf + 1) // 2
-    work = 8 * min(_work_rows(nbf), naux) * nbf * nbf * 2
     fixed = _metric_bytes(naux) + 8 * nbf * nbf * 8
-    stored = estimate_three_center_memory(basis, aux) + fixed + work
+    # Half-transformed factors Z (nbf, naux, nocc) and one gathered row block per orbital.
+    half = 8 * naux * max(1, n_occupied) * nbf
+    stored = estimate_three_center_memory(basis, aux) + fixed + half + 8 * naux * nbf
     if stored <= limit_bytes:
         return FittingPlan("stored", stored, stored, limit_bytes, naux)
-    half = 8 * naux * max(1, n_occupied) * nbf
     smallest = max(s.n_functions(aux.spherical) for s in aux.shells)
-    per_function = 8 * (npair + nbf * nbf)  # a block row, packed and unpacked
+    per_function = 8 * 2 * npair  # a block row, and its pair-major copy
     room = limit_bytes - fixed - half
     if room < smallest * per_function:
         minimum = fixed + half + smallest * per_function
@@ -231,6 +226,24 @@ def factor_density(density: np.ndarray, tolerance: float = 1e-13) -> tuple[np.nd
     return np.ascontiguousarray(vk * np.sqrt(np.abs(wk))), np.sign(wk)
 
 
+def _half_transform(b: np.ndarray, c: np.ndarray, upper_rows: list[np.ndarray]) -> np.ndarray:
+    """Z[μ, P, k] = Σ_ν B_Pμν c_νk from pair-major factors b (npair, nP); shape (nbf, nP, rank).
+
+    For each μ the rows p(μ, ν ≤ μ) are one contiguous run of the packed
+    layout, used in place; the rows p(μ, ν > μ) (``upper_rows[μ]``) are
+    gathered whole, each a contiguous row over P, so every step is a
+    matrix product.
+    """
+    n = len(upper_rows)
+    z = np.empty((n, b.shape[1], c.shape[1]))
+    for mu in range(n):
+        start = mu * (mu + 1) // 2
+        np.matmul(b[start : start + mu + 1].T, c[: mu + 1], out=z[mu])
+        if mu + 1 < n:
+            z[mu] += b[upper_rows[mu]].T @ c[mu + 1 :]
+    return z
+
+
 class FittedJK:
     """A J/K builder from density-fitted integrals (see the module notes).
 
@@ -282,15 +295,12 @@ class FittedJK:
         self._factors: np.ndarray | None = None
         if self.storage == "stored":
             self._factors = self._metric.whiten_pair_major(factors)
-            # Row p(μ, ν) for ν > μ, per μ: the rows the packed lower triangle does not hold in one run.
-            self._upper_rows = [self._pair.reshape(n, n)[mu, mu + 1 :] for mu in range(n)]
+        # Row p(μ, ν) for ν > μ, per μ: the rows the packed lower triangle does not hold in one run.
+        self._upper_rows = [self._pair.reshape(n, n)[mu, mu + 1 :] for mu in range(n)]
 
     def _packed(self, density: np.ndarray) -> np.ndarray:
         d = density[self._first, self._second]
         return d * np.where(self._first == self._second, 1.0, 2.0)
-
-    def _unpack(self, rows: np.ndarray) -> np.ndarray:
-        return rows[:, self._pair].reshape(rows.shape[0], self.n_functions, self.n_functions)
 
     @staticmethod
     def _exchange(y: np.ndarray, signs: np.ndarray) -> np.ndarray:
@@ -325,7 +335,7 @@ class FittedJK:
             for sign in (1.0, -1.0):
                 part = vectors[:, signs == sign]
                 if part.shape[1]:
-                    z = self._half_transform(part).reshape(self.n_functions, -1)
+                    z = _half_transform(b, part, self._upper_rows).reshape(self.n_functions, -1)
                     # z zᵀ is symmetric: the rank-k update computes one triangle (half the flops).
                     upper = scipy.linalg.blas.dsyrk(1.0, z.T, trans=1)  # z.T is Fortran-ordered: no copy
                     k += sign * (upper + np.triu(upper, 1).T)
@@ -335,23 +345,6 @@ class FittedJK:
         j[self._first, self._second] = jp
         j[self._second, self._first] = jp
         return j, 0.5 * (k + k.T)
-
-    def _half_transform(self, c: np.ndarray) -> np.ndarray:
-        """Z[μ, P, k] = Σ_ν B_Pμν c_νk from the pair-major factors, shape (nbf, n_kept, rank).
-
-        For each μ the rows p(μ, ν ≤ μ) are one contiguous run of the packed
-        layout, used in place; the rows p(μ, ν > μ) are gathered whole
-        (each a contiguous row over P), so every step is a matrix product.
-        """
-        b = self._factors
-        n = self.n_functions
-        z = np.empty((n, b.shape[1], c.shape[1]))
-        for mu in range(n):
-            start = mu * (mu + 1) // 2
-            np.matmul(b[start : start + mu + 1].T, c[: mu + 1], out=z[mu])
-            if mu + 1 < n:
-                z[mu] += b[self._upper_rows[mu]].T @ c[mu + 1 :]
-        return z
 
     def _blocked(self, dp: np.ndarray, vectors: np.ndarray, signs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """J (packed) and K recomputing (P|μν) in blocks; the density rank is taken in chunks that fit."""
@@ -369,9 +362,8 @@ class FittedJK:
                 if first:
                     gamma[index] = values @ dp
                 if half is not None:
-                    step = _work_rows(n)
-                    for s in range(0, index.size, step):
-                        half[index[s : s + step]] = np.matmul(vectors[:, cols].T, self._unpack(values[s : s + step]))
+                    z = _half_transform(np.ascontiguousarray(values.T), vectors[:, cols], self._upper_rows)
+                    half[index] = z.transpose(1, 2, 0)
             first = False
             if half is not None:
                 y = self._metric.whiten(half.reshape(naux, -1)).reshape(-1, cols.stop - cols.start, n)
