@@ -12,6 +12,9 @@ per ``basis.spherical``), in atomic units, functions ordered as
   storing them costs) (:mod:`.store`); :class:`DirectERI` recomputes them
   for every J/K build instead (direct mode, :mod:`.direct`);
   :func:`schwarz_bounds` (:mod:`.eri_pairs`).
+* :func:`three_center_integrals` (P|μν), :func:`two_center_integrals`
+  (P|Q) over a fitting set, :class:`ThreeCenterEngine` (whole or in
+  blocks), :func:`estimate_three_center_memory` (:mod:`.three_center`).
 
 Rooms of the two-electron layer: :mod:`.eri_pairs` prepares the screened
 pair batches, :mod:`.tiles` is the one tile generator every pass uses
@@ -28,6 +31,7 @@ from ..basis.components import c2s
 from .direct import DirectERI, DirectPassStats
 from .eri_pairs import schwarz_bounds
 from .store import ERIStore, compute_eri, estimate_eri_memory, eri_tensor
+from .three_center import ThreeCenterEngine, estimate_three_center_memory, three_center_integrals, two_center_integrals
 
 __all__ = [
     "boys",
@@ -43,4 +47,8 @@ __all__ = [
     "DirectPassStats",
     "eri_tensor",
     "schwarz_bounds",
+    "ThreeCenterEngine",
+    "three_center_integrals",
+    "two_center_integrals",
+    "estimate_three_center_memory",
 ]

@@ -16,6 +16,7 @@ from __future__ import annotations
 
 from .accelerators import DIIS, Accelerator, Chain, Damping, FockStep, LevelShift, build_accelerator
 from .driver import GUESSES, JKPlan, plan_jk, run_rhf
+from .fitted_jk import FittedJK, FittingPlan, plan_fitting
 from .guess import sad_density
 from .jk import DenseJK, IncrementalJK, JKBuilder
 from .options import SCFOptions
@@ -44,4 +45,7 @@ __all__ = [
     "JKBuilder",
     "DenseJK",
     "IncrementalJK",
+    "FittedJK",
+    "FittingPlan",
+    "plan_fitting",
 ]
