@@ -11,6 +11,9 @@ Usage::
     python scripts/benchmark.py                 # the fixed cases, one thread
     python scripts/benchmark.py --threads 2     # both programs on two threads
     python scripts/benchmark.py --scaling       # add the water-cluster series
+    python scripts/benchmark.py --fitted --only benzene/cc-pVTZ/DF,benzene/cc-pVQZ/DF
+                                                # density-fitted runs against the reference library's
+    python scripts/benchmark.py --fitted-scaling --only "(H2O)2/cc-pVTZ/DF,(H2O)14/cc-pVTZ/DF"
     python scripts/benchmark.py --json out.json
 
 The table reports wall times (integrals and SCF separately for hfcore), the
