@@ -8,7 +8,10 @@ Three lines::
 
 :func:`run_rhf` computes the integrals and a guess, then hands them to
 :func:`solve_rhf`, which iterates with a pluggable accelerator
-(:mod:`hfcore.scf.accelerators`) and returns an :class:`RHFResult`. The
+(:mod:`hfcore.scf.accelerators`, with automatic aids when it stalls),
+analyses the stability of the converged solution and follows an
+instability to a lower one (:mod:`hfcore.scf.stability`,
+:mod:`hfcore.scf.following`), and returns an :class:`RHFResult`. The
 layer never prints; pass ``progress`` to watch the iterations.
 """
 
@@ -22,6 +25,7 @@ from .options import SCFOptions
 from .orthogonalise import Orthogonaliser
 from .result import RHFResult, SCFIteration
 from .solver import solve_rhf
+from .stability import StabilityAnalysis, StabilityReport, analyse_stability, rotate_orbitals
 
 __all__ = [
     "run_rhf",
@@ -33,6 +37,10 @@ __all__ = [
     "SCFOptions",
     "RHFResult",
     "SCFIteration",
+    "StabilityAnalysis",
+    "StabilityReport",
+    "analyse_stability",
+    "rotate_orbitals",
     "Orthogonaliser",
     "Accelerator",
     "FockStep",

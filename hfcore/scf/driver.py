@@ -56,7 +56,9 @@ def run_rhf(
     Returns
     -------
     RHFResult
-        Timings hold "integrals", "guess", "scf" and "total" seconds;
+        Timings hold "integrals", "guess", "scf", "stability" and "total"
+        seconds; ``stability`` and ``aufbau`` say what was checked after
+        convergence (see ``options.stability``);
         ``jk_mode`` and ``eri_bytes`` say how J and K were built
         (see :func:`plan_jk`).
 
@@ -96,6 +98,7 @@ def run_rhf(
             "integrals": t_integrals - t0,
             "guess": t_sad + result.timings["guess"],
             "scf": result.timings["scf"],
+            "stability": result.timings.get("stability", 0.0),
             "total": time.perf_counter() - t0,
         }
         return replace(

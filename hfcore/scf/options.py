@@ -6,6 +6,7 @@ import math
 from dataclasses import dataclass
 
 from ..errors import InputError
+from .stability import check_stability_mode
 
 #: Names accepted for :attr:`SCFOptions.accelerator`; the classes live in
 #: :mod:`hfcore.scf.accelerators`.
@@ -92,6 +93,24 @@ class SCFOptions:
         Memory the stored integrals may take, in MiB (2^20 bytes). None
         means half of the memory the system reports available
         (:func:`default_memory_limit`).
+    stability : {"follow", "check", "off"}
+        After convergence, analyse the internal (real RHF→RHF) stability of
+        the solution (:mod:`hfcore.scf.stability`). ``"follow"`` also leaves
+        an unstable solution along its lowest Hessian mode and converges
+        again, up to ``stability_rounds`` times; ``"check"`` only reports;
+        ``"off"`` skips the analysis. The rule is the same in every J/K mode:
+        a Hessian product costs one J/K build, so an analysis costs about as
+        much as 10-40 SCF iterations, and a wrong state costs more.
+    stability_threshold : float
+        A solution is stable when the lowest eigenvalue of the energy
+        Hessian d²E/dκ² is at least ``-stability_threshold`` (hartree).
+    stability_rounds : int
+        Most rotations ``"follow"`` makes before reporting the solution it
+        holds (as unstable, if it still is).
+    auto_aids : bool
+        When the iterations stall or oscillate, switch on convergence aids
+        (level shifting, then damping) automatically; each switch is
+        recorded in the history and in ``RHFResult.aids``.
     rebuild_interval : int
         In direct mode J and K are built from the density change of each
         iteration; every this many builds they are rebuilt from the full
@@ -116,6 +135,10 @@ class SCFOptions:
     direct: bool | None = None
     memory_limit: float | None = None
     rebuild_interval: int = 8
+    stability: str = "follow"
+    stability_threshold: float = 1e-5
+    stability_rounds: int = 4
+    auto_aids: bool = True
 
     def __post_init__(self) -> None:
         for name in ("energy_tol", "gradient_tol", "lindep_threshold"):
@@ -130,6 +153,11 @@ class SCFOptions:
         if self.memory_limit is not None:
             object.__setattr__(self, "memory_limit", _positive("memory_limit", self.memory_limit))
         object.__setattr__(self, "rebuild_interval", _count("rebuild_interval", self.rebuild_interval, 1))
+        object.__setattr__(self, "stability", check_stability_mode(self.stability))
+        object.__setattr__(self, "stability_threshold", _positive("stability_threshold", self.stability_threshold))
+        object.__setattr__(self, "stability_rounds", _count("stability_rounds", self.stability_rounds, 1))
+        if not isinstance(self.auto_aids, bool):
+            raise InputError(f"SCF option auto_aids must be True or False, got {self.auto_aids!r}")
 
     @property
     def memory_limit_bytes(self) -> int:
