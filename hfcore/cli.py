@@ -97,6 +97,7 @@ def _add_scf_arguments(parser: argparse.ArgumentParser) -> None:
         metavar="X",
         help="drop overlap eigenvectors with eigenvalue below X (1e-7)",
     )
+    _add_stability_argument(group)
     memory = parser.add_argument_group("two-electron integrals (default: stored if they fit in --memory, else direct)")
     mode = memory.add_mutually_exclusive_group()
     mode.add_argument("--direct", dest="direct", action="store_const", const=True, default=None,
@@ -105,6 +106,16 @@ def _add_scf_arguments(parser: argparse.ArgumentParser) -> None:
                       help="store the integrals; fail up front if they exceed --memory")
     memory.add_argument("--memory", type=_positive_float, metavar="MIB",
                         help="memory the stored integrals may use, in MiB (default: half of the available memory)")
+
+
+def _add_stability_argument(parser: Any) -> None:
+    parser.add_argument(
+        "--stability",
+        choices=("off", "check", "follow"),
+        default="follow",
+        help="after convergence, check that no orbital rotation lowers the energy; 'follow' (default) moves "
+        "to the lower solution if one does, 'check' only warns, 'off' skips the analysis",
+    )
 
 
 def _add_json_argument(parser: argparse.ArgumentParser) -> None:
@@ -174,6 +185,7 @@ def build_parser() -> argparse.ArgumentParser:
     compare.add_argument(
         "--basis", required=True, metavar="NAMES", help="comma-separated basis names, e.g. sto-3g,6-31g*,cc-pvdz"
     )
+    _add_stability_argument(compare)
     _add_json_argument(compare)
     compare.add_argument("--plot", metavar="PNG", help="plot energy against the number of basis functions")
     compare.set_defaults(handler=_run_compare)
@@ -206,6 +218,10 @@ class _Console:
         """A progress line, shown only in human mode without --quiet."""
         if not (self.json_to_stdout or self.quiet):
             print(text, file=self.stdout, flush=True)
+
+    def warn(self, text: str) -> None:
+        """A one-line warning on stderr, shown in every mode."""
+        print(f"hfcore: warning: {text}", file=self.stderr, flush=True)
 
     def data(self, text: str) -> None:
         """The JSON document on stdout."""
@@ -288,7 +304,7 @@ def _build_basis(args: argparse.Namespace, molecule: Any) -> Any:
 def _scf_options(args: argparse.Namespace) -> Any:
     from .scf import SCFOptions
 
-    names = ("energy_tol", "gradient_tol", "max_iterations", "diis_space", "lindep_threshold", "direct")
+    names = ("energy_tol", "gradient_tol", "max_iterations", "diis_space", "lindep_threshold", "direct", "stability")
     given = {name: getattr(args, name) for name in names if getattr(args, name, None) is not None}
     if getattr(args, "memory", None) is not None:
         given["memory_limit"] = args.memory
@@ -356,10 +372,14 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
     console.report(report.format_basis(basis, plan))
     integral_progress = None if console.json_to_stdout or console.quiet else _IntegralProgress(console.stderr)
     console.live(report.history_header())
-    result = run_rhf(
-        molecule, basis, options, guess=args.guess, progress=lambda rec: console.live(report.format_iteration(rec)),
-        integral_progress=integral_progress,
-    )
+
+    def show(rec: Any) -> None:
+        if rec.solution and rec.iteration == 1:
+            console.live(report.format_new_solution(rec))
+        console.live(report.format_iteration(rec))
+
+    result = run_rhf(molecule, basis, options, guess=args.guess, progress=show, integral_progress=integral_progress)
+    _warn_about_solution(console, result)
     record = export.result_record(result, _analysis(result))
     files: dict[str, bytes] = {}
     if "json" in paths:
@@ -375,6 +395,20 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
     return 0
 
 
+def _warn_about_solution(console: _Console, result: Any, label: str = "") -> None:
+    """One stderr line for an unstable solution or a broken aufbau occupation, in every output mode."""
+    where = f"{label}: " if label else ""
+    st = result.stability
+    if st is not None and not st.stable:
+        hint = " (rerun with --stability follow)" if st.mode == "check" else ""
+        console.warn(
+            f"{where}the RHF solution is unstable: the orbital Hessian has eigenvalue {st.lowest_eigenvalue:.6f} Eh, "
+            f"so a lower RHF solution exists{hint}"
+        )
+    if not result.aufbau:
+        console.warn(f"{where}the occupation is not aufbau: a virtual orbital lies {-result.aufbau_gap:.6f} Eh below an occupied one")
+
+
 def _report_energy(console: _Console, result: Any, analysis: dict[str, Any], wall: float) -> None:
     from .analysis import DEBYE_PER_AU
 
@@ -383,6 +417,7 @@ def _report_energy(console: _Console, result: Any, analysis: dict[str, Any], wal
         console.report(report.heading("SCF"))
     console.report(report.format_convergence(result))
     console.report(report.format_linear_dependence(result.n_dropped, result.options.lindep_threshold))
+    console.report(report.format_stability(result))
     console.report(report.format_energies(result))
     console.report(report.format_orbitals(result))
     console.report(report.format_charges(molecule.symbols, analysis["mulliken_charges"]))
@@ -414,13 +449,21 @@ def _run_fit_sto(args: argparse.Namespace, console: _Console) -> int:
 
 def _run_compare(args: argparse.Namespace, console: _Console) -> int:
     from .analysis import compare_bases
+    from .scf import SCFOptions
 
     paths = _output_paths(args, "json", "plot")
     names = [n.strip() for n in args.basis.split(",") if n.strip()]
     if not names:
         raise InputError("--basis: give at least one basis name, e.g. sto-3g,cc-pvdz")
     molecule = _read_molecule(args)
-    comparison = compare_bases(molecule, names, spherical=args.spherical, progress=_stderr_progress(console))
+    options = SCFOptions(stability=args.stability)
+    comparison = compare_bases(
+        molecule, names, spherical=args.spherical, options=options, progress=_stderr_progress(console)
+    )
+    for row in comparison.rows:
+        if row.stable is False:
+            hint = " (rerun with --stability follow)" if args.stability == "check" else ""
+            console.warn(f"{row.basis}: the RHF solution is unstable, so a lower RHF solution exists{hint}")
     record = export.comparison_record(comparison)
     if "plot" in paths:
         from .plots import plot_comparison

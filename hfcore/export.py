@@ -214,7 +214,11 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
                 "diis_space": opts.diis_space,
                 "lindep_threshold": opts.lindep_threshold,
                 "screening": opts.screening,
+                "stability_threshold": opts.stability_threshold,
             },
+            "stability": stability_record(result),
+            "aufbau": {"satisfied": result.aufbau, "gap": result.aufbau_gap},
+            "aids": list(result.aids),
             "history": [
                 {
                     "iteration": h.iteration,
@@ -222,6 +226,8 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
                     "delta_e": h.delta_e,
                     "gradient_norm": h.gradient_norm,
                     "diis_size": h.diis_size,
+                    "aid": h.aid,
+                    "solution": h.solution,
                 }
                 for h in result.history
             ],
@@ -237,6 +243,31 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
     if analysis:
         record["analysis"] = dict(analysis)
     return record
+
+
+def stability_record(result: Any) -> dict[str, Any]:
+    """The ``scf.stability`` object of an RHF run's JSON record.
+
+    ``mode`` is always there; with the analysis off every other key is
+    null. Eigenvalues are those of the energy Hessian d²E/dκ² in hartree.
+    """
+    st = result.stability
+    if st is None:
+        keys = ("stable", "lowest_eigenvalue", "eigenvalues", "threshold", "solutions", "lowest_eigenvalues",
+                "rounds", "hessian_products", "message")
+        return {"mode": result.options.stability, **dict.fromkeys(keys)}
+    return {
+        "mode": st.mode,
+        "stable": st.stable,
+        "lowest_eigenvalue": st.lowest_eigenvalue,
+        "eigenvalues": st.eigenvalues,
+        "threshold": st.threshold,
+        "solutions": list(st.solutions),
+        "lowest_eigenvalues": list(st.lowest_eigenvalues),
+        "rounds": st.rounds,
+        "hessian_products": st.products,
+        "message": st.message,
+    }
 
 
 def sto_fit_record(fit: Any) -> dict[str, Any]:

@@ -149,6 +149,46 @@ def format_convergence(result: Any) -> str:
     )
 
 
+def format_new_solution(record: Any) -> str:
+    """The line the live SCF table shows when a solution after a rotation starts."""
+    return f"  -- solution {record.solution + 1}: started along the lowest unstable mode of the previous one --"
+
+
+def format_stability(result: Any) -> str:
+    """The stability section: what was checked after convergence, the aufbau check and the aids used.
+
+    Parameters
+    ----------
+    result : RHFResult
+        With ``stability`` (None when the analysis was off), ``aufbau``,
+        ``aufbau_gap``, ``aids`` and ``history``.
+    """
+    st = result.stability
+    rows: list[tuple[str, str]] = []
+    if st is None:
+        rows.append(("internal stability", "not checked (--stability off)"))
+    else:
+        verdict = "stable" if st.stable else "UNSTABLE"
+        rows.append(("internal stability", f"{verdict} ({st.mode}): {st.message}"))
+        rows.append(("lowest eigenvalue", f"{st.lowest_eigenvalue:.4e} Eh (orbital Hessian, threshold -{st.threshold:.0e})"))
+        rows.append(("solutions / Eh", " → ".join(f"{e:.10f}" for e in st.solutions)))
+        rows.append(("Hessian products", str(st.products)))
+    gap = "none" if not np.isfinite(result.aufbau_gap) else f"{result.aufbau_gap:.6f} Eh"
+    rows.append(("aufbau occupation", f"{'yes' if result.aufbau else 'NO'} (lowest virtual − highest occupied: {gap})"))
+    if result.aids:
+        starts = []
+        for aid in result.aids:
+            first = next((h for h in result.history if h.aid == aid), None)
+            where = f" from iteration {first.iteration}" if first is not None else ""
+            if first is not None and first.solution:
+                where += f" of solution {first.solution + 1}"
+            starts.append(aid + where)
+        rows.append(("convergence aids", "; ".join(starts)))
+    else:
+        rows.append(("convergence aids", "none needed"))
+    return heading("Stability and occupation") + "\n" + _pairs(rows)
+
+
 def format_energies(result: Any) -> str:
     """The energy section: total and its parts, in hartree."""
     rows = [
@@ -307,6 +347,8 @@ __all__ = [
     "history_header",
     "format_iteration",
     "format_convergence",
+    "format_new_solution",
+    "format_stability",
     "format_energies",
     "format_orbitals",
     "format_charges",

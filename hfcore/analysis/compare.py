@@ -66,6 +66,10 @@ class ComparisonRow:
         Whether the SCF converged.
     guess : str
         ``"sad"`` or ``"projected from <basis>"``.
+    stable : bool or None
+        Verdict of the internal stability analysis of the solution
+        (``RHFResult.stability``); None when it was off or the SCF did not
+        converge.
     """
 
     basis: str
@@ -78,6 +82,7 @@ class ComparisonRow:
     wall_time: float
     converged: bool
     guess: str
+    stable: bool | None = None
 
 
 @dataclass(frozen=True)
@@ -328,6 +333,7 @@ def _assemble(labels: list[str], bases: list, runs: dict[int, tuple]) -> BasisCo
                 wall_time=float(seconds),
                 converged=converged,
                 guess=used,
+                stable=None if result.stability is None else bool(result.stability.stable),
             )
         )
     estimates, notes = basis_limit_estimates(rows, e_ref)
