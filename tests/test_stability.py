@@ -228,6 +228,26 @@ def test_aids_switch_on_when_plain_iterations_oscillate():
     assert result.energy_total == pytest.approx(energies[-1], abs=1e-8)
 
 
+def test_aids_escalate_to_second_order_steps_when_shift_and_damping_stall():
+    # Source: reference library run (followed until stable). From a rotation off unstable C2,
+    # plain steps crawl; level shift and damping stall in turn and the Newton steps finish.
+    atoms, basis_name = HARD_CASES["C2 1.24 Å"]
+    result = run_rhf(_molecule(atoms), basis_name, SCFOptions(accelerator="none"))
+    assert result.aids == ("diis+level_shift", "damping+level_shift", "second_order")
+    energies, _ = _reference_followed(atoms, basis_name)
+    assert result.energy_total == pytest.approx(energies[-1], abs=1e-8)
+
+
+@pytest.mark.parametrize("name", ["C2 1.24 Å", "ozone"])
+def test_second_order_steps_from_the_guess_reach_the_lowest_solution(name):
+    # Source: reference library run (followed until stable).
+    atoms, basis_name = HARD_CASES[name]
+    result = run_rhf(_molecule(atoms), basis_name, SCFOptions(accelerator="second_order"))
+    assert {h.aid for h in result.history if h.aid} == {"second_order"}
+    energies, _ = _reference_followed(atoms, basis_name)
+    assert result.energy_total == pytest.approx(energies[-1], abs=1e-8)
+
+
 def test_without_aids_the_same_oscillation_does_not_converge():
     # The aid is what converges the case above: switched off, plain steps give up.
     from hfcore import ConvergenceError
@@ -245,7 +265,9 @@ def test_aufbau_gap_is_the_lumo_minus_homo_energy_at_convergence():
 
 
 @pytest.mark.parametrize("bad", [{"stability": "maybe"}, {"stability": 1}, {"stability_threshold": -1.0},
-                                 {"stability_rounds": 0}, {"auto_aids": "yes"}])
+                                 {"stability_rounds": 0}, {"auto_aids": "yes"},
+                                 {"accelerator": "second_order", "damping": 0.5},
+                                 {"accelerator": "second_order", "level_shift": 0.3}])
 def test_bad_stability_options_are_refused(bad):
     with pytest.raises(InputError):
         SCFOptions(**bad)

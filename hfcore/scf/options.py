@@ -10,7 +10,7 @@ from .stability import check_stability_mode
 
 #: Names accepted for :attr:`SCFOptions.accelerator`; the classes live in
 #: :mod:`hfcore.scf.accelerators`.
-ACCELERATOR_NAMES: tuple[str, ...] = ("diis", "damping", "none")
+ACCELERATOR_NAMES: tuple[str, ...] = ("diis", "damping", "second_order", "none")
 
 
 def _positive(name: str, value: object) -> float:
@@ -82,8 +82,11 @@ class SCFOptions:
     level_shift : float
         Raise the virtual orbital energies by this much (hartree) while
         iterating; the final orbitals are unshifted.
-    accelerator : {"diis", "damping", "none"}
-        The convergence accelerator.
+    accelerator : {"diis", "damping", "second_order", "none"}
+        The convergence accelerator; ``"second_order"`` takes trust-region
+        Newton steps on the orbital gradient
+        (:mod:`hfcore.scf.second_order`) instead of diagonalising a Fock
+        matrix, at a few extra J/K builds per iteration.
     direct : bool or None
         Recompute two-electron integrals every iteration instead of storing
         them (True), store them (False), or let hfcore choose (None): stored
@@ -181,8 +184,10 @@ class SCFOptions:
         object.__setattr__(self, "accelerator", name)
         if name == "damping" and self.damping == 0.0:
             raise InputError("the 'damping' accelerator needs a damping factor in (0, 1), e.g. damping=0.5")
-        if name == "none" and self.damping > 0.0:
-            raise InputError("damping > 0 needs accelerator 'damping' or 'diis', not 'none'")
+        if name in ("none", "second_order") and self.damping > 0.0:
+            raise InputError(f"damping > 0 needs accelerator 'damping' or 'diis', not {name!r}")
+        if name == "second_order" and self.level_shift > 0.0:
+            raise InputError("a level shift applies to Fock-matrix accelerators, not to 'second_order'")
 
 
 __all__ = ["SCFOptions", "ACCELERATOR_NAMES", "default_memory_limit", "MEMORY_FRACTION", "FALLBACK_MEMORY_MIB"]

@@ -14,11 +14,13 @@ from .jk import JKBuilder
 from .options import SCFOptions
 from .orthogonalise import Orthogonaliser
 from .result import RHFResult, SCFIteration
+from .second_order import SecondOrderStep
+from .stability import plain_builder
 
 Progress = Callable[[SCFIteration], None]
 
 #: Automatic aids in the order they are switched on (see :class:`_AidSchedule`).
-AID_STAGES: tuple[str, ...] = ("diis+level_shift", "damping+level_shift")
+AID_STAGES: tuple[str, ...] = ("diis+level_shift", "damping+level_shift", "second_order")
 #: Level shift (hartree) and damping factor the automatic aids use.
 AID_LEVEL_SHIFT: float = 0.5
 AID_DAMPING: float = 0.5
@@ -60,6 +62,11 @@ class _Problem:
         """F D S - S D F in the orthonormal basis, shape (nmo, nmo)."""
         fds = ev.fock @ ev.density @ self.overlap
         return self.ortho.to_orthonormal(fds - fds.T)
+
+    def orbitals_of(self, density: np.ndarray) -> np.ndarray:
+        """S-orthonormal orbitals (nbf, nmo) whose first n_occ span the occupied space of an idempotent density."""
+        weights, vectors = np.linalg.eigh(self.projector(density))
+        return self.ortho.transform @ vectors[:, ::-1]
 
     def projector(self, density: np.ndarray) -> np.ndarray:
         """Occupied-space projector in the orthonormal basis: ½ Xᵀ S D S X."""
@@ -201,11 +208,15 @@ class _AidSchedule:
     as oscillating when the energy rose in half of the last
     :data:`AID_WINDOW` iterations. Either switches on the next of
     :data:`AID_STAGES`: DIIS restarted with a level shift of
-    :data:`AID_LEVEL_SHIFT`, then damping by :data:`AID_DAMPING` with that
-    shift. Common practice: a shift separates occupied from virtual
-    orbital energies and stops occupations swapping between iterations;
-    damping removes the oscillation DIIS can still show. The final orbitals
-    are never shifted.
+    :data:`AID_LEVEL_SHIFT`; then damping by :data:`AID_DAMPING` with the
+    shift; then, to the end, trust-region Newton steps on the orbital
+    gradient (:mod:`hfcore.scf.second_order`, with the Hessian products of
+    the stability analysis). Common practice: a shift separates occupied
+    from virtual orbital energies and stops occupations swapping between
+    iterations; damping removes oscillation; a second-order step needs no
+    extrapolation history, cannot be drawn to a saddle point and converges
+    fast near the solution, at a few J/K builds per step. The final
+    orbitals are never shifted.
     """
 
     def __init__(self, options: SCFOptions, accelerator: Accelerator | None) -> None:
@@ -217,6 +228,7 @@ class _AidSchedule:
             self.name = type(accelerator).__name__.lower()
         self.accelerator = accelerator
         self.accelerator.reset()
+        self.second_order: SecondOrderStep | None = SecondOrderStep() if self.name == "second_order" else None
         self.used: list[str] = []
         self._gradients: list[float] = []
         self._energies: list[float] = []
@@ -237,8 +249,12 @@ class _AidSchedule:
 
     def _switch(self, name: str) -> None:
         opts = self.options
+        self.second_order = None
         if name == "diis+level_shift":
             self.accelerator = Chain([DIIS(opts.diis_space, 1), LevelShift(AID_LEVEL_SHIFT)])
+        elif name == "second_order":
+            self.accelerator = Chain([])
+            self.second_order = SecondOrderStep()
         else:
             self.accelerator = Chain([Damping(AID_DAMPING), LevelShift(AID_LEVEL_SHIFT)])
         self.name = name
@@ -269,8 +285,14 @@ def _iterate(
         if not converged:
             schedule.observe(energy, grad)
             aid = schedule.name
-            step = FockStep(iteration, problem.ortho.to_orthonormal(ev.fock), error, problem.projector(ev.density))
-            _, _, density = problem.occupy(schedule.accelerator.next_fock(step))
+            if schedule.second_order is not None:
+                orbitals = schedule.second_order.next_orbitals(
+                    problem.orbitals_of(ev.density), ev.fock, problem.n_occ, plain_builder(problem.jk), energy
+                )
+                density = 2.0 * orbitals[:, : problem.n_occ] @ orbitals[:, : problem.n_occ].T
+            else:
+                step = FockStep(iteration, problem.ortho.to_orthonormal(ev.fock), error, problem.projector(ev.density))
+                _, _, density = problem.occupy(schedule.accelerator.next_fock(step))
         record = SCFIteration(
             iteration, energy, energy - previous, grad, schedule.accelerator.subspace_size, aid, solution
         )
