@@ -406,7 +406,10 @@ def _warn_about_solution(console: _Console, result: Any, label: str = "") -> Non
             f"so a lower RHF solution exists{hint}"
         )
     if not result.aufbau:
-        console.warn(f"{where}the occupation is not aufbau: a virtual orbital lies {-result.aufbau_gap:.6f} Eh below an occupied one")
+        console.warn(
+            f"{where}the occupation is not aufbau: a virtual orbital lies {-result.aufbau_gap:.6f} Eh "
+            "below an occupied one"
+        )
 
 
 def _report_energy(console: _Console, result: Any, analysis: dict[str, Any], wall: float) -> None:

@@ -170,11 +170,13 @@ def format_stability(result: Any) -> str:
     else:
         verdict = "stable" if st.stable else "UNSTABLE"
         rows.append(("internal stability", f"{verdict} ({st.mode}): {st.message}"))
-        rows.append(("lowest eigenvalue", f"{st.lowest_eigenvalue:.4e} Eh (orbital Hessian, threshold -{st.threshold:.0e})"))
+        threshold = f"threshold -{st.threshold:.0e}"
+        rows.append(("lowest eigenvalue", f"{st.lowest_eigenvalue:.4e} Eh (orbital Hessian, {threshold})"))
         rows.append(("solutions / Eh", " → ".join(f"{e:.10f}" for e in st.solutions)))
         rows.append(("Hessian products", str(st.products)))
     gap = "none" if not np.isfinite(result.aufbau_gap) else f"{result.aufbau_gap:.6f} Eh"
-    rows.append(("aufbau occupation", f"{'yes' if result.aufbau else 'NO'} (lowest virtual − highest occupied: {gap})"))
+    verdict = "yes" if result.aufbau else "NO"
+    rows.append(("aufbau occupation", f"{verdict} (lowest virtual − highest occupied: {gap})"))
     if result.aids:
         starts = []
         for aid in result.aids:

@@ -8,14 +8,24 @@
 from __future__ import annotations
 
 import time
+from collections.abc import Callable
 from dataclasses import replace
 
 import numpy as np
 
 from ..errors import ConvergenceError
 from .jk import IncrementalJK, JKBuilder
-from .result import RHFResult
-from .stability import FOLLOW_ANGLES, StabilityAnalysis, StabilityReport, analyse_stability, plain_builder, rotate_orbitals
+from .result import RHFResult, SCFIteration
+from .stability import (
+    FOLLOW_ANGLES,
+    StabilityAnalysis,
+    StabilityReport,
+    analyse_stability,
+    plain_builder,
+    rotate_orbitals,
+)
+
+Progress = Callable[[SCFIteration], None]
 
 #: The next solution must lie at least this much lower (hartree) to count as a new one.
 NEW_SOLUTION_MARGIN: float = 1e-8
@@ -27,7 +37,7 @@ def stabilise(
     n_electrons: int,
     energy_nuclear: float,
     *,
-    progress=None,
+    progress: Progress | None = None,
 ) -> RHFResult:
     """Analyse a converged solution and, in "follow" mode, move to a stable one.
 
@@ -78,7 +88,8 @@ def stabilise(
         products += analysis.products
         lowest.append(analysis.lowest_eigenvalue)
         if analysis.stable:
-            message = "stable" if rounds == 0 else f"stable after following {rounds} instabilit{'y' if rounds == 1 else 'ies'}"
+            plural = "instability" if rounds == 1 else "instabilities"
+            message = "stable" if rounds == 0 else f"stable after following {rounds} {plural}"
             break
         if options.stability == "check":
             message = "unstable: a lower RHF solution exists (not followed in check mode)"
@@ -95,7 +106,10 @@ def stabilise(
                 progress=progress, _solution=rounds + 1,
             )
         except ConvergenceError as exc:
-            message = f"unstable; the SCF after rotation {rounds + 1} did not converge ({exc}), so the previous solution is kept"
+            message = (
+                f"unstable; the SCF after rotation {rounds + 1} did not converge ({exc}), "
+                "so the previous solution is kept"
+            )
             break
         rounds += 1
         history.extend(new.history)
@@ -133,7 +147,9 @@ def _analyse(result: RHFResult, jk: JKBuilder) -> StabilityAnalysis:
     )
 
 
-def _rotated_density(result: RHFResult, analysis: StabilityAnalysis, jk: JKBuilder, energy_nuclear: float) -> np.ndarray:
+def _rotated_density(
+    result: RHFResult, analysis: StabilityAnalysis, jk: JKBuilder, energy_nuclear: float
+) -> np.ndarray:
     """Total density after the rotation along the unstable mode with the lowest energy on the scan."""
     builder = plain_builder(jk)
     n_occ = result.n_occupied

@@ -65,8 +65,8 @@ class _Problem:
 
     def orbitals_of(self, density: np.ndarray) -> np.ndarray:
         """S-orthonormal orbitals (nbf, nmo) whose first n_occ span the occupied space of an idempotent density."""
-        weights, vectors = np.linalg.eigh(self.projector(density))
-        return self.ortho.transform @ vectors[:, ::-1]
+        _, vectors = np.linalg.eigh(self.projector(density))
+        return self.ortho.transform @ vectors[:, ::-1]  # projector eigenvalues descending: occupied first
 
     def projector(self, density: np.ndarray) -> np.ndarray:
         """Occupied-space projector in the orthonormal basis: ½ Xᵀ S D S X."""
