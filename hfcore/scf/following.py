@@ -141,9 +141,19 @@ def stabilise(
     )
 
 
+#: Roots and residual tolerance of the analysis when J/K builds are cheap (stored
+#: integrals, a given builder) and when each is a full integral pass (direct mode).
+CHEAP_ANALYSIS: tuple[int, float] = (3, 1e-6)
+DIRECT_ANALYSIS: tuple[int, float] = (1, 1e-4)
+
+
 def _analyse(result: RHFResult, jk: JKBuilder) -> StabilityAnalysis:
+    # In direct mode only the verdict's root is sought, to a residual whose
+    # eigenvalue error (about residual² / gap) is still far below the threshold.
+    n_roots, tol = DIRECT_ANALYSIS if isinstance(jk, IncrementalJK) else CHEAP_ANALYSIS
     return analyse_stability(
-        result.coefficients, result.fock, result.n_occupied, jk, threshold=result.options.stability_threshold
+        result.coefficients, result.fock, result.n_occupied, jk,
+        threshold=result.options.stability_threshold, n_roots=n_roots, tol=tol,
     )
 
 
@@ -164,4 +174,4 @@ def _rotated_density(
     return best_density
 
 
-__all__ = ["stabilise", "NEW_SOLUTION_MARGIN"]
+__all__ = ["stabilise", "NEW_SOLUTION_MARGIN", "CHEAP_ANALYSIS", "DIRECT_ANALYSIS"]

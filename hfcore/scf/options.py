@@ -101,9 +101,11 @@ class SCFOptions:
         the solution (:mod:`hfcore.scf.stability`). ``"follow"`` also leaves
         an unstable solution along its lowest Hessian mode and converges
         again, up to ``stability_rounds`` times; ``"check"`` only reports;
-        ``"off"`` skips the analysis. The rule is the same in every J/K mode:
-        a Hessian product costs one J/K build, so an analysis costs about as
-        much as 10-40 SCF iterations, and a wrong state costs more.
+        ``"off"`` skips the analysis. The default is the same in every J/K
+        mode, since a wrong state costs more than the check: with stored
+        integrals the lowest three eigenvalues are found (30-60 cheap J/K
+        builds); in direct mode, where each build is a full integral pass,
+        only the lowest, to a looser residual (1e-4; about 15-20 passes).
     stability_threshold : float
         A solution is stable when the lowest eigenvalue of the energy
         Hessian d²E/dκ² is at least ``-stability_threshold`` (hartree).
