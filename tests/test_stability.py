@@ -17,10 +17,10 @@ import numpy as np
 import pytest
 from reference import family_shells, reference_mole
 
-from hfcore import InputError, build_basis, parse_xyz
+from hfcore import ConvergenceError, InputError, build_basis, integrals, parse_xyz
 from hfcore.cli import main
 from hfcore.integrals import compute_eri
-from hfcore.scf import SCFOptions, analyse_stability, rotate_orbitals, run_rhf
+from hfcore.scf import DIIS, Accelerator, SCFOptions, analyse_stability, rotate_orbitals, run_rhf, solve_rhf
 
 # Our own geometries (ångström): the hard cases of issue 8.
 HARD_CASES = {
@@ -250,8 +250,6 @@ def test_second_order_steps_from_the_guess_reach_the_lowest_solution(name):
 
 def test_without_aids_the_same_oscillation_does_not_converge():
     # The aid is what converges the case above: switched off, plain steps give up.
-    from hfcore import ConvergenceError
-
     atoms, basis_name = HARD_CASES["water, O-H 1.89 Å"]
     with pytest.raises(ConvergenceError):
         run_rhf(_molecule(atoms), basis_name, SCFOptions(accelerator="none", auto_aids=False, max_iterations=60))
@@ -262,6 +260,36 @@ def test_aufbau_gap_is_the_lumo_minus_homo_energy_at_convergence():
     result = run_rhf(_molecule("O 0 0 0\nH 0 0.757 0.587\nH 0 -0.757 0.587"), "6-31g")
     assert result.aufbau
     assert result.aufbau_gap == pytest.approx(result.lumo_energy - result.homo_energy, abs=1e-6)
+
+
+def test_a_solution_holding_the_lumo_instead_of_the_homo_fails_the_aufbau_check():
+    # Exact property: a stationary determinant with the HOMO and LUMO exchanged has its highest
+    # occupied orbital above its lowest virtual one (negative gap), and it is not a minimum.
+    class SwapHomoLumo(Accelerator):
+        """DIIS, then the same eigenvectors with the HOMO and LUMO energies exchanged."""
+
+        def __init__(self, n_occ: int) -> None:
+            self.n_occ, self.diis = n_occ, DIIS()
+
+        def reset(self) -> None:
+            self.diis.reset()
+
+        def next_fock(self, step):
+            values, vectors = np.linalg.eigh(self.diis.next_fock(step))
+            values[[self.n_occ - 1, self.n_occ]] = values[[self.n_occ, self.n_occ - 1]]
+            return (vectors * values) @ vectors.T
+
+    molecule = _molecule("O 0 0 0\nH 0 0.757 0.587\nH 0 -0.757 0.587")
+    basis = build_basis(molecule, "sto-3g")
+    s = integrals.overlap(basis)
+    h = integrals.kinetic(basis) + integrals.nuclear_attraction(
+        basis, molecule.atomic_numbers.astype(float), molecule.coordinates
+    )
+    options = SCFOptions(stability="check", auto_aids=False)
+    result = solve_rhf(s, h, compute_eri(basis), 10, molecule.nuclear_repulsion(), options, accelerator=SwapHomoLumo(5))
+    assert result.converged
+    assert not result.aufbau and result.aufbau_gap < 0.0
+    assert not result.stability.stable
 
 
 @pytest.mark.parametrize("bad", [{"stability": "maybe"}, {"stability": 1}, {"stability_threshold": -1.0},
