@@ -373,10 +373,16 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
     integral_progress = None if console.json_to_stdout or console.quiet else _IntegralProgress(console.stderr)
     console.live(report.history_header())
 
+    previous: list[Any] = [None]
+
     def show(rec: Any) -> None:
+        last = previous[0]
         if rec.solution and rec.iteration == 1:
             console.live(report.format_new_solution(rec))
+        elif last is not None and rec.aid and last.aid and rec.aid != last.aid:
+            console.live(report.format_aid_switch(rec))
         console.live(report.format_iteration(rec))
+        previous[0] = rec
 
     result = run_rhf(molecule, basis, options, guess=args.guess, progress=show, integral_progress=integral_progress)
     _warn_about_solution(console, result)

@@ -155,6 +155,11 @@ def format_new_solution(record: Any) -> str:
     return f"  -- solution {record.solution + 1}: started along the lowest unstable mode of the previous one --"
 
 
+def format_aid_switch(record: Any) -> str:
+    """The line the live SCF table shows when an automatic convergence aid takes over."""
+    return f"  -- no progress: switching to {record.aid} --"
+
+
 def format_stability(result: Any) -> str:
     """The stability section: what was checked after convergence, the aufbau check and the aids used.
 
@@ -351,6 +356,7 @@ __all__ = [
     "format_iteration",
     "format_convergence",
     "format_new_solution",
+    "format_aid_switch",
     "format_stability",
     "format_energies",
     "format_orbitals",
