@@ -177,7 +177,10 @@ def format_stability(result: Any) -> str:
         verdict = "stable" if st.stable else "UNSTABLE"
         rows.append(("internal stability", f"{verdict} ({st.mode}): {st.message}"))
         threshold = f"threshold -{st.threshold:.0e}"
-        rows.append(("lowest eigenvalue", f"{st.lowest_eigenvalue:.4e} Eh (orbital Hessian, {threshold})"))
+        if np.isfinite(st.lowest_eigenvalue):
+            rows.append(("lowest eigenvalue", f"{st.lowest_eigenvalue:.4e} Eh (orbital Hessian, {threshold})"))
+        else:
+            rows.append(("lowest eigenvalue", "none (no occupied-virtual rotation in this basis)"))
         rows.append(("solutions / Eh", " → ".join(f"{e:.10f}" for e in st.solutions)))
         rows.append(("Hessian products", str(st.products)))
     gap = "none" if not np.isfinite(result.aufbau_gap) else f"{result.aufbau_gap:.6f} Eh"
