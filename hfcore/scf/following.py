@@ -135,9 +135,12 @@ def stabilise(
         message=message,
     )
     timings = {**result.timings, "scf": scf_time + later_scf, "stability": time.perf_counter() - t0 - later_scf}
+    run_message = result.message
+    if len(energies) > 1:
+        run_message = f"converged in {len(history)} iterations over {len(energies)} solutions"
     return replace(
         result, options=options, stability=report, history=history, iterations=len(history), aids=tuple(aids),
-        timings=timings,
+        timings=timings, message=run_message,
     )
 
 
