@@ -4,11 +4,10 @@ from __future__ import annotations
 
 import json
 import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
-from conftest import assert_valid_png
+from conftest import assert_valid_png, read_input
 
 import hfcore
 from hfcore.analysis import (
@@ -21,13 +20,12 @@ from hfcore.analysis import (
 from hfcore.errors import InputError
 from hfcore.plots import plot_comparison
 
-INPUTS = Path(__file__).resolve().parent.parent / "inputs"
 NESTED = ["6-31g*", "6-31g"]
 
 
 @pytest.fixture(scope="module")
 def hydrogen_fluoride():
-    return hfcore.read_xyz(INPUTS / "hydrogen_fluoride.xyz")
+    return read_input("hydrogen_fluoride")
 
 
 @pytest.fixture(scope="module")

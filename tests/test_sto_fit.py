@@ -210,10 +210,9 @@ def test_element_shells_follow_occupied_slater_shells():
         family.element_shells(19)
 
 
-def test_water_minimal_basis_has_seven_functions():
-    molecule = parse_xyz("3\n\nO 0 0 0\nH 0 0.757 0.587\nH 0 -0.757 0.587\n")
+def test_water_minimal_basis_has_seven_functions(water_molecule):
     # common practice: minimal basis, 1s 2s 2p on O and 1s on each H
-    assert build_basis(molecule, "sto-3g").n_functions == 7
+    assert build_basis(water_molecule, "sto-3g").n_functions == 7
 
 
 @pytest.mark.parametrize("name", ["sto-3g", "STO-3G", "sto3g", " Sto-3G "])
