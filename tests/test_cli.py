@@ -14,7 +14,10 @@ import numpy as np
 import pytest
 from conftest import assert_one_line_error, assert_valid_png, cli_result, hfcore_process, only_inputs_left, run_main
 
+from reference import family_shells, reference_mole, reference_rhf
+
 from hfcore import export
+from hfcore.geometry import read_xyz
 from hfcore.cli import main, parse_basis_for
 from hfcore.errors import InputError
 
@@ -207,10 +210,12 @@ def test_json_to_stdout_is_pure_json_with_the_required_keys(water_file):
     assert record["molecule"]["n_electrons"] == 10
     assert record["orbitals"]["homo"] == 4 and record["orbitals"]["lumo"] == 5
     assert record["orbitals"]["occupations"] == [2.0] * 5 + [0.0] * 2
-    e = record["energy"]
-    # source: exact property — the parts add up to the total
-    assert e["electronic"] == pytest.approx(e["one_electron"] + e["two_electron"], abs=1e-12)
-    assert e["total"] == pytest.approx(e["electronic"] + e["nuclear_repulsion"], abs=1e-12)
+    # source: exact property — sum of Z_A Z_B / R_AB over inputs/water.xyz, with the CODATA 2018
+    # Bohr radius 0.529177210903 Å from memory (not the record's own coordinates)
+    xyz = np.array([[0.0, 0.0, 0.065634], [0.0, 0.757481, -0.520870], [0.0, -0.757481, -0.520870]]) / 0.529177210903
+    z = [8.0, 1.0, 1.0]
+    nuclear = sum(z[a] * z[b] / np.linalg.norm(xyz[a] - xyz[b]) for a in range(3) for b in range(a))
+    assert record["energy"]["nuclear_repulsion"] == pytest.approx(nuclear, rel=2e-9)
     assert len(record["scf"]["history"]) == record["scf"]["iterations"]
 
 
@@ -321,11 +326,13 @@ def test_npz_holds_the_arrays_for_prototyping(water_file):
     assert arrays["eri"].shape == (nbf,) * 4
     assert arrays["coordinates"].shape == (3, 3)
     assert arrays["atomic_numbers"].tolist() == [8, 1, 1]
-    # source: exact property — H = T + V
-    np.testing.assert_allclose(arrays["core_hamiltonian"], arrays["kinetic"] + arrays["nuclear_attraction"], atol=1e-12)
-    c_occ = arrays["coefficients"][:, arrays["occupations"] > 0]
-    # source: exact property — the total density is 2 C_occ C_occ^T
-    np.testing.assert_allclose(arrays["density"], 2 * c_occ @ c_occ.T, atol=1e-12)
+    mol = reference_mole(read_xyz(water_file), family_shells(read_xyz(water_file), "sto-3g"), spherical=False)
+    # source: reference library run (PySCF integrals and RHF density), same shells and geometry
+    np.testing.assert_allclose(arrays["overlap"], mol.intor("int1e_ovlp"), rtol=0, atol=1e-10)
+    np.testing.assert_allclose(arrays["kinetic"], mol.intor("int1e_kin"), rtol=0, atol=1e-10)
+    np.testing.assert_allclose(arrays["nuclear_attraction"], mol.intor("int1e_nuc"), rtol=0, atol=1e-10)
+    np.testing.assert_allclose(arrays["core_hamiltonian"], mol.intor("int1e_kin") + mol.intor("int1e_nuc"), rtol=0, atol=1e-10)
+    np.testing.assert_allclose(arrays["density"], reference_rhf(mol).make_rdm1(), rtol=0, atol=1e-6)
     np.testing.assert_allclose(arrays["coordinates"], record["molecule"]["coordinates_bohr"], rtol=0, atol=0)
     assert float(arrays["energy_total"]) == record["energy"]["total"]
     # source: exact property — the energy is recovered from the saved arrays:
