@@ -65,15 +65,18 @@ def strict(seconds: int = 10):
     def hung(signum, frame):
         raise TimeoutError(f"a reader took more than {seconds} s")
 
-    previous = signal.signal(signal.SIGALRM, hung)
-    signal.alarm(seconds)
+    alarm = hasattr(signal, "SIGALRM")  # POSIX; elsewhere the hypothesis deadline remains
+    previous = signal.signal(signal.SIGALRM, hung) if alarm else None
+    if alarm:
+        signal.alarm(seconds)
     try:
         with warnings.catch_warnings(), np.errstate(over="raise", divide="raise", invalid="raise", under="ignore"):
             warnings.simplefilter("error")
             yield
     finally:
-        signal.alarm(0)
-        signal.signal(signal.SIGALRM, previous)
+        if alarm:
+            signal.alarm(0)
+            signal.signal(signal.SIGALRM, previous)
 
 
 def assert_well_formed(mol: Molecule) -> None:
