@@ -16,12 +16,12 @@ from __future__ import annotations
 import contextlib
 import json
 import signal
-import tempfile
 import warnings
 from datetime import timedelta
 from pathlib import Path
 
 import numpy as np
+import pytest
 from conftest import INPUTS
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -172,19 +172,24 @@ def test_xyz_parser_on_random_text_returns_a_molecule_or_raises_input_error(text
     assert_well_formed(mol)
 
 
+@pytest.fixture(scope="module")
+def scratch(tmp_path_factory) -> Path:
+    """One directory for the module: each example overwrites its file there."""
+    return tmp_path_factory.mktemp("fuzz")
+
+
 @settings(max_examples=700, **FUZZ)
 @given(data=mutated_bytes(SEED_GEOMETRIES))
-def test_xyz_reader_on_mutated_files_returns_a_molecule_or_raises_input_error(data):
-    with tempfile.TemporaryDirectory() as directory:
-        path = Path(directory) / "mutated.xyz"
-        path.write_bytes(data)
-        with strict():
-            try:
-                mol = read_xyz(path)
-            except InputError as exc:
-                assert str(exc).startswith(str(path))
-                assert "\n" not in str(exc)
-                return
+def test_xyz_reader_on_mutated_files_returns_a_molecule_or_raises_input_error(scratch, data):
+    path = scratch / "mutated.xyz"
+    path.write_bytes(data)
+    with strict():
+        try:
+            mol = read_xyz(path)
+        except InputError as exc:
+            assert str(exc).startswith(str(path))
+            assert "\n" not in str(exc)
+            return
     assert_well_formed(mol)
 
 
@@ -268,17 +273,15 @@ def _check_basis_file(path: Path) -> None:
 
 @settings(max_examples=500, **FUZZ)
 @given(document=mutated_document())
-def test_basis_reader_on_mutated_documents_returns_a_family_or_raises_basis_error(document):
-    with tempfile.TemporaryDirectory() as directory:
-        path = Path(directory) / "mutated.json"
-        path.write_text(json.dumps(document, allow_nan=True))
-        _check_basis_file(path)
+def test_basis_reader_on_mutated_documents_returns_a_family_or_raises_basis_error(scratch, document):
+    path = scratch / "mutated.json"
+    path.write_text(json.dumps(document, allow_nan=True))
+    _check_basis_file(path)
 
 
 @settings(max_examples=400, **FUZZ)
 @given(data=mutated_bytes([json.dumps(SEED_BASIS, indent=1).encode(), json.dumps({"format": FORMAT_TAG, "elements": SEED_BASIS["elements"]}).encode()]))
-def test_basis_reader_on_mutated_bytes_returns_a_family_or_raises_basis_error(data):
-    with tempfile.TemporaryDirectory() as directory:
-        path = Path(directory) / "mutated.json"
-        path.write_bytes(data)
-        _check_basis_file(path)
+def test_basis_reader_on_mutated_bytes_returns_a_family_or_raises_basis_error(scratch, data):
+    path = scratch / "mutated.json"
+    path.write_bytes(data)
+    _check_basis_file(path)
