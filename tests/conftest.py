@@ -57,12 +57,6 @@ def hydroxide_molecule() -> Molecule:
 
 
 @pytest.fixture(scope="session")
-def ammonia_molecule() -> Molecule:
-    """NH₃ from ``inputs/ammonia.xyz``."""
-    return read_input("ammonia")
-
-
-@pytest.fixture(scope="session")
 def hydrogen_fluoride_molecule() -> Molecule:
     """HF from ``inputs/hydrogen_fluoride.xyz``."""
     return read_input("hydrogen_fluoride")

@@ -108,8 +108,8 @@ def test_mp2_frozen_core_matches_reference(water):
 
 
 @pytest.fixture(scope="module")
-def hydroxide():
-    mol = read_input("hydroxide", charge=-1)
+def hydroxide(hydroxide_molecule):
+    mol = hydroxide_molecule
     return hfcore.run_rhf(mol, hfcore.build_basis(mol, "sto-3g"), hfcore.SCFOptions(**TIGHT))
 
 
