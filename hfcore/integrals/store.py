@@ -25,12 +25,15 @@ from ..basis.shells import BasisSet
 from ..errors import InputError, ResourceError
 from .eri_pairs import pair_index, prepare_pairs
 from .hermite import n_hermite
+from .pool import ordered_map, resolve_threads, work_units
 from .tiles import Tile, batch_pairs, iter_tiles
 
 #: Largest dense (nbf,)*4 array ``to_dense`` will build, in bytes.
 DENSE_LIMIT_BYTES = 4 << 30
 #: Largest store (integrals plus exchange kernel) ``compute_eri`` will build, in bytes.
 STORE_LIMIT_BYTES = 12 << 30
+#: The pass is cut into about this many work units (thread pool tasks and progress steps).
+_UNITS = 256
 
 
 def _canonical(a: np.ndarray, b: np.ndarray, tri: np.ndarray) -> np.ndarray:
@@ -166,7 +169,11 @@ def _store(tile: Tile, block: np.ndarray, packed: np.ndarray) -> None:
 
 
 def compute_eri(
-    basis: BasisSet, *, threshold: float = 1e-12, progress: Callable[[float], None] | None = None
+    basis: BasisSet,
+    *,
+    threshold: float = 1e-12,
+    progress: Callable[[float], None] | None = None,
+    threads: int = 1,
 ) -> ERIStore:
     """Compute all unique electron-repulsion integrals of a basis.
 
@@ -180,6 +187,10 @@ def compute_eri(
         all screening.
     progress : callable, optional
         Called with the fraction of the work done (0..1] as the pass proceeds.
+    threads : int
+        Threads the tiles are spread over (:mod:`hfcore.integrals.pool`);
+        every integral is computed by one tile alone, so the store holds
+        the same bits for any number.
 
     Returns
     -------
@@ -203,16 +214,24 @@ def compute_eri(
             f"stored integrals for {n} functions need {16 * size / 2**30:.1f} GiB "
             f"(limit {STORE_LIMIT_BYTES / 2**30:.0f} GiB)"
         )
+    threads = resolve_threads(threads)
     packed = np.zeros(size)
-    jobs = batch_pairs(prepare_pairs(basis, threshold))
-    total = sum(a.n * a.nprim * b.n * b.nprim * n_hermite(a.L + b.L) for a, b in jobs) or 1
-    done = 0
-    for g1, g2 in jobs:
-        for tile in iter_tiles(g1, g2, threshold):
+    tiles = [tile for g1, g2 in batch_pairs(prepare_pairs(basis, threshold)) for tile in iter_tiles(g1, g2, threshold)]
+    weights = [tile.quartets * n_hermite(tile.bra.L + tile.ket.L) for tile in tiles]
+    total = sum(weights)
+
+    def run(unit: slice) -> int:
+        for tile in tiles[unit]:
             _store(tile, tile.integrals(), packed)
-        done += g1.n * g1.nprim * g2.n * g2.nprim * n_hermite(g1.L + g2.L)
+        return sum(weights[unit])
+
+    done = 0
+    for work in ordered_map(run, work_units(weights, max(total // _UNITS, 1)), threads):
+        done += work
         if progress is not None:
             progress(done / total)
+    if progress is not None and total == 0:
+        progress(1.0)
     return ERIStore(n, packed, float(threshold))
 
 

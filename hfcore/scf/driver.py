@@ -13,6 +13,7 @@ from ..basis import build_basis
 from ..basis.shells import BasisSet
 from ..errors import ConvergenceError, InputError, ResourceError
 from ..geometry import Molecule
+from ..integrals.pool import blas_threads
 from ..integrals.store import STORE_LIMIT_BYTES
 from .guess import sad_density
 from .jk import IncrementalJK, JKBuilder
@@ -71,8 +72,20 @@ def run_rhf(
         No convergence within ``options.max_iterations``; ``.result`` holds
         the unconverged record (with molecule and basis filled in).
     """
-    t0 = time.perf_counter()
     options = options or SCFOptions()
+    with blas_threads(options.n_threads):
+        return _run_rhf(molecule, basis, options, guess, progress, integral_progress)
+
+
+def _run_rhf(
+    molecule: Molecule,
+    basis: BasisSet | str,
+    options: SCFOptions,
+    guess: str | np.ndarray,
+    progress: Progress | None,
+    integral_progress: Callable[[float], None] | None,
+) -> RHFResult:
+    t0 = time.perf_counter()
     molecule.require_closed_shell()
     if isinstance(basis, str):
         basis = build_basis(molecule, basis)
@@ -185,9 +198,11 @@ def _jk_builder(
     basis: BasisSet, options: SCFOptions, plan: JKPlan, integral_progress: Callable[[float], None] | None
 ) -> JKBuilder:
     if plan.mode == "direct":
-        engine = integrals.DirectERI(basis, threshold=options.screening)
+        engine = integrals.DirectERI(basis, threshold=options.screening, threads=options.n_threads)
         return IncrementalJK(engine, options.rebuild_interval)
-    return integrals.compute_eri(basis, threshold=options.screening, progress=integral_progress)
+    return integrals.compute_eri(
+        basis, threshold=options.screening, progress=integral_progress, threads=options.n_threads
+    )
 
 
 __all__ = ["run_rhf", "plan_jk", "JKPlan", "GUESSES"]
