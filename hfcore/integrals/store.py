@@ -55,18 +55,25 @@ class ERIStore:
         Schwarz screening hold zero.
     threshold : float
         Schwarz threshold used (hartree).
+    lean : bool
+        Build K from the packed integrals directly (8 bytes per unique
+        integral in all) instead of from an exchange kernel (16).
 
     Notes
     -----
-    The first :meth:`jk` call builds the exchange kernel, a second packed
-    array of the same length (another 8 bytes per unique integral, reported
-    by :attr:`nbytes`); every call is then two BLAS packed symmetric
-    matrix-vector products over npair(npair+1)/2 elements.
+    Unless ``lean``, the first :meth:`jk` call builds the exchange kernel, a
+    second packed array of the same length (another 8 bytes per unique
+    integral, reported by :attr:`nbytes`); every call is then two BLAS
+    packed symmetric matrix-vector products over npair(npair+1)/2 elements.
+    A lean store reads each row of the packed integrals twice per K build
+    instead (:meth:`_lean_exchange`): the same memory traffic, in about
+    npair BLAS calls rather than one.
     """
 
     n_functions: int
     packed: np.ndarray
     threshold: float
+    lean: bool = False
     _exchange: np.ndarray | None = field(default=None, repr=False)
 
     @property
@@ -147,8 +154,51 @@ class ERIStore:
         first, second = np.tril_indices(n)
         dp = d[first, second] * np.where(first == second, 1.0, 2.0)
         jp = blas.dspmv(self.n_pairs, 1.0, self.packed, dp)
+        if self.lean:
+            return _unpack_symmetric(jp, n), self._lean_exchange(d)
         kp = blas.dspmv(self.n_pairs, 1.0, self._exchange_kernel(), dp)
         return _unpack_symmetric(jp, n), _unpack_symmetric(kp, n)
+
+    def _lean_exchange(self, d: np.ndarray) -> np.ndarray:
+        """K of a symmetric density straight from the packed integrals, shape (nbf, nbf).
+
+        K_ab = Σ_cd (ac|bd) D_cd. The stored row of pair IJ = (i, j) holds
+        (ij|bd) for every pair BD <= IJ: as a packed symmetric matrix V
+        (zero past the row's end, its last element (ij|ij) halved) it gives
+        H[i] += V D[j] and, for i != j, H[j] += V D[i]; the pairs BD > IJ
+        give the transposed terms, so K = H + H^T. The part of V over b < i
+        is a complete packed matrix of order i: one BLAS ``spmv`` per
+        ordered pair, in place. The elements (ij|id), d <= j, of all rows
+        j of one i form a lower triangle R[j, d] and are added with a few
+        whole-array operations.
+        """
+        n = self.n_functions
+        h = np.zeros((n, n))
+        packed = self.packed
+        spmv = blas.dspmv
+        for i in range(n):
+            ti = i * (i + 1) // 2
+            js = np.arange(i + 1)
+            starts = (ti + js) * (ti + js + 1) // 2 + ti  # where (ij|i0) sits in row IJ
+            lower = js[None, :] <= js[:, None]
+            r = np.where(lower, packed[np.where(lower, starts[:, None] + js[None, :], 0)], 0.0)
+            r[js, js] *= 0.5
+            dd = d[: i + 1, : i + 1]
+            # (a, c) = (i, j): H[i, i] += Σ_j R[j] · D[j], H[i, d] += Σ_j R[j, d] D[j, i] for d != i.
+            h[i, i] += np.einsum("jd,jd->", r, dd) - r[i, i] * d[i, i]
+            h[i, : i + 1] += r.T @ d[: i + 1, i]
+            # (a, c) = (j, i), j < i: H[j, i] += R[j] · D[i], H[j, d] += R[j, d] D[i, i].
+            h[:i, i] += r[:i] @ d[i, : i + 1]
+            h[:i, :i] += r[:i, :i] * d[i, i]
+            if i == 0:
+                continue
+            for j in range(i + 1):
+                start = int(starts[j]) - ti
+                full = packed[start : start + ti]
+                spmv(i, 1.0, full, d[j, :i], beta=1.0, y=h[i, :i], overwrite_y=1)
+                if j < i:
+                    spmv(i, 1.0, full, d[i, :i], beta=1.0, y=h[j, :i], overwrite_y=1)
+        return h + h.T
 
 
 def _unpack_symmetric(vec: np.ndarray, n: int) -> np.ndarray:
@@ -174,6 +224,7 @@ def compute_eri(
     threshold: float = 1e-12,
     progress: Callable[[float], None] | None = None,
     threads: int = 1,
+    lean: bool = False,
 ) -> ERIStore:
     """Compute all unique electron-repulsion integrals of a basis.
 
@@ -191,6 +242,9 @@ def compute_eri(
         Threads the tiles are spread over (:mod:`hfcore.integrals.pool`);
         every integral is computed by one tile alone, so the store holds
         the same bits for any number.
+    lean : bool
+        Build K from the packed integrals themselves (:attr:`ERIStore.lean`):
+        8 bytes per unique integral instead of 16, slower K builds.
 
     Returns
     -------
@@ -201,17 +255,18 @@ def compute_eri(
     InputError
         If ``threshold`` is negative.
     ResourceError
-        If the store and its exchange kernel (16 bytes per unique integral)
-        would exceed :data:`STORE_LIMIT_BYTES`.
+        If the store and its exchange kernel (16 bytes per unique integral,
+        8 if ``lean``) would exceed :data:`STORE_LIMIT_BYTES`.
     """
     if threshold < 0:
         raise InputError(f"the screening threshold must be >= 0, not {threshold}")
     n = basis.n_functions
     npair = n * (n + 1) // 2
     size = npair * (npair + 1) // 2
-    if 16 * size > STORE_LIMIT_BYTES:
+    per = 8 if lean else 16
+    if per * size > STORE_LIMIT_BYTES:
         raise ResourceError(
-            f"stored integrals for {n} functions need {16 * size / 2**30:.1f} GiB "
+            f"stored integrals for {n} functions need {per * size / 2**30:.1f} GiB "
             f"(limit {STORE_LIMIT_BYTES / 2**30:.0f} GiB)"
         )
     threads = resolve_threads(threads)
@@ -232,20 +287,23 @@ def compute_eri(
             progress(done / total)
     if progress is not None and total == 0:
         progress(1.0)
-    return ERIStore(n, packed, float(threshold))
+    return ERIStore(n, packed, float(threshold), lean=bool(lean))
 
 
-def estimate_eri_memory(basis: BasisSet) -> int:
+def estimate_eri_memory(basis: BasisSet, *, lean: bool = False) -> int:
     """Bytes the stored integrals need for J/K builds, before any is computed.
 
     The packed store holds one float64 per unique integral and its exchange
     kernel another, so 16 bytes per unique integral, npair(npair+1)/2 of
-    them with npair = nbf(nbf+1)/2. Screening does not shrink the packed
-    arrays, so the estimate is exact.
+    them with npair = nbf(nbf+1)/2; a lean store (K from the integrals
+    themselves) needs 8. Screening does not shrink the packed arrays, so
+    the estimate is exact.
 
     Parameters
     ----------
     basis : BasisSet
+    lean : bool
+        The size of a lean store (no exchange kernel).
 
     Returns
     -------
@@ -253,7 +311,7 @@ def estimate_eri_memory(basis: BasisSet) -> int:
         Bytes.
     """
     npair = basis.n_functions * (basis.n_functions + 1) // 2
-    return 16 * (npair * (npair + 1) // 2)
+    return (8 if lean else 16) * (npair * (npair + 1) // 2)
 
 
 def eri_tensor(basis: BasisSet) -> np.ndarray:

@@ -144,11 +144,15 @@ class JKPlan:
 
     Attributes
     ----------
-    mode : {"stored", "direct"}
-        Store the integrals once, or recompute them every iteration.
+    mode : {"stored", "stored-lean", "direct"}
+        Store the integrals once with an exchange kernel beside them
+        (16 bytes per unique integral, the fastest builds), store them alone
+        and build K from them directly (8 bytes), or recompute them every
+        iteration.
     eri_bytes : int
         Memory the stored integrals need (bytes), from
-        :func:`hfcore.integrals.estimate_eri_memory`.
+        :func:`hfcore.integrals.estimate_eri_memory`: the lean size for
+        "stored-lean", the size with the exchange kernel otherwise.
     limit_bytes : int
         The budget they were measured against (bytes): ``memory_limit``,
         capped at :data:`hfcore.integrals.store.STORE_LIMIT_BYTES`.
@@ -160,14 +164,16 @@ class JKPlan:
 
 
 def plan_jk(basis: BasisSet, options: SCFOptions | None = None) -> JKPlan:
-    """Choose stored or direct J/K builds for a basis, per ``options.direct``.
+    """Choose stored, lean stored or direct J/K builds for a basis, per ``options.direct``.
 
     Parameters
     ----------
     basis : BasisSet
     options : SCFOptions, optional
-        ``direct`` True or False forces the mode; None picks stored if it
-        fits within ``memory_limit``, else direct.
+        ``direct=True`` forces the direct mode. Otherwise the integrals are
+        stored with their exchange kernel if that fits within
+        ``memory_limit``, else stored alone ("stored-lean") if that fits;
+        else ``direct=None`` goes direct and ``direct=False`` fails.
 
     Returns
     -------
@@ -176,22 +182,28 @@ def plan_jk(basis: BasisSet, options: SCFOptions | None = None) -> JKPlan:
     Raises
     ------
     ResourceError
-        If stored integrals are forced (``direct=False``) and do not fit.
+        If stored integrals are forced (``direct=False``) and not even the
+        lean store fits.
     """
     options = options or SCFOptions()
     need = integrals.estimate_eri_memory(basis)
+    lean = integrals.estimate_eri_memory(basis, lean=True)
     limit = min(options.memory_limit_bytes, STORE_LIMIT_BYTES)
-    if options.direct is None:
-        mode = "stored" if need <= limit else "direct"
+    if options.direct:
+        mode = "direct"
+    elif need <= limit:
+        mode = "stored"
+    elif lean <= limit:
+        mode = "stored-lean"
+    elif options.direct is None:
+        mode = "direct"
     else:
-        mode = "direct" if options.direct else "stored"
-    if mode == "stored" and need > limit:
         raise ResourceError(
-            f"stored integrals for {basis.n_functions} functions need {need / 2**20:.3g} MiB but "
-            f"{limit / 2**20:.3g} MiB are allowed; use the direct mode (--direct, direct=True) "
-            f"or raise the limit (--memory MIB, memory_limit)"
+            f"stored integrals for {basis.n_functions} functions need {lean / 2**20:.3g} MiB "
+            f"({need / 2**20:.3g} MiB with the exchange kernel) but {limit / 2**20:.3g} MiB are allowed; "
+            f"use the direct mode (--direct, direct=True) or raise the limit (--memory MIB, memory_limit)"
         )
-    return JKPlan(mode, need, limit)
+    return JKPlan(mode, lean if mode == "stored-lean" else need, limit)
 
 
 def _jk_builder(
@@ -201,7 +213,8 @@ def _jk_builder(
         engine = integrals.DirectERI(basis, threshold=options.screening, threads=options.n_threads)
         return IncrementalJK(engine, options.rebuild_interval)
     return integrals.compute_eri(
-        basis, threshold=options.screening, progress=integral_progress, threads=options.n_threads
+        basis, threshold=options.screening, progress=integral_progress, threads=options.n_threads,
+        lean=plan.mode == "stored-lean",
     )
 
 
