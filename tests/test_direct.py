@@ -147,6 +147,15 @@ def test_automatic_mode_stores_then_stores_lean_then_goes_direct_as_the_budget_s
     assert result.converged
 
 
+def test_a_store_past_the_kernel_limit_goes_lean_even_with_memory_to_spare(monkeypatch):
+    from hfcore.scf import driver
+
+    b = hfcore.build_basis(molecule(WATER), "sto-3g")
+    monkeypatch.setattr(driver, "EXCHANGE_KERNEL_LIMIT_BYTES", integrals.estimate_eri_memory(b) - 1)
+    plan = plan_jk(b, SCFOptions(memory_limit=1000.0))
+    assert (plan.mode, plan.eri_bytes) == ("stored-lean", integrals.estimate_eri_memory(b, lean=True))
+
+
 def test_lean_store_is_half_the_size_and_gives_the_same_energy():
     mol = molecule(WATER)
     b = hfcore.build_basis(mol, "6-31g*")

@@ -32,6 +32,13 @@ from .tiles import Tile, batch_pairs, iter_tiles
 DENSE_LIMIT_BYTES = 4 << 30
 #: Largest store (integrals plus exchange kernel) ``compute_eri`` will build, in bytes.
 STORE_LIMIT_BYTES = 12 << 30
+#: Largest store (integrals plus exchange kernel, bytes) worth its kernel.
+#: Building the kernel costs a gather over the whole store; the lean K build
+#: costs more per iteration only while the store is small. Measured (shared
+#: 2-core machine, one thread): benzene 6-31G, 66 functions, 37 MiB: the
+#: kernel pays back after 2.5 iterations; 6-31G*, 102 functions, 211 MiB:
+#: after 19; cc-pVTZ, 264 functions: never (its lean builds were faster).
+EXCHANGE_KERNEL_LIMIT_BYTES = 128 << 20
 #: The pass is cut into about this many work units (thread pool tasks and progress steps).
 _UNITS = 256
 
@@ -325,4 +332,12 @@ def eri_tensor(basis: BasisSet) -> np.ndarray:
     return compute_eri(basis, threshold=0.0).to_dense()
 
 
-__all__ = ["ERIStore", "compute_eri", "estimate_eri_memory", "eri_tensor", "DENSE_LIMIT_BYTES", "STORE_LIMIT_BYTES"]
+__all__ = [
+    "ERIStore",
+    "compute_eri",
+    "estimate_eri_memory",
+    "eri_tensor",
+    "DENSE_LIMIT_BYTES",
+    "STORE_LIMIT_BYTES",
+    "EXCHANGE_KERNEL_LIMIT_BYTES",
+]

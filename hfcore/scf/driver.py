@@ -14,7 +14,7 @@ from ..basis.shells import BasisSet
 from ..errors import ConvergenceError, InputError, ResourceError
 from ..geometry import Molecule
 from ..integrals.pool import blas_threads
-from ..integrals.store import STORE_LIMIT_BYTES
+from ..integrals.store import EXCHANGE_KERNEL_LIMIT_BYTES, STORE_LIMIT_BYTES
 from .guess import sad_density
 from .jk import IncrementalJK, JKBuilder
 from .options import SCFOptions
@@ -172,8 +172,11 @@ def plan_jk(basis: BasisSet, options: SCFOptions | None = None) -> JKPlan:
     options : SCFOptions, optional
         ``direct=True`` forces the direct mode. Otherwise the integrals are
         stored with their exchange kernel if that fits within
-        ``memory_limit``, else stored alone ("stored-lean") if that fits;
-        else ``direct=None`` goes direct and ``direct=False`` fails.
+        ``memory_limit`` and within
+        :data:`hfcore.integrals.store.EXCHANGE_KERNEL_LIMIT_BYTES` (beyond
+        it the kernel costs more than it saves), else stored alone
+        ("stored-lean") if that fits; else ``direct=None`` goes direct and
+        ``direct=False`` fails.
 
     Returns
     -------
@@ -191,7 +194,7 @@ def plan_jk(basis: BasisSet, options: SCFOptions | None = None) -> JKPlan:
     limit = min(options.memory_limit_bytes, STORE_LIMIT_BYTES)
     if options.direct:
         mode = "direct"
-    elif need <= limit:
+    elif need <= min(limit, EXCHANGE_KERNEL_LIMIT_BYTES):
         mode = "stored"
     elif lean <= limit:
         mode = "stored-lean"
