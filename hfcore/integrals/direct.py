@@ -27,7 +27,7 @@ _DIRECT_TILE_SCALE = 4
 #: pool (fixed, so the sums are the same for any thread count) ...
 _UNITS = 128
 #: ... each of at least this many primitive quartets.
-_MIN_UNIT_QUARTETS = 1 << 18
+_MIN_UNIT_QUARTETS = 1 << 16
 
 
 @dataclass(frozen=True)
