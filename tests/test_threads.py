@@ -96,3 +96,13 @@ def test_cli_refuses_zero_threads(tmp_path):
     code = main(["energy", str(path), "--threads", "0"], stdout=io.StringIO(), stderr=err)
     assert code == 2
     assert err.getvalue().startswith("hfcore: error: ") and len(err.getvalue().splitlines()) == 1
+
+
+def test_lean_exchange_is_bitwise_the_same_on_two_threads(basis):
+    rng = np.random.default_rng(11)
+    a = rng.standard_normal((basis.n_functions, basis.n_functions))
+    density = a + a.T
+    one = compute_eri(basis, lean=True, threads=1)
+    two = compute_eri(basis, lean=True, threads=2)
+    for x, y in zip(one.jk(density), two.jk(density)):
+        assert np.array_equal(x, y)

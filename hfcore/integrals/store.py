@@ -39,6 +39,8 @@ STORE_LIMIT_BYTES = 12 << 30
 #: kernel pays back after 2.5 iterations; 6-31G*, 102 functions, 211 MiB:
 #: after 19; cc-pVTZ, 264 functions: never (its lean builds were faster).
 EXCHANGE_KERNEL_LIMIT_BYTES = 128 << 20
+#: A lean K build is cut into this many work units (fixed, for the same sums on any thread count).
+_LEAN_UNITS = 16
 #: The pass is cut into about this many work units (thread pool tasks and progress steps).
 _UNITS = 256
 
@@ -65,6 +67,8 @@ class ERIStore:
     lean : bool
         Build K from the packed integrals directly (8 bytes per unique
         integral in all) instead of from an exchange kernel (16).
+    threads : int
+        Threads of the lean K build (the same bits for any number).
 
     Notes
     -----
@@ -81,6 +85,7 @@ class ERIStore:
     packed: np.ndarray
     threshold: float
     lean: bool = False
+    threads: int = 1
     _exchange: np.ndarray | None = field(default=None, repr=False)
 
     @property
@@ -180,10 +185,24 @@ class ERIStore:
         whole-array operations.
         """
         n = self.n_functions
+        # Units of first indices i of about equal work (~i^3 each), fixed by
+        # nbf alone; their partial H are added in unit order.
+        cost = np.cumsum(np.arange(n, dtype=np.float64) ** 3)
+        cuts = np.searchsorted(cost, cost[-1] * np.arange(1, _LEAN_UNITS) / _LEAN_UNITS) if n else []
+        bounds = np.unique(np.concatenate([[0], cuts, [n]])).astype(int)
+        units = list(zip(bounds[:-1], bounds[1:]))
+        h = np.zeros((n, n))
+        for part in ordered_map(lambda unit: self._lean_rows(unit[0], unit[1], d), units, self.threads):
+            h += part
+        return h + h.T
+
+    def _lean_rows(self, first: int, stop: int, d: np.ndarray) -> np.ndarray:
+        """The share of H in :meth:`_lean_exchange` of the rows with first index in [first, stop)."""
+        n = self.n_functions
         h = np.zeros((n, n))
         packed = self.packed
         spmv = blas.dspmv
-        for i in range(n):
+        for i in range(first, stop):
             ti = i * (i + 1) // 2
             js = np.arange(i + 1)
             starts = (ti + js) * (ti + js + 1) // 2 + ti  # where (ij|i0) sits in row IJ
@@ -205,7 +224,7 @@ class ERIStore:
                 spmv(i, 1.0, full, d[j, :i], beta=1.0, y=h[i, :i], overwrite_y=1)
                 if j < i:
                     spmv(i, 1.0, full, d[i, :i], beta=1.0, y=h[j, :i], overwrite_y=1)
-        return h + h.T
+        return h
 
 
 def _unpack_symmetric(vec: np.ndarray, n: int) -> np.ndarray:
@@ -294,7 +313,7 @@ def compute_eri(
             progress(done / total)
     if progress is not None and total == 0:
         progress(1.0)
-    return ERIStore(n, packed, float(threshold), lean=bool(lean))
+    return ERIStore(n, packed, float(threshold), lean=bool(lean), threads=threads)
 
 
 def estimate_eri_memory(basis: BasisSet, *, lean: bool = False) -> int:
