@@ -217,7 +217,7 @@ class _AidSchedule:
     the stability analysis). Common practice: a shift separates occupied
     from virtual orbital energies and stops occupations swapping between
     iterations; damping removes oscillation; a second-order step needs no
-    extrapolation history, cannot be drawn to a saddle point and converges
+    extrapolation history, moves downhill even near a saddle point and converges
     fast near the solution, at a few J/K builds per step. The final
     orbitals are never shifted.
     """
