@@ -331,3 +331,17 @@ def test_cli_refuses_an_unknown_stability_setting(tmp_path):
     err = io.StringIO()
     code = main(["energy", str(path), "--stability", "sometimes"], stdout=io.StringIO(), stderr=err)
     assert code == 2 and err.getvalue().startswith("hfcore: error: ")
+
+
+def test_human_report_marks_the_new_solution_and_says_what_was_checked(tmp_path):
+    # Common practice: the report states what was checked; the live table shows where a new solution starts.
+    path = tmp_path / "n2.xyz"
+    path.write_text(_xyz(HARD_CASES["N2 2.2 Å"][0]))
+    out, err = io.StringIO(), io.StringIO()
+    assert main(["energy", str(path), "--basis", "6-31g"], stdout=out, stderr=err) == 0
+    text = out.getvalue()
+    assert "-- solution 2: started along the lowest unstable mode" in text
+    section = text.split("Stability and occupation", 1)[1].split("Energy / Eh", 1)[0]
+    assert "stable after following 1 instability" in section
+    assert "aufbau occupation    yes" in section
+    assert err.getvalue() == ""
