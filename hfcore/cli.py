@@ -106,6 +106,13 @@ def _add_scf_arguments(parser: argparse.ArgumentParser) -> None:
                       help="store the integrals; fail up front if they exceed --memory")
     memory.add_argument("--memory", type=_positive_float, metavar="MIB",
                         help="memory the stored integrals may use, in MiB (default: half of the available memory)")
+    _add_threads_argument(memory)
+
+
+def _add_threads_argument(parser: Any) -> None:
+    parser.add_argument("--threads", type=_positive_int, metavar="N",
+                        help="threads for the integral passes and linear algebra "
+                        "(default: the cores this process may use); results do not depend on N")
 
 
 def _add_json_argument(parser: argparse.ArgumentParser) -> None:
@@ -177,6 +184,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     _add_json_argument(compare)
     compare.add_argument("--plot", metavar="PNG", help="plot energy against the number of basis functions")
+    _add_threads_argument(compare)
     compare.set_defaults(handler=_run_compare)
 
     bases = sub.add_parser("bases", help="list the basis sets on offer")
@@ -291,7 +299,7 @@ def _build_basis(args: argparse.Namespace, molecule: Any) -> Any:
 def _scf_options(args: argparse.Namespace) -> Any:
     from .scf import SCFOptions
 
-    names = ("energy_tol", "gradient_tol", "max_iterations", "diis_space", "lindep_threshold", "direct")
+    names = ("energy_tol", "gradient_tol", "max_iterations", "diis_space", "lindep_threshold", "direct", "threads")
     given = {name: getattr(args, name) for name in names if getattr(args, name, None) is not None}
     if getattr(args, "memory", None) is not None:
         given["memory_limit"] = args.memory
@@ -417,13 +425,17 @@ def _run_fit_sto(args: argparse.Namespace, console: _Console) -> int:
 
 def _run_compare(args: argparse.Namespace, console: _Console) -> int:
     from .analysis import compare_bases
+    from .scf import SCFOptions
 
     paths = _output_paths(args, "json", "plot")
     names = [n.strip() for n in args.basis.split(",") if n.strip()]
     if not names:
         raise InputError("--basis: give at least one basis name, e.g. sto-3g,cc-pvdz")
     molecule = _read_molecule(args)
-    comparison = compare_bases(molecule, names, spherical=args.spherical, progress=_stderr_progress(console))
+    options = SCFOptions(threads=args.threads)
+    comparison = compare_bases(
+        molecule, names, spherical=args.spherical, options=options, progress=_stderr_progress(console)
+    )
     record = export.comparison_record(comparison)
     if "plot" in paths:
         from .plots import plot_comparison

@@ -108,15 +108,54 @@ def test_memory_estimate_is_the_size_of_the_store():
     assert integrals.estimate_eri_memory(b) == 16 * npair * (npair + 1) // 2
 
 
-def test_automatic_mode_stores_when_it_fits_and_goes_direct_when_not():
+def test_automatic_mode_stores_then_stores_lean_then_goes_direct_as_the_budget_shrinks():
     mol = read_input("water")
     b = hfcore.build_basis(mol, "sto-3g")
     assert plan_jk(b, SCFOptions()).mode == "stored"
-    small = SCFOptions(memory_limit=integrals.estimate_eri_memory(b) / 2**20 / 2)
+    lean = integrals.estimate_eri_memory(b, lean=True)
+    assert plan_jk(b, SCFOptions(memory_limit=lean / 2**20)).mode == "stored-lean"
+    small = SCFOptions(memory_limit=lean / 2**20 / 2)
     assert plan_jk(b, small).mode == "direct"
     result = run_rhf(mol, b, small)
     assert result.jk_mode == "direct"
     assert result.converged
+
+
+def test_a_store_past_the_kernel_limit_goes_lean_even_with_memory_to_spare(monkeypatch):
+    from hfcore.scf import driver
+
+    b = hfcore.build_basis(read_input("water"), "sto-3g")
+    monkeypatch.setattr(driver, "EXCHANGE_KERNEL_LIMIT_BYTES", integrals.estimate_eri_memory(b) - 1)
+    plan = plan_jk(b, SCFOptions(memory_limit=1000.0))
+    assert (plan.mode, plan.eri_bytes) == ("stored-lean", integrals.estimate_eri_memory(b, lean=True))
+
+
+def test_lean_store_is_half_the_size_and_gives_the_same_energy():
+    mol = read_input("water")
+    b = hfcore.build_basis(mol, "6-31g*")
+    full = run_rhf(mol, b)
+    lean_bytes = integrals.estimate_eri_memory(b, lean=True)
+    # exact property: one packed float64 array of npair(npair+1)/2 elements
+    assert lean_bytes == 8 * (19 * 20 // 2) * (19 * 20 // 2 + 1) // 2
+    lean = run_rhf(mol, b, SCFOptions(direct=False, memory_limit=lean_bytes / 2**20))
+    assert (full.jk_mode, lean.jk_mode) == ("stored", "stored-lean")
+    assert lean.eri_bytes == lean_bytes
+    # exact property: the same integrals contracted in another order
+    assert lean.energy_total == pytest.approx(full.energy_total, abs=1e-10)
+
+
+def test_lean_store_builds_k_like_the_dense_contraction():
+    b = hfcore.build_basis(read_input("water"), "6-31g*")
+    store = integrals.compute_eri(b, threshold=0.0, lean=True)
+    rng = np.random.default_rng(3)
+    a = rng.standard_normal((b.n_functions, b.n_functions))
+    density = a + a.T
+    eri = store.to_dense()
+    j, k = store.jk(density)
+    # exact property: the definitions J = (mn|ls) D_ls and K = (ml|ns) D_ls
+    np.testing.assert_allclose(j, np.einsum("mnls,ls->mn", eri, density), rtol=0, atol=1e-12)
+    np.testing.assert_allclose(k, np.einsum("mlns,ls->mn", eri, density), rtol=0, atol=1e-12)
+    assert store.nbytes == integrals.estimate_eri_memory(b, lean=True)  # no exchange kernel was built
 
 
 def test_forced_stored_mode_beyond_the_budget_fails_before_allocating(monkeypatch):
@@ -158,6 +197,18 @@ def test_cli_direct_mode_shows_in_json(water_file):
     assert record["scf"]["eri_memory_bytes"] == 16 * 28 * 29 // 2
     code, out, _ = run_main("energy", str(water_file), "--json", "-")
     assert json.loads(out)["scf"]["jk_mode"] == "stored"
+
+
+def test_cli_lean_store_shows_in_json_and_report(water_file):
+    lean_mib = 8 * (28 * 29 // 2) / 2**20  # exact property: 8 bytes per unique quartet of STO-3G water
+    code, out, err = run_main("energy", water_file, "--stored", "--memory", repr(lean_mib), "--json", "-")
+    assert code == 0, err
+    record = json.loads(out)
+    assert record["scf"]["jk_mode"] == "stored-lean"
+    assert record["scf"]["eri_memory_bytes"] == 8 * 28 * 29 // 2
+    code, out, err = run_main("energy", water_file, "--memory", repr(lean_mib))
+    assert code == 0, err
+    assert "lean" in out
 
 
 def test_cli_report_states_the_mode_before_the_iterations(water_file):
