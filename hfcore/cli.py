@@ -15,13 +15,14 @@ import os
 import sys
 import time
 import typing
+import warnings
 from collections.abc import Callable, Iterable, Sequence
 from typing import Any, TextIO
 
 import numpy as np
 
 from . import __version__, elements, export, report
-from .errors import HfcoreError, InputError, ResourceError
+from .errors import HfcoreError, InputError, NumericalError, ResourceError
 
 #: Exit code after Ctrl-C (128 + SIGINT), the shell convention.
 EXIT_INTERRUPTED: int = 130
@@ -128,7 +129,7 @@ def build_parser() -> argparse.ArgumentParser:
         prog="hfcore",
         description="Restricted Hartree-Fock energies of small closed-shell molecules.",
         epilog="Exit codes: 0 success, 2 bad input, 3 basis problem, 4 SCF not converged, "
-        "5 not enough memory, 130 interrupted, 141 output pipe closed.",
+        "5 not enough memory, 6 numerical failure, 130 interrupted, 141 output pipe closed.",
     )
     parser.add_argument("--version", action="version", version=f"hfcore {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
@@ -278,7 +279,7 @@ def parse_basis_for(items: Sequence[str]) -> dict[str, str]:
 
 
 def _build_basis(args: argparse.Namespace, molecule: Any) -> Any:
-    from .basis import build_basis
+    from .basis import build_basis, require_room_for
     from .basis.sto import parse_zeta_overrides
 
     zeta = parse_zeta_overrides(args.zeta) if args.zeta else None
@@ -290,7 +291,9 @@ def _build_basis(args: argparse.Namespace, molecule: Any) -> Any:
         main = load_basis_file(args.basis_file)
         if zeta:
             raise InputError("--zeta applies only to the fitted STO-nG sets, not to a --basis-file")
-    return build_basis(molecule, main, spherical=args.spherical, zeta=zeta, per_element=per_element)
+    basis = build_basis(molecule, main, spherical=args.spherical, zeta=zeta, per_element=per_element)
+    require_room_for(molecule, basis)
+    return basis
 
 
 def _scf_options(args: argparse.Namespace) -> Any:
@@ -494,6 +497,30 @@ def _detach(stream: TextIO) -> None:
     os.close(devnull)
 
 
+@contextlib.contextmanager
+def _floating_point_errors_as_exceptions() -> typing.Iterator[None]:
+    """Run the work with numpy's floating-point problems raised, never printed.
+
+    Overflow, division by zero and invalid values (underflow is normal in
+    Gaussian integrals and stays silent) become exceptions, and so do the
+    numerical warnings of numpy and scipy; :func:`main` turns them into a
+    :class:`~hfcore.errors.NumericalError`. The warning filters are global,
+    so they also hold in worker threads, where numpy's error state is the
+    default ("warn").
+    """
+    with np.errstate(over="warn", divide="warn", invalid="warn", under="ignore"), warnings.catch_warnings():
+        warnings.filterwarnings("error", message=r"(overflow|divide by zero|invalid value) encountered", category=RuntimeWarning)
+        warnings.filterwarnings("error", category=RuntimeWarning, module=r"(numpy|scipy)(\.|$)")
+        yield
+
+
+def _numerical_failure(exc: BaseException) -> NumericalError:
+    what = str(exc).strip() or type(exc).__name__
+    return NumericalError(
+        f"numerical failure ({what}); the input passed validation, so please report it with the input files"
+    )
+
+
 def _fail(err: TextIO, message: str, code: int) -> int:
     one_line = " ".join(message.split())
     print(f"hfcore: error: {one_line}", file=err, flush=True)
@@ -514,8 +541,9 @@ def main(argv: Sequence[str] | None = None, *, stdout: TextIO | None = None, std
     -------
     int
         The exit code: 0 on success, the error class's ``exit_code`` for an
-        :class:`~hfcore.errors.HfcoreError`, 2 for a usage error, 130 after
-        an interrupt.
+        :class:`~hfcore.errors.HfcoreError` (6 for a floating-point failure
+        that validation did not prevent), 2 for a usage error, 130 after an
+        interrupt.
     """
     out = sys.stdout if stdout is None else stdout
     err = sys.stderr if stderr is None else stderr
@@ -528,7 +556,11 @@ def main(argv: Sequence[str] | None = None, *, stdout: TextIO | None = None, std
     json_to_stdout = getattr(args, "json", None) == "-"
     console = _Console(out, err, json_to_stdout, getattr(args, "quiet", False))
     try:
-        return args.handler(args, console)
+        try:
+            with _floating_point_errors_as_exceptions():
+                return args.handler(args, console)
+        except (FloatingPointError, RuntimeWarning, np.linalg.LinAlgError) as exc:
+            raise _numerical_failure(exc) from None
     except HfcoreError as exc:
         return _fail(err, str(exc), exc.exit_code)
     except MemoryError:

@@ -9,7 +9,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from .. import integrals
-from ..basis import build_basis
+from ..basis import build_basis, require_room_for
 from ..basis.shells import BasisSet
 from ..errors import ConvergenceError, InputError, ResourceError
 from ..geometry import Molecule
@@ -89,6 +89,7 @@ def _run_rhf(
     molecule.require_closed_shell()
     if isinstance(basis, str):
         basis = build_basis(molecule, basis)
+    require_room_for(molecule, basis)
     guess_density = _checked_guess(guess, basis)
     overlap = integrals.overlap(basis)
     hcore = integrals.kinetic(basis) + integrals.nuclear_attraction(
