@@ -59,4 +59,25 @@ class ResourceError(HfcoreError):
     exit_code = 5
 
 
-__all__ = ["HfcoreError", "InputError", "BasisError", "ConvergenceError", "ResourceError"]
+class ResultsFileError(InputError):
+    """A batch results file that cannot be used: unreadable, not a results
+    file, written by another version of hfcore, or held by another batch."""
+
+    exit_code = 11
+
+
+class SchedulerError(HfcoreError):
+    """A Dask scheduler that does not answer (or the Dask extra is missing)."""
+
+    exit_code = 12
+
+
+__all__ = [
+    "HfcoreError",
+    "InputError",
+    "BasisError",
+    "ConvergenceError",
+    "ResourceError",
+    "ResultsFileError",
+    "SchedulerError",
+]
