@@ -245,7 +245,7 @@ def dask_results(
             # Higher priority runs first: keep the largest-first order.
             futures.append(client.submit(run_job, payload, key=key, retries=DASK_RETRIES, pure=False,
                                          priority=len(payloads) - number))
-        completed = as_completed(futures)
+        completed = as_completed(futures, loop=client.loop)
         while not completed.is_empty() and not should_stop():
             batch = completed.next_batch(block=False)
             if not batch:

@@ -73,6 +73,10 @@ class Job:
         The identity of the job in a results file (see the module notes).
     origin : str
         Where the geometry was named, for messages.
+    order : tuple of int
+        Position of the geometry and of the basis in the batch as given,
+        so a summary can list them in that order whatever order the jobs
+        finished in.
     size : int
         Estimated number of basis functions (0 if unknown); larger jobs
         start first.
@@ -85,6 +89,7 @@ class Job:
     geometry_sha256: str | None
     key: str
     origin: str = ""
+    order: tuple[int, int] = (0, 0)
     size: int = field(default=0, compare=False)
 
     def record(self) -> dict[str, Any]:
@@ -96,6 +101,7 @@ class Job:
             "charge": self.charge,
             "geometry_sha256": self.geometry_sha256,
             "origin": self.origin,
+            "order": list(self.order),
             "options": self.options,
         }
 
@@ -251,18 +257,18 @@ def make_jobs(
     jobs: list[Job] = []
     seen: set[str] = set()
     duplicates = 0
-    for entry in entries:
+    for position, entry in enumerate(entries):
         if entry.path not in digests:
             digests[entry.path] = file_digest(entry.path)
         digest = digests[entry.path]
         charge = default_charge if entry.charge is None else entry.charge
-        for basis in bases:
+        for column, basis in enumerate(bases):
             key = job_key(digest, entry.path, charge, basis, options)
             if key in seen:
                 duplicates += 1
                 continue
             seen.add(key)
-            jobs.append(Job(entry.path, basis, charge, dict(options), digest, key, entry.origin))
+            jobs.append(Job(entry.path, basis, charge, dict(options), digest, key, entry.origin, (position, column)))
     return jobs, duplicates
 
 

@@ -3,7 +3,7 @@
 For a scan, the plot needs a coordinate per geometry. It is taken from the
 XYZ comment lines when every geometry's comment holds a number and the
 numbers differ (e.g. ``r = 0.74``, ``angle 104.5``); otherwise the
-geometries are numbered in the order of the results file.
+geometries are numbered in the order the batch was given them.
 """
 
 from __future__ import annotations
@@ -25,9 +25,9 @@ class EnergyTable:
     path : str
         The results file.
     geometries : list of str
-        Geometry paths in order of first appearance.
+        Geometry paths in the order the batch was given them.
     bases : list of str
-        Basis names in order of first appearance.
+        Basis names in the order the batch was given them.
     energies : dict
         ``(geometry, basis) -> total energy`` in hartree for successful jobs.
     failures : dict
@@ -47,7 +47,7 @@ class EnergyTable:
     failures: dict[tuple[str, str], str] = field(default_factory=dict)
     comments: dict[str, str] = field(default_factory=dict)
     coordinate: list[float] = field(default_factory=list)
-    coordinate_label: str = "geometry (order in the results file)"
+    coordinate_label: str = "geometry (order given to the batch)"
 
 
 def _scan_coordinate(table: EnergyTable) -> None:
@@ -85,7 +85,11 @@ def energy_table(path: str) -> EnergyTable:
         If the file is missing, unreadable or from another version.
     """
     table = EnergyTable(path)
-    for record in iter_job_records(path):
+    records = list(iter_job_records(path))
+    # The order of the batch as given (jobs finish in any order); older
+    # lines without it keep their file order.
+    records.sort(key=lambda r: tuple(r["job"].get("order", (0, 0))))
+    for record in records:
         job = record["job"]
         geometry, basis = job["geometry"], job["basis"]
         if geometry not in table.geometries:
