@@ -238,15 +238,12 @@ def _estimate_sizes(jobs: list, args: argparse.Namespace) -> list:
 
 def run_batch_command(args: argparse.Namespace, console: Any) -> int:
     """``hfcore batch``: run the jobs (or, with ``--summary``, look at a results file)."""
-    from ..export import check_output_path
-
     if args.summary:
         if args.geometry:
             raise InputError("batch --summary reads only the results file; give no GEOMETRY")
         return _summary(args, console)
     if args.plot:
         raise InputError("batch: --plot goes with --summary")
-    check_output_path(args.results)
     from . import expand_geometries, make_jobs, parse_basis_list, run_batch
     from .execute import usable_cores
 

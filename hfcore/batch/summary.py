@@ -1,7 +1,8 @@
 """Reading a results file back as a table of energies by geometry and basis.
 
 For a scan, the plot needs a coordinate per geometry. It is taken from the
-XYZ comment lines when every geometry's comment holds a number and the
+XYZ comment lines when every geometry's comment holds a number (the first
+one standing alone) and the
 numbers differ (e.g. ``r = 0.74``, ``angle 104.5``); otherwise the
 geometries are numbered in the order the batch was given them.
 """
@@ -13,7 +14,8 @@ from dataclasses import dataclass, field
 
 from .results import iter_job_records
 
-_NUMBER = re.compile(r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?")
+# A number standing on its own, so the 2 of "H2" is not taken for a coordinate.
+_NUMBER = re.compile(r"(?<![\w.])[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?(?![\w.])")
 
 
 @dataclass
