@@ -367,6 +367,7 @@ def test_a_scheduler_that_does_not_answer(tmp_path):
     code, out, err = run_main("batch", tmp_path / "a.xyz", "--results", tmp_path / "r.jsonl", "--quiet",
                               "--scheduler", "tcp://127.0.0.1:9", "--scheduler-timeout", "1")
     assert_one_line_error(code, out, err, 12, "tcp://127.0.0.1:9: no Dask scheduler answered within 1 s")
+    assert not (tmp_path / "r.jsonl").exists()
 
 
 def test_bad_list_file_line(tmp_path):

@@ -201,25 +201,15 @@ def local_results(
             executor.shutdown(wait=finished, cancel_futures=True)
 
 
-def dask_results(
-    payloads: Sequence[Mapping[str, Any]], address: str, timeout: float, should_stop: Callable[[], bool]
-) -> Iterator[dict[str, Any]]:
-    """Send jobs to an existing Dask cluster; yield each results line as it comes back.
-
-    Each job is one task whose key is derived from the job key, with
-    ``retries`` so that the scheduler reruns it if it fails; a task whose
-    workers keep dying comes back as a failed line.
+def connect_dask(address: str, timeout: float) -> Any:
+    """A client of an existing Dask scheduler.
 
     Parameters
     ----------
-    payloads : sequence of mapping
-        See :func:`run_job`.
     address : str
         The scheduler address, e.g. ``tcp://head:8786``.
     timeout : float
         Seconds to wait for the scheduler to answer.
-    should_stop : callable
-        As for :func:`local_results`; stopping cancels the outstanding tasks.
 
     Raises
     ------
@@ -227,15 +217,38 @@ def dask_results(
         If the Dask extra is missing or the scheduler does not answer in time.
     """
     try:
-        from distributed import Client, as_completed
+        from distributed import Client
     except ImportError:
         raise SchedulerError("--scheduler needs the Dask extra: pip install 'hfcore[dask]'") from None
     try:
-        client = Client(address, timeout=timeout, set_as_default=False)
+        return Client(address, timeout=timeout, set_as_default=False)
     except Exception as exc:  # distributed raises OSError, TimeoutError or ValueError by case
         raise SchedulerError(
             f"{address}: no Dask scheduler answered within {timeout:g} s ({_one_line(str(exc)) or type(exc).__name__})"
         ) from None
+
+
+def dask_results(
+    payloads: Sequence[Mapping[str, Any]], client: Any, should_stop: Callable[[], bool]
+) -> Iterator[dict[str, Any]]:
+    """Send jobs to a Dask cluster; yield each results line as it comes back.
+
+    Each job is one task whose key is derived from the job key, with
+    ``retries`` so that the scheduler reruns it if it fails; a task whose
+    workers keep dying comes back as a failed line. The client is closed
+    at the end.
+
+    Parameters
+    ----------
+    payloads : sequence of mapping
+        See :func:`run_job`.
+    client : distributed.Client
+        From :func:`connect_dask`.
+    should_stop : callable
+        As for :func:`local_results`; stopping cancels the outstanding tasks.
+    """
+    from distributed import as_completed
+
     futures = []
     try:
         by_key = {}
@@ -382,6 +395,7 @@ def run_batch(
                 todo.append(job)
             else:
                 outcome.skipped_failed += 1
+        client = connect_dask(scheduler, scheduler_timeout) if scheduler and todo else None
         if on_start is not None:
             on_start(outcome, len(todo))
         payloads = [{"job": j.record(), "extra": dict(extra or {}), "blas_threads": threads if scheduler else None}
@@ -389,7 +403,7 @@ def run_batch(
         if not payloads:
             stream: Iterator[dict[str, Any]] = iter(())
         elif scheduler:
-            stream = dask_results(payloads, scheduler, scheduler_timeout, should_stop)
+            stream = dask_results(payloads, client, should_stop)
         else:
             stream = local_results(payloads, min(workers or usable_cores(), len(payloads)), threads, should_stop)
         try:
@@ -418,6 +432,7 @@ __all__ = [
     "usable_cores",
     "run_job",
     "local_results",
+    "connect_dask",
     "dask_results",
     "BatchOutcome",
     "run_batch",

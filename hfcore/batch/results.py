@@ -144,9 +144,9 @@ def read_results(path: str) -> ResultsContents:
 class ResultsWriter:
     """Exclusive appender to a results file (a context manager).
 
-    On entry it takes the lock, reads what is there, cuts off a partial
-    last line and writes the header into a new file; :meth:`append`
-    writes one job line whole and makes it durable.
+    On entry it takes the lock, reads what is there and cuts off a partial
+    last line; :meth:`append` writes one job line whole and makes it
+    durable (the first one creates the file with its header).
 
     Parameters
     ----------
@@ -184,12 +184,9 @@ class ResultsWriter:
             ) from None
         try:
             self.contents = read_results(self.path)
-            self._fd = os.open(self.path, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o666)
             if self.contents.partial_bytes:
-                os.ftruncate(self._fd, self.contents.valid_length)
+                os.truncate(self.path, self.contents.valid_length)
                 self.truncated_bytes = self.contents.partial_bytes
-            if os.fstat(self._fd).st_size == 0:
-                self._write(encode_line(header_record()))
         except OSError as exc:
             self._release()
             raise ResultsFileError(f"{self.path}: cannot write the results file ({exc.strerror})") from None
@@ -209,7 +206,12 @@ class ResultsWriter:
                 setattr(self, name, None)
 
     def _write(self, line: bytes) -> None:
-        assert self._fd is not None
+        if self._fd is None:
+            # Opened at the first line, so a batch that fails before any job
+            # finishes (e.g. no scheduler) leaves no file behind.
+            self._fd = os.open(self.path, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o666)
+            if os.fstat(self._fd).st_size == 0:
+                self._write(encode_line(header_record()))
         view = memoryview(line)
         while view:  # a regular file takes the whole line at once; the loop is for safety only
             done = os.write(self._fd, view)
