@@ -214,26 +214,20 @@ def _job_options(args: argparse.Namespace) -> dict[str, Any]:
     return {d: plain_values(getattr(args, d)) for d in args.batch_job_dests}
 
 
-def _estimate_sizes(jobs: list, args: argparse.Namespace) -> list:
-    """Jobs with their basis-function counts (0 where the geometry or basis fails: the job will say why)."""
-    from dataclasses import replace
-
+def _size_estimator(args: argparse.Namespace) -> Callable[[Any], int]:
+    """A job's number of basis functions (0 where the geometry or basis fails: the job will say why)."""
     from ..cli import basis_function_count
     from ..errors import HfcoreError
 
-    sized = []
-    cache: dict[tuple, int] = {}
-    for job in jobs:
-        key = (job.geometry, job.basis, job.charge)
-        if key not in cache:
-            ns = argparse.Namespace(**{**vars(args), **job.options, "geometry": job.geometry, "basis": job.basis,
-                                       "charge": job.charge})
-            try:
-                cache[key] = basis_function_count(ns)
-            except (HfcoreError, MemoryError):
-                cache[key] = 0
-        sized.append(replace(job, size=cache[key]))
-    return sized
+    def size_of(job: Any) -> int:
+        ns = argparse.Namespace(**{**vars(args), **job.options, "geometry": job.geometry, "basis": job.basis,
+                                   "charge": job.charge})
+        try:
+            return basis_function_count(ns)
+        except (HfcoreError, MemoryError):
+            return 0
+
+    return size_of
 
 
 def run_batch_command(args: argparse.Namespace, console: Any) -> int:
@@ -253,7 +247,6 @@ def run_batch_command(args: argparse.Namespace, console: Any) -> int:
     progress = Progress(console.stderr, args.quiet)
     if duplicates:
         progress.say(f"batch: {duplicates} job(s) named twice, run once")
-    jobs = _estimate_sizes(jobs, args)
     extra = {d: getattr(args, d) for d in args.batch_extra_dests}
     workers = 0 if args.scheduler else min(args.workers or usable_cores(), len(jobs))
 
@@ -276,6 +269,7 @@ def run_batch_command(args: argparse.Namespace, console: Any) -> int:
             jobs, args.results, retry_failed=args.retry_failed, workers=workers or None, threads=args.threads,
             scheduler=args.scheduler, scheduler_timeout=args.scheduler_timeout, extra=extra,
             should_stop=lambda: received() is not None, on_start=on_start, on_record=progress.record,
+            size_of=_size_estimator(args),
         )
         signum = received()
     progress.close()

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import dataclasses
 import multiprocessing
 import os
 import signal
@@ -151,54 +152,72 @@ def _thread_environment(threads: int) -> Iterator[None]:
                 os.environ[name] = value
 
 
-def local_results(
-    payloads: Sequence[Mapping[str, Any]], workers: int, threads: int, should_stop: Callable[[], bool]
-) -> Iterator[dict[str, Any]]:
-    """Run jobs in a pool of local worker processes; yield each results line as it finishes.
+def _warm_up() -> None:
+    """Import what every job needs, while the parent still prepares the job list."""
+    from .. import cli, scf  # noqa: F401
+    from ..basis import sto  # noqa: F401
+
+
+class LocalPool:
+    """A pool of local worker processes, started (and warming up) at once.
 
     Parameters
     ----------
-    payloads : sequence of mapping
-        See :func:`run_job`; started in this order.
     workers : int
         Number of processes.
     threads : int
-        BLAS threads per worker.
-    should_stop : callable
-        Polled a few times a second; when it returns true, the running jobs
-        are abandoned (their processes terminated) and the iteration ends.
-
-    Raises
-    ------
-    HfcoreError
-        If a worker process died (the results so far are already yielded).
+        BLAS threads per worker (set in their environment before numpy loads).
     """
-    with _thread_environment(threads):
-        executor = ProcessPoolExecutor(
-            max_workers=workers, mp_context=multiprocessing.get_context("spawn"), initializer=_init_local_worker
-        )
-        finished = False
-        try:
-            pending = {executor.submit(run_job, p) for p in payloads}
-            while pending and not should_stop():
-                done, pending = wait(pending, timeout=_POLL_S, return_when=FIRST_COMPLETED)
-                for future in done:
-                    try:
-                        yield future.result()
-                    except BrokenProcessPool:
-                        raise HfcoreError(
-                            "a batch worker process died (out of memory?); finished jobs are in the results "
-                            "file, run the batch again to go on"
-                        ) from None
-            finished = not pending
-        finally:
-            if not finished:
-                # No public way to end running jobs: terminate the processes
-                # the executor keeps, then let it clean up without waiting.
-                for process in list(getattr(executor, "_processes", {}).values()):
-                    with contextlib.suppress(Exception):
-                        process.terminate()
-            executor.shutdown(wait=finished, cancel_futures=True)
+
+    def __init__(self, workers: int, threads: int) -> None:
+        self.threads = threads
+        with _thread_environment(threads):
+            self.executor = ProcessPoolExecutor(
+                max_workers=workers, mp_context=multiprocessing.get_context("spawn"), initializer=_init_local_worker
+            )
+            for _ in range(workers):
+                self.executor.submit(_warm_up)
+
+    def results(self, payloads: Sequence[Mapping[str, Any]], should_stop: Callable[[], bool]
+                ) -> Iterator[dict[str, Any]]:
+        """Run the jobs; yield each results line as it finishes.
+
+        Parameters
+        ----------
+        payloads : sequence of mapping
+            See :func:`run_job`; started in this order.
+        should_stop : callable
+            Polled a few times a second; when it returns true the iteration
+            ends (and :meth:`close` abandons the running jobs).
+
+        Raises
+        ------
+        HfcoreError
+            If a worker process died (the results so far are already yielded).
+        """
+        with _thread_environment(self.threads):
+            pending = {self.executor.submit(run_job, p) for p in payloads}
+        while pending and not should_stop():
+            done, pending = wait(pending, timeout=_POLL_S, return_when=FIRST_COMPLETED)
+            for future in done:
+                try:
+                    record = future.result()
+                except BrokenProcessPool:
+                    raise HfcoreError(
+                        "a batch worker process died (out of memory?); finished jobs are in the results "
+                        "file, run the batch again to go on"
+                    ) from None
+                yield record
+
+    def close(self, abandon: bool) -> None:
+        """Shut the pool down; with ``abandon``, end the running jobs at once."""
+        if abandon:
+            # No public way to end running jobs: terminate the processes the
+            # executor keeps, then let it clean up without waiting.
+            for process in list(getattr(self.executor, "_processes", {}).values()):
+                with contextlib.suppress(Exception):
+                    process.terminate()
+        self.executor.shutdown(wait=not abandon, cancel_futures=True)
 
 
 def connect_dask(address: str, timeout: float) -> Any:
@@ -335,6 +354,7 @@ def run_batch(
     should_stop: Callable[[], bool] = lambda: False,
     on_start: Callable[[BatchOutcome, int], None] | None = None,
     on_record: Callable[[dict[str, Any]], None] | None = None,
+    size_of: Callable[[Job], int] | None = None,
 ) -> BatchOutcome:
     """Run the jobs not yet in a results file, appending one line per finished job.
 
@@ -365,6 +385,9 @@ def run_batch(
         Called as ``on_start(outcome, n_to_run)`` once the file is read.
     on_record : callable, optional
         Called with each line after it is on disk.
+    size_of : callable, optional
+        An estimate of a job's cost (e.g. its number of basis functions);
+        the largest jobs start first. Called only for the jobs to run.
 
     Returns
     -------
@@ -396,31 +419,45 @@ def run_batch(
             else:
                 outcome.skipped_failed += 1
         client = connect_dask(scheduler, scheduler_timeout) if scheduler and todo else None
-        if on_start is not None:
-            on_start(outcome, len(todo))
-        payloads = [{"job": j.record(), "extra": dict(extra or {}), "blas_threads": threads if scheduler else None}
-                    for j in largest_first(todo)]
-        if not payloads:
-            stream: Iterator[dict[str, Any]] = iter(())
-        elif scheduler:
-            stream = dask_results(payloads, client, should_stop)
-        else:
-            stream = local_results(payloads, min(workers or usable_cores(), len(payloads)), threads, should_stop)
+        pool = LocalPool(min(workers or usable_cores(), len(todo)), threads) if todo and not scheduler else None
+        completed = False
         try:
-            for record in stream:
-                if not writer.append(record):
-                    outcome.duplicates_written += 1
-                    continue
-                outcome.records[record["job"]["key"]] = record
-                outcome.ran.append(record)
-                if on_record is not None:
-                    on_record(record)
-                if should_stop():
-                    break
+            # The pool warms up while the sizes are estimated (only for the jobs to run).
+            if size_of is not None:
+                todo = [dataclasses.replace(j, size=size_of(j)) for j in todo]
+            if on_start is not None:
+                on_start(outcome, len(todo))
+            payloads = [{"job": j.record(), "extra": dict(extra or {}), "blas_threads": threads if scheduler else None}
+                        for j in largest_first(todo)]
+            if client is not None:
+                stream: Iterator[dict[str, Any]] = dask_results(payloads, client, should_stop)
+            elif pool is not None:
+                stream = pool.results(payloads, should_stop)
+            else:
+                stream = iter(())
+            try:
+                for record in stream:
+                    if not writer.append(record):
+                        outcome.duplicates_written += 1
+                        continue
+                    outcome.records[record["job"]["key"]] = record
+                    outcome.ran.append(record)
+                    if on_record is not None:
+                        on_record(record)
+                    if should_stop():
+                        break
+                else:
+                    completed = not should_stop()
+            finally:
+                close = getattr(stream, "close", None)
+                if close is not None:
+                    close()
         finally:
-            close = getattr(stream, "close", None)
-            if close is not None:
-                close()
+            if pool is not None:
+                pool.close(abandon=not completed)
+            elif client is not None and not completed:
+                with contextlib.suppress(Exception):
+                    client.close()
     outcome.stopped = bool(should_stop())
     outcome.wall_seconds = time.perf_counter() - started
     return outcome
@@ -431,7 +468,7 @@ __all__ = [
     "DASK_RETRIES",
     "usable_cores",
     "run_job",
-    "local_results",
+    "LocalPool",
     "connect_dask",
     "dask_results",
     "BatchOutcome",
