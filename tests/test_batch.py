@@ -375,3 +375,23 @@ def test_bad_list_file_line(tmp_path):
     code, out, err = run_main("batch", f"@{tmp_path / 'm.list'}", "--results", tmp_path / "r.jsonl")
     assert_one_line_error(code, out, err, 2, "m.list:1: expected 'PATH [charge=N]'")
     assert not (tmp_path / "r.jsonl").exists()
+
+
+def test_new_energy_options_flow_into_batch_even_when_a_batch_option_shadows_them():
+    import argparse
+
+    from hfcore.batch.command import add_batch_parser
+
+    root = argparse.ArgumentParser()
+    sub = root.add_subparsers(dest="command")
+    energy = sub.add_parser("energy")
+    energy.add_argument("geometry")
+    energy.add_argument("--charge", type=int, default=0)
+    energy.add_argument("--new-flag", type=float, default=0.5)
+    energy.add_argument("--threads", type=int, default=None)
+    energy.add_argument("--plot", default=None)
+    add_batch_parser(sub, energy)
+    args = root.parse_args(["batch", "a.xyz", "--results", "r.jsonl", "--new-flag", "2", "--threads", "3"])
+    assert args.new_flag == 2.0 and "new_flag" in args.batch_job_dests
+    assert args.batch_extra_dests == ["threads"] and args.threads == 3
+    assert args.batch_shadowed_defaults == {"plot": None}

@@ -103,9 +103,14 @@ def add_batch_parser(sub: Any, energy: argparse.ArgumentParser) -> argparse.Argu
     look.add_argument("--plot", metavar="PNG", help="with --summary: draw energy against geometry for each basis")
     copied = _copy_options(energy, batch, "options of every job (those of 'hfcore energy')")
     job_dests = [d for d in copied if d != "charge"]
-    energy_dests = {a.dest for a in energy._actions}
+    # An 'energy' option that a batch option of the same name shadows (e.g.
+    # --threads) still reaches the job: with the batch value where the
+    # meaning is shared, else with its 'energy' default.
+    shadowed = {a.dest: a.default for a in energy._actions
+                if a.option_strings and a.dest not in copied and a.dest not in _NOT_COPIED}
     batch.set_defaults(handler=run_batch_command, batch_job_dests=job_dests,
-                       batch_extra_dests=sorted(_NOT_IN_KEY & energy_dests))
+                       batch_shadowed_defaults={d: v for d, v in shadowed.items() if d not in _NOT_IN_KEY},
+                       batch_extra_dests=sorted(_NOT_IN_KEY & set(shadowed)))
     return batch
 
 
@@ -247,7 +252,7 @@ def run_batch_command(args: argparse.Namespace, console: Any) -> int:
     progress = Progress(console.stderr, args.quiet)
     if duplicates:
         progress.say(f"batch: {duplicates} job(s) named twice, run once")
-    extra = {d: getattr(args, d) for d in args.batch_extra_dests}
+    extra = {**args.batch_shadowed_defaults, **{d: getattr(args, d) for d in args.batch_extra_dests}}
     workers = 0 if args.scheduler else min(args.workers or usable_cores(), len(jobs))
 
     def on_start(outcome: Any, n_todo: int) -> None:
