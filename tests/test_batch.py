@@ -22,6 +22,7 @@ from conftest import assert_valid_png
 from hfcore.batch import energy_table, expand_geometries
 from hfcore.batch.results import RESULTS_FORMAT
 from hfcore.cli import main
+from hfcore.errors import InputError
 
 BASES = "sto-3g,6-31g"
 
@@ -220,6 +221,19 @@ def test_summary_table_and_scan_plot(tmp_path, local_run):
                                                              "h2_0.80.xyz"]
 
 
+def test_python_api_in_three_lines_matches_the_command_line_jobs(tmp_path, local_run):
+    from hfcore.batch import make_jobs, run_batch
+
+    results, _, _, _ = local_run
+    jobs, _ = make_jobs(expand_geometries([str(Path(results).parent / "scan")]), ["sto-3g", "6-31g"], 0, {})
+    before = results.read_bytes()
+    outcome = run_batch(jobs, str(results), workers=1)
+    assert outcome.skipped_ok == 8 and not outcome.ran  # the same keys as the command-line jobs
+    assert results.read_bytes() == before
+    with pytest.raises(InputError, match="unknown job option"):
+        make_jobs(expand_geometries([str(Path(results).parent / "scan")]), ["sto-3g"], 0, {"energy_tolerance": 1})
+
+
 def test_scan_coordinate_comes_from_the_comment_lines(tmp_path):
     for r in (0.80, 0.70):
         (tmp_path / f"h2_{r}.xyz").write_text(h2(r))
@@ -394,4 +408,4 @@ def test_new_energy_options_flow_into_batch_even_when_a_batch_option_shadows_the
     args = root.parse_args(["batch", "a.xyz", "--results", "r.jsonl", "--new-flag", "2", "--threads", "3"])
     assert args.new_flag == 2.0 and "new_flag" in args.batch_job_dests
     assert args.batch_extra_dests == ["threads"] and args.threads == 3
-    assert args.batch_shadowed_defaults == {"plot": None}
+    assert "plot" not in args.batch_job_dests  # shadowed by batch's own --plot; the job keeps energy's default

@@ -8,6 +8,7 @@ to batch jobs without any change in this module.
 from __future__ import annotations
 
 import argparse
+import functools
 import signal
 import time
 from collections.abc import Callable, Iterator
@@ -104,14 +105,31 @@ def add_batch_parser(sub: Any, energy: argparse.ArgumentParser) -> argparse.Argu
     copied = _copy_options(energy, batch, "options of every job (those of 'hfcore energy')")
     job_dests = [d for d in copied if d != "charge"]
     # An 'energy' option that a batch option of the same name shadows (e.g.
-    # --threads) still reaches the job: with the batch value where the
-    # meaning is shared, else with its 'energy' default.
-    shadowed = {a.dest: a.default for a in energy._actions
-                if a.option_strings and a.dest not in copied and a.dest not in _NOT_COPIED}
+    # --threads) gets the batch value where the meaning is shared; any other
+    # shadowed one keeps its 'energy' default (see energy_defaults).
+    shadowed = {a.dest for a in energy._actions if a.option_strings and a.dest not in copied}
     batch.set_defaults(handler=run_batch_command, batch_job_dests=job_dests,
-                       batch_shadowed_defaults={d: v for d, v in shadowed.items() if d not in _NOT_IN_KEY},
-                       batch_extra_dests=sorted(_NOT_IN_KEY & set(shadowed)))
+                       batch_extra_dests=sorted(_NOT_IN_KEY & shadowed))
     return batch
+
+
+@functools.lru_cache(maxsize=1)
+def energy_defaults() -> dict[str, Any]:
+    """Every ``hfcore energy`` option at its default, by option name (dest)."""
+    from ..cli import build_parser
+
+    parsed = vars(build_parser().parse_args(["energy", "GEOMETRY"]))
+    return {k: v for k, v in parsed.items() if k not in {"handler", "command", "geometry"}}
+
+
+@functools.lru_cache(maxsize=1)
+def job_option_defaults() -> dict[str, Any]:
+    """The per-job options of a batch (the copied ``energy`` options except the charge) at their defaults."""
+    from ..cli import build_parser
+    from ..export import plain_values
+
+    parsed = build_parser().parse_args(["batch", "--results", "FILE.jsonl"])
+    return {d: plain_values(getattr(parsed, d)) for d in parsed.batch_job_dests}
 
 
 # ----------------------------------------------------------------------------
@@ -252,7 +270,7 @@ def run_batch_command(args: argparse.Namespace, console: Any) -> int:
     progress = Progress(console.stderr, args.quiet)
     if duplicates:
         progress.say(f"batch: {duplicates} job(s) named twice, run once")
-    extra = {**args.batch_shadowed_defaults, **{d: getattr(args, d) for d in args.batch_extra_dests}}
+    extra = {d: getattr(args, d) for d in args.batch_extra_dests}
     workers = 0 if args.scheduler else min(args.workers or usable_cores(), len(jobs))
 
     def on_start(outcome: Any, n_todo: int) -> None:

@@ -81,13 +81,14 @@ def run_job(payload: Mapping[str, Any]) -> dict[str, Any]:
         that fails: the failure is the record.
     """
     from .. import cli
+    from .command import energy_defaults
 
     job = dict(payload["job"])
     started = time.perf_counter()
-    args = argparse.Namespace(
-        **job["options"], **payload.get("extra", {}),
-        geometry=job["geometry"], basis=job["basis"], charge=job["charge"], json="-", npz=None, quiet=True,
-    )
+    args = argparse.Namespace(**{
+        **energy_defaults(), **job["options"], **payload.get("extra", {}),
+        "geometry": job["geometry"], "basis": job["basis"], "charge": job["charge"],
+    })
     outcome: dict[str, Any]
     try:
         with _blas_limit(payload.get("blas_threads")):

@@ -244,7 +244,9 @@ def make_jobs(
     default_charge : int
         The charge of entries that give none.
     options : mapping
-        The per-job ``energy`` options.
+        The per-job ``energy`` options by option name (the argparse dest,
+        e.g. ``{"energy_tol": 1e-9, "spherical": True}``); the others keep
+        their defaults.
 
     Returns
     -------
@@ -252,7 +254,21 @@ def make_jobs(
         Geometry-major order (all bases of the first geometry, then the next).
     duplicates : int
         How many pairs were dropped because an identical job came earlier.
+
+    Raises
+    ------
+    InputError
+        For an option name that ``hfcore energy`` does not have.
     """
+    from .command import job_option_defaults
+
+    defaults = job_option_defaults()
+    unknown = sorted(set(options) - set(defaults))
+    if unknown:
+        raise InputError(f"batch: unknown job option(s) {', '.join(unknown)}; known: {', '.join(defaults)}")
+    # Options left out take their defaults, so a job is the same job whether
+    # it was made from the command line or in Python.
+    options = {**defaults, **options}
     digests: dict[str, str | None] = {}
     jobs: list[Job] = []
     seen: set[str] = set()
