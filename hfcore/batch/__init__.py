@@ -13,7 +13,9 @@ file format is described in :mod:`hfcore.batch.results`.
 
 from __future__ import annotations
 
-from .execute import BatchOutcome, run_batch, run_job, usable_cores
+from .execute import BatchOutcome, run_batch
+from .pool import usable_cores
+from .worker import run_job
 from .jobs import GeometryEntry, Job, expand_geometries, job_key, make_jobs, parse_basis_list, read_list_file
 from .results import RESULTS_FORMAT, ResultsWriter, iter_job_records, read_results
 from .summary import EnergyTable, energy_table

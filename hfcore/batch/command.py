@@ -69,7 +69,7 @@ def add_batch_parser(sub: Any, energy: argparse.ArgumentParser) -> argparse.Argu
         The ``energy`` parser whose options every job takes.
     """
     from ..cli import _positive_float, _positive_int
-    from .execute import DASK_RETRIES
+    from .cluster import DASK_RETRIES
 
     batch = sub.add_parser(
         "batch",
@@ -262,7 +262,7 @@ def run_batch_command(args: argparse.Namespace, console: Any) -> int:
     if args.plot:
         raise InputError("batch: --plot goes with --summary")
     from . import expand_geometries, make_jobs, parse_basis_list, run_batch
-    from .execute import usable_cores
+    from .pool import usable_cores
 
     bases = parse_basis_list(args.basis)
     entries = expand_geometries(args.geometry)
