@@ -305,20 +305,35 @@ def test_sigterm_then_sigkill_then_rerun_runs_every_job_exactly_once(tmp_path):
 # --- Dask -------------------------------------------------------------------------
 
 
-def test_dask_cluster_gives_the_energies_of_the_local_run(tmp_path, geometries, local_run):
+def test_dask_cluster_gives_the_energies_of_the_local_run_even_when_a_worker_dies(tmp_path, geometries, local_run):
     pytest.importorskip("distributed", reason="the Dask extra is not installed: pip install 'hfcore[dask]'")
-    from distributed import LocalCluster
+    import threading
+
+    from distributed import Client, LocalCluster
 
     results, _, _, _ = local_run
     local = {r["job"]["key"]: r for r in job_lines(results)}
     remote_results = tmp_path / "dask.jsonl"
-    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cluster:
-        code, _, err = run_main("batch", geometries / "scan", f"@{geometries / 'others' / 'molecules.list'}",
-                                "--basis", BASES, "--results", remote_results, "--scheduler",
-                                cluster.scheduler_address, "--quiet")
+    outcome = {}
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cluster, \
+            Client(cluster) as client:
+        victim = next(iter(client.run(os.getpid).values()))
+
+        def batch() -> None:
+            outcome["result"] = run_main("batch", geometries / "scan", f"@{geometries / 'others' / 'molecules.list'}",
+                                         "--basis", BASES, "--results", remote_results, "--scheduler",
+                                         cluster.scheduler_address, "--quiet")
+
+        runner = threading.Thread(target=batch)
+        runner.start()
+        while runner.is_alive() and not (remote_results.exists() and remote_results.read_bytes().count(b"\n") >= 3):
+            time.sleep(0.01)
+        os.kill(victim, signal.SIGKILL)  # its running job goes back to the scheduler
+        runner.join(timeout=300)
+    code, _, err = outcome["result"]
     assert code == 10, err
     remote = job_lines(remote_results)
-    assert sorted(r["job"]["key"] for r in remote) == sorted(local)
+    assert sorted(r["job"]["key"] for r in remote) == sorted(local)  # every job once, none lost, none twice
     for record in remote:
         twin = local[record["job"]["key"]]
         assert record["status"] == twin["status"]

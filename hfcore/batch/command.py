@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import functools
 import signal
+import threading
 import time
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
@@ -214,6 +215,11 @@ def _stop_on_signals() -> Iterator[Callable[[], int | None]]:
     disk are whole because the writer is never interrupted mid-line.
     """
     received: list[int] = []
+    if threading.current_thread() is not threading.main_thread():
+        # Only the main thread may handle signals; a caller running a batch
+        # in another thread keeps its own handling.
+        yield lambda: None
+        return
 
     def handler(signum: int, frame: Any) -> None:
         received.append(signum)
