@@ -41,6 +41,7 @@ def connect_dask(address: str, timeout: float) -> Any:
             f"{address}: no Dask scheduler answered within {timeout:g} s ({_one_line(str(exc)) or type(exc).__name__})"
         ) from None
 
+
 def dask_results(
     payloads: Sequence[Mapping[str, Any]], client: Any, should_stop: Callable[[], bool]
 ) -> Iterator[dict[str, Any]]:

@@ -28,12 +28,14 @@ def usable_cores() -> int:
     except (AttributeError, OSError):
         return max(1, os.cpu_count() or 1)
 
+
 def _init_local_worker() -> None:
     # Ctrl-C reaches the whole process group; only the parent decides what
     # to do about it (it ends the workers itself).
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     signal.signal(signal.SIGTERM, signal.SIG_DFL)
     _die_with_parent()
+
 
 def _die_with_parent() -> None:
     """Ask Linux to kill this worker when its parent dies (e.g. by SIGKILL)."""
@@ -45,6 +47,7 @@ def _die_with_parent() -> None:
         libc.prctl(pr_set_pdeathsig, signal.SIGKILL)
         if os.getppid() == 1:  # the parent is already gone
             os._exit(1)
+
 
 @contextlib.contextmanager
 def _thread_environment(threads: int) -> Iterator[None]:
@@ -64,10 +67,12 @@ def _thread_environment(threads: int) -> Iterator[None]:
             else:
                 os.environ[name] = value
 
+
 def _warm_up() -> None:
     """Import what every job needs, while the parent still prepares the job list."""
     from .. import cli, scf  # noqa: F401
     from ..basis import sto  # noqa: F401
+
 
 class LocalPool:
     """A pool of local worker processes, started (and warming up) at once.

@@ -22,6 +22,7 @@ from ..errors import HfcoreError, ResourceError
 def _one_line(text: str) -> str:
     return " ".join(text.split())
 
+
 def _blas_limit(threads: int | None) -> contextlib.AbstractContextManager:
     """Limit BLAS threads in an already running process (a Dask worker), if threadpoolctl is there."""
     if threads is None:
@@ -31,6 +32,7 @@ def _blas_limit(threads: int | None) -> contextlib.AbstractContextManager:
     except ImportError:
         return contextlib.nullcontext()
     return threadpool_limits(limits=threads)
+
 
 def run_job(payload: Mapping[str, Any]) -> dict[str, Any]:
     """Run one job as ``hfcore energy --json -`` would and return its results line.
@@ -78,6 +80,7 @@ def run_job(payload: Mapping[str, Any]) -> dict[str, Any]:
     wall, cpu = time.perf_counter() - started, time.process_time() - cpu_started
     return {"job": job, **outcome,
             "batch": {"wall_seconds": wall, "cpu_seconds": cpu, "host": socket.gethostname(), "pid": os.getpid()}}
+
 
 def lost_record(payload: Mapping[str, Any], message: str) -> dict[str, Any]:
     """A failed line for a job whose worker never answered."""
