@@ -2,8 +2,9 @@
 
 Subcommands: ``energy`` (one RHF run with a human report, JSON and .npz
 exports), ``fit-sto`` (a least-squares Gaussian fit to a Slater function),
-``compare`` (one molecule in several basis sets) and ``bases`` (the sets on
-offer). Errors hfcore raises on purpose become one line on stderr and the
+``compare`` (one molecule in several basis sets), ``bases`` (the sets on
+offer) and ``batch`` (many geometries and bases, resumable; registered
+from :mod:`hfcore.batch.command`). Errors hfcore raises on purpose become one line on stderr and the
 exit code of their class; see the README for the table.
 """
 
