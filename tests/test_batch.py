@@ -265,7 +265,7 @@ def _wait_for_lines(results: Path, count: int, proc: subprocess.Popen) -> None:
     pytest.fail("the batch finished or stalled before the expected number of lines")
 
 
-def test_sigterm_then_sigkill_then_rerun_runs_every_job_exactly_once(tmp_path):
+def test_sigterm_sigint_sigkill_then_rerun_runs_every_job_exactly_once(tmp_path):
     scan = tmp_path / "scan"
     scan.mkdir()
     for k in range(8):
@@ -283,10 +283,18 @@ def test_sigterm_then_sigkill_then_rerun_runs_every_job_exactly_once(tmp_path):
 
     proc = _start_batch(scan, results)
     _wait_for_lines(results, after_term + 1, proc)
+    proc.send_signal(signal.SIGINT)  # what Ctrl-C sends
+    _, err = proc.communicate(timeout=60)
+    assert proc.returncode == 130, err
+    assert "Traceback" not in err and "stopped by SIGINT" in err
+    after_int = len(job_lines(results))
+
+    proc = _start_batch(scan, results)
+    _wait_for_lines(results, after_int + 1, proc)
     proc.kill()
     proc.communicate(timeout=60)
     after_kill = len(job_lines(results))
-    assert after_term < after_kill < 16
+    assert after_term < after_int < after_kill < 16
     # A crash of the machine mid-write is the one way to get a partial line;
     # imitate it, so the re-run must deal with one.
     with open(results, "ab") as handle:
