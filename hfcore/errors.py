@@ -59,6 +59,17 @@ class ResourceError(HfcoreError):
     exit_code = 5
 
 
+class NumericalError(HfcoreError):
+    """A floating-point failure that input validation did not prevent.
+
+    Overflow, an invalid value (NaN) or a linear-algebra routine that did not
+    converge. Validated input should never lead here; the command line turns
+    such a failure into this error instead of a numpy warning or traceback.
+    """
+
+    exit_code = 6
+
+
 class ResultsFileError(InputError):
     """A batch results file that cannot be used: unreadable, not a results
     file, written by another version of hfcore, or held by another batch."""
@@ -78,6 +89,7 @@ __all__ = [
     "BasisError",
     "ConvergenceError",
     "ResourceError",
+    "NumericalError",
     "ResultsFileError",
     "SchedulerError",
 ]

@@ -91,7 +91,7 @@ def add_batch_parser(sub: Any, energy: argparse.ArgumentParser) -> argparse.Argu
     run.add_argument("--workers", type=_positive_int, metavar="N",
                      help="local worker processes (default: the usable cores)")
     run.add_argument("--threads", type=_positive_int, default=1, metavar="N",
-                     help="BLAS threads per job (default 1)")
+                     help="threads per job: BLAS, and the integral passes of 'energy --threads' (default 1)")
     run.add_argument("--scheduler", metavar="ADDRESS",
                      help=f"send the jobs to this Dask scheduler instead (e.g. tcp://host:8786); "
                      f"tasks that fail are retried {DASK_RETRIES} times")
