@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from .cluster import connect_dask, dask_results
+from .command import energy_defaults
 from .jobs import Job, largest_first
 from .pool import LocalPool, usable_cores
 from .results import ResultsWriter
@@ -96,7 +97,7 @@ def run_batch(
         Local worker processes (default: the usable cores). Ignored with
         ``scheduler``.
     threads : int
-        BLAS threads per job.
+        Threads per job: BLAS, and the ``threads`` option of ``energy``.
     scheduler : str, optional
         Address of a Dask scheduler to send the jobs to instead.
     scheduler_timeout : float
@@ -152,7 +153,11 @@ def run_batch(
                 todo = [dataclasses.replace(j, size=size_of(j)) for j in todo]
             if on_start is not None:
                 on_start(outcome, len(todo))
-            payloads = [{"job": j.record(), "extra": dict(extra or {}), "blas_threads": threads if scheduler else None}
+            # Each job gets the batch's thread count for everything that takes
+            # one (BLAS and, where 'energy' has --threads, the integral passes),
+            # so N workers never oversubscribe the cores.
+            job_extra = {**({"threads": threads} if "threads" in energy_defaults() else {}), **(extra or {})}
+            payloads = [{"job": j.record(), "extra": job_extra, "blas_threads": threads if scheduler else None}
                         for j in largest_first(todo)]
             if client is not None:
                 stream: Iterator[dict[str, Any]] = dask_results(payloads, client, should_stop)
