@@ -127,10 +127,8 @@ def energy_defaults() -> dict[str, Any]:
 def job_option_defaults() -> dict[str, Any]:
     """The per-job options of a batch (the copied ``energy`` options except the charge) at their defaults."""
     from ..cli import build_parser
-    from ..export import plain_values
 
-    parsed = build_parser().parse_args(["batch", "--results", "FILE.jsonl"])
-    return {d: plain_values(getattr(parsed, d)) for d in parsed.batch_job_dests}
+    return _job_options(build_parser().parse_args(["batch", "--results", "FILE.jsonl"]))
 
 
 # ----------------------------------------------------------------------------
@@ -238,9 +236,12 @@ def _stop_on_signals() -> Iterator[Callable[[], int | None]]:
 
 
 def _job_options(args: argparse.Namespace) -> dict[str, Any]:
+    """The per-job options as plain JSON values (any other type, e.g. a path object, as its text)."""
+    import json
+
     from ..export import plain_values
 
-    return {d: plain_values(getattr(args, d)) for d in args.batch_job_dests}
+    return {d: json.loads(json.dumps(plain_values(getattr(args, d)), default=str)) for d in args.batch_job_dests}
 
 
 def _size_estimator(args: argparse.Namespace) -> Callable[[Any], int]:
