@@ -2,8 +2,9 @@
 
 Subcommands: ``energy`` (one RHF run with a human report, JSON and .npz
 exports), ``fit-sto`` (a least-squares Gaussian fit to a Slater function),
-``compare`` (one molecule in several basis sets) and ``bases`` (the sets on
-offer). Errors hfcore raises on purpose become one line on stderr and the
+``compare`` (one molecule in several basis sets), ``bases`` (the sets on
+offer) and ``batch`` (many geometries and bases, resumable; registered
+from :mod:`hfcore.batch.command`). Errors hfcore raises on purpose become one line on stderr and the
 exit code of their class; see the README for the table.
 """
 
@@ -140,7 +141,8 @@ def build_parser() -> argparse.ArgumentParser:
         prog="hfcore",
         description="Restricted Hartree-Fock energies of small closed-shell molecules.",
         epilog="Exit codes: 0 success, 2 bad input, 3 basis problem, 4 SCF not converged, "
-        "5 not enough memory, 6 numerical failure, 130 interrupted, 141 output pipe closed.",
+        "5 not enough memory, 6 numerical failure, 10 some batch jobs failed, 11 batch results file unusable, "
+        "12 no Dask scheduler answered, 130 interrupted, 141 output pipe closed, 143 terminated.",
     )
     parser.add_argument("--version", action="version", version=f"hfcore {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
@@ -201,6 +203,12 @@ def build_parser() -> argparse.ArgumentParser:
 
     bases = sub.add_parser("bases", help="list the basis sets on offer")
     bases.set_defaults(handler=_run_bases)
+
+    # Last, so that every option any part of build_parser gives 'energy'
+    # reaches the batch jobs too.
+    from .batch.command import add_batch_parser
+
+    add_batch_parser(sub, energy)
     return parser
 
 
@@ -448,6 +456,46 @@ def _report_energy(console: _Console, result: Any, analysis: dict[str, Any], wal
     console.report(report.format_timings(result.timings, wall))
 
 
+def energy_record(args: argparse.Namespace) -> dict[str, Any]:
+    """The record ``hfcore energy --json -`` prints, for parsed ``energy`` arguments.
+
+    Used by the batch workers, so a job is exactly the single run.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        Every ``energy`` option (``json`` and ``npz`` are ignored).
+
+    Returns
+    -------
+    dict
+        The JSON record, as plain values.
+
+    Raises
+    ------
+    HfcoreError
+        As the single run would.
+    """
+    import io
+    import json
+
+    out = io.StringIO()
+    job_args = argparse.Namespace(**{**vars(args), "json": "-", "npz": None, "quiet": True})
+    _run_energy(job_args, _Console(out, io.StringIO(), json_to_stdout=True, quiet=True))
+    return json.loads(out.getvalue())
+
+
+def basis_function_count(args: argparse.Namespace) -> int:
+    """Number of basis functions an ``energy`` run with these arguments would use.
+
+    Raises
+    ------
+    HfcoreError
+        If the geometry or basis cannot be used.
+    """
+    return int(_build_basis(args, _read_molecule(args)).n_functions)
+
+
 def _run_fit_sto(args: argparse.Namespace, console: _Console) -> int:
     from .basis.sto import fit_sto
 
@@ -626,4 +674,12 @@ def main(argv: Sequence[str] | None = None, *, stdout: TextIO | None = None, std
         return EXIT_BROKEN_PIPE
 
 
-__all__ = ["build_parser", "main", "parse_basis_for", "EXIT_INTERRUPTED", "EXIT_BROKEN_PIPE"]
+__all__ = [
+    "build_parser",
+    "main",
+    "parse_basis_for",
+    "energy_record",
+    "basis_function_count",
+    "EXIT_INTERRUPTED",
+    "EXIT_BROKEN_PIPE",
+]

@@ -144,6 +144,14 @@ def _plain(value: Any) -> Any:
     return value
 
 
+def plain_values(value: Any) -> Any:
+    """``value`` with arrays and numpy scalars as plain Python values, ready for :mod:`json`.
+
+    NaN and infinity become ``None`` (JSON ``null``).
+    """
+    return _plain(value)
+
+
 def to_json(record: Mapping[str, Any]) -> str:
     """Serialise a record of plain values and arrays as indented JSON text.
 
@@ -369,6 +377,7 @@ __all__ = [
     "check_output_path",
     "write_files_atomically",
     "write_file_atomically",
+    "plain_values",
     "to_json",
     "result_record",
     "sto_fit_record",

@@ -161,4 +161,48 @@ def plot_sto_fit(fits: Sequence[STOFit], path: str | os.PathLike) -> None:
         plt.close(figure)
 
 
-__all__ = ["plot_comparison", "plot_sto_fit"]
+
+def plot_batch_energies(table, path: str | os.PathLike) -> None:
+    """Draw the energies of a batch against geometry, one line per basis set.
+
+    For a scan, the horizontal axis is the coordinate taken from the XYZ
+    comment lines; otherwise the geometries in results-file order.
+
+    Parameters
+    ----------
+    table : EnergyTable
+        From :func:`hfcore.batch.energy_table`.
+    path : str or path-like
+        The PNG file to write (replaced atomically).
+
+    Raises
+    ------
+    InputError
+        If there is no energy to draw, matplotlib is missing or the
+        directory of ``path`` does not exist.
+    """
+    if not table.energies:
+        raise InputError(f"{table.path}: no successful job to plot")
+    if not os.path.isdir(os.path.dirname(os.path.abspath(os.fspath(path)))):
+        raise InputError(f"{os.fspath(path)}: the directory does not exist")
+    plt = _pyplot()
+    figure, axes = plt.subplots(figsize=(7.0, 4.8))
+    try:
+        for basis in table.bases:
+            points = [(x, table.energies[(g, basis)]) for x, g in zip(table.coordinate, table.geometries)
+                      if (g, basis) in table.energies]
+            points.sort()
+            axes.plot([p[0] for p in points], [p[1] for p in points], "o-", label=basis)
+        if table.coordinate_label.startswith("geometry") and len(table.geometries) <= 12:
+            axes.set_xticks(table.coordinate, [os.path.basename(g) for g in table.geometries], rotation=30,
+                            ha="right", fontsize=7)
+        axes.set_xlabel(table.coordinate_label)
+        axes.set_ylabel("RHF total energy / hartree")
+        axes.ticklabel_format(axis="y", useOffset=False)
+        axes.legend(fontsize=8)
+        figure.tight_layout()
+        _save_atomically(figure, path)
+    finally:
+        plt.close(figure)
+
+__all__ = ["plot_comparison", "plot_sto_fit", "plot_batch_energies"]
