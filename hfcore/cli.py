@@ -149,6 +149,12 @@ def build_parser() -> argparse.ArgumentParser:
     )
     _add_scf_arguments(energy)
     energy.add_argument("--guess", choices=("sad", "core"), default="sad", help="starting density (default sad)")
+    energy.add_argument(
+        "--ghost",
+        metavar="ATOMS",
+        help="atoms (1-based ranges in file order, e.g. 4-6 or 1,3) that keep their basis functions "
+        "but have no nucleus and no electrons",
+    )
     _add_json_argument(energy)
     energy.add_argument(
         "--npz",
@@ -228,9 +234,14 @@ def _output_paths(args: argparse.Namespace, *names: str) -> dict[str, str]:
 
 
 def _read_molecule(args: argparse.Namespace) -> Any:
-    from .geometry import read_xyz
+    from .geometry import parse_atom_ranges, read_xyz
 
     molecule = read_xyz(args.geometry, units=args.units, charge=args.charge)
+    if getattr(args, "ghost", None):
+        ghosts = parse_atom_ranges(args.ghost, molecule.natom, "--ghost")
+        if len(ghosts) == molecule.natom:
+            raise InputError(f"--ghost {args.ghost}: every atom would be a ghost; keep at least one real atom")
+        molecule = molecule.with_ghosts(ghosts)
     molecule.require_closed_shell()
     return molecule
 
@@ -385,7 +396,7 @@ def _report_energy(console: _Console, result: Any, analysis: dict[str, Any], wal
     console.report(report.format_linear_dependence(result.n_dropped, result.options.lindep_threshold))
     console.report(report.format_energies(result))
     console.report(report.format_orbitals(result))
-    console.report(report.format_charges(molecule.symbols, analysis["mulliken_charges"]))
+    console.report(report.format_charges(molecule.symbols, analysis["mulliken_charges"], molecule.ghosts))
     console.report(report.format_dipole(analysis["dipole_au"], DEBYE_PER_AU, molecule.charge != 0))
     console.report(report.format_timings(result.timings, wall))
 

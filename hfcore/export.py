@@ -186,6 +186,7 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
             "n_electrons": mol.n_electrons,
             "symbols": mol.symbols,
             "atomic_numbers": mol.atomic_numbers,
+            "ghost_atoms": [int(k) for k in np.flatnonzero(mol.ghosts)],
             "coordinates_bohr": mol.coordinates,
         },
         "basis": {
@@ -293,7 +294,7 @@ def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS
         ``overlap``, ``kinetic``, ``nuclear_attraction``, ``core_hamiltonian``
         (nbf, nbf); ``coefficients`` (nbf, nmo); ``orbital_energies``,
         ``occupations`` (nmo,); ``density`` (total), ``fock`` (nbf, nbf);
-        ``atomic_numbers`` (natom,); ``coordinates`` (natom, 3) in bohr;
+        ``atomic_numbers`` (natom,), ``ghosts`` (natom,) bool; ``coordinates`` (natom, 3) in bohr;
         ``function_atoms``, ``function_l`` (nbf,); ``energy_total`` ();
         ``spherical`` (); and ``eri`` (nbf, nbf, nbf, nbf) in chemists'
         notation (mu nu|lambda sigma) when nbf <= ``eri_max_functions``.
@@ -306,7 +307,7 @@ def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS
     arrays = {
         "overlap": result.overlap,
         "kinetic": integrals.kinetic(basis),
-        "nuclear_attraction": integrals.nuclear_attraction(basis, mol.atomic_numbers, mol.coordinates),
+        "nuclear_attraction": integrals.nuclear_attraction(basis, mol.nuclear_charges, mol.coordinates),
         "core_hamiltonian": result.core_hamiltonian,
         "coefficients": result.coefficients,
         "orbital_energies": result.orbital_energies,
@@ -314,6 +315,7 @@ def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS
         "density": result.density,
         "fock": result.fock,
         "atomic_numbers": mol.atomic_numbers,
+        "ghosts": mol.ghosts,
         "coordinates": mol.coordinates,
         "function_atoms": basis.function_atoms(),
         "function_l": basis.function_l(),
