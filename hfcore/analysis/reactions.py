@@ -1,0 +1,526 @@
+"""Reaction energies from RHF totals, across basis sets.
+
+A reaction is written as an equation over geometry files::
+
+    formaldehyde.xyz + hydrogen.xyz -> methanol.xyz
+    2 water.xyz -> water_dimer.xyz
+    ammonia.xyz + water.xyz -> ammonium.xyz[+1] + hydroxide.xyz[-1]
+
+Each side is a list of species joined by ``+``; a species is a geometry
+file, optionally preceded by a stoichiometric factor (a positive whole
+number, decimal or fraction such as ``1/2``, separated by a space) and
+optionally followed by its charge in square brackets (``[+1]``, ``[-2]``;
+0 without brackets). Elements and charge must balance; both are checked
+when the reaction is read, before anything runs.
+
+The reaction energy is ΔE = Σ ν E(products) − Σ ν E(reactants) with the
+RHF total energies at the given geometries (no zero-point or thermal
+terms). Identical species (same atoms, positions and charge), in one
+reaction or in several, are computed once per basis. Basis-limit estimates
+of ΔE come from the species' extrapolated totals, with the two formulas
+of :func:`hfcore.analysis.compare.basis_limit_estimates`; the spread
+between the two estimates serves as their uncertainty.
+
+The SCF runs are listed as plain data first (:func:`reaction_pieces`,
+species × basis), so that they could be handed to another runner;
+:func:`reaction_energies` runs them in this process.
+"""
+
+from __future__ import annotations
+
+import re
+import time
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+from fractions import Fraction
+from typing import TYPE_CHECKING
+
+from .. import elements
+from ..errors import InputError
+from .compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE, ComparisonRow, _check_names, basis_limit_estimates
+
+if TYPE_CHECKING:
+    from ..geometry import Molecule
+    from ..scf.options import SCFOptions
+
+ARROW = "->"
+_TERM = re.compile(r"^(?:(?P<coef>\d+(?:\.\d*)?(?:/\d+)?)\s+)?(?P<path>[^\[\]]+?)\s*(?:\[(?P<charge>[^\]]*)\])?$")
+# A plus sign between species, not the one inside a charge such as [+1].
+_PLUS = re.compile(r"\+(?![^\[]*\])")
+
+
+@dataclass(frozen=True)
+class Species:
+    """One distinct molecule of a set of reactions.
+
+    Attributes
+    ----------
+    path : str
+        The geometry file as written in the equation.
+    charge : int
+    molecule : Molecule
+        Read from ``path`` with ``charge``.
+    """
+
+    path: str
+    charge: int
+    molecule: "Molecule" = field(repr=False)
+
+    @property
+    def label(self) -> str:
+        """The file name, with the charge in brackets when it is not zero."""
+        return self.path + (f"[{self.charge:+d}]" if self.charge else "")
+
+    @property
+    def formula(self) -> str:
+        """Element counts in the order C, H, then alphabetical (e.g. ``CH4O``)."""
+        return _formula(_element_counts(self.molecule, Fraction(1)))
+
+
+@dataclass(frozen=True)
+class Reaction:
+    """A balanced equation over species.
+
+    Attributes
+    ----------
+    text : str
+        The equation as given.
+    terms : tuple of (int, Fraction)
+        Species index and signed stoichiometric factor: negative for a
+        reactant, positive for a product. A species on both sides appears
+        twice.
+    """
+
+    text: str
+    terms: tuple[tuple[int, Fraction], ...]
+
+    def energy(self, species_energies: Sequence[float]) -> float:
+        """Σ ν E over the terms (hartree), from the energies of all species."""
+        return float(sum(float(nu) * species_energies[k] for k, nu in self.terms))
+
+
+def _element_counts(molecule: Molecule, factor: Fraction) -> dict[str, Fraction]:
+    counts: dict[str, Fraction] = {}
+    for symbol in molecule.symbols:
+        counts[symbol] = counts.get(symbol, Fraction(0)) + factor
+    return counts
+
+
+def _formula(counts: dict[str, Fraction]) -> str:
+    order = sorted(counts, key=lambda s: (s != "C", s != "H", s))
+    return "".join(f"{s}{'' if counts[s] == 1 else counts[s]}" for s in order if counts[s])
+
+
+def _coefficient(text: str, spec: str) -> Fraction:
+    try:
+        value = Fraction(text)
+    except (ValueError, ZeroDivisionError):
+        raise InputError(f"reaction {spec!r}: {text!r} is not a stoichiometric factor") from None
+    if value <= 0:
+        raise InputError(f"reaction {spec!r}: the stoichiometric factor {text!r} must be positive")
+    return value
+
+
+def _charge(text: str, spec: str) -> int:
+    try:
+        return int(text.strip())
+    except ValueError:
+        raise InputError(f"reaction {spec!r}: the charge [{text}] must be a whole number such as [+1] or [-2]") from None
+
+
+def parse_reaction(spec: str) -> tuple[list[tuple[Fraction, str, int]], list[tuple[Fraction, str, int]]]:
+    """Split an equation into its terms, without reading any file.
+
+    Parameters
+    ----------
+    spec : str
+        ``"[factor] file[charge] + ... -> [factor] file[charge] + ..."``.
+
+    Returns
+    -------
+    (reactants, products)
+        Each a list of (factor, path, charge).
+
+    Raises
+    ------
+    InputError
+        If there is not exactly one ``->``, a side is empty, or a term is
+        malformed.
+    """
+    if spec.count(ARROW) != 1:
+        raise InputError(f"reaction {spec!r}: write one '->' between reactants and products, e.g. 'a.xyz + b.xyz -> c.xyz'")
+    sides = []
+    for side in spec.split(ARROW):
+        terms = []
+        for item in _PLUS.split(side):
+            item = item.strip()
+            if not item:
+                raise InputError(f"reaction {spec!r}: a species is missing (an empty side or a '+' with nothing beside it)")
+            match = _TERM.match(item)
+            if match is None:
+                raise InputError(f"reaction {spec!r}: cannot read {item!r}; write '[factor] file[charge]', e.g. '2 water.xyz' or 'ammonium.xyz[+1]'")
+            coef = _coefficient(match["coef"], spec) if match["coef"] else Fraction(1)
+            charge = _charge(match["charge"], spec) if match["charge"] is not None else 0
+            terms.append((coef, match["path"].strip(), charge))
+        sides.append(terms)
+    return sides[0], sides[1]
+
+
+def _check_balance(spec: str, sides: list[list[tuple[Fraction, Species]]]) -> None:
+    totals = []
+    for terms in sides:
+        counts: dict[str, Fraction] = {}
+        charge = Fraction(0)
+        for coef, species in terms:
+            for symbol, n in _element_counts(species.molecule, coef).items():
+                counts[symbol] = counts.get(symbol, Fraction(0)) + n
+            charge += coef * species.charge
+        totals.append((counts, charge))
+    (left, q_left), (right, q_right) = totals
+    for symbol in sorted(set(left) | set(right), key=elements.atomic_number):
+        a, b = left.get(symbol, Fraction(0)), right.get(symbol, Fraction(0))
+        if a != b:
+            raise InputError(f"reaction {spec!r} is not balanced: {symbol} {a} on the left, {b} on the right")
+    if q_left != q_right:
+        raise InputError(f"reaction {spec!r} is not balanced in charge: {q_left:+} on the left, {q_right:+} on the right")
+
+
+def load_reactions(specs: Sequence[str], *, units: str = "angstrom") -> tuple[tuple[Species, ...], tuple[Reaction, ...]]:
+    """Read the geometries of one or more equations and check their balance.
+
+    Parameters
+    ----------
+    specs : sequence of str
+        Equations (see the module notes for the syntax).
+    units : {"angstrom", "bohr"}
+        Units of every geometry file.
+
+    Returns
+    -------
+    (tuple of Species, tuple of Reaction)
+        Distinct species in order of first appearance (identical geometry
+        and charge count once), and the reactions over them.
+
+    Raises
+    ------
+    InputError
+        A malformed equation, a missing or bad file, an element or charge
+        imbalance, or a species with an odd electron count.
+    """
+    from ..geometry import read_xyz
+
+    if isinstance(specs, str):
+        specs = [specs]
+    if not specs:
+        raise InputError("give at least one reaction, e.g. 'formaldehyde.xyz + hydrogen.xyz -> methanol.xyz'")
+    species: list[Species] = []
+    keys: dict[tuple, int] = {}
+    reactions = []
+    for spec in specs:
+        reactants, products = parse_reaction(spec)
+        sides: list[list[tuple[Fraction, Species]]] = []
+        terms: list[tuple[int, Fraction]] = []
+        for sign, side in ((-1, reactants), (1, products)):
+            resolved = []
+            for coef, path, charge in side:
+                molecule = read_xyz(path, units=units, charge=charge)
+                molecule.require_closed_shell()
+                key = (molecule.atomic_numbers.tobytes(), molecule.coordinates.tobytes(), charge)
+                if key not in keys:
+                    keys[key] = len(species)
+                    species.append(Species(path, charge, molecule))
+                resolved.append((coef, species[keys[key]]))
+                terms.append((keys[key], sign * coef))
+            sides.append(resolved)
+        _check_balance(spec, sides)
+        reactions.append(Reaction(spec, tuple(terms)))
+    return tuple(species), tuple(reactions)
+
+
+@dataclass(frozen=True)
+class ReactionPiece:
+    """One SCF run of a reaction study: a species in a basis.
+
+    Attributes
+    ----------
+    species : int
+        Index into the study's species.
+    basis : str
+    """
+
+    species: int
+    basis: str
+
+
+def reaction_pieces(species: Sequence[Species], bases: Sequence[str]) -> list[ReactionPiece]:
+    """Every SCF run a reaction study needs: each distinct species in each basis, basis by basis.
+
+    Parameters
+    ----------
+    species : sequence of Species
+    bases : sequence of str
+
+    Returns
+    -------
+    list of ReactionPiece
+    """
+    return [ReactionPiece(k, name) for name in bases for k in range(len(species))]
+
+
+@dataclass(frozen=True)
+class ReactionRow:
+    """All reactions in one basis (energies in hartree).
+
+    Attributes
+    ----------
+    basis : str
+    n_functions : int
+        Basis functions summed over the distinct species.
+    spherical : bool
+    species_energies : tuple of float
+        RHF total energy of each species.
+    reaction_energies : tuple of float
+        ΔE of each reaction.
+    deltas : tuple of float
+        ΔE minus ΔE in the reference basis, per reaction.
+    seconds : float
+        Wall-clock time of this basis' runs.
+    """
+
+    basis: str
+    n_functions: int
+    spherical: bool
+    species_energies: tuple[float, ...]
+    reaction_energies: tuple[float, ...]
+    deltas: tuple[float, ...]
+    seconds: float
+
+
+@dataclass(frozen=True)
+class ReactionEstimate:
+    """A basis-limit estimate of the reaction energies from extrapolated totals.
+
+    Attributes
+    ----------
+    method : {"two-point", "three-point"}
+    family : str
+    bases : tuple of str
+    species_energies : tuple of float
+        Extrapolated total of each species (hartree).
+    reaction_energies : tuple of float
+        ΔE of each reaction from those totals (hartree).
+    citation : str
+    """
+
+    method: str
+    family: str
+    bases: tuple[str, ...]
+    species_energies: tuple[float, ...]
+    reaction_energies: tuple[float, ...]
+    citation: str
+
+
+@dataclass(frozen=True)
+class ReactionStudy:
+    """The outcome of :func:`reaction_energies`.
+
+    Attributes
+    ----------
+    species : tuple of Species
+    reactions : tuple of Reaction
+    rows : tuple of ReactionRow
+        One per basis, in the order given.
+    reference_basis : str
+        The basis with the most functions; ``deltas`` are relative to it.
+    estimates : tuple of ReactionEstimate
+    notes : tuple of str
+        Why an estimate was not made.
+    seconds : float
+        Wall-clock time of all runs.
+    """
+
+    species: tuple[Species, ...]
+    reactions: tuple[Reaction, ...]
+    rows: tuple[ReactionRow, ...]
+    reference_basis: str
+    estimates: tuple[ReactionEstimate, ...] = ()
+    notes: tuple[str, ...] = ()
+    seconds: float = 0.0
+
+    def uncertainty(self) -> tuple[float, ...] | None:
+        """Per reaction, the spread (hartree) between the two- and three-point estimates of one family, if both exist."""
+        by_family: dict[str, dict[str, ReactionEstimate]] = {}
+        for est in self.estimates:
+            by_family.setdefault(est.family, {})[est.method] = est
+        for members in by_family.values():
+            if "two-point" in members and "three-point" in members:
+                a, b = members["two-point"].reaction_energies, members["three-point"].reaction_energies
+                return tuple(abs(x - y) for x, y in zip(a, b))
+        return None
+
+    def to_dict(self) -> dict:
+        """Plain, JSON-ready form; energies in hartree unless a key names kJ/mol or kcal/mol."""
+
+        def units(values: Sequence[float], key: str) -> dict:
+            return {
+                key: list(values),
+                f"{key}_kJ_mol": [v * KJ_MOL_PER_HARTREE for v in values],
+                f"{key}_kcal_mol": [v * KCAL_MOL_PER_HARTREE for v in values],
+            }
+
+        spread = self.uncertainty()
+        return {
+            "species": [
+                {"path": s.path, "charge": s.charge, "formula": s.formula, "source": s.molecule.source}
+                for s in self.species
+            ],
+            "reactions": [
+                {"equation": r.text, "terms": [{"species": k, "factor": float(nu)} for k, nu in r.terms]}
+                for r in self.reactions
+            ],
+            "reference_basis": self.reference_basis,
+            "rows": [
+                {
+                    "basis": row.basis,
+                    "n_functions": row.n_functions,
+                    "spherical": row.spherical,
+                    "species_energies": list(row.species_energies),
+                    **units(row.reaction_energies, "reaction_energies"),
+                    **units(row.deltas, "deltas"),
+                    "seconds": row.seconds,
+                }
+                for row in self.rows
+            ],
+            "estimates": [
+                {
+                    "method": e.method,
+                    "family": e.family,
+                    "bases": list(e.bases),
+                    "species_energies": list(e.species_energies),
+                    **units(e.reaction_energies, "reaction_energies"),
+                    "citation": e.citation,
+                }
+                for e in self.estimates
+            ],
+            "uncertainty": None if spread is None else units(spread, "reaction_energies"),
+            "notes": list(self.notes),
+            "seconds": self.seconds,
+        }
+
+
+def reaction_energies(
+    reactions: Sequence[str] | str,
+    bases: Sequence[str],
+    *,
+    units: str = "angstrom",
+    spherical: bool | None = None,
+    options: SCFOptions | None = None,
+    progress: Callable[[str], None] | None = None,
+) -> ReactionStudy:
+    """RHF reaction energies of one or more equations in several basis sets.
+
+    Parameters
+    ----------
+    reactions : str or sequence of str
+        Equations over geometry files (see the module notes).
+    bases : sequence of str
+        Basis names, each different.
+    units : {"angstrom", "bohr"}
+        Units of the geometry files.
+    spherical : bool, optional
+        Real spherical or Cartesian functions; each family's own by default.
+    options : SCFOptions, optional
+        Settings of every SCF run.
+    progress : callable, optional
+        Called with a one-line message after each SCF run.
+
+    Returns
+    -------
+    ReactionStudy
+
+    Raises
+    ------
+    InputError
+        Malformed or unbalanced equations, bad geometry files, open shells,
+        repeated bases: all before any SCF runs.
+    BasisError
+        A basis that is unknown or misses an element (checked up front).
+    ConvergenceError
+        If a run does not converge.
+    """
+    from ..basis import build_basis
+    from ..scf import run_rhf
+
+    names = _check_names(bases)
+    species, parsed = load_reactions([reactions] if isinstance(reactions, str) else list(reactions), units=units)
+    basis_of = {
+        (k, name): build_basis(s.molecule, name, spherical=spherical) for name in names for k, s in enumerate(species)
+    }
+    pieces = reaction_pieces(species, names)
+    started = time.perf_counter()
+    energies: dict[tuple[int, str], float] = {}
+    seconds: dict[str, float] = dict.fromkeys(names, 0.0)
+    for step, piece in enumerate(pieces, start=1):
+        t0 = time.perf_counter()
+        basis = basis_of[(piece.species, piece.basis)]
+        result = run_rhf(species[piece.species].molecule, basis, options)
+        energies[(piece.species, piece.basis)] = float(result.energy_total)
+        seconds[piece.basis] += time.perf_counter() - t0
+        if progress is not None:
+            progress(
+                f"[{step}/{len(pieces)}] {piece.basis}, {species[piece.species].label} ({basis.n_functions} functions): "
+                f"E = {result.energy_total:.10f} Eh after {result.iterations} iterations in {time.perf_counter() - t0:.2f} s"
+            )
+    size = {name: sum(basis_of[(k, name)].n_functions for k in range(len(species))) for name in names}
+    reference = max(names, key=lambda name: size[name])
+    per_basis = {name: tuple(energies[(k, name)] for k in range(len(species))) for name in names}
+    ref_de = tuple(r.energy(per_basis[reference]) for r in parsed)
+    rows = []
+    for name in names:
+        de = tuple(r.energy(per_basis[name]) for r in parsed)
+        rows.append(
+            ReactionRow(name, size[name], basis_of[(0, name)].spherical, per_basis[name], de,
+                        tuple(a - b for a, b in zip(de, ref_de)), seconds[name])
+        )
+    estimates, notes = _estimates(species, parsed, names, basis_of, energies)
+    return ReactionStudy(species, parsed, tuple(rows), reference, tuple(estimates), tuple(notes),
+                         time.perf_counter() - started)
+
+
+def _estimates(species, reactions, names, basis_of, energies) -> tuple[list[ReactionEstimate], list[str]]:
+    """Extrapolate every species with the basis comparison's formulas and combine the totals."""
+    found: dict[tuple, list] = {}
+    notes: list[str] = []
+    for k in range(len(species)):
+        rows = [
+            ComparisonRow(name, basis_of[(k, name)].n_functions, basis_of[(k, name)].spherical, energies[(k, name)],
+                          0.0, 0.0, 0, 0.0, True, "sad")
+            for name in names
+        ]
+        estimates, why = basis_limit_estimates(rows, 0.0)
+        notes += [f"{species[k].label}: {n}" for n in why]
+        for est in estimates:
+            found.setdefault((est.method, est.family, est.bases, est.citation), [None] * len(species))[k] = est.energy_total
+    out = []
+    for (method, family, bases, citation), totals in found.items():
+        if any(t is None for t in totals):
+            notes.append(f"{method} {family} estimate of the reaction energies skipped: not every species has one")
+            continue
+        out.append(ReactionEstimate(method, family, bases, tuple(totals), tuple(r.energy(totals) for r in reactions),
+                                    citation))
+    return out, notes
+
+
+__all__ = [
+    "ARROW",
+    "Species",
+    "Reaction",
+    "ReactionPiece",
+    "ReactionRow",
+    "ReactionEstimate",
+    "ReactionStudy",
+    "parse_reaction",
+    "load_reactions",
+    "reaction_pieces",
+    "reaction_energies",
+]
