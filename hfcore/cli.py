@@ -2,8 +2,9 @@
 
 Subcommands: ``energy`` (one RHF run with a human report, JSON and .npz
 exports), ``fit-sto`` (a least-squares Gaussian fit to a Slater function),
-``compare`` (one molecule in several basis sets) and ``bases`` (the sets on
-offer). Errors hfcore raises on purpose become one line on stderr and the
+``compare`` (one molecule in several basis sets), ``interaction`` (raw and
+counterpoise-corrected interaction energies), ``reaction`` (reaction
+energies across basis sets) and ``bases`` (the sets on offer). Errors hfcore raises on purpose become one line on stderr and the
 exit code of their class; see the README for the table.
 """
 
@@ -70,14 +71,16 @@ class _Parser(argparse.ArgumentParser):
         self.exit(2, f"hfcore: error: {where}{message} (see '{self.prog} --help')\n")
 
 
-def _add_geometry_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("geometry", metavar="GEOMETRY", help="XYZ file (atom count, comment, then 'symbol x y z' lines)")
+def _add_geometry_arguments(parser: argparse.ArgumentParser, *, geometry: bool = True, charge: bool = True) -> None:
+    if geometry:
+        parser.add_argument("geometry", metavar="GEOMETRY", help="XYZ file (atom count, comment, then 'symbol x y z' lines)")
     parser.add_argument(
         "--units", choices=("angstrom", "bohr"), default="angstrom", help="units of the XYZ coordinates (default angstrom)"
     )
-    parser.add_argument(
-        "--charge", type=_charge, default=0, help="total molecular charge (default 0; never read from the file)"
-    )
+    if charge:
+        parser.add_argument(
+            "--charge", type=_charge, default=0, help="total molecular charge (default 0; never read from the file)"
+        )
     form = parser.add_mutually_exclusive_group()
     form.add_argument("--cartesian", dest="spherical", action="store_false", default=None, help="Cartesian d, f, ... functions")
     form.add_argument("--spherical", dest="spherical", action="store_true", help="real spherical d, f, ... functions")
@@ -183,6 +186,42 @@ def build_parser() -> argparse.ArgumentParser:
     _add_json_argument(compare)
     compare.add_argument("--plot", metavar="PNG", help="plot energy against the number of basis functions")
     compare.set_defaults(handler=_run_compare)
+
+    interaction = sub.add_parser(
+        "interaction", help="interaction energy of a complex, raw and counterpoise-corrected, in several basis sets"
+    )
+    _add_geometry_arguments(interaction, charge=False)
+    interaction.add_argument(
+        "--fragments", required=True, metavar="RANGES",
+        help="the fragments as 1-based atom ranges in file order, one per comma, e.g. 1-3,4-6 "
+        "(join the parts of a fragment with '+', e.g. 1-2+7,3-6)",
+    )
+    interaction.add_argument(
+        "--fragment-charges", metavar="Q,Q", help="charge of each fragment, e.g. --fragment-charges=1,-1 (default all 0)"
+    )
+    interaction.add_argument(
+        "--basis", required=True, metavar="NAMES", help="comma-separated basis names, e.g. sto-3g,6-31g,cc-pvdz"
+    )
+    _add_scf_arguments(interaction)
+    _add_json_argument(interaction)
+    interaction.add_argument("--plot", metavar="PNG", help="plot the interaction energies against basis size")
+    interaction.set_defaults(handler=_run_interaction)
+
+    reaction = sub.add_parser("reaction", help="reaction energies from RHF totals in several basis sets")
+    reaction.add_argument(
+        "reactions", nargs="+", metavar="SPEC",
+        help="an equation over geometry files, e.g. 'formaldehyde.xyz + hydrogen.xyz -> methanol.xyz', "
+        "'2 water.xyz -> water_dimer.xyz' or 'ammonia.xyz + water.xyz -> ammonium.xyz[+1] + hydroxide.xyz[-1]'; "
+        "several equations share their species",
+    )
+    reaction.add_argument(
+        "--basis", required=True, metavar="NAMES", help="comma-separated basis names, e.g. cc-pvdz,cc-pvtz,cc-pvqz"
+    )
+    _add_geometry_arguments(reaction, geometry=False, charge=False)
+    _add_scf_arguments(reaction)
+    _add_json_argument(reaction)
+    reaction.add_argument("--plot", metavar="PNG", help="plot the reaction energies against basis size")
+    reaction.set_defaults(handler=_run_reaction)
 
     bases = sub.add_parser("bases", help="list the basis sets on offer")
     bases.set_defaults(handler=_run_bases)
@@ -427,9 +466,7 @@ def _run_compare(args: argparse.Namespace, console: _Console) -> int:
     from .analysis import compare_bases
 
     paths = _output_paths(args, "json", "plot")
-    names = [n.strip() for n in args.basis.split(",") if n.strip()]
-    if not names:
-        raise InputError("--basis: give at least one basis name, e.g. sto-3g,cc-pvdz")
+    names = _basis_names(args)
     molecule = _read_molecule(args)
     comparison = compare_bases(molecule, names, spherical=args.spherical, progress=_stderr_progress(console))
     record = export.comparison_record(comparison)
@@ -446,6 +483,107 @@ def _run_compare(args: argparse.Namespace, console: _Console) -> int:
     # found by compare_bases leaves stdout empty, as for every other error.
     console.report(report.format_molecule(molecule))
     console.report(report.format_comparison(comparison))
+    _report_written(console, paths.values())
+    return 0
+
+
+def _basis_names(args: argparse.Namespace) -> list[str]:
+    names = [n.strip() for n in args.basis.split(",") if n.strip()]
+    if not names:
+        raise InputError("--basis: give at least one basis name, e.g. sto-3g,cc-pvdz")
+    return names
+
+
+def parse_fragments(text: str, natom: int) -> list[list[int]]:
+    """0-based atoms of each fragment from ``--fragments`` text such as ``"1-3,4-6"`` or ``"1-2+7,3-6"``.
+
+    Parameters
+    ----------
+    text : str
+        One item per fragment, separated by commas; an item is 1-based
+        atom numbers or ranges joined by ``+``.
+    natom : int
+        Atoms of the complex.
+
+    Returns
+    -------
+    list of list of int
+
+    Raises
+    ------
+    InputError
+        For a malformed item or an atom beyond ``natom``.
+    """
+    from .geometry import parse_atom_ranges
+
+    return [parse_atom_ranges(item.replace("+", ","), natom, "--fragments") for item in text.split(",")]
+
+
+def _parse_charges(text: str | None, count: int) -> list[int] | None:
+    if text is None:
+        return None
+    try:
+        charges = [int(item) for item in text.split(",")]
+    except ValueError:
+        raise InputError(f"--fragment-charges {text!r}: expected whole numbers separated by commas, e.g. 1,-1") from None
+    if len(charges) != count:
+        raise InputError(f"--fragment-charges {text!r}: {len(charges)} charges for {count} fragments")
+    return charges
+
+
+def _run_interaction(args: argparse.Namespace, console: _Console) -> int:
+    from .analysis.interaction import interaction_energies
+    from .geometry import read_xyz
+
+    paths = _output_paths(args, "json", "plot")
+    names = _basis_names(args)
+    molecule = read_xyz(args.geometry, units=args.units)
+    fragments = parse_fragments(args.fragments, molecule.natom)
+    charges = _parse_charges(args.fragment_charges, len(fragments))
+    study = interaction_energies(
+        molecule, fragments, names, fragment_charges=charges, spherical=args.spherical, options=_scf_options(args),
+        progress=_stderr_progress(console),
+    )
+    record = export.interaction_record(study)
+    if "plot" in paths:
+        from .plots import plot_interaction
+
+        plot_interaction(study, paths["plot"])
+    if "json" in paths:
+        export.write_file_atomically(paths["json"], export.to_json(record))
+    if args.json == "-":
+        console.data(export.to_json(record))
+        return 0
+    from .report_differences import format_interaction
+
+    console.report(report.format_molecule(molecule.with_charge(sum(study.fragment_charges))))
+    console.report(format_interaction(study))
+    _report_written(console, paths.values())
+    return 0
+
+
+def _run_reaction(args: argparse.Namespace, console: _Console) -> int:
+    from .analysis.reactions import reaction_energies
+
+    paths = _output_paths(args, "json", "plot")
+    names = _basis_names(args)
+    study = reaction_energies(
+        args.reactions, names, units=args.units, spherical=args.spherical, options=_scf_options(args),
+        progress=_stderr_progress(console),
+    )
+    record = export.reaction_record(study)
+    if "plot" in paths:
+        from .plots import plot_reactions
+
+        plot_reactions(study, paths["plot"])
+    if "json" in paths:
+        export.write_file_atomically(paths["json"], export.to_json(record))
+    if args.json == "-":
+        console.data(export.to_json(record))
+        return 0
+    from .report_differences import format_reactions
+
+    console.report(format_reactions(study))
     _report_written(console, paths.values())
     return 0
 
@@ -542,4 +680,4 @@ def main(argv: Sequence[str] | None = None, *, stdout: TextIO | None = None, std
         return EXIT_BROKEN_PIPE
 
 
-__all__ = ["build_parser", "main", "parse_basis_for", "EXIT_INTERRUPTED", "EXIT_BROKEN_PIPE"]
+__all__ = ["build_parser", "main", "parse_basis_for", "parse_fragments", "EXIT_INTERRUPTED", "EXIT_BROKEN_PIPE"]

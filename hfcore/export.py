@@ -278,6 +278,20 @@ def comparison_record(comparison: Any) -> dict[str, Any]:
     return {"hfcore": {"version": __version__}, "units": UNITS, "comparison": comparison.to_dict()}
 
 
+def interaction_record(study: Any) -> dict[str, Any]:
+    """The JSON record of an interaction study: ``hfcore``, ``units``, ``interaction``."""
+    from . import __version__
+
+    return {"hfcore": {"version": __version__}, "units": UNITS, "interaction": study.to_dict()}
+
+
+def reaction_record(study: Any) -> dict[str, Any]:
+    """The JSON record of a reaction study: ``hfcore``, ``units``, ``reaction``."""
+    from . import __version__
+
+    return {"hfcore": {"version": __version__}, "units": UNITS, "reaction": study.to_dict()}
+
+
 def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS) -> dict[str, np.ndarray]:
     """The arrays of an RHF run, for prototyping new methods on top of it.
 
@@ -344,6 +358,8 @@ __all__ = [
     "result_record",
     "sto_fit_record",
     "comparison_record",
+    "interaction_record",
+    "reaction_record",
     "result_arrays",
     "npz_bytes",
 ]

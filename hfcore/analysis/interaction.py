@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import time
 from collections.abc import Callable, Sequence
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from typing import TYPE_CHECKING
 
 from ..errors import InputError
@@ -152,6 +152,10 @@ class InteractionRow:
         never negative within RHF.
     seconds : float
         Wall-clock time of this basis' runs.
+    integral_seconds : float
+        Time the complex's overlap, kinetic and two-electron integrals
+        took; each full-basis fragment run that reused them saved about as
+        much.
     """
 
     basis: str
@@ -164,6 +168,7 @@ class InteractionRow:
     counterpoise: float
     superposition_error: float
     seconds: float
+    integral_seconds: float = 0.0
 
     def to_dict(self) -> dict:
         """Plain form; each of raw, counterpoise and superposition_error also in kJ/mol and kcal/mol."""
@@ -209,6 +214,13 @@ class InteractionStudy:
     seconds: float = 0.0
     citation: str = BOYS_BERNARDI_CITATION
 
+    @property
+    def integral_seconds_saved(self) -> float:
+        """Integral time the full-basis fragment runs did not spend, summed over bases (0 without reuse)."""
+        if not self.reuse_integrals:
+            return 0.0
+        return sum(row.integral_seconds * len(self.fragments) for row in self.rows)
+
     def to_dict(self) -> dict:
         """Plain, JSON-ready form (atom numbers 0-based, energies in hartree unless a key names a unit)."""
         return {
@@ -230,6 +242,7 @@ class InteractionStudy:
                 for p in self.pieces
             ],
             "reuse_integrals": self.reuse_integrals,
+            "integral_seconds_saved": self.integral_seconds_saved,
             "seconds": self.seconds,
             "citation": self.citation,
         }
@@ -431,6 +444,7 @@ def interaction_energies(
     for name in names:
         t0 = time.perf_counter()
         shared = prepare_integrals(basis_of[name], options) if reuse_integrals else None
+        integral_seconds = shared.seconds if shared is not None else 0.0
         energies: dict[tuple[str, int | None], float] = {}
         for piece in (p for p in pieces if p.basis == name):
             if piece.kind == "own basis":
@@ -439,7 +453,11 @@ def interaction_energies(
             else:
                 basis = basis_of[name]
                 use = shared
-            summary, _ = run_piece(molecule, piece, basis, options=options, shared=use)
+            summary, result = run_piece(molecule, piece, basis, options=options, shared=use)
+            if piece.kind == "complex" and shared is not None:
+                summary = replace(summary, seconds=summary.seconds + shared.seconds)  # it paid for them
+            if piece.kind == "complex" and shared is None:
+                integral_seconds = result.timings["integrals"]
             done.append(summary)
             energies[(piece.kind, piece.fragment)] = summary.energy_total
             if progress is not None:
@@ -454,7 +472,7 @@ def interaction_energies(
         cp = e_ab - sum(full)
         rows.append(
             InteractionRow(name, basis_of[name].n_functions, basis_of[name].spherical, e_ab, own, full, raw, cp,
-                           cp - raw, time.perf_counter() - t0)
+                           cp - raw, time.perf_counter() - t0, integral_seconds)
         )
     return InteractionStudy(
         source=molecule.source,

@@ -166,6 +166,10 @@ def parse_reaction(spec: str) -> tuple[list[tuple[Fraction, str, int]], list[tup
     return sides[0], sides[1]
 
 
+def _signed(q: Fraction) -> str:
+    return "0" if q == 0 else f"{'+' if q > 0 else ''}{q}"
+
+
 def _check_balance(spec: str, sides: list[list[tuple[Fraction, Species]]]) -> None:
     totals = []
     for terms in sides:
@@ -182,7 +186,9 @@ def _check_balance(spec: str, sides: list[list[tuple[Fraction, Species]]]) -> No
         if a != b:
             raise InputError(f"reaction {spec!r} is not balanced: {symbol} {a} on the left, {b} on the right")
     if q_left != q_right:
-        raise InputError(f"reaction {spec!r} is not balanced in charge: {q_left:+} on the left, {q_right:+} on the right")
+        raise InputError(
+            f"reaction {spec!r} is not balanced in charge: {_signed(q_left)} on the left, {_signed(q_right)} on the right"
+        )
 
 
 def load_reactions(specs: Sequence[str], *, units: str = "angstrom") -> tuple[tuple[Species, ...], tuple[Reaction, ...]]:
@@ -224,7 +230,6 @@ def load_reactions(specs: Sequence[str], *, units: str = "angstrom") -> tuple[tu
             resolved = []
             for coef, path, charge in side:
                 molecule = read_xyz(path, units=units, charge=charge)
-                molecule.require_closed_shell()
                 key = (molecule.atomic_numbers.tobytes(), molecule.coordinates.tobytes(), charge)
                 if key not in keys:
                     keys[key] = len(species)
@@ -233,6 +238,12 @@ def load_reactions(specs: Sequence[str], *, units: str = "angstrom") -> tuple[tu
                 terms.append((keys[key], sign * coef))
             sides.append(resolved)
         _check_balance(spec, sides)
+        for _, s in (term for side in sides for term in side):
+            if s.molecule.n_electrons % 2 or s.molecule.n_electrons <= 0:
+                raise InputError(
+                    f"reaction {spec!r}: {s.label} has {s.molecule.n_electrons} electrons; RHF needs an even, positive "
+                    f"number: write its charge beside the file, e.g. {s.path}[{s.charge + 1:+d}] or {s.path}[{s.charge - 1:+d}]"
+                )
         reactions.append(Reaction(spec, tuple(terms)))
     return tuple(species), tuple(reactions)
 
