@@ -95,8 +95,15 @@ class Reaction:
     terms: tuple[tuple[int, Fraction], ...]
 
     def energy(self, species_energies: Sequence[float]) -> float:
-        """Σ ν E over the terms (hartree), from the energies of all species."""
-        return float(sum(float(nu) * species_energies[k] for k, nu in self.terms))
+        """Σ ν E over the terms (hartree), from the energies of all species.
+
+        The factors of each species are added first, so a species on both
+        sides with equal factors cancels exactly.
+        """
+        net: dict[int, Fraction] = {}
+        for k, nu in self.terms:
+            net[k] = net.get(k, Fraction(0)) + nu
+        return float(sum(float(nu) * species_energies[k] for k, nu in net.items() if nu))
 
 
 def _element_counts(molecule: Molecule, factor: Fraction) -> dict[str, Fraction]:
