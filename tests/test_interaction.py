@@ -140,3 +140,14 @@ def test_interaction_command_errors_are_one_line_before_any_run(extra, fragment)
     code, out, err = run_main("interaction", str(DIMER), "--basis", "sto-3g", *extra)
     assert code == 2 and out == ""
     assert err.count("\n") == 1 and err.startswith("hfcore: error: ") and fragment in err
+
+
+def test_raw_interaction_energy_equals_the_dimerisation_energy(study, monkeypatch):
+    from hfcore.analysis.reactions import reaction_energies
+
+    monkeypatch.chdir(INPUTS)
+    dimerisation = reaction_energies("2 water.xyz -> water_dimer.xyz", BASES[:2])
+    for row, reaction in zip(study.rows, dimerisation.rows):
+        # source: exact property — both monomers of water_dimer.xyz are water.xyz moved rigidly, and the energy is
+        # invariant under rigid motion; the tolerance covers the 6-decimal rounding of the coordinates (1e-6 Å)
+        assert row.raw == pytest.approx(reaction.reaction_energies[0], abs=2e-7)

@@ -121,3 +121,22 @@ def test_reaction_plot_and_report(in_inputs, tmp_path):
     assert "[1/4] sto-3g" in err
     assert_valid_png(png)
     assert os.path.isfile(png)
+
+
+def test_three_point_estimate_and_spread(tmp_path, monkeypatch):
+    from hfcore.analysis.extrapolation import feller_three_point
+
+    monkeypatch.chdir(tmp_path)
+    Path("h2_long.xyz").write_text("2\nstretched hydrogen\nH 0 0 0\nH 0 0 0.9\n")
+    Path("h2.xyz").write_text("2\nhydrogen\nH 0 0 0\nH 0 0 0.741\n")
+    bases = ["cc-pvdz", "cc-pvtz", "cc-pvqz"]
+    study = reaction_energies("h2_long.xyz -> h2.xyz", bases)
+    methods = {e.method: e for e in study.estimates}
+    assert set(methods) == {"two-point", "three-point"}
+    totals = [[r.species_energies[k] for r in study.rows] for k in range(2)]
+    # source: exact property — Feller (1992) applied to each species' totals, then Σ ν E
+    expected = feller_three_point(*totals[1], 2, 3, 4) - feller_three_point(*totals[0], 2, 3, 4)
+    assert methods["three-point"].reaction_energies[0] == pytest.approx(expected, abs=1e-12)
+    spread = abs(methods["two-point"].reaction_energies[0] - methods["three-point"].reaction_energies[0])
+    assert study.uncertainty() == pytest.approx((spread,), abs=1e-15)
+    assert study.to_dict()["uncertainty"]["reaction_energies"] == pytest.approx([spread], abs=1e-15)
