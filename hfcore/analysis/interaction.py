@@ -30,6 +30,8 @@ from collections.abc import Callable, Sequence
 from dataclasses import asdict, dataclass, field, replace
 from typing import TYPE_CHECKING
 
+import numpy as np
+
 from ..errors import InputError
 from .compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE, _check_names
 
@@ -301,8 +303,9 @@ def interaction_pieces(
 ) -> list[InteractionPiece]:
     """Every SCF run an interaction calculation needs, per basis in order.
 
-    Per basis: the complex, then each fragment in the full basis (these
-    share the complex's integrals), then each fragment in its own basis.
+    Per basis: the complex, then each fragment in its own basis, then each
+    fragment in the full basis (these share the complex's integrals and
+    may start from the fragment's own-basis density).
 
     Parameters
     ----------
@@ -321,7 +324,7 @@ def interaction_pieces(
     everything = tuple(range(natom))
     for name in bases:
         pieces.append(InteractionPiece(name, "complex", None, everything, (), sum(q)))
-        for kind in ("full basis", "own basis"):
+        for kind in ("own basis", "full basis"):
             for k, part in enumerate(parts):
                 others = tuple(a for a in everything if a not in part) if kind == "full basis" else ()
                 pieces.append(InteractionPiece(name, kind, k, part, others, q[k]))
@@ -336,6 +339,7 @@ def run_piece(
     spherical: bool | None = None,
     options: SCFOptions | None = None,
     shared: SharedIntegrals | None = None,
+    guess: str | np.ndarray = "sad",
 ) -> tuple[PieceResult, object]:
     """Run one piece.
 
@@ -350,6 +354,8 @@ def run_piece(
     options : SCFOptions, optional
     shared : SharedIntegrals, optional
         The complex's integrals, for the complex and full-basis pieces.
+    guess : str or ndarray, shape (nbf, nbf)
+        Starting density, as for :func:`hfcore.scf.run_rhf`.
 
     Returns
     -------
@@ -367,11 +373,40 @@ def run_piece(
     molecule = piece.molecule(complex_molecule)
     if basis is None:
         basis = shared.basis if shared is not None else build_basis(molecule, piece.basis, spherical=spherical)
-    result = run_rhf(molecule, basis, options, shared=shared)
+    result = run_rhf(molecule, basis, options, guess=guess, shared=shared)
     seconds = time.perf_counter() - start
     summary = PieceResult(piece, float(result.energy_total), basis.n_functions, int(result.iterations), seconds,
                           shared is not None and piece.kind != "complex")
     return summary, result
+
+
+def embedded_density(density: np.ndarray, basis: BasisSet, atoms: Sequence[int]) -> np.ndarray:
+    """A fragment's own-basis density placed in the complex's basis (zero on the ghost functions).
+
+    The fragment's own basis is the complex's functions on its atoms, in the
+    same order, so the density is copied into that block: a starting guess
+    for the fragment in the full basis that is already converged but for
+    the ghost functions.
+
+    Parameters
+    ----------
+    density : ndarray, shape (nbf_fragment, nbf_fragment)
+        Total density of the fragment in its own basis.
+    basis : BasisSet
+        The complex's basis.
+    atoms : sequence of int
+        0-based atoms of the fragment.
+
+    Returns
+    -------
+    ndarray, shape (nbf, nbf)
+    """
+    index = np.flatnonzero(np.isin(basis.function_atoms(), list(atoms)))
+    if index.size != density.shape[0]:
+        raise InputError(f"a density over {density.shape[0]} functions does not fit the {index.size} on atoms {list(atoms)}")
+    full = np.zeros((basis.n_functions, basis.n_functions))
+    full[np.ix_(index, index)] = density
+    return full
 
 
 def interaction_energies(
@@ -446,6 +481,7 @@ def interaction_energies(
         shared = prepare_integrals(basis_of[name], options) if reuse_integrals else None
         integral_seconds = shared.seconds if shared is not None else 0.0
         energies: dict[tuple[str, int | None], float] = {}
+        densities: dict[int, np.ndarray] = {}
         for piece in (p for p in pieces if p.basis == name):
             if piece.kind == "own basis":
                 basis = own_basis[(name, piece.fragment)]
@@ -453,7 +489,12 @@ def interaction_energies(
             else:
                 basis = basis_of[name]
                 use = shared
-            summary, result = run_piece(molecule, piece, basis, options=options, shared=use)
+            guess = "sad"
+            if piece.kind == "full basis":
+                guess = embedded_density(densities[piece.fragment], basis, piece.atoms)
+            summary, result = run_piece(molecule, piece, basis, options=options, shared=use, guess=guess)
+            if piece.kind == "own basis":
+                densities[piece.fragment] = result.density
             if piece.kind == "complex" and shared is not None:
                 summary = replace(summary, seconds=summary.seconds + shared.seconds)  # it paid for them
             if piece.kind == "complex" and shared is None:
@@ -495,5 +536,6 @@ __all__ = [
     "check_fragments",
     "interaction_pieces",
     "run_piece",
+    "embedded_density",
     "interaction_energies",
 ]
