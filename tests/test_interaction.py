@@ -152,3 +152,16 @@ def test_raw_interaction_energy_equals_the_dimerisation_energy(study, monkeypatc
         # source: exact property — both monomers of water_dimer.xyz are water.xyz moved rigidly, and the energy is
         # invariant under rigid motion; the tolerance covers the 6-decimal rounding of the coordinates (1e-6 Å)
         assert row.raw == pytest.approx(reaction.reaction_energies[0], abs=2e-7)
+
+
+def test_shared_integrals_must_belong_to_the_basis(dimer):
+    from hfcore.scf import prepare_integrals, run_rhf
+
+    shared = prepare_integrals(hfcore.build_basis(dimer, "sto-3g"))
+    other = hfcore.build_basis(dimer, "sto-3g")
+    with pytest.raises(InputError, match="another basis"):
+        run_rhf(dimer, other, shared=shared)
+    ghost = dimer.with_ghosts([0, 1, 2])
+    alone = run_rhf(ghost, shared.basis)
+    # source: exact property — the same integrals, whether computed for this run or shared
+    assert run_rhf(ghost, shared.basis, shared=shared).energy_total == pytest.approx(alone.energy_total, abs=1e-11)

@@ -40,6 +40,7 @@ if TYPE_CHECKING:
     from ..geometry import Molecule
     from ..scf.driver import SharedIntegrals
     from ..scf.options import SCFOptions
+    from ..scf.result import RHFResult
 
 #: Citation of the counterpoise correction.
 BOYS_BERNARDI_CITATION = "S. F. Boys and F. Bernardi, Mol. Phys. 19, 553 (1970)"
@@ -340,7 +341,7 @@ def run_piece(
     options: SCFOptions | None = None,
     shared: SharedIntegrals | None = None,
     guess: str | np.ndarray = "sad",
-) -> tuple[PieceResult, object]:
+) -> tuple[PieceResult, RHFResult]:
     """Run one piece.
 
     Parameters
