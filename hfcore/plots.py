@@ -164,22 +164,22 @@ def plot_reactions(study: ReactionStudy, path: str | os.PathLike) -> None:
     _check_directory(path)
     plt = _pyplot()
     rows = sorted(study.rows, key=lambda r: r.n_functions)
-    x = [r.n_functions for r in rows]
     figure, axes = plt.subplots(figsize=(7.0, 4.8))
     try:
         styles = ("--", ":", "-.")
         for k, reaction in enumerate(study.reactions):
+            x = [r.reaction_functions(reaction) for r in rows]
             y = [r.reaction_energies[k] * KJ_MOL_PER_HARTREE for r in rows]
             axes.plot(x, y, "o-", color=f"C{k}", label=reaction.text)
             if k == 0:
-                for r, value in zip(rows, y):
-                    axes.annotate(r.basis, (r.n_functions, value), textcoords="offset points", xytext=(6, 6),
+                for r, n, value in zip(rows, x, y):
+                    axes.annotate(r.basis, (n, value), textcoords="offset points", xytext=(6, 6),
                                   fontsize=8)
             for j, est in enumerate(study.estimates):
                 axes.axhline(est.reaction_energies[k] * KJ_MOL_PER_HARTREE, color=f"C{k}", linewidth=1.0,
                              linestyle=styles[j % len(styles)],
                              label=f"{est.method} limit ({', '.join(est.bases)})" if k == 0 else None)
-        axes.set_xlabel("basis functions, summed over the species")
+        axes.set_xlabel("basis functions, summed over the species of the reaction")
         axes.set_ylabel("reaction energy / kJ mol$^{-1}$")
         axes.set_title("RHF reaction energy against basis size", fontsize=10)
         axes.margins(x=0.15, y=0.12)

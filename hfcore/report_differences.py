@@ -94,10 +94,10 @@ def format_reactions(study: Any) -> str:
         for row in study.rows:
             d = row.deltas[r]
             lines.append(
-                f"  {row.basis:<14} {row.n_functions:>9} {_units(row.reaction_energies[r])}   "
+                f"  {row.basis:<14} {row.reaction_functions(reaction):>9} {_units(row.reaction_energies[r])}   "
                 f"{d * KJ_MOL_PER_HARTREE:11.3f} {d * KCAL_MOL_PER_HARTREE:12.3f}"
             )
-        lines.append(f"  Δ: change from {study.reference_basis}, the basis with the most functions")
+        lines.append(f"  functions: summed over the species; Δ: change from {study.reference_basis}")
         if study.estimates:
             lines.append("  basis-limit estimates from the extrapolated totals:")
             for est in study.estimates:

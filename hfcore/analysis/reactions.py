@@ -74,6 +74,8 @@ class ReactionRow:
         ΔE minus ΔE in the reference basis, per reaction.
     seconds : float
         Wall-clock time of this basis' runs.
+    species_functions : tuple of int
+        Basis functions of each species.
     """
 
     basis: str
@@ -83,6 +85,11 @@ class ReactionRow:
     reaction_energies: tuple[float, ...]
     deltas: tuple[float, ...]
     seconds: float
+    species_functions: tuple[int, ...] = ()
+
+    def reaction_functions(self, reaction: Reaction) -> int:
+        """Basis functions summed over the distinct species of one reaction."""
+        return sum(self.species_functions[k] for k in {k for k, _ in reaction.terms})
 
 
 @dataclass(frozen=True)
@@ -174,6 +181,7 @@ class ReactionStudy:
                     "n_functions": row.n_functions,
                     "spherical": row.spherical,
                     "species_energies": list(row.species_energies),
+                    "species_functions": list(row.species_functions),
                     **units(row.reaction_energies, "reaction_energies"),
                     **units(row.deltas, "deltas"),
                     "seconds": row.seconds,
@@ -269,7 +277,8 @@ def reaction_energies(
         de = tuple(r.energy(per_basis[name]) for r in parsed)
         rows.append(
             ReactionRow(name, size[name], basis_of[(0, name)].spherical, per_basis[name], de,
-                        tuple(a - b for a, b in zip(de, ref_de)), seconds[name])
+                        tuple(a - b for a, b in zip(de, ref_de)), seconds[name],
+                        tuple(basis_of[(k, name)].n_functions for k in range(len(species))))
         )
     estimates, notes = _estimates(species, parsed, names, basis_of, energies)
     return ReactionStudy(species, parsed, tuple(rows), reference, tuple(estimates), tuple(notes),
