@@ -140,3 +140,9 @@ def test_three_point_estimate_and_spread(tmp_path, monkeypatch):
     spread = abs(methods["two-point"].reaction_energies[0] - methods["three-point"].reaction_energies[0])
     assert study.uncertainty() == pytest.approx((spread,), abs=1e-15)
     assert study.to_dict()["uncertainty"]["reaction_energies"] == pytest.approx([spread], abs=1e-15)
+
+
+def test_a_run_that_does_not_converge_names_the_species_and_exits_4(in_inputs):
+    code, out, err = run_main("reaction", DIMERISATION, "--basis", "sto-3g", "--max-iterations", "2")
+    assert code == 4 and out == ""
+    assert err.count("\n") == 1 and err.startswith("hfcore: error: water.xyz in sto-3g: SCF did not converge")

@@ -32,7 +32,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ..errors import InputError
+from ..errors import ConvergenceError, InputError
 from .compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE, _check_names
 
 if TYPE_CHECKING:
@@ -374,7 +374,10 @@ def run_piece(
     molecule = piece.molecule(complex_molecule)
     if basis is None:
         basis = shared.basis if shared is not None else build_basis(molecule, piece.basis, spherical=spherical)
-    result = run_rhf(molecule, basis, options, guess=guess, shared=shared)
+    try:
+        result = run_rhf(molecule, basis, options, guess=guess, shared=shared)
+    except ConvergenceError as exc:
+        raise ConvergenceError(f"{piece.basis}, {piece.label}: {exc}", exc.result) from None
     seconds = time.perf_counter() - start
     summary = PieceResult(piece, float(result.energy_total), basis.n_functions, int(result.iterations), seconds,
                           shared is not None and piece.kind != "complex")

@@ -20,6 +20,7 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
+from ..errors import ConvergenceError
 from .compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE, ComparisonRow, _check_names, basis_limit_estimates
 from .equations import Reaction, Species, load_reactions, parse_reaction  # noqa: F401  (part of this module's API)
 
@@ -260,7 +261,10 @@ def reaction_energies(
     for step, piece in enumerate(pieces, start=1):
         t0 = time.perf_counter()
         basis = basis_of[(piece.species, piece.basis)]
-        result = run_rhf(species[piece.species].molecule, basis, options)
+        try:
+            result = run_rhf(species[piece.species].molecule, basis, options)
+        except ConvergenceError as exc:
+            raise ConvergenceError(f"{species[piece.species].label} in {piece.basis}: {exc}", exc.result) from None
         energies[(piece.species, piece.basis)] = float(result.energy_total)
         seconds[piece.basis] += time.perf_counter() - t0
         if progress is not None:
