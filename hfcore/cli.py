@@ -158,6 +158,11 @@ def build_parser() -> argparse.ArgumentParser:
         help="atoms (1-based ranges in file order, e.g. 4-6 or 1,3) that keep their basis functions "
         "but have no nucleus and no electrons",
     )
+    energy.add_argument(
+        "--atoms",
+        metavar="ATOMS",
+        help="run only these atoms of the file (1-based ranges in file order, e.g. 1-3): one fragment of a complex",
+    )
     _add_json_argument(energy)
     energy.add_argument(
         "--npz",
@@ -249,6 +254,11 @@ def _read_molecule(args: argparse.Namespace) -> Any:
         if len(ghosts) == molecule.natom:
             raise InputError(f"--ghost {args.ghost}: every atom would be a ghost; keep at least one real atom")
         molecule = molecule.with_ghosts(ghosts)
+    if getattr(args, "atoms", None):
+        keep = parse_atom_ranges(args.atoms, molecule.natom, "--atoms")
+        if molecule.ghosts[keep].all():
+            raise InputError(f"--atoms {args.atoms}: every atom kept is a ghost; keep at least one real atom")
+        molecule = molecule.subset(keep, molecule.charge)
     molecule.require_closed_shell()
     return molecule
 

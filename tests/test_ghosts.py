@@ -89,3 +89,20 @@ def test_parse_atom_ranges():
     assert parse_atom_ranges("1-3, 5,4", 6) == [0, 1, 2, 3, 4]
     with pytest.raises(InputError, match="does not exist"):
         parse_atom_ranges("2-9", 6)
+
+
+def test_energy_atoms_option_runs_one_fragment_as_interaction_does():
+    from hfcore.analysis.interaction import interaction_energies
+
+    code, out, err = run_main("energy", str(DIMER), "--basis", "sto-3g", "--atoms", "4-6", "--json", "-")
+    assert code == 0, err
+    record = json.loads(out)
+    assert record["molecule"]["symbols"] == ["O", "H", "H"]
+    code, out, _ = run_main("energy", str(DIMER), "--basis", "sto-3g", "--ghost", "1-3", "--json", "-")
+    with_ghosts = json.loads(out)["energy"]["total"]
+    study = interaction_energies(hfcore.read_xyz(DIMER), [[0, 1, 2], [3, 4, 5]], ["sto-3g"])
+    # source: exact property — the same molecules in the same bases as the interaction's pieces
+    assert record["energy"]["total"] == pytest.approx(study.rows[0].fragments_own_basis[1], abs=1e-9)
+    assert with_ghosts == pytest.approx(study.rows[0].fragments_full_basis[1], abs=1e-9)
+    code, _, err = run_main("energy", str(DIMER), "--ghost", "1-3", "--atoms", "1-3")
+    assert code == 2 and "every atom kept is a ghost" in err
