@@ -106,3 +106,27 @@ def test_energy_atoms_option_runs_one_fragment_as_interaction_does():
     assert with_ghosts == pytest.approx(study.rows[0].fragments_full_basis[1], abs=1e-9)
     code, _, err = run_main("energy", str(DIMER), "--ghost", "1-3", "--atoms", "1-3")
     assert code == 2 and "every atom kept is a ghost" in err
+
+
+def test_dipole_with_ghosts_equals_the_reference_library(dimer):
+    from reference import reference_rhf
+
+    from hfcore.analysis import dipole_moment
+
+    half = dimer.with_ghosts([0, 1, 2])
+    result = hfcore.run_rhf(half, hfcore.build_basis(half, "6-31g"))
+    mf = reference_rhf(reference_mole(half, family_shells(half, "6-31g"), spherical=False))
+    # source: reference library run — ghost atoms carry no nuclear charge in its dipole either
+    assert dipole_moment(result) == pytest.approx(mf.dip_moment(unit="AU", verbose=0), abs=1e-6)
+
+
+def test_starting_guess_gives_a_ghost_no_density(dimer):
+    from hfcore.scf import sad_density
+
+    basis = hfcore.build_basis(dimer, "sto-3g")
+    half = dimer.with_ghosts([3, 4, 5])
+    density = sad_density(basis, np.where(half.ghosts, 0, half.atomic_numbers))
+    on_ghosts = np.isin(basis.function_atoms(), [3, 4, 5])
+    # source: exact property — a ghost has no electrons of its own
+    assert np.all(density[on_ghosts] == 0.0) and np.all(density[:, on_ghosts] == 0.0)
+    assert np.trace(density @ hfcore.integrals.overlap(basis)) == pytest.approx(10.0, abs=1e-8)
