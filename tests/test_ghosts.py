@@ -2,28 +2,19 @@
 
 from __future__ import annotations
 
-import io
 import json
-from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import INPUTS, run_main
 from reference import family_shells, reference_energy, reference_mole
 
 import hfcore
 from hfcore.analysis import core_orbital_count, mulliken_charges
-from hfcore.cli import main
 from hfcore.errors import InputError
 from hfcore.geometry import parse_atom_ranges
 
-INPUTS = Path(__file__).resolve().parent.parent / "inputs"
 DIMER = INPUTS / "water_dimer.xyz"
-
-
-def run_main(*args: str) -> tuple[int, str, str]:
-    out, err = io.StringIO(), io.StringIO()
-    code = main(list(args), stdout=out, stderr=err)
-    return code, out.getvalue(), err.getvalue()
 
 
 @pytest.fixture(scope="module")

@@ -2,31 +2,21 @@
 
 from __future__ import annotations
 
-import io
 import json
-from pathlib import Path
 
 import pytest
-from conftest import assert_valid_png
+from conftest import INPUTS, assert_valid_png, run_main
 from reference import family_shells, reference_energy, reference_mole
 
 import hfcore
 from hfcore.analysis.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
 from hfcore.analysis.interaction import check_fragments, interaction_energies, interaction_pieces
-from hfcore.cli import main
 from hfcore.cli_differences import parse_fragments
 from hfcore.errors import InputError
 
-INPUTS = Path(__file__).resolve().parent.parent / "inputs"
 DIMER = INPUTS / "water_dimer.xyz"  # a geometry of our own (see its comment line)
 BASES = ["sto-3g", "6-31g", "cc-pvdz"]
 FRAGMENTS = [[0, 1, 2], [3, 4, 5]]
-
-
-def run_main(*args: str) -> tuple[int, str, str]:
-    out, err = io.StringIO(), io.StringIO()
-    code = main(list(args), stdout=out, stderr=err)
-    return code, out.getvalue(), err.getvalue()
 
 
 @pytest.fixture(scope="module")

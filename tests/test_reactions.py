@@ -2,31 +2,21 @@
 
 from __future__ import annotations
 
-import io
 import json
 import os
 from fractions import Fraction
 from pathlib import Path
 
 import pytest
-from conftest import assert_valid_png
+from conftest import INPUTS, assert_one_line_error, assert_valid_png, cli_result, run_main
 
 import hfcore.scf
 from hfcore.analysis.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
 from hfcore.analysis.extrapolation import karton_martin_two_point
 from hfcore.analysis.reactions import load_reactions, parse_reaction, reaction_energies, reaction_pieces
-from hfcore.cli import main
-from hfcore.errors import InputError
 
-INPUTS = Path(__file__).resolve().parent.parent / "inputs"
 HYDROGENATION = "formaldehyde.xyz + hydrogen.xyz -> methanol.xyz"
 DIMERISATION = "2 water.xyz -> water_dimer.xyz"
-
-
-def run_main(*args: str) -> tuple[int, str, str]:
-    out, err = io.StringIO(), io.StringIO()
-    code = main(list(args), stdout=out, stderr=err)
-    return code, out.getvalue(), err.getvalue()
 
 
 @pytest.fixture
@@ -146,3 +136,9 @@ def test_a_run_that_does_not_converge_names_the_species_and_exits_4(in_inputs):
     code, out, err = run_main("reaction", DIMERISATION, "--basis", "sto-3g", "--max-iterations", "2")
     assert code == 4 and out == ""
     assert err.count("\n") == 1 and err.startswith("hfcore: error: water.xyz in sto-3g: SCF did not converge")
+
+
+def test_unbalanced_equation_as_a_real_process():
+    proc = cli_result("reaction", "formaldehyde.xyz -> methanol.xyz", "--basis", "sto-3g", cwd=INPUTS, via="process")
+    # the exit code the shell sees, one line, no traceback
+    assert_one_line_error(proc, 2, "not balanced: H 2 on the left, 4 on the right")
