@@ -2,10 +2,13 @@
 
 Subcommands: ``energy`` (one RHF run with a human report, JSON and .npz
 exports), ``fit-sto`` (a least-squares Gaussian fit to a Slater function),
-``compare`` (one molecule in several basis sets), ``bases`` (the sets on
-offer) and ``batch`` (many geometries and bases, resumable; registered
-from :mod:`hfcore.batch.command`). Errors hfcore raises on purpose become one line on stderr and the
-exit code of their class; see the README for the table.
+``compare`` (one molecule in several basis sets), ``interaction`` (raw and
+counterpoise-corrected interaction energies), ``reaction`` (reaction
+energies across basis sets), ``bases`` (the sets on offer) and ``batch``
+(many geometries and bases, resumable; registered from
+:mod:`hfcore.batch.command`). Errors
+hfcore raises on purpose become one line on stderr and the exit code of
+their class; see the README for the table.
 """
 
 from __future__ import annotations
@@ -72,14 +75,16 @@ class _Parser(argparse.ArgumentParser):
         self.exit(2, f"hfcore: error: {where}{message} (see '{self.prog} --help')\n")
 
 
-def _add_geometry_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("geometry", metavar="GEOMETRY", help="XYZ file (atom count, comment, then 'symbol x y z' lines)")
+def _add_geometry_arguments(parser: argparse.ArgumentParser, *, geometry: bool = True, charge: bool = True) -> None:
+    if geometry:
+        parser.add_argument("geometry", metavar="GEOMETRY", help="XYZ file (atom count, comment, then 'symbol x y z' lines)")
     parser.add_argument(
         "--units", choices=("angstrom", "bohr"), default="angstrom", help="units of the XYZ coordinates (default angstrom)"
     )
-    parser.add_argument(
-        "--charge", type=_charge, default=0, help="total molecular charge (default 0; never read from the file)"
-    )
+    if charge:
+        parser.add_argument(
+            "--charge", type=_charge, default=0, help="total molecular charge (default 0; never read from the file)"
+        )
     form = parser.add_mutually_exclusive_group()
     form.add_argument("--cartesian", dest="spherical", action="store_false", default=None, help="Cartesian d, f, ... functions")
     form.add_argument("--spherical", dest="spherical", action="store_true", help="real spherical d, f, ... functions")
@@ -170,6 +175,17 @@ def build_parser() -> argparse.ArgumentParser:
     )
     _add_scf_arguments(energy)
     energy.add_argument("--guess", choices=("sad", "core"), default="sad", help="starting density (default sad)")
+    energy.add_argument(
+        "--ghost",
+        metavar="ATOMS",
+        help="atoms (1-based ranges in file order, e.g. 4-6 or 1,3) that keep their basis functions "
+        "but have no nucleus and no electrons",
+    )
+    energy.add_argument(
+        "--atoms",
+        metavar="ATOMS",
+        help="run only these atoms of the file (1-based ranges in file order, e.g. 1-3): one fragment of a complex",
+    )
     _add_json_argument(energy)
     energy.add_argument(
         "--npz",
@@ -200,6 +216,10 @@ def build_parser() -> argparse.ArgumentParser:
     compare.add_argument("--plot", metavar="PNG", help="plot energy against the number of basis functions")
     _add_threads_argument(compare)
     compare.set_defaults(handler=_run_compare)
+
+    from .cli_differences import add_difference_commands
+
+    add_difference_commands(sub)
 
     bases = sub.add_parser("bases", help="list the basis sets on offer")
     bases.set_defaults(handler=_run_bases)
@@ -261,9 +281,19 @@ def _output_paths(args: argparse.Namespace, *names: str) -> dict[str, str]:
 
 
 def _read_molecule(args: argparse.Namespace) -> Any:
-    from .geometry import read_xyz
+    from .geometry import parse_atom_ranges, read_xyz
 
     molecule = read_xyz(args.geometry, units=args.units, charge=args.charge)
+    if getattr(args, "ghost", None):
+        ghosts = parse_atom_ranges(args.ghost, molecule.natom, "--ghost")
+        if len(ghosts) == molecule.natom:
+            raise InputError(f"--ghost {args.ghost}: every atom would be a ghost; keep at least one real atom")
+        molecule = molecule.with_ghosts(ghosts)
+    if getattr(args, "atoms", None):
+        keep = parse_atom_ranges(args.atoms, molecule.natom, "--atoms")
+        if molecule.ghosts[keep].all():
+            raise InputError(f"--atoms {args.atoms}: every atom kept is a ghost; keep at least one real atom")
+        molecule = molecule.subset(keep, molecule.charge)
     molecule.require_closed_shell()
     return molecule
 
@@ -451,7 +481,7 @@ def _report_energy(console: _Console, result: Any, analysis: dict[str, Any], wal
     console.report(report.format_stability(result))
     console.report(report.format_energies(result))
     console.report(report.format_orbitals(result))
-    console.report(report.format_charges(molecule.symbols, analysis["mulliken_charges"]))
+    console.report(report.format_charges(molecule.symbols, analysis["mulliken_charges"], molecule.ghosts))
     console.report(report.format_dipole(analysis["dipole_au"], DEBYE_PER_AU, molecule.charge != 0))
     console.report(report.format_timings(result.timings, wall))
 
@@ -523,9 +553,7 @@ def _run_compare(args: argparse.Namespace, console: _Console) -> int:
     from .scf import SCFOptions
 
     paths = _output_paths(args, "json", "plot")
-    names = [n.strip() for n in args.basis.split(",") if n.strip()]
-    if not names:
-        raise InputError("--basis: give at least one basis name, e.g. sto-3g,cc-pvdz")
+    names = _basis_names(args)
     molecule = _read_molecule(args)
     options = SCFOptions(stability=args.stability, threads=args.threads)
     comparison = compare_bases(
@@ -551,6 +579,13 @@ def _run_compare(args: argparse.Namespace, console: _Console) -> int:
     console.report(report.format_comparison(comparison))
     _report_written(console, paths.values())
     return 0
+
+
+def _basis_names(args: argparse.Namespace) -> list[str]:
+    names = [n.strip() for n in args.basis.split(",") if n.strip()]
+    if not names:
+        raise InputError("--basis: give at least one basis name, e.g. sto-3g,cc-pvdz")
+    return names
 
 
 def _report_written(console: _Console, paths: Iterable[str]) -> None:

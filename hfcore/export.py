@@ -194,6 +194,7 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
             "n_electrons": mol.n_electrons,
             "symbols": mol.symbols,
             "atomic_numbers": mol.atomic_numbers,
+            "ghost_atoms": [int(k) for k in np.flatnonzero(mol.ghosts)],
             "coordinates_bohr": mol.coordinates,
         },
         "basis": {
@@ -316,6 +317,20 @@ def comparison_record(comparison: Any) -> dict[str, Any]:
     return {"hfcore": {"version": __version__}, "units": UNITS, "comparison": comparison.to_dict()}
 
 
+def interaction_record(study: Any) -> dict[str, Any]:
+    """The JSON record of an interaction study: ``hfcore``, ``units``, ``interaction``."""
+    from . import __version__
+
+    return {"hfcore": {"version": __version__}, "units": UNITS, "interaction": study.to_dict()}
+
+
+def reaction_record(study: Any) -> dict[str, Any]:
+    """The JSON record of a reaction study: ``hfcore``, ``units``, ``reaction``."""
+    from . import __version__
+
+    return {"hfcore": {"version": __version__}, "units": UNITS, "reaction": study.to_dict()}
+
+
 def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS) -> dict[str, np.ndarray]:
     """The arrays of an RHF run, for prototyping new methods on top of it.
 
@@ -332,7 +347,7 @@ def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS
         ``overlap``, ``kinetic``, ``nuclear_attraction``, ``core_hamiltonian``
         (nbf, nbf); ``coefficients`` (nbf, nmo); ``orbital_energies``,
         ``occupations`` (nmo,); ``density`` (total), ``fock`` (nbf, nbf);
-        ``atomic_numbers`` (natom,); ``coordinates`` (natom, 3) in bohr;
+        ``atomic_numbers`` (natom,), ``ghosts`` (natom,) bool; ``coordinates`` (natom, 3) in bohr;
         ``function_atoms``, ``function_l`` (nbf,); ``energy_total`` ();
         ``spherical`` (); and ``eri`` (nbf, nbf, nbf, nbf) in chemists'
         notation (mu nu|lambda sigma) when nbf <= ``eri_max_functions``.
@@ -345,7 +360,7 @@ def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS
     arrays = {
         "overlap": result.overlap,
         "kinetic": integrals.kinetic(basis),
-        "nuclear_attraction": integrals.nuclear_attraction(basis, mol.atomic_numbers, mol.coordinates),
+        "nuclear_attraction": integrals.nuclear_attraction(basis, mol.nuclear_charges, mol.coordinates),
         "core_hamiltonian": result.core_hamiltonian,
         "coefficients": result.coefficients,
         "orbital_energies": result.orbital_energies,
@@ -353,6 +368,7 @@ def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS
         "density": result.density,
         "fock": result.fock,
         "atomic_numbers": mol.atomic_numbers,
+        "ghosts": mol.ghosts,
         "coordinates": mol.coordinates,
         "function_atoms": basis.function_atoms(),
         "function_l": basis.function_l(),
@@ -382,6 +398,8 @@ __all__ = [
     "result_record",
     "sto_fit_record",
     "comparison_record",
+    "interaction_record",
+    "reaction_record",
     "result_arrays",
     "npz_bytes",
 ]

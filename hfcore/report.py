@@ -53,13 +53,28 @@ def format_molecule(molecule: Any) -> str:
         ("electrons", str(molecule.n_electrons)),
         ("nuclear repulsion", f"{molecule.nuclear_repulsion():.10f} Eh"),
     ]
+    ghosts = np.flatnonzero(molecule.ghosts)
+    if ghosts.size:
+        info.append(("ghost atoms", f"{atom_ranges(ghosts)} (basis functions only: no nucleus, no electrons)"))
     lines.append(_pairs(info))
     lines.append("")
     lines.append(f"  {'#':>4}  {'element':<7}  {'x / Å':>13}  {'y / Å':>13}  {'z / Å':>13}")
     xyz = np.asarray(molecule.coordinates) * BOHR_IN_ANGSTROM
     for k, (sym, (x, y, z)) in enumerate(zip(molecule.symbols, xyz), start=1):
-        lines.append(f"  {k:>4}  {sym:<7}  {x:13.6f}  {y:13.6f}  {z:13.6f}")
+        mark = "  ghost" if molecule.ghosts[k - 1] else ""
+        lines.append(f"  {k:>4}  {sym:<7}  {x:13.6f}  {y:13.6f}  {z:13.6f}{mark}")
     return "\n".join(lines)
+
+
+def atom_ranges(atoms: Iterable[int]) -> str:
+    """0-based atom indices as 1-based ranges in file order, e.g. [3, 4, 5, 7] -> "4-6,8"."""
+    runs: list[list[int]] = []
+    for a in sorted(int(k) + 1 for k in atoms):
+        if runs and a == runs[-1][-1] + 1:
+            runs[-1].append(a)
+        else:
+            runs.append([a])
+    return ",".join(str(r[0]) if len(r) == 1 else f"{r[0]}-{r[-1]}" for r in runs)
 
 
 def format_basis(basis: Any, plan: Any = None) -> str:
@@ -235,11 +250,12 @@ def format_orbitals(result: Any, max_virtuals: int = MAX_VIRTUALS_SHOWN) -> str:
     return "\n".join(lines)
 
 
-def format_charges(symbols: Sequence[str], charges: np.ndarray) -> str:
-    """Mulliken atomic charges, one line per atom, in elementary charges."""
+def format_charges(symbols: Sequence[str], charges: np.ndarray, ghosts: Sequence[bool] | None = None) -> str:
+    """Mulliken atomic charges, one line per atom, in elementary charges; ghost atoms marked."""
     lines = [heading("Mulliken charges / e")]
-    for k, (sym, q) in enumerate(zip(symbols, _no_negative_zero(charges, 6)), start=1):
-        lines.append(f"  {k:>4}  {sym:<7}  {q:+10.6f}")
+    marks = ["  ghost" if g else "" for g in ghosts] if ghosts is not None else [""] * len(symbols)
+    for k, (sym, q, mark) in enumerate(zip(symbols, _no_negative_zero(charges, 6), marks), start=1):
+        lines.append(f"  {k:>4}  {sym:<7}  {q:+10.6f}{mark}")
     lines.append(f"  {'sum':>13}  {float(_no_negative_zero(np.sum(charges), 6)):+10.6f}")
     return "\n".join(lines)
 
@@ -422,6 +438,7 @@ __all__ = [
     "EV_PER_HARTREE",
     "heading",
     "format_molecule",
+    "atom_ranges",
     "format_basis",
     "format_linear_dependence",
     "history_header",

@@ -36,6 +36,8 @@ if TYPE_CHECKING:
 
 #: kcal/mol per hartree (CODATA hartree energy × Avogadro constant / 4184 J per kcal).
 KCAL_MOL_PER_HARTREE: float = constants.physical_constants["Hartree energy"][0] * constants.Avogadro / 4184.0
+#: kJ/mol per hartree (CODATA hartree energy × Avogadro constant / 1000 J per kJ).
+KJ_MOL_PER_HARTREE: float = constants.physical_constants["Hartree energy"][0] * constants.Avogadro / 1000.0
 
 GUESSES: tuple[str, ...] = ("auto", "projected", "sad")
 
@@ -415,6 +417,7 @@ def _estimate(method, family, used, cardinals, energy, e_ref, citation) -> Basis
 
 __all__ = [
     "KCAL_MOL_PER_HARTREE",
+    "KJ_MOL_PER_HARTREE",
     "ComparisonRow",
     "BasisLimitEstimate",
     "BasisComparison",

@@ -18,7 +18,7 @@ layer never prints; pass ``progress`` to watch the iterations.
 from __future__ import annotations
 
 from .accelerators import DIIS, Accelerator, Chain, Damping, FockStep, LevelShift, build_accelerator
-from .driver import GUESSES, JKPlan, plan_jk, run_rhf
+from .driver import GUESSES, JKPlan, SharedIntegrals, plan_jk, prepare_integrals, run_rhf
 from .guess import sad_density
 from .jk import DenseJK, IncrementalJK, JKBuilder
 from .options import SCFOptions
@@ -31,6 +31,8 @@ __all__ = [
     "run_rhf",
     "plan_jk",
     "JKPlan",
+    "SharedIntegrals",
+    "prepare_integrals",
     "solve_rhf",
     "GUESSES",
     "sad_density",
