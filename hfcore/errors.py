@@ -59,4 +59,37 @@ class ResourceError(HfcoreError):
     exit_code = 5
 
 
-__all__ = ["HfcoreError", "InputError", "BasisError", "ConvergenceError", "ResourceError"]
+class NumericalError(HfcoreError):
+    """A floating-point failure that input validation did not prevent.
+
+    Overflow, an invalid value (NaN) or a linear-algebra routine that did not
+    converge. Validated input should never lead here; the command line turns
+    such a failure into this error instead of a numpy warning or traceback.
+    """
+
+    exit_code = 6
+
+
+class ResultsFileError(InputError):
+    """A batch results file that cannot be used: unreadable, not a results
+    file, written by another version of hfcore, or held by another batch."""
+
+    exit_code = 11
+
+
+class SchedulerError(HfcoreError):
+    """A Dask scheduler that does not answer (or the Dask extra is missing)."""
+
+    exit_code = 12
+
+
+__all__ = [
+    "HfcoreError",
+    "InputError",
+    "BasisError",
+    "ConvergenceError",
+    "ResourceError",
+    "NumericalError",
+    "ResultsFileError",
+    "SchedulerError",
+]

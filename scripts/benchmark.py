@@ -15,10 +15,16 @@ Usage::
                                                 # density-fitted runs against the reference library's
     python scripts/benchmark.py --fitted-scaling --only "(H2O)2/cc-pVTZ/DF,(H2O)14/cc-pVTZ/DF"
     python scripts/benchmark.py --json out.json
+    python scripts/benchmark.py --exact-tz      # benzene/cc-pVTZ, integrals stored
+    python scripts/benchmark.py --speedup       # two threads against one, benzene/cc-pVDZ
 
 The table reports wall times (integrals and SCF separately for hfcore), the
 hfcore/reference ratio, the energy difference, iteration counts and peak
-resident memory. Benchmarks are not tests: nothing here asserts a time.
+resident memory. ``proc/s`` is the whole child process (interpreter start,
+imports, run) as the parent timed it; peak memory is the child's own
+maximum resident set. hfcore's J/K mode (stored, stored-lean or direct) is
+the one its automatic choice makes unless a case forces it. Benchmarks are
+not tests: nothing here asserts a time.
 """
 
 from __future__ import annotations
@@ -53,7 +59,13 @@ FITTED_CASES = [
 FITTED_SCALING = [
     (f"(H2O){n}/cc-pVTZ/DF", f"water_cluster_{n}.xyz", "cc-pvtz", "cc-pvtz-jkfit") for n in (2, 4, 6, 8, 10, 14)
 ]
+#: Exact (stored) benzene in cc-pVTZ, 264 functions: minutes per program.
+EXACT_TZ = [("benzene/cc-pVTZ", "benzene.xyz", "cc-pvtz", None)]
+#: The case of the two-thread speed-up.
+SPEEDUP = ("benzene/cc-pVDZ", "benzene.xyz", "cc-pvdz", None)
 
+#: Memory the reference library may use for stored integrals (MB).
+REFERENCE_MEMORY_MB = 12000
 ENERGY_TOL = 1e-10
 GRADIENT_TOL = 1e-7
 
@@ -78,7 +90,8 @@ def _run_hfcore(path: str, basis_name: str, spherical, threads: int, queue) -> N
         t0 = time.perf_counter()
         mol = hfcore.read_xyz(path)
         basis = hfcore.build_basis(mol, basis_name, spherical=spherical)
-        res = hfcore.run_rhf(mol, basis, SCFOptions(energy_tol=ENERGY_TOL, gradient_tol=GRADIENT_TOL))
+        options = SCFOptions(energy_tol=ENERGY_TOL, gradient_tol=GRADIENT_TOL, threads=threads)
+        res = hfcore.run_rhf(mol, basis, options)
         wall = time.perf_counter() - t0
         timings = dict(res.timings)
         queue.put(
@@ -90,6 +103,7 @@ def _run_hfcore(path: str, basis_name: str, spherical, threads: int, queue) -> N
                 "wall": wall,
                 "integrals": timings.get("integrals", math.nan),
                 "scf": timings.get("scf", math.nan),
+                "jk_mode": res.jk_mode,
                 "peak_mib": _peak_mib(),
                 "shells": _shell_dump(mol, basis),
             }
@@ -124,7 +138,10 @@ def _run_reference(dump: dict, spherical: bool, threads: int, queue) -> None:
             atoms.append((label, r))
             basis[label] = [[l] + [[e, *cs] for e, cs in zip(exps, zip(*coefs))] for l, exps, coefs in dump["per_atom"][k]]
         t0 = time.perf_counter()
-        mol = gto.M(atom=atoms, basis=basis, unit="Bohr", charge=dump["charge"], cart=not spherical, verbose=0)
+        # Room to store the integrals, as hfcore does when they fit; the
+        # library's default budget (4000 MB) would send benzene/cc-pVTZ direct.
+        mol = gto.M(atom=atoms, basis=basis, unit="Bohr", charge=dump["charge"], cart=not spherical, verbose=0,
+                    max_memory=REFERENCE_MEMORY_MB)
         mf = scf.RHF(mol)
         mf.conv_tol = ENERGY_TOL
         mf.conv_tol_grad = GRADIENT_TOL
@@ -146,7 +163,7 @@ def _run_hfcore_fitted(path: str, basis_name: str, fit_name: str, threads: int, 
         t0 = time.perf_counter()
         mol = hfcore.read_xyz(path)
         basis = hfcore.build_basis(mol, basis_name)
-        options = SCFOptions(energy_tol=ENERGY_TOL, gradient_tol=GRADIENT_TOL, fit_basis=fit_name)
+        options = SCFOptions(energy_tol=ENERGY_TOL, gradient_tol=GRADIENT_TOL, fit_basis=fit_name, threads=threads)
         res = hfcore.run_rhf(mol, basis, options)
         wall = time.perf_counter() - t0
         queue.put(
@@ -159,6 +176,7 @@ def _run_hfcore_fitted(path: str, basis_name: str, fit_name: str, threads: int, 
                 "wall": wall,
                 "integrals": res.timings.get("integrals", math.nan),
                 "scf": res.timings.get("scf", math.nan),
+                "jk_mode": res.jk_mode,
                 "peak_mib": _peak_mib(),
                 "shells": _shell_dump(mol, basis),
                 "fit_shells": _shell_dump(mol, res.fit_basis),
@@ -188,7 +206,9 @@ def _run_reference_fitted(dump: dict, fit_dump: dict, spherical: bool, threads: 
         atoms, basis = _reference_basis(dump)
         _, auxbasis = _reference_basis(fit_dump)
         t0 = time.perf_counter()
-        mol = gto.M(atom=atoms, basis=basis, unit="Bohr", charge=dump["charge"], cart=not spherical, verbose=0)
+        # The same room as for the stored runs, so the fitted factors stay in memory as hfcore's do.
+        mol = gto.M(atom=atoms, basis=basis, unit="Bohr", charge=dump["charge"], cart=not spherical, verbose=0,
+                    max_memory=REFERENCE_MEMORY_MB)
         mf = scf.RHF(mol).density_fit(auxbasis=auxbasis)
         mf.conv_tol = ENERGY_TOL
         mf.conv_tol_grad = GRADIENT_TOL
@@ -217,6 +237,7 @@ def run_fitted_case(label: str, geometry: str, basis: str, fit: str, threads: in
     else:
         row.update({f"reference_{k}": v for k, v in ref.items()})
         row["ratio"] = ours["wall"] / ref["wall"]
+        row["process_ratio"] = ours["process_wall"] / ref["process_wall"]
         row["memory_ratio"] = ours["peak_mib"] / ref["peak_mib"]
         row["energy_difference"] = ours["energy"] - ref["energy"]
     return row
@@ -226,9 +247,11 @@ def _in_child(target, *args) -> dict:
     ctx = mp.get_context("spawn")
     queue = ctx.Queue()
     proc = ctx.Process(target=target, args=(*args, queue))
+    t0 = time.perf_counter()
     proc.start()
     out = queue.get()
     proc.join()
+    out["process_wall"] = time.perf_counter() - t0
     return out
 
 
@@ -241,6 +264,7 @@ def run_case(label: str, geometry: str, basis: str, spherical, threads: int) -> 
         row["error"] = ours["error"]
         return row
     dump = ours.pop("shells")
+    print(f"  hfcore: {json.dumps(ours)}", file=sys.stderr, flush=True)
     row.update({f"hfcore_{k}": v for k, v in ours.items() if k not in {"n_functions", "spherical"}})
     row["n_functions"] = ours["n_functions"]
     row["spherical"] = ours["spherical"]
@@ -250,7 +274,33 @@ def run_case(label: str, geometry: str, basis: str, spherical, threads: int) -> 
     else:
         row.update({f"reference_{k}": v for k, v in ref.items()})
         row["ratio"] = ours["wall"] / ref["wall"]
+        row["process_ratio"] = ours["process_wall"] / ref["process_wall"]
+        row["memory_ratio"] = ours["peak_mib"] / ref["peak_mib"]
         row["energy_difference"] = ours["energy"] - ref["energy"]
+    return row
+
+
+def speedup(label: str, geometry: str, basis: str, spherical) -> dict:
+    """Whole-process time on one thread over that on two, for each program, one child process each run."""
+    path = str(INPUTS / geometry)
+    one = _in_child(_run_hfcore, path, basis, spherical, 1)
+    two = _in_child(_run_hfcore, path, basis, spherical, 2)
+    row = {"case": label}
+    if "error" in one or "error" in two:
+        row["error"] = one.get("error") or two.get("error")
+        return row
+    dump = one.pop("shells")
+    two.pop("shells")
+    row["hfcore_speedup"] = one["process_wall"] / two["process_wall"]
+    row["hfcore_process_wall"] = (one["process_wall"], two["process_wall"])
+    row["hfcore_integrals"] = (one["integrals"], two["integrals"])
+    row["hfcore_scf"] = (one["scf"], two["scf"])
+    row["same_energy"] = one["energy"] == two["energy"]
+    ref_one = _in_child(_run_reference, dump, one["spherical"], 1)
+    ref_two = _in_child(_run_reference, dump, one["spherical"], 2)
+    if "error" not in ref_one and "error" not in ref_two:
+        row["reference_speedup"] = ref_one["process_wall"] / ref_two["process_wall"]
+        row["reference_process_wall"] = (ref_one["process_wall"], ref_two["process_wall"])
     return row
 
 
@@ -268,8 +318,8 @@ def scaling_exponent(rows: list[dict], key: str) -> float | None:
 
 def _format(rows: list[dict]) -> str:
     head = (
-        f"{'case':<18}{'nbf':>5}{'ints/s':>9}{'scf/s':>8}{'hfcore/s':>10}{'ref/s':>8}{'ratio':>7}"
-        f"{'dE/Eh':>10}{'it':>4}{'ref it':>7}{'MiB':>7}{'ref MiB':>8}"
+        f"{'case':<18}{'nbf':>5}{'mode':>12}{'ints/s':>9}{'scf/s':>8}{'hfcore/s':>10}{'ref/s':>8}{'ratio':>7}"
+        f"{'proc':>6}{'dE/Eh':>10}{'it':>4}{'ref it':>7}{'MiB':>7}{'ref MiB':>8}{'mem':>6}"
     )
     lines = [head, "-" * len(head)]
     for r in rows:
@@ -278,13 +328,17 @@ def _format(rows: list[dict]) -> str:
             continue
         ref = "reference_wall" in r
         lines.append(
-            f"{r['case']:<18}{r['n_functions']:>5}{r['hfcore_integrals']:>9.3f}{r['hfcore_scf']:>8.3f}"
-            f"{r['hfcore_wall']:>10.3f}"
-            + (f"{r['reference_wall']:>8.3f}{r['ratio']:>7.2f}{r['energy_difference']:>10.1e}" if ref else f"{'-':>8}{'-':>7}{'-':>10}")
+            f"{r['case']:<18}{r['n_functions']:>5}{r['hfcore_jk_mode']:>12}{r['hfcore_integrals']:>9.3f}"
+            f"{r['hfcore_scf']:>8.3f}{r['hfcore_wall']:>10.3f}"
+            + (
+                f"{r['reference_wall']:>8.3f}{r['ratio']:>7.2f}{r['process_ratio']:>6.2f}{r['energy_difference']:>10.1e}"
+                if ref
+                else f"{'-':>8}{'-':>7}{'-':>6}{'-':>10}"
+            )
             + f"{r['hfcore_iterations']:>4}"
             + (f"{r['reference_iterations']:>7}" if ref else f"{'-':>7}")
             + f"{r['hfcore_peak_mib']:>7.0f}"
-            + (f"{r['reference_peak_mib']:>8.0f}" if ref else f"{'-':>8}")
+            + (f"{r['reference_peak_mib']:>8.0f}{r['memory_ratio']:>6.2f}" if ref else f"{'-':>8}{'-':>6}")
         )
     return "\n".join(lines)
 
@@ -296,13 +350,16 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--fitted", action="store_true", help="also run the density-fitted benzene cases")
     parser.add_argument("--fitted-scaling", action="store_true",
                         help="also run the fitted water-cluster series in cc-pVTZ and fit its cost exponent")
-    parser.add_argument("--only", help="comma-separated case labels to run")
+    parser.add_argument("--exact-tz", action="store_true", help="also run benzene/cc-pVTZ with stored integrals")
+    parser.add_argument("--speedup", action="store_true",
+                        help="also time benzene/cc-pVDZ on two threads against one (whole process, each program)")
+    parser.add_argument("--only", help="comma-separated case labels to run ('none' for no fixed case)")
     parser.add_argument("--json", help="write the rows as JSON to this path ('-' for stdout)")
     args = parser.parse_args(argv)
-    cases = CASES + (SCALING if args.scaling else [])
+    cases = CASES + (SCALING if args.scaling else []) + (EXACT_TZ if args.exact_tz else [])
     if args.only:
         wanted = {s.strip() for s in args.only.split(",")}
-        cases = [c for c in cases if c[0] in wanted]
+        cases = [c for c in cases if c[0] in wanted or (c in EXACT_TZ and args.exact_tz)]
     fitted = (FITTED_CASES if args.fitted else []) + (FITTED_SCALING if args.fitted_scaling else [])
     if args.only:
         fitted = [c for c in fitted if c[0] in wanted]
@@ -322,6 +379,9 @@ def main(argv: list[str] | None = None) -> int:
     if series:
         summary["scaling_exponent_hfcore"] = scaling_exponent(series, "hfcore_wall")
         summary["scaling_exponent_reference"] = scaling_exponent(series, "reference_wall")
+    if args.speedup:
+        print(f"running {SPEEDUP[0]} on one and two threads ...", file=sys.stderr, flush=True)
+        summary["speedup"] = speedup(*SPEEDUP)
     if args.json:
         text = json.dumps({"threads": args.threads, "rows": rows, "summary": summary}, indent=2)
         if args.json == "-":
@@ -331,9 +391,26 @@ def main(argv: list[str] | None = None) -> int:
     print(f"threads: {args.threads}; energy threshold {ENERGY_TOL:g} Eh, gradient {GRADIENT_TOL:g}")
     print(_format(rows))
     for key, value in summary.items():
-        if value is not None:
+        if isinstance(value, dict):
+            print(_format_speedup(value))
+        elif value is not None:
             print(f"{key}: {value:.2f}")
     return 0
+
+
+def _format_speedup(row: dict) -> str:
+    if "error" in row:
+        return f"speed-up {row['case']}: failed: {row['error']}"
+    one, two = row["hfcore_process_wall"]
+    text = (
+        f"two threads against one, {row['case']}, whole process: hfcore {one:.2f} s / {two:.2f} s = "
+        f"{row['hfcore_speedup']:.2f} (integrals {row['hfcore_integrals'][0]:.2f} / {row['hfcore_integrals'][1]:.2f} s, "
+        f"SCF {row['hfcore_scf'][0]:.2f} / {row['hfcore_scf'][1]:.2f} s; same energy: {row['same_energy']})"
+    )
+    if "reference_speedup" in row:
+        r1, r2 = row["reference_process_wall"]
+        text += f"; reference {r1:.2f} s / {r2:.2f} s = {row['reference_speedup']:.2f}"
+    return text
 
 
 if __name__ == "__main__":

@@ -9,12 +9,13 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from .. import integrals
-from ..basis import build_basis
+from ..basis import build_basis, require_room_for
 from ..basis.fitting import FittingChoice, fitting_basis
 from ..basis.shells import BasisSet
 from ..errors import ConvergenceError, InputError, ResourceError
 from ..geometry import Molecule
-from ..integrals.store import STORE_LIMIT_BYTES
+from ..integrals.pool import blas_threads
+from ..integrals.store import EXCHANGE_KERNEL_LIMIT_BYTES, STORE_LIMIT_BYTES
 from .fitted_jk import FittedJK, FittingPlan, plan_fitting
 from .guess import sad_density
 from .jk import IncrementalJK, JKBuilder
@@ -33,6 +34,7 @@ def run_rhf(
     guess: str | np.ndarray = "sad",
     progress: Progress | None = None,
     integral_progress: Callable[[float], None] | None = None,
+    shared: "SharedIntegrals | None" = None,
 ) -> RHFResult:
     """Restricted Hartree-Fock energy and orbitals of a closed-shell molecule.
 
@@ -54,11 +56,19 @@ def run_rhf(
     integral_progress : callable, optional
         Called with the fraction (0..1] of the stored-integral pass done;
         the direct mode has no such pass (its cost shows per iteration).
+    shared : SharedIntegrals, optional
+        The overlap, kinetic and two-electron integrals of ``basis`` from
+        :func:`prepare_integrals`, reused instead of computed again; only
+        the nuclear attraction of ``molecule`` is computed. Several
+        molecules that differ only in their ghost atoms and charge share
+        one basis and so one set (a counterpoise calculation).
 
     Returns
     -------
     RHFResult
-        Timings hold "integrals", "guess", "scf" and "total" seconds;
+        Timings hold "integrals", "guess", "scf", "stability" and "total"
+        seconds; ``stability`` and ``aufbau`` say what was checked after
+        convergence (see ``options.stability``);
         ``jk_mode`` and ``eri_bytes`` say how J and K were built
         (see :func:`plan_jk`).
 
@@ -73,24 +83,38 @@ def run_rhf(
         No convergence within ``options.max_iterations``; ``.result`` holds
         the unconverged record (with molecule and basis filled in).
     """
-    t0 = time.perf_counter()
     options = options or SCFOptions()
+    with blas_threads(options.n_threads):
+        return _run_rhf(molecule, basis, options, guess, progress, integral_progress, shared)
+
+
+def _run_rhf(
+    molecule: Molecule,
+    basis: BasisSet | str,
+    options: SCFOptions,
+    guess: str | np.ndarray,
+    progress: Progress | None,
+    integral_progress: Callable[[float], None] | None,
+    shared: "SharedIntegrals | None",
+) -> RHFResult:
+    t0 = time.perf_counter()
     molecule.require_closed_shell()
     if isinstance(basis, str):
         basis = build_basis(molecule, basis)
+    require_room_for(molecule, basis)
     guess_density = _checked_guess(guess, basis)
-    overlap = integrals.overlap(basis)
-    hcore = integrals.kinetic(basis) + integrals.nuclear_attraction(
-        basis, molecule.atomic_numbers.astype(np.float64), molecule.coordinates
-    )
-    fitting = None
-    if options.fit_basis is not None:
-        fitting = fitting_basis(molecule, basis, options.fit_basis)
-    plan = plan_jk(basis, options, fitting=fitting, n_occupied=molecule.n_electrons // 2)
-    jk = _jk_builder(basis, options, plan, integral_progress)
+    if shared is None:
+        shared = prepare_integrals(basis, options, integral_progress, molecule=molecule)
+    elif shared.basis is not basis:
+        raise InputError("shared integrals belong to another basis; build them with prepare_integrals(basis)")
+    overlap = shared.overlap
+    hcore = shared.kinetic + integrals.nuclear_attraction(basis, molecule.nuclear_charges, molecule.coordinates)
+    plan = shared.plan
+    jk = shared.jk_builder()
     t_integrals = time.perf_counter()
     if isinstance(guess, str) and guess.lower() == "sad":
-        guess_density = sad_density(basis, molecule.atomic_numbers, jk)
+        # Ghost atoms enter with charge 0, which gives them no density.
+        guess_density = sad_density(basis, np.where(molecule.ghosts, 0, molecule.atomic_numbers), jk)
         if isinstance(jk, IncrementalJK):
             # The SCF starts from a full build, not from a change to an atom's density.
             jk.reset()
@@ -101,6 +125,7 @@ def run_rhf(
             "integrals": t_integrals - t0,
             "guess": t_sad + result.timings["guess"],
             "scf": result.timings["scf"],
+            "stability": result.timings.get("stability", 0.0),
             "total": time.perf_counter() - t0,
         }
         fitted = {}
@@ -143,12 +168,16 @@ class JKPlan:
 
     Attributes
     ----------
-    mode : {"stored", "direct", "fitted"}
-        Store the integrals once, recompute them every iteration, or fit them.
+    mode : {"stored", "stored-lean", "direct", "fitted"}
+        Store the integrals once with an exchange kernel beside them
+        (16 bytes per unique integral, the fastest builds), store them alone
+        and build K from them directly (8 bytes), recompute them every
+        iteration, or fit them (``options.fit_basis``).
     eri_bytes : int
         Memory the stored integrals need (bytes), from
-        :func:`hfcore.integrals.estimate_eri_memory`; in fitted mode the
-        predicted peak of the fitted way chosen.
+        :func:`hfcore.integrals.estimate_eri_memory`: the lean size for
+        "stored-lean", the size with the exchange kernel otherwise; in
+        fitted mode the predicted peak of the fitted way chosen.
     limit_bytes : int
         The budget they were measured against (bytes): ``memory_limit``,
         capped at :data:`hfcore.integrals.store.STORE_LIMIT_BYTES`.
@@ -171,14 +200,19 @@ class JKPlan:
 def plan_jk(
     basis: BasisSet, options: SCFOptions | None = None, *, fitting: FittingChoice | None = None, n_occupied: int = 1
 ) -> JKPlan:
-    """Choose stored, direct or fitted J/K builds for a basis, per ``options``.
+    """Choose stored, lean stored, direct or fitted J/K builds for a basis, per ``options``.
 
     Parameters
     ----------
     basis : BasisSet
     options : SCFOptions, optional
-        ``direct`` True or False forces the mode; None picks stored if it
-        fits within ``memory_limit``, else direct.
+        ``direct=True`` forces the direct mode. Otherwise the integrals are
+        stored with their exchange kernel if that fits within
+        ``memory_limit`` and within
+        :data:`hfcore.integrals.store.EXCHANGE_KERNEL_LIMIT_BYTES` (beyond
+        it the kernel costs more than it saves), else stored alone
+        ("stored-lean") if that fits; else ``direct=None`` goes direct and
+        ``direct=False`` fails.
     fitting : FittingChoice, optional
         The placed fitting set when ``options.fit_basis`` is set (from
         :func:`hfcore.basis.fitting.fitting_basis`); the plan is then
@@ -193,8 +227,8 @@ def plan_jk(
     Raises
     ------
     ResourceError
-        If stored integrals are forced (``direct=False``) and do not fit,
-        or fitted ones do not fit even in blocks.
+        If stored integrals are forced (``direct=False``) and not even the
+        lean store fits, or fitted ones do not fit even in blocks.
     InputError
         If ``options.fit_basis`` is set but no ``fitting`` is given.
     """
@@ -206,18 +240,103 @@ def plan_jk(
         fplan = plan_fitting(basis, fitting.basis, n_occupied, limit)
         return JKPlan("fitted", fplan.need_bytes, limit, fplan, fitting.basis, fitting.notes)
     need = integrals.estimate_eri_memory(basis)
+    lean = integrals.estimate_eri_memory(basis, lean=True)
     limit = min(options.memory_limit_bytes, STORE_LIMIT_BYTES)
-    if options.direct is None:
-        mode = "stored" if need <= limit else "direct"
+    if options.direct:
+        mode = "direct"
+    elif need <= min(limit, EXCHANGE_KERNEL_LIMIT_BYTES):
+        mode = "stored"
+    elif lean <= limit:
+        mode = "stored-lean"
+    elif options.direct is None:
+        mode = "direct"
     else:
-        mode = "direct" if options.direct else "stored"
-    if mode == "stored" and need > limit:
         raise ResourceError(
-            f"stored integrals for {basis.n_functions} functions need {need / 2**20:.3g} MiB but "
-            f"{limit / 2**20:.3g} MiB are allowed; use the direct mode (--direct, direct=True) "
-            f"or raise the limit (--memory MIB, memory_limit)"
+            f"stored integrals for {basis.n_functions} functions need {lean / 2**20:.3g} MiB "
+            f"({need / 2**20:.3g} MiB with the exchange kernel) but {limit / 2**20:.3g} MiB are allowed; "
+            f"use the direct mode (--direct, direct=True) or raise the limit (--memory MIB, memory_limit)"
         )
-    return JKPlan(mode, need, limit)
+    return JKPlan(mode, lean if mode == "stored-lean" else need, limit)
+
+
+@dataclass(frozen=True)
+class SharedIntegrals:
+    """The integrals of a basis that do not depend on the nuclear charges.
+
+    Made by :func:`prepare_integrals`; handed to :func:`run_rhf` for each
+    molecule on the same basis (the same atoms, some of them ghosts).
+
+    Attributes
+    ----------
+    basis : BasisSet
+    overlap, kinetic : ndarray, shape (nbf, nbf)
+        Overlap S and kinetic energy T (hartree).
+    plan : JKPlan
+        How J and K are built.
+    engine : JKBuilder
+        The builder :func:`run_rhf` would make: the stored integrals, or the
+        direct mode's incremental builder (copied fresh for every run).
+    seconds : float
+        Wall-clock time it took to compute them.
+    """
+
+    basis: BasisSet
+    overlap: np.ndarray
+    kinetic: np.ndarray
+    plan: JKPlan
+    engine: JKBuilder
+    seconds: float
+
+    def jk_builder(self) -> JKBuilder:
+        """A J/K builder for one SCF run: the store itself, or a fresh incremental builder on the same engine."""
+        if isinstance(self.engine, IncrementalJK):
+            return IncrementalJK(self.engine.engine, self.engine.rebuild_interval)
+        return self.engine
+
+
+def prepare_integrals(
+    basis: BasisSet, options: SCFOptions | None = None, integral_progress: Callable[[float], None] | None = None,
+    *, molecule: Molecule | None = None,
+) -> SharedIntegrals:
+    """Overlap, kinetic and two-electron integrals of a basis, for one or more RHF runs.
+
+    Parameters
+    ----------
+    basis : BasisSet
+    options : SCFOptions, optional
+        ``direct``, ``memory_limit`` and ``screening`` choose how the
+        two-electron part is built (see :func:`plan_jk`).
+    integral_progress : callable, optional
+        As for :func:`run_rhf`.
+    molecule : Molecule, optional
+        Needed with ``options.fit_basis``, to place the fitting set on the
+        same atoms (ghosts included) and size the blocked fitted way.
+
+    Returns
+    -------
+    SharedIntegrals
+
+    Raises
+    ------
+    ResourceError
+        As :func:`plan_jk`.
+    InputError
+        ``options.fit_basis`` without ``molecule``.
+    """
+    t0 = time.perf_counter()
+    options = options or SCFOptions()
+    if options.fit_basis is not None:
+        if molecule is None:
+            raise InputError("prepare_integrals: options.fit_basis needs the molecule (molecule=...) to place the fitting set")
+        fitting = fitting_basis(molecule, basis, options.fit_basis)
+        plan = plan_jk(basis, options, fitting=fitting, n_occupied=molecule.n_electrons // 2)
+    else:
+        plan = plan_jk(basis, options)
+    with blas_threads(options.n_threads):
+        overlap = integrals.overlap(basis)
+        kinetic = integrals.kinetic(basis)
+        engine = _jk_builder(basis, options, plan, integral_progress)
+    return SharedIntegrals(basis, overlap, kinetic, plan, engine, time.perf_counter() - t0)
 
 
 def _jk_builder(
@@ -226,9 +345,12 @@ def _jk_builder(
     if plan.mode == "fitted":
         return FittedJK(basis, plan.fit_basis, plan.fitting, threshold=options.screening)
     if plan.mode == "direct":
-        engine = integrals.DirectERI(basis, threshold=options.screening)
+        engine = integrals.DirectERI(basis, threshold=options.screening, threads=options.n_threads)
         return IncrementalJK(engine, options.rebuild_interval)
-    return integrals.compute_eri(basis, threshold=options.screening, progress=integral_progress)
+    return integrals.compute_eri(
+        basis, threshold=options.screening, progress=integral_progress, threads=options.n_threads,
+        lean=plan.mode == "stored-lean",
+    )
 
 
-__all__ = ["run_rhf", "plan_jk", "JKPlan", "GUESSES"]
+__all__ = ["run_rhf", "plan_jk", "JKPlan", "GUESSES", "SharedIntegrals", "prepare_integrals"]
