@@ -203,7 +203,7 @@ def interaction_energies(
     rows = []
     for name in names:
         t0 = time.perf_counter()
-        shared = prepare_integrals(basis_of[name], options) if reuse_integrals else None
+        shared = prepare_integrals(basis_of[name], options, molecule=complex_molecule) if reuse_integrals else None
         integral_seconds = shared.seconds if shared is not None else 0.0
         energies: dict[tuple[str, int | None], float] = {}
         densities: dict[int, np.ndarray] = {}
