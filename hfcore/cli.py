@@ -22,6 +22,7 @@ import numpy as np
 
 from . import __version__, elements, export, report
 from .errors import HfcoreError, InputError, ResourceError
+from .geometry import BOHR_IN_ANGSTROM
 
 #: Exit code after Ctrl-C (128 + SIGINT), the shell convention.
 EXIT_INTERRUPTED: int = 130
@@ -157,6 +158,17 @@ def build_parser() -> argparse.ArgumentParser:
         f"tensor too when there are at most {export.ERI_NPZ_MAX_FUNCTIONS} basis functions) as .npz",
     )
     energy.add_argument("--quiet", action="store_true", help="no live iteration table; the final report only")
+    post = energy.add_argument_group("after the SCF")
+    post.add_argument("--mp2", action="store_true", help="add the MP2 and SCS-MP2 correlation energies")
+    post.add_argument(
+        "--frozen-core", action="store_true",
+        help="with --mp2: leave the noble-gas core orbitals (1s of Li-Ne, 1s-2p of Na-Ar) uncorrelated "
+        "(default: all electrons correlated)",
+    )
+    post.add_argument(
+        "--origin", nargs=3, type=float, metavar=("X", "Y", "Z"),
+        help="origin of the dipole and quadrupole, in the units of --units (default: the centre of mass)",
+    )
     energy.set_defaults(handler=_run_energy)
 
     fit = sub.add_parser("fit-sto", help="least-squares Gaussian expansion of a Slater function")
@@ -295,17 +307,46 @@ def _scf_options(args: argparse.Namespace) -> Any:
     return SCFOptions(**given)
 
 
-def _analysis(result: Any) -> dict[str, Any]:
-    """Mulliken charges and the dipole moment, in the units the JSON record states."""
-    from .analysis import DEBYE_PER_AU, dipole_moment, mulliken_charges
+def _analysis(result: Any, origin: np.ndarray | None = None) -> dict[str, Any]:
+    """Charges, orbital properties and multipoles, in the units the JSON record states."""
+    from .analysis import (
+        DEBYE_ANGSTROM_PER_AU,
+        DEBYE_PER_AU,
+        centre_of_mass,
+        dipole_moment,
+        lowdin_charges,
+        mulliken_charges,
+        orbital_properties,
+        quadrupole_moment,
+    )
 
-    dipole = dipole_moment(result)
+    o = centre_of_mass(result.molecule) if origin is None else np.asarray(origin, dtype=np.float64)
+    dipole = dipole_moment(result, o)
+    quadrupole = quadrupole_moment(result, o)
     return {
         "mulliken_charges": mulliken_charges(result),
+        "lowdin_charges": lowdin_charges(result),
+        **orbital_properties(result).to_dict(),
+        "origin_bohr": o,
+        "origin_is_centre_of_mass": origin is None,
         "dipole_au": dipole,
         "dipole_debye": dipole * DEBYE_PER_AU,
         "dipole_magnitude_debye": float(np.linalg.norm(dipole)) * DEBYE_PER_AU,
+        "quadrupole_au": quadrupole,
+        "quadrupole_debye_angstrom": quadrupole * DEBYE_ANGSTROM_PER_AU,
     }
+
+
+def _mp2(args: argparse.Namespace, result: Any, console: _Console) -> Any:
+    """The MP2 record when --mp2 was given, else None."""
+    if not args.mp2:
+        return None
+    from .analysis import core_orbital_count, mp2_energy
+
+    if not console.json_to_stdout:
+        print("hfcore: MP2 correlation energy ...", file=console.stderr, flush=True)
+    frozen = core_orbital_count(result.molecule) if args.frozen_core else 0
+    return mp2_energy(result, frozen_core=frozen)
 
 
 # ----------------------------------------------------------------------------
@@ -351,6 +392,9 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
     basis = _build_basis(args, molecule)
     options = _scf_options(args)
     plan = plan_jk(basis, options)  # a forced store that cannot fit fails before any output
+    if args.frozen_core and not args.mp2:
+        raise InputError("--frozen-core applies to the MP2 energy only; add --mp2")
+    origin = None if args.origin is None else np.asarray(args.origin) / (BOHR_IN_ANGSTROM if args.units == "angstrom" else 1.0)
     console.report(f"hfcore {__version__} · restricted Hartree–Fock")
     console.report(report.format_molecule(molecule))
     console.report(report.format_basis(basis, plan))
@@ -360,7 +404,12 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
         molecule, basis, options, guess=args.guess, progress=lambda rec: console.live(report.format_iteration(rec)),
         integral_progress=integral_progress,
     )
-    record = export.result_record(result, _analysis(result))
+    mp2_started = time.perf_counter()
+    mp2 = _mp2(args, result, console)
+    record = export.result_record(result, _analysis(result, origin))
+    if mp2 is not None:
+        record["mp2"] = mp2.to_dict()
+        record["timings"]["mp2"] = time.perf_counter() - mp2_started
     files: dict[str, bytes] = {}
     if "json" in paths:
         files[paths["json"]] = export.to_json(record).encode("utf-8")
@@ -370,24 +419,30 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
     if args.json == "-":
         console.data(export.to_json(record))
     else:
-        _report_energy(console, result, record["analysis"], time.perf_counter() - started)
+        _report_energy(console, result, record, time.perf_counter() - started, mp2)
         _report_written(console, files)
     return 0
 
 
-def _report_energy(console: _Console, result: Any, analysis: dict[str, Any], wall: float) -> None:
-    from .analysis import DEBYE_PER_AU
+def _report_energy(console: _Console, result: Any, record: dict[str, Any], wall: float, mp2: Any = None) -> None:
+    from .analysis import DEBYE_ANGSTROM_PER_AU, DEBYE_PER_AU
 
+    analysis = record["analysis"]
     molecule = result.molecule
     if console.quiet:
         console.report(report.heading("SCF"))
     console.report(report.format_convergence(result))
     console.report(report.format_linear_dependence(result.n_dropped, result.options.lindep_threshold))
     console.report(report.format_energies(result))
+    if mp2 is not None:
+        console.report(report.format_mp2(mp2))
     console.report(report.format_orbitals(result))
-    console.report(report.format_charges(molecule.symbols, analysis["mulliken_charges"]))
-    console.report(report.format_dipole(analysis["dipole_au"], DEBYE_PER_AU, molecule.charge != 0))
-    console.report(report.format_timings(result.timings, wall))
+    console.report(report.format_properties(analysis))
+    console.report(report.format_charges(molecule.symbols, analysis["mulliken_charges"], analysis["lowdin_charges"]))
+    console.report(report.format_dipole(analysis["dipole_au"], DEBYE_PER_AU, molecule.charge != 0,
+                                        analysis["origin_is_centre_of_mass"]))
+    console.report(report.format_quadrupole(analysis["quadrupole_au"], DEBYE_ANGSTROM_PER_AU))
+    console.report(report.format_timings(record["timings"], wall))
 
 
 def _run_fit_sto(args: argparse.Namespace, console: _Console) -> int:

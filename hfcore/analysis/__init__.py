@@ -1,5 +1,5 @@
-"""Post-SCF analysis: populations, multipoles, MP2, basis-limit extrapolation,
-and a driver comparing several basis sets.
+"""Post-SCF analysis: populations, multipoles, orbital properties, MP2 and
+SCS-MP2, basis-limit extrapolation, and a driver comparing several basis sets.
 
 Everything here except :func:`compare_bases` works on a finished
 :class:`hfcore.scf.RHFResult` and never runs the SCF itself.
@@ -17,8 +17,17 @@ from .compare import (
     project_density,
 )
 from .extrapolation import cardinal_number, correlation_consistent, feller_three_point, karton_martin_two_point
-from .mp2 import MP2Result, core_orbital_count, mp2_energy
-from .multipoles import DEBYE_PER_AU, dipole_moment, nuclear_charge_centre
+from .mp2 import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, MP2Result, core_orbital_count, mp2_energy
+from .multipoles import (
+    DEBYE_ANGSTROM_PER_AU,
+    DEBYE_PER_AU,
+    centre_of_mass,
+    dipole_moment,
+    nuclear_charge_centre,
+    quadrupole_moment,
+    second_moment,
+)
+from .properties import OrbitalProperties, orbital_properties
 from .populations import lowdin_charges, lowdin_populations, mulliken_charges, mulliken_populations
 
 __all__ = [
@@ -29,6 +38,14 @@ __all__ = [
     "DEBYE_PER_AU",
     "dipole_moment",
     "nuclear_charge_centre",
+    "centre_of_mass",
+    "DEBYE_ANGSTROM_PER_AU",
+    "second_moment",
+    "quadrupole_moment",
+    "OrbitalProperties",
+    "orbital_properties",
+    "SCS_OPPOSITE_SPIN",
+    "SCS_SAME_SPIN",
     "MP2Result",
     "mp2_energy",
     "core_orbital_count",

@@ -28,7 +28,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ..errors import ConvergenceError, InputError
+from ..errors import ConvergenceError, InputError, ResourceError
 from ._checks import require_placed
 
 if TYPE_CHECKING:
@@ -157,7 +157,9 @@ def mp2_energy(
         treatment (see :func:`core_orbital_count` for the usual choice).
     eri : ERIStore, optional
         The basis' stored integrals, if already at hand; otherwise they are
-        computed (8 bytes per unique integral, screened as the SCF was).
+        computed again (8 bytes per unique integral, screened as the SCF
+        was; the SCF's own store is gone by then, so the peak memory stays
+        near the SCF's).
     memory_bytes : int, optional
         Budget for the work array of one occupied block, in bytes
         (default: half the store's size, at least 32 MiB). At least one
@@ -175,8 +177,8 @@ def mp2_energy(
         If ``frozen_core`` is negative or leaves no occupied orbital, the
         basis has no virtual orbitals, or ``eri`` belongs to another basis.
     ResourceError
-        If the store would exceed the size limit of
-        :func:`hfcore.integrals.compute_eri`.
+        If ``eri`` is not given and the store (8 bytes per unique
+        integral) would exceed ``result.options.memory_limit``.
     """
     from ..integrals import compute_eri
 
@@ -193,6 +195,13 @@ def mp2_energy(
         raise InputError("the basis has no virtual orbitals, so MP2 has nothing to correlate into")
     nbf = result.basis.n_functions
     if eri is None:
+        need = 8 * (nbf * (nbf + 1) // 2) * (nbf * (nbf + 1) // 2 + 1) // 2
+        limit = result.options.memory_limit_bytes
+        if need > limit:
+            raise ResourceError(
+                f"MP2 reads the stored integrals, {need / 2**20:.3g} MiB for {nbf} functions, but "
+                f"{limit / 2**20:.3g} MiB are allowed (--memory MIB, memory_limit)"
+            )
         eri = compute_eri(result.basis, threshold=result.options.screening)
     elif eri.n_functions != nbf:
         raise InputError(f"the integral store has {eri.n_functions} functions but the basis has {nbf}")
