@@ -190,7 +190,7 @@ def format_charges(symbols: Sequence[str], charges: np.ndarray, lowdin: np.ndarr
             lines.append(f"  {k:>4}  {sym:<7}  {q:+10.6f}")
         lines.append(f"  {'sum':>13}  {float(_no_negative_zero(np.sum(charges), 6)):+10.6f}")
         return "\n".join(lines)
-    lines = [heading("Atomic charges / e"), f"  {'':>4}  {'':<7}  {'Mulliken':>10}  {'Löwdin':>10}"]
+    lines = [heading("Mulliken charges and Löwdin charges / e"), f"  {'':>4}  {'':<7}  {'Mulliken':>10}  {'Löwdin':>10}"]
     rows = zip(symbols, _no_negative_zero(charges, 6), _no_negative_zero(np.asarray(lowdin), 6))
     for k, (sym, q, ql) in enumerate(rows, start=1):
         lines.append(f"  {k:>4}  {sym:<7}  {q:+10.6f}  {ql:+10.6f}")
