@@ -31,6 +31,7 @@ def run_rhf(
     guess: str | np.ndarray = "sad",
     progress: Progress | None = None,
     integral_progress: Callable[[float], None] | None = None,
+    raise_on_failure: bool = True,
 ) -> RHFResult:
     """Restricted Hartree-Fock energy and orbitals of a closed-shell molecule.
 
@@ -52,6 +53,11 @@ def run_rhf(
     integral_progress : callable, optional
         Called with the fraction (0..1] of the stored-integral pass done;
         the direct mode has no such pass (its cost shows per iteration).
+    raise_on_failure : bool, optional
+        True (default): an SCF that does not converge raises
+        :class:`ConvergenceError`. False: the unconverged record is returned
+        instead, with ``converged=False`` and ``message`` saying why, so a
+        prototyping loop can inspect it.
 
     Returns
     -------
@@ -68,8 +74,9 @@ def run_rhf(
         Stored integrals forced (``options.direct=False``) beyond
         ``options.memory_limit``, raised before any is computed.
     ConvergenceError
-        No convergence within ``options.max_iterations``; ``.result`` holds
-        the unconverged record (with molecule and basis filled in).
+        No convergence within ``options.max_iterations`` (unless
+        ``raise_on_failure`` is False); ``.result`` holds the unconverged
+        record (with molecule and basis filled in).
     """
     t0 = time.perf_counter()
     options = options or SCFOptions()
@@ -108,6 +115,10 @@ def run_rhf(
             progress=progress,
         )
     except ConvergenceError as exc:
+        if exc.result is None:
+            raise
+        if not raise_on_failure:
+            return finish(exc.result)
         raise ConvergenceError(str(exc), finish(exc.result)) from None
     return finish(result)
 
