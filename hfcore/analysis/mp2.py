@@ -162,8 +162,10 @@ def mp2_energy(
         near the SCF's).
     memory_bytes : int, optional
         Budget for the work array of one occupied block, in bytes
-        (default: half the store's size, at least 32 MiB). At least one
-        occupied orbital is done at a time, whatever the budget.
+        (default: the packed store's own size, at least 32 MiB, so the
+        peak stays near the SCF's, which held the store and an exchange
+        kernel of the same size). At least one occupied orbital is done at
+        a time, whatever the budget.
 
     Returns
     -------
@@ -213,7 +215,7 @@ def mp2_energy(
     e_occ, e_vir = energies[active], energies[virtual]
 
     npair = nbf * (nbf + 1) // 2
-    budget = max(_MIN_WORK_BYTES, eri.packed.nbytes // 2) if memory_bytes is None else int(memory_bytes)
+    budget = max(_MIN_WORK_BYTES, eri.packed.nbytes) if memory_bytes is None else int(memory_bytes)
     block = int(max(1, min(active.size, budget // (8 * nbf * npair))))
     packed = eri.packed
     tri = np.arange(npair, dtype=np.int64) * (np.arange(npair, dtype=np.int64) + 1) // 2
