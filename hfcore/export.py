@@ -256,7 +256,7 @@ def sto_fit_record(fit: Any) -> dict[str, Any]:
     """
     from . import __version__
 
-    letters = "spdfg"
+    from .basis.components import L_LETTERS as letters
     return {
         "hfcore": {"version": __version__},
         "units": {"exponents": "bohr^-2", "zeta": "bohr^-1", "coefficients": "of normalised primitive Gaussians"},

@@ -130,7 +130,7 @@ def plot_sto_fit(fits: Sequence[STOFit], path: str | os.PathLike) -> None:
         raise InputError(f"{os.fspath(path)}: the directory does not exist")
     plt = _pyplot()
     r = np.linspace(0.0, _radial_range(fits), 600)
-    letters = "spdfg"
+    from .basis.components import L_LETTERS as letters
     figure, (top, bottom) = plt.subplots(2, 1, sharex=True, figsize=(7.0, 6.4), height_ratios=(3, 2))
     try:
         drawn = set()

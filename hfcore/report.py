@@ -13,6 +13,7 @@ from typing import Any
 import numpy as np
 from scipy import constants
 
+from .basis.components import L_LETTERS
 from .geometry import BOHR_IN_ANGSTROM
 
 #: Virtual orbitals listed after the LUMO before the list is cut short.
@@ -76,7 +77,7 @@ def format_basis(basis: Any, plan: Any = None) -> str:
         ("basis set", basis.name),
         ("functions", f"{basis.n_functions} ({'real spherical' if basis.spherical else 'Cartesian'})"),
         ("shells", f"{basis.n_shells} ({primitives} primitive Gaussians)"),
-        ("highest l", "spdfghi"[basis.max_l]),
+        ("highest l", L_LETTERS[basis.max_l]),
     ]
     if plan is not None:
         info.extend(_jk_rows(plan))
@@ -270,7 +271,7 @@ def format_sto_fit(fit: Any) -> str:
     ----------
     fit : STOFit
     """
-    letters = "spdf"
+    letters = L_LETTERS
     ls = sorted(fit.coefficients)
     info = [
         ("shell", fit.shell),

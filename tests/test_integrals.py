@@ -3,9 +3,11 @@
 import numpy as np
 import pytest
 from pyscf import gto
+from pyscf.df import incore as df_incore
 from reference import reference_mole, unit_norm_scale
 
-from hfcore.basis.shells import BasisSet, ElementShell, Shell, cartesian_components
+from hfcore.basis.components import _cartesian_gram, cartesian_components
+from hfcore.basis.shells import BasisSet, ElementShell, Shell
 from hfcore.integrals import (
     c2s,
     compute_eri,
@@ -19,8 +21,9 @@ from hfcore.integrals import (
 from hfcore.elements import atomic_number
 from hfcore.errors import InputError, ResourceError
 from hfcore.geometry import Molecule
-from hfcore.integrals import two_electron
-from hfcore.integrals.spherical import _cartesian_gram
+from hfcore.integrals import store as eri_store
+from hfcore.integrals.eri_pairs import prepare_pairs, shell_batches
+from hfcore.integrals.tiles import batch_pairs, iter_tiles
 
 # Three centres carrying s, p, d, f and g shells; He's s shell and Be's d
 # shell are generally contracted (two functions sharing exponents). He's
@@ -236,7 +239,7 @@ def test_negative_threshold_is_rejected():
 
 def test_dense_tensor_beyond_the_memory_limit_is_refused(monkeypatch):
     store = compute_eri(_small_basis())
-    monkeypatch.setattr(two_electron, "DENSE_LIMIT_BYTES", 1024)
+    monkeypatch.setattr(eri_store, "DENSE_LIMIT_BYTES", 1024)
     with pytest.raises(ResourceError):
         store.to_dense()
 
@@ -246,3 +249,52 @@ def test_spherical_transform_rows_are_orthonormal():
         t = c2s(l)
         # source: exact property: real solid harmonics of one shell are orthonormal
         np.testing.assert_allclose(t @ _cartesian_gram(l) @ t.T, np.eye(2 * l + 1), atol=1e-13)
+
+
+_AUX_SHELLS = {
+    "He": [ElementShell(0, [2.0, 0.5], [[0.6, 0.5]]), ElementShell(2, [0.9], [[1.0]])],
+    "Li": [ElementShell(1, [0.7, 0.2], [[0.5, 0.5]]), ElementShell(4, [0.6], [[1.0]])],
+    "Be": [ElementShell(3, [0.6, 0.3], [[0.7, 0.4], [0.2, 0.9]])],
+}
+
+
+def _tile_pass(first, second=None, shape=None):
+    """Integrals of a whole unscreened tile pass, each tile written under its pidx labels."""
+    out = np.zeros(shape)
+    for g1, g2 in batch_pairs(first, second):
+        for tile in iter_tiles(g1, g2, 0.0):
+            block = tile.integrals().reshape(tile.bra.pidx[tile.brows].size, -1)
+            rows, cols = tile.bra.pidx[tile.brows].ravel(), tile.ket.pidx[tile.krows].ravel()
+            if second is not None and any(tile.bra is b for b in second):
+                rows, cols, block = cols, rows, block.T
+            out[rows[:, None], cols[None, :]] = block
+            if second is None:
+                out[cols[:, None], rows[None, :]] = block.T
+    return out
+
+
+def test_three_centre_tiles_match_reference_library(case):
+    aux = _hfcore_basis(_ATOMS, _AUX_SHELLS, case.spherical)
+    aux_mol = reference_mole(_MOLECULE, _AUX_SHELLS, spherical=case.spherical)
+    n, naux = case.basis.n_functions, aux.n_functions
+    packed = _tile_pass(prepare_pairs(case.basis, 0.0), shell_batches(aux.shells, case.spherical),
+                        (n * (n + 1) // 2, naux))
+    i, j = np.tril_indices(n)
+    ours = np.zeros((n, n, naux))
+    ours[i, j], ours[j, i] = packed, packed
+    s, t = case.scale, unit_norm_scale(aux_mol)
+    ref = df_incore.aux_e2(case.mol, aux_mol, "int3c2e" + case.suffix, aosym="s1").reshape(n, n, naux)
+    ref = ref * s[:, None, None] * s[None, :, None] * t[None, None, :]
+    # source: reference library run (PySCF int3c2e), same shells, every element
+    np.testing.assert_allclose(ours, ref, rtol=0, atol=TOL)
+
+
+def test_two_centre_tiles_match_reference_library(case):
+    aux = _hfcore_basis(_ATOMS, _AUX_SHELLS, case.spherical)
+    aux_mol = reference_mole(_MOLECULE, _AUX_SHELLS, spherical=case.spherical)
+    naux = aux.n_functions
+    ours = _tile_pass(shell_batches(aux.shells, case.spherical), shape=(naux, naux))
+    t = unit_norm_scale(aux_mol)
+    ref = aux_mol.intor("int2c2e" + case.suffix) * t[:, None] * t[None, :]
+    # source: reference library run (PySCF int2c2e), same shells, every element
+    np.testing.assert_allclose(ours, ref, rtol=0, atol=TOL)

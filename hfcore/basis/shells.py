@@ -7,20 +7,10 @@ Ordering of basis functions
     for that element), then contraction (for generally contracted shells),
     then component.
 
-Cartesian components
-    For angular momentum l, the monomials x^a y^b z^c with a+b+c = l in
-    lexicographic order of decreasing a, then decreasing b:
-    p: x, y, z;  d: xx, xy, xz, yy, yz, zz;  f: xxx, xxy, xxz, xyy, xyz,
-    xzz, yyy, yyz, yzz, zzz; and so on (see :func:`cartesian_components`).
-    Every Cartesian basis function hfcore exposes is normalised to one on
-    its own (so d_xx and d_xy are both unit functions).
-
-Real spherical components
-    For l >= 2 the real solid harmonics ordered m = -l, ..., 0, ..., +l
-    (negative m are the sine-like functions, e.g. d: xy, yz, z², xz, x²-y²).
-    For l = 1 the order is x, y, z (the solid harmonics of l = 1 are the
-    Cartesian p functions). s is the same in both forms. Each spherical
-    function is normalised to one.
+Components
+    The Cartesian and real-spherical component orders, their norms, the
+    spherical transform and the angular-momentum letters live in
+    :mod:`hfcore.basis.components`.
 
 Radial normalisation
     ``Shell.coefficients`` multiply *normalised* primitives, as basis-set
@@ -28,74 +18,28 @@ Radial normalisation
     primitive normalisation of the x^l component and renormalises each
     contraction, so that the contracted x^l Cartesian function (and every
     spherical component) has unit norm. The remaining per-component factor
-    for other Cartesian monomials is :func:`cartesian_component_norms`.
+    for other Cartesian monomials is
+    :func:`hfcore.basis.components.cartesian_component_norms`.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from functools import lru_cache
 
 import numpy as np
 
 from ..errors import BasisError
+from .components import (
+    L_LETTERS,
+    _double_factorial,
+    component_labels,
+    n_cartesian,
+    n_spherical,
+)
 
 #: Highest angular momentum the integral layer supports (g functions).
 MAX_L: int = 4
-
-L_LETTERS = "spdfghi"
-
-
-def n_cartesian(l: int) -> int:
-    """Number of Cartesian components of angular momentum ``l``."""
-    return (l + 1) * (l + 2) // 2
-
-
-def n_spherical(l: int) -> int:
-    """Number of real spherical components of angular momentum ``l``."""
-    return 2 * l + 1
-
-
-@lru_cache(maxsize=None)
-def cartesian_components(l: int) -> tuple[tuple[int, int, int], ...]:
-    """Exponent triples (a, b, c) of x^a y^b z^c for angular momentum ``l``.
-
-    Returns
-    -------
-    tuple of (int, int, int)
-        In hfcore's Cartesian order (decreasing a, then decreasing b).
-    """
-    out = []
-    for a in range(l, -1, -1):
-        for b in range(l - a, -1, -1):
-            out.append((a, b, l - a - b))
-    return tuple(out)
-
-
-def _double_factorial(n: int) -> int:
-    """(n)!! with (-1)!! = 0!! = 1."""
-    return math.prod(range(n, 0, -2)) if n > 0 else 1
-
-
-@lru_cache(maxsize=None)
-def _cartesian_component_norms(l: int) -> tuple[float, ...]:
-    dl = _double_factorial(2 * l - 1)
-    return tuple(
-        math.sqrt(dl / (_double_factorial(2 * a - 1) * _double_factorial(2 * b - 1) * _double_factorial(2 * c - 1)))
-        for a, b, c in cartesian_components(l)
-    )
-
-
-def cartesian_component_norms(l: int) -> np.ndarray:
-    """Factor turning each x^l-normalised Cartesian component into a unit function.
-
-    Returns
-    -------
-    ndarray, shape (n_cartesian(l),)
-        sqrt((2l-1)!! / ((2a-1)!! (2b-1)!! (2c-1)!!)) per component.
-    """
-    return np.array(_cartesian_component_norms(l))
 
 
 def primitive_norms(l: int, exponents: np.ndarray) -> np.ndarray:
@@ -247,24 +191,6 @@ class Shell:
         return self.n_contractions * (n_spherical(self.l) if spherical else n_cartesian(self.l))
 
 
-_SPH_LABELS = {
-    0: ("",),
-    1: ("x", "y", "z"),
-    2: ("xy", "yz", "z2", "xz", "x2-y2"),
-}
-
-
-def component_labels(l: int, spherical: bool) -> tuple[str, ...]:
-    """Human labels of the components of a shell, in hfcore's order."""
-    if l == 0:
-        return ("",)
-    if not spherical or l == 1:
-        return tuple("x" * a + "y" * b + "z" * c for a, b, c in cartesian_components(l))
-    if l in _SPH_LABELS:
-        return _SPH_LABELS[l]
-    return tuple(f"{m:+d}" for m in range(-l, l + 1))
-
-
 @dataclass(frozen=True)
 class BasisSet:
     """Basis functions placed on a molecule.
@@ -348,11 +274,6 @@ __all__ = [
     "ElementShell",
     "Shell",
     "BasisSet",
-    "n_cartesian",
-    "n_spherical",
-    "cartesian_components",
-    "cartesian_component_norms",
     "primitive_norms",
     "contraction_norm_coefficients",
-    "component_labels",
 ]

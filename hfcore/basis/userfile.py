@@ -31,7 +31,8 @@ import numpy as np
 from .. import elements
 from ..errors import BasisError
 from .family import BasisFamily, CachedFamily
-from .shells import L_LETTERS, MAX_L, ElementShell
+from .components import L_LETTERS
+from .shells import MAX_L, ElementShell
 
 #: The value of the ``"format"`` key that marks a document as ours.
 FORMAT_TAG = "hfcore-basis/1"

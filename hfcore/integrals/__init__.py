@@ -8,19 +8,26 @@ per ``basis.spherical``), in atomic units, functions ordered as
 * :func:`overlap`, :func:`kinetic`, :func:`nuclear_attraction`,
   :func:`multipole` — one-electron matrices (:mod:`.one_electron`).
 * :func:`compute_eri` → :class:`ERIStore` (packed unique integrals, J/K
-  builds), :func:`eri_tensor` (dense), :func:`schwarz_bounds`
-  (:mod:`.two_electron`); :class:`DirectERI` recomputes them for every
-  J/K build instead (direct mode), :func:`estimate_eri_memory` predicts
-  what storing them costs.
-* :func:`boys` (:mod:`.boys`), :func:`c2s` (:mod:`.spherical`).
+  builds), :func:`eri_tensor` (dense), :func:`estimate_eri_memory` (what
+  storing them costs) (:mod:`.store`); :class:`DirectERI` recomputes them
+  for every J/K build instead (direct mode, :mod:`.direct`);
+  :func:`schwarz_bounds` (:mod:`.eri_pairs`).
+
+Rooms of the two-electron layer: :mod:`.eri_pairs` prepares the screened
+pair batches, :mod:`.tiles` is the one tile generator every pass uses
+(stored, direct and three-centre), :mod:`.store` and :mod:`.direct` are
+the passes.
+* :func:`boys` (:mod:`.boys`), :func:`c2s` (:mod:`hfcore.basis.components`).
 """
 
 from __future__ import annotations
 
 from .boys import boys
 from .one_electron import kinetic, multipole, nuclear_attraction, overlap
-from .spherical import c2s
-from .two_electron import DirectERI, DirectPassStats, ERIStore, compute_eri, estimate_eri_memory, eri_tensor, schwarz_bounds
+from ..basis.components import c2s
+from .direct import DirectERI, DirectPassStats
+from .eri_pairs import schwarz_bounds
+from .store import ERIStore, compute_eri, estimate_eri_memory, eri_tensor
 
 __all__ = [
     "boys",

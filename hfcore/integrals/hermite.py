@@ -13,7 +13,7 @@ from functools import lru_cache
 
 import numpy as np
 
-from ..basis.shells import cartesian_components
+from ..basis.components import cartesian_components
 
 
 @lru_cache(maxsize=None)

@@ -17,7 +17,8 @@ from math import comb
 import numpy as np
 from numpy.typing import ArrayLike
 
-from ..basis.shells import BasisSet, cartesian_components
+from ..basis.components import cartesian_components
+from ..basis.shells import BasisSet
 from .boys import boys
 from .hermite import hermite_e, hermite_e_1d, hermite_r, n_hermite
 from .pairs import PairGroup, group_pairs

@@ -13,8 +13,8 @@ from functools import lru_cache
 
 import numpy as np
 
+from ..basis.components import component_transform
 from ..basis.shells import Shell
-from .spherical import component_transform
 
 
 @lru_cache(maxsize=4096)

@@ -13,7 +13,7 @@ from ..basis import build_basis
 from ..basis.shells import BasisSet
 from ..errors import ConvergenceError, InputError, ResourceError
 from ..geometry import Molecule
-from ..integrals.two_electron import STORE_LIMIT_BYTES
+from ..integrals.store import STORE_LIMIT_BYTES
 from .guess import sad_density
 from .jk import IncrementalJK, JKBuilder
 from .options import SCFOptions
@@ -149,7 +149,7 @@ class JKPlan:
         :func:`hfcore.integrals.estimate_eri_memory`.
     limit_bytes : int
         The budget they were measured against (bytes): ``memory_limit``,
-        capped at :data:`hfcore.integrals.two_electron.STORE_LIMIT_BYTES`.
+        capped at :data:`hfcore.integrals.store.STORE_LIMIT_BYTES`.
     """
 
     mode: str
