@@ -91,7 +91,8 @@ def _add_scf_arguments(parser: argparse.ArgumentParser) -> None:
         "--gradient-tol", type=_positive_float, metavar="X", help="largest orbital-gradient element threshold (1e-7)"
     )
     group.add_argument("--max-iterations", type=_positive_int, metavar="N", help="iteration limit (100)")
-    group.add_argument("--diis-space", type=_positive_int, metavar="N", help="DIIS subspace size (8)")
+    group.add_argument("--max-diis-size", "--diis-space", dest="max_diis_size", type=_positive_int, metavar="N",
+                       help="most Fock matrices DIIS keeps (8); --diis-space is the deprecated old name")
     group.add_argument(
         "--lindep-threshold",
         type=_positive_float,
@@ -300,7 +301,7 @@ def _build_basis(args: argparse.Namespace, molecule: Any) -> Any:
 def _scf_options(args: argparse.Namespace) -> Any:
     from .scf import SCFOptions
 
-    names = ("energy_tol", "gradient_tol", "max_iterations", "diis_space", "lindep_threshold", "direct")
+    names = ("energy_tol", "gradient_tol", "max_iterations", "max_diis_size", "lindep_threshold", "direct")
     given = {name: getattr(args, name) for name in names if getattr(args, name, None) is not None}
     if getattr(args, "memory", None) is not None:
         given["memory_limit"] = args.memory

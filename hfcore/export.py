@@ -212,7 +212,8 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
                 "energy_tol": opts.energy_tol,
                 "gradient_tol": opts.gradient_tol,
                 "max_iterations": opts.max_iterations,
-                "diis_space": opts.diis_space,
+                "max_diis_size": opts.max_diis_size,
+                "diis_space": opts.max_diis_size,  # deprecated name, kept for one release
                 "lindep_threshold": opts.lindep_threshold,
                 "screening": opts.screening,
             },

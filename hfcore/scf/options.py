@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+import functools
 import math
+import warnings
 from dataclasses import dataclass
+from typing import Any
 
 from ..errors import InputError
 
@@ -63,8 +66,9 @@ class SCFOptions:
         commutator F D S - S D F in the orthonormal basis, is below this.
     max_iterations : int
         Give up (``ConvergenceError``) after this many iterations.
-    diis_space : int
-        Number of Fock/error pairs DIIS keeps (at least 2).
+    max_diis_size : int
+        Most Fock/error pairs DIIS keeps (at least 2); the number it holds
+        in each iteration is ``SCFIteration.diis_size``.
     diis_start : int
         First iteration (1-based) at which DIIS extrapolates; it stores
         pairs from the first iteration on.
@@ -97,6 +101,10 @@ class SCFOptions:
         iteration; every this many builds they are rebuilt from the full
         density so round-off cannot accumulate.
 
+    ``diis_space`` is the deprecated name of ``max_diis_size``, kept for
+    one release: ``SCFOptions(diis_space=N)`` still works (with a
+    DeprecationWarning) and ``options.diis_space`` reads ``max_diis_size``.
+
     Raises
     ------
     InputError
@@ -106,7 +114,7 @@ class SCFOptions:
     energy_tol: float = 1e-10
     gradient_tol: float = 1e-7
     max_iterations: int = 100
-    diis_space: int = 8
+    max_diis_size: int = 8
     diis_start: int = 1
     lindep_threshold: float = 1e-7
     screening: float = 1e-12
@@ -121,7 +129,7 @@ class SCFOptions:
         for name in ("energy_tol", "gradient_tol", "lindep_threshold"):
             object.__setattr__(self, name, _positive(name, getattr(self, name)))
         object.__setattr__(self, "max_iterations", _count("max_iterations", self.max_iterations, 1))
-        object.__setattr__(self, "diis_space", _count("diis_space", self.diis_space, 2))
+        object.__setattr__(self, "max_diis_size", _count("max_diis_size", self.max_diis_size, 2))
         object.__setattr__(self, "diis_start", _count("diis_start", self.diis_start, 1))
         self._check_ranges()
         self._check_accelerator()
@@ -130,6 +138,11 @@ class SCFOptions:
         if self.memory_limit is not None:
             object.__setattr__(self, "memory_limit", _positive("memory_limit", self.memory_limit))
         object.__setattr__(self, "rebuild_interval", _count("rebuild_interval", self.rebuild_interval, 1))
+
+    @property
+    def diis_space(self) -> int:
+        """Deprecated name of :attr:`max_diis_size`."""
+        return self.max_diis_size
 
     @property
     def memory_limit_bytes(self) -> int:
@@ -156,5 +169,20 @@ class SCFOptions:
         if name == "none" and self.damping > 0.0:
             raise InputError("damping > 0 needs accelerator 'damping' or 'diis', not 'none'")
 
+
+_dataclass_init = SCFOptions.__init__
+
+
+@functools.wraps(_dataclass_init)
+def _init_accepting_old_names(self: SCFOptions, *args: Any, diis_space: int | None = None, **kwargs: Any) -> None:
+    if diis_space is not None:
+        warnings.warn("SCFOptions(diis_space=...) is deprecated; use max_diis_size", DeprecationWarning, stacklevel=2)
+        if "max_diis_size" in kwargs:
+            raise InputError("give max_diis_size or its deprecated name diis_space, not both")
+        kwargs["max_diis_size"] = diis_space
+    _dataclass_init(self, *args, **kwargs)
+
+
+SCFOptions.__init__ = _init_accepting_old_names  # type: ignore[method-assign]
 
 __all__ = ["SCFOptions", "ACCELERATOR_NAMES", "default_memory_limit", "MEMORY_FRACTION", "FALLBACK_MEMORY_MIB"]
