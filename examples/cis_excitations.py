@@ -20,7 +20,7 @@ import scipy.linalg
 
 import hfcore
 from hfcore import integrals
-from hfcore.report import EV_PER_HARTREE
+from hfcore.units import EV_PER_HARTREE
 
 HERE = Path(__file__).resolve().parent
 

@@ -22,7 +22,7 @@ import numpy as np
 
 from . import __version__, elements, export, report
 from .errors import HfcoreError, InputError, ResourceError
-from .geometry import BOHR_IN_ANGSTROM
+from .units import BOHR_IN_ANGSTROM
 
 #: Exit code after Ctrl-C (128 + SIGINT), the shell convention.
 EXIT_INTERRUPTED: int = 130
@@ -426,7 +426,7 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
 
 
 def _report_energy(console: _Console, result: Any, record: dict[str, Any], wall: float, mp2: Any = None) -> None:
-    from .analysis import DEBYE_ANGSTROM_PER_AU, DEBYE_PER_AU
+    from .units import DEBYE_ANGSTROM_PER_AU, DEBYE_PER_AU
 
     analysis = record["analysis"]
     molecule = result.molecule

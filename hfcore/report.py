@@ -11,16 +11,12 @@ from collections.abc import Iterable, Sequence
 from typing import Any
 
 import numpy as np
-from scipy import constants
 
 from .basis.components import L_LETTERS
-from .geometry import BOHR_IN_ANGSTROM
+from .units import BOHR_IN_ANGSTROM, EV_PER_HARTREE
 
 #: Virtual orbitals listed after the LUMO before the list is cut short.
 MAX_VIRTUALS_SHOWN: int = 10
-
-#: One hartree in electronvolts (CODATA, via scipy.constants).
-EV_PER_HARTREE: float = constants.physical_constants["Hartree energy in eV"][0]
 
 _RULE_WIDTH = 64
 

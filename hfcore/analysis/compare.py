@@ -17,9 +17,9 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 import scipy.linalg
-from scipy import constants
 
 from ..errors import ConvergenceError, InputError
+from ..units import KCAL_MOL_PER_HARTREE
 from .extrapolation import (
     FELLER_CITATION,
     KARTON_MARTIN_CITATION,
@@ -33,9 +33,6 @@ if TYPE_CHECKING:
     from ..geometry import Molecule
     from ..scf.options import SCFOptions
     from ..scf.result import RHFResult
-
-#: kcal/mol per hartree (CODATA hartree energy × Avogadro constant / 4184 J per kcal).
-KCAL_MOL_PER_HARTREE: float = constants.physical_constants["Hartree energy"][0] * constants.Avogadro / 4184.0
 
 GUESSES: tuple[str, ...] = ("auto", "projected", "sad")
 

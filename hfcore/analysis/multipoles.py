@@ -18,23 +18,15 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy import constants
 
 from .. import elements
 from ..errors import InputError
+from ..units import DEBYE_ANGSTROM_PER_AU, DEBYE_PER_AU
 from ._checks import require_placed
 
 if TYPE_CHECKING:
     from ..geometry import Molecule
     from ..scf.result import RHFResult
-
-#: One atomic unit of electric dipole moment (e·a0) in debye (1 D = 1e-21/c C·m).
-DEBYE_PER_AU: float = (
-    constants.elementary_charge * constants.physical_constants["Bohr radius"][0] / (1e-21 / constants.speed_of_light)
-)
-
-#: One atomic unit of electric quadrupole moment (e·a0²) in debye·ångström.
-DEBYE_ANGSTROM_PER_AU: float = DEBYE_PER_AU * constants.physical_constants["Bohr radius"][0] / constants.angstrom
 
 
 def nuclear_charge_centre(molecule: Molecule) -> np.ndarray:
