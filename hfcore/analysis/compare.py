@@ -34,7 +34,10 @@ if TYPE_CHECKING:
     from ..scf.options import SCFOptions
     from ..scf.result import RHFResult
 
-GUESSES: tuple[str, ...] = ("auto", "projected", "sad")
+#: Starting guesses of a basis comparison (the SCF's own are :data:`hfcore.scf.GUESSES`).
+COMPARISON_GUESSES: tuple[str, ...] = ("auto", "projected", "sad")
+#: Deprecated name of :data:`COMPARISON_GUESSES`, kept for one release.
+GUESSES = COMPARISON_GUESSES
 
 
 @dataclass(frozen=True)
@@ -266,8 +269,10 @@ def compare_bases(
     from ..basis import build_basis
 
     labels = _check_names(names)
-    if guess not in GUESSES:
-        raise InputError(f"unknown guess {guess!r} for a basis comparison: use one of {', '.join(GUESSES)}")
+    if guess not in COMPARISON_GUESSES:
+        raise InputError(
+            f"unknown guess {guess!r} for a basis comparison: use one of {', '.join(COMPARISON_GUESSES)}"
+        )
     molecule.require_closed_shell()
     if guess == "auto":
         guess = "sad" if molecule.natom == 1 else "projected"
@@ -405,6 +410,7 @@ def _estimate(method, family, used, cardinals, energy, e_ref, citation) -> Basis
 
 
 __all__ = [
+    "COMPARISON_GUESSES",
     "KCAL_MOL_PER_HARTREE",
     "ComparisonRow",
     "BasisLimitEstimate",

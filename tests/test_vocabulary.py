@@ -1,4 +1,4 @@
-"""Old names keep working for one release, with a warning in Python and the same value in the JSON."""
+"""One vocabulary: old names keep working for one release, records become dicts one way."""
 
 from __future__ import annotations
 
@@ -38,3 +38,22 @@ def test_both_spellings_of_the_flag_reach_the_json(flag):
     assert code == 0
     thresholds = json.loads(out.getvalue())["scf"]["thresholds"]
     assert thresholds["max_diis_size"] == 3 and thresholds["diis_space"] == 3
+
+
+def test_rhf_result_becomes_a_dict_the_way_the_json_export_writes_it():
+    import hfcore
+
+    out = io.StringIO()
+    assert main(["energy", str(INPUTS / "water.xyz"), "--json", "-"], stdout=out, stderr=io.StringIO()) == 0
+    from_cli = json.loads(out.getvalue())
+    record = hfcore.run_rhf(hfcore.read_xyz(INPUTS / "water.xyz")).to_dict()
+    assert set(from_cli) - {"analysis"} == set(record)
+    # source: exact property — determinism: the same input gives the same digits
+    assert record["energy"]["total"] == from_cli["energy"]["total"]
+
+
+def test_the_two_guess_lists_have_their_own_names():
+    from hfcore.analysis.compare import COMPARISON_GUESSES, GUESSES
+    from hfcore.scf import GUESSES as SCF_GUESSES
+
+    assert GUESSES is COMPARISON_GUESSES and "projected" in COMPARISON_GUESSES and "projected" not in SCF_GUESSES
