@@ -137,6 +137,65 @@ def _store_columns(packed: np.ndarray, tri: np.ndarray, pairs: np.ndarray, out: 
         row[p + 1 :] = packed[tri[p + 1 :] + p]
 
 
+def _pair_map(nbf: int) -> np.ndarray:
+    """Packed pair index of every (λ, σ), shape (nbf, nbf)."""
+    i = np.arange(nbf)
+    hi, lo = np.maximum(i[:, None], i[None, :]), np.minimum(i[:, None], i[None, :])
+    return hi * (hi + 1) // 2 + lo
+
+
+def _first_quarter(packed: np.ndarray, c_block: np.ndarray) -> np.ndarray:
+    """(iν|κ) = Σ_μ C_μi (μν|κ) for the occupied orbitals of ``c_block`` (nbf, n_block).
+
+    Returns
+    -------
+    ndarray, shape (n_block, nbf, npair)
+    """
+    nbf = c_block.shape[0]
+    npair = nbf * (nbf + 1) // 2
+    tri = np.arange(npair, dtype=np.int64) * (np.arange(npair, dtype=np.int64) + 1) // 2
+    pairs = _pair_map(nbf)
+    column = np.empty((nbf, npair))
+    half = np.empty((c_block.shape[1], nbf, npair))
+    for nu in range(nbf):
+        _store_columns(packed, tri, pairs[:, nu], column)
+        np.matmul(c_block.T, column, out=half[:, nu, :])
+    return half
+
+
+def _ovov_row(half_i: np.ndarray, c_occ: np.ndarray, c_vir: np.ndarray, a_step: int) -> np.ndarray:
+    """(ia|jb) for one occupied i from its (iν|κ), shape (n_vir, n_occ, n_vir), ``a_step`` virtuals at a time."""
+    pairs = _pair_map(c_occ.shape[0])
+    ia_pair = c_vir.T @ half_i  # (a, κ)
+    out = np.empty((c_vir.shape[1], c_occ.shape[1], c_vir.shape[1]))
+    for a0 in range(0, c_vir.shape[1], a_step):
+        ia_ls = ia_pair[a0 : a0 + a_step][:, pairs]  # (a, λ, σ)
+        out[a0 : a0 + a_step] = np.matmul(np.matmul(c_occ.T, ia_ls), c_vir)
+    return out
+
+
+def _opposite_and_exchange(
+    packed: np.ndarray, c_occ: np.ndarray, c_vir: np.ndarray, e_occ: np.ndarray, e_vir: np.ndarray, budget: int
+) -> tuple[float, float]:
+    """Σ (ia|jb)² / Δ and Σ (ia|jb)(ib|ja) / Δ over active i, j and virtual a, b (hartree)."""
+    nbf, n_occ = c_occ.shape
+    npair = nbf * (nbf + 1) // 2
+    block = int(max(1, min(n_occ, budget // (8 * nbf * npair))))
+    # Virtual orbitals per unpacking step, so (a, λ, σ) stays within the budget too.
+    a_step = int(max(1, min(c_vir.shape[1], budget // (8 * nbf * nbf * 4))))
+    opposite = exchange = 0.0
+    for start in range(0, n_occ, block):
+        half = _first_quarter(packed, c_occ[:, start : start + block])
+        for k, i in enumerate(range(start, min(start + block, n_occ))):
+            iajb = _ovov_row(half[k], c_occ, c_vir, a_step)
+            denominator = e_occ[i] + e_occ[None, :, None] - e_vir[:, None, None] - e_vir[None, None, :]
+            amplitudes = iajb / denominator
+            opposite += float(np.einsum("ajb,ajb->", amplitudes, iajb))
+            exchange += float(np.einsum("ajb,bja->", amplitudes, iajb))
+        del half
+    return opposite, exchange
+
+
 def mp2_energy(
     result: RHFResult,
     *,
@@ -214,35 +273,8 @@ def mp2_energy(
     energies = np.asarray(result.orbital_energies, dtype=np.float64)
     e_occ, e_vir = energies[active], energies[virtual]
 
-    npair = nbf * (nbf + 1) // 2
     budget = max(_MIN_WORK_BYTES, eri.packed.nbytes) if memory_bytes is None else int(memory_bytes)
-    block = int(max(1, min(active.size, budget // (8 * nbf * npair))))
-    packed = eri.packed
-    tri = np.arange(npair, dtype=np.int64) * (np.arange(npair, dtype=np.int64) + 1) // 2
-    i_idx, j_idx = np.meshgrid(np.arange(nbf), np.arange(nbf), indexing="ij")
-    pair_map = np.maximum(i_idx, j_idx) * (np.maximum(i_idx, j_idx) + 1) // 2 + np.minimum(i_idx, j_idx)
-    column = np.empty((nbf, npair))
-    # Virtual orbitals per unpacking step, so (a, λ, σ) stays within the budget too.
-    a_step = int(max(1, min(virtual.size, budget // (8 * nbf * nbf * 4))))
-    opposite = 0.0
-    exchange = 0.0
-    for start in range(0, active.size, block):
-        rows = slice(start, min(start + block, active.size))
-        half = np.empty((rows.stop - rows.start, nbf, npair))
-        for nu in range(nbf):
-            _store_columns(packed, tri, pair_map[:, nu], column)
-            np.matmul(c_occ[:, rows].T, column, out=half[:, nu, :])
-        for k, i in enumerate(range(rows.start, rows.stop)):
-            iajb = np.empty((virtual.size, active.size, virtual.size))
-            ia_pair = c_vir.T @ half[k]  # (a, κ)
-            for a0 in range(0, virtual.size, a_step):
-                ia_ls = ia_pair[a0 : a0 + a_step][:, pair_map]  # (a, λ, σ)
-                iajb[a0 : a0 + a_step] = np.matmul(np.matmul(c_occ.T, ia_ls), c_vir)
-            denominator = e_occ[i] + e_occ[None, :, None] - e_vir[:, None, None] - e_vir[None, None, :]
-            amplitudes = iajb / denominator
-            opposite += float(np.einsum("ajb,ajb->", amplitudes, iajb))
-            exchange += float(np.einsum("ajb,bja->", amplitudes, iajb))
-        del half
+    opposite, exchange = _opposite_and_exchange(eri.packed, c_occ, c_vir, e_occ, e_vir, budget)
     same = opposite - exchange
     correlation = opposite + same
     scs = SCS_OPPOSITE_SPIN * opposite + SCS_SAME_SPIN * same
