@@ -344,10 +344,9 @@ def _mp2(args: argparse.Namespace, result: Any, console: _Console) -> Any:
         return None
     from .analysis import core_orbital_count, mp2_energy
 
-    if not console.json_to_stdout:
-        print("hfcore: MP2 correlation energy ...", file=console.stderr, flush=True)
+    progress = None if console.json_to_stdout or console.quiet else _IntegralProgress(console.stderr, "MP2")
     frozen = core_orbital_count(result.molecule) if args.frozen_core else 0
-    return mp2_energy(result, frozen_core=frozen)
+    return mp2_energy(result, frozen_core=frozen, progress=progress)
 
 
 # ----------------------------------------------------------------------------
@@ -364,8 +363,9 @@ class _IntegralProgress:
 
     DELAY_S = 1.0
 
-    def __init__(self, stream: TextIO) -> None:
+    def __init__(self, stream: TextIO, label: str = "two-electron integrals") -> None:
         self.stream = stream
+        self.label = label
         self.tty = bool(getattr(stream, "isatty", lambda: False)())
         self.started = time.perf_counter()
         self.shown = 0.0
@@ -377,10 +377,10 @@ class _IntegralProgress:
             return  # nothing new, or a pass that ended before the first report needs none
         if self.tty:
             end = "\n" if fraction >= 1.0 else ""
-            print(f"\rhfcore: two-electron integrals {100 * fraction:5.1f} %", end=end, file=self.stream, flush=True)
+            print(f"\rhfcore: {self.label} {100 * fraction:5.1f} %", end=end, file=self.stream, flush=True)
             self.shown = fraction
         elif fraction - self.shown >= 0.25 or fraction >= 1.0:
-            print(f"hfcore: two-electron integrals {100 * fraction:5.1f} % done", file=self.stream, flush=True)
+            print(f"hfcore: {self.label} {100 * fraction:5.1f} % done", file=self.stream, flush=True)
             self.shown = fraction
 
 

@@ -23,6 +23,7 @@ numbers, chosen to fit ``memory_bytes``; nothing of size nbf⁴ is formed.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
@@ -175,7 +176,13 @@ def _ovov_row(half_i: np.ndarray, c_occ: np.ndarray, c_vir: np.ndarray, a_step: 
 
 
 def _opposite_and_exchange(
-    packed: np.ndarray, c_occ: np.ndarray, c_vir: np.ndarray, e_occ: np.ndarray, e_vir: np.ndarray, budget: int
+    packed: np.ndarray,
+    c_occ: np.ndarray,
+    c_vir: np.ndarray,
+    e_occ: np.ndarray,
+    e_vir: np.ndarray,
+    budget: int,
+    progress: Callable[[float], None] | None = None,
 ) -> tuple[float, float]:
     """Σ (ia|jb)² / Δ and Σ (ia|jb)(ib|ja) / Δ over active i, j and virtual a, b (hartree)."""
     nbf, n_occ = c_occ.shape
@@ -192,6 +199,8 @@ def _opposite_and_exchange(
             amplitudes = iajb / denominator
             opposite += float(np.einsum("ajb,ajb->", amplitudes, iajb))
             exchange += float(np.einsum("ajb,bja->", amplitudes, iajb))
+            if progress is not None:
+                progress((i + 1) / n_occ)
         del half
     return opposite, exchange
 
@@ -202,6 +211,7 @@ def mp2_energy(
     frozen_core: int = 0,
     eri: ERIStore | None = None,
     memory_bytes: int | None = None,
+    progress: Callable[[float], None] | None = None,
 ) -> MP2Result:
     """Canonical closed-shell MP2 and SCS-MP2 energies from a converged RHF run.
 
@@ -225,6 +235,10 @@ def mp2_energy(
         peak stays near the SCF's, which held the store and an exchange
         kernel of the same size). At least one occupied orbital is done at
         a time, whatever the budget.
+    progress : callable, optional
+        Called with the fraction (0..1] of the work done: the integral pass
+        (when the store is computed here) as the first half, then each
+        occupied orbital.
 
     Returns
     -------
@@ -263,8 +277,12 @@ def mp2_energy(
                 f"MP2 reads the stored integrals, {need / 2**20:.3g} MiB for {nbf} functions, but "
                 f"{limit / 2**20:.3g} MiB are allowed (--memory MIB, memory_limit)"
             )
-        eri = compute_eri(result.basis, threshold=result.options.screening)
-    elif eri.n_functions != nbf:
+        report = None if progress is None else (lambda fraction: progress(0.5 * fraction))
+        eri = compute_eri(result.basis, threshold=result.options.screening, progress=report)
+        start = 0.5
+    else:
+        start = 0.0
+    if eri.n_functions != nbf:
         raise InputError(f"the integral store has {eri.n_functions} functions but the basis has {nbf}")
     active = occupied[frozen_core:]
     coefficients = np.asarray(result.coefficients, dtype=np.float64)
@@ -274,7 +292,8 @@ def mp2_energy(
     e_occ, e_vir = energies[active], energies[virtual]
 
     budget = max(_MIN_WORK_BYTES, eri.packed.nbytes) if memory_bytes is None else int(memory_bytes)
-    opposite, exchange = _opposite_and_exchange(eri.packed, c_occ, c_vir, e_occ, e_vir, budget)
+    done = None if progress is None else (lambda fraction: progress(start + (1.0 - start) * fraction))
+    opposite, exchange = _opposite_and_exchange(eri.packed, c_occ, c_vir, e_occ, e_vir, budget, done)
     same = opposite - exchange
     correlation = opposite + same
     scs = SCS_OPPOSITE_SPIN * opposite + SCS_SAME_SPIN * same
