@@ -15,13 +15,14 @@ import os
 import sys
 import time
 import typing
+import warnings
 from collections.abc import Callable, Iterable, Sequence
 from typing import Any, TextIO
 
 import numpy as np
 
 from . import __version__, elements, export, report
-from .errors import HfcoreError, InputError, ResourceError
+from .errors import HfcoreError, InputError, NumericalError, ResourceError
 from .units import BOHR_IN_ANGSTROM
 
 #: Exit code after Ctrl-C (128 + SIGINT), the shell convention.
@@ -107,6 +108,13 @@ def _add_scf_arguments(parser: argparse.ArgumentParser) -> None:
                       help="store the integrals; fail up front if they exceed --memory")
     memory.add_argument("--memory", type=_positive_float, metavar="MIB",
                         help="memory the stored integrals may use, in MiB (default: half of the available memory)")
+    _add_threads_argument(memory)
+
+
+def _add_threads_argument(parser: Any) -> None:
+    parser.add_argument("--threads", type=_positive_int, metavar="N",
+                        help="threads for the integral passes and linear algebra "
+                        "(default: the cores this process may use); results do not depend on N")
 
 
 def _add_json_argument(parser: argparse.ArgumentParser) -> None:
@@ -123,7 +131,7 @@ def build_parser() -> argparse.ArgumentParser:
         prog="hfcore",
         description="Restricted Hartree-Fock energies of small closed-shell molecules.",
         epilog="Exit codes: 0 success, 2 bad input, 3 basis problem, 4 SCF not converged, "
-        "5 not enough memory, 130 interrupted, 141 output pipe closed.",
+        "5 not enough memory, 6 numerical failure, 130 interrupted, 141 output pipe closed.",
     )
     parser.add_argument("--version", action="version", version=f"hfcore {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
@@ -189,6 +197,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     _add_json_argument(compare)
     compare.add_argument("--plot", metavar="PNG", help="plot energy against the number of basis functions")
+    _add_threads_argument(compare)
     compare.set_defaults(handler=_run_compare)
 
     bases = sub.add_parser("bases", help="list the basis sets on offer")
@@ -283,7 +292,7 @@ def parse_basis_for(items: Sequence[str]) -> dict[str, str]:
 
 
 def _build_basis(args: argparse.Namespace, molecule: Any) -> Any:
-    from .basis import build_basis
+    from .basis import build_basis, require_room_for
     from .basis.sto import parse_zeta_overrides
 
     zeta = parse_zeta_overrides(args.zeta) if args.zeta else None
@@ -295,13 +304,15 @@ def _build_basis(args: argparse.Namespace, molecule: Any) -> Any:
         main = load_basis_file(args.basis_file)
         if zeta:
             raise InputError("--zeta applies only to the fitted STO-nG sets, not to a --basis-file")
-    return build_basis(molecule, main, spherical=args.spherical, zeta=zeta, per_element=per_element)
+    basis = build_basis(molecule, main, spherical=args.spherical, zeta=zeta, per_element=per_element)
+    require_room_for(molecule, basis)
+    return basis
 
 
 def _scf_options(args: argparse.Namespace) -> Any:
     from .scf import SCFOptions
 
-    names = ("energy_tol", "gradient_tol", "max_iterations", "max_diis_size", "lindep_threshold", "direct")
+    names = ("energy_tol", "gradient_tol", "max_iterations", "max_diis_size", "lindep_threshold", "direct", "threads")
     given = {name: getattr(args, name) for name in names if getattr(args, name, None) is not None}
     if getattr(args, "memory", None) is not None:
         given["memory_limit"] = args.memory
@@ -470,13 +481,17 @@ def _run_fit_sto(args: argparse.Namespace, console: _Console) -> int:
 
 def _run_compare(args: argparse.Namespace, console: _Console) -> int:
     from .analysis import compare_bases
+    from .scf import SCFOptions
 
     paths = _output_paths(args, "json", "plot")
     names = [n.strip() for n in args.basis.split(",") if n.strip()]
     if not names:
         raise InputError("--basis: give at least one basis name, e.g. sto-3g,cc-pvdz")
     molecule = _read_molecule(args)
-    comparison = compare_bases(molecule, names, spherical=args.spherical, progress=_stderr_progress(console))
+    options = SCFOptions(threads=args.threads)
+    comparison = compare_bases(
+        molecule, names, spherical=args.spherical, options=options, progress=_stderr_progress(console)
+    )
     record = export.comparison_record(comparison)
     if "plot" in paths:
         from .plots import plot_comparison
@@ -538,6 +553,30 @@ def _detach(stream: TextIO) -> None:
     os.close(devnull)
 
 
+@contextlib.contextmanager
+def _floating_point_errors_as_exceptions() -> typing.Iterator[None]:
+    """Run the work with numpy's floating-point problems raised, never printed.
+
+    Overflow, division by zero and invalid values (underflow is normal in
+    Gaussian integrals and stays silent) become exceptions, and so do the
+    numerical warnings of numpy and scipy; :func:`main` turns them into a
+    :class:`~hfcore.errors.NumericalError`. The warning filters are global,
+    so they also hold in worker threads, where numpy's error state is the
+    default ("warn").
+    """
+    with np.errstate(over="warn", divide="warn", invalid="warn", under="ignore"), warnings.catch_warnings():
+        warnings.filterwarnings("error", message=r"(overflow|divide by zero|invalid value) encountered", category=RuntimeWarning)
+        warnings.filterwarnings("error", category=RuntimeWarning, module=r"(numpy|scipy)(\.|$)")
+        yield
+
+
+def _numerical_failure(exc: BaseException) -> NumericalError:
+    what = str(exc).strip() or type(exc).__name__
+    return NumericalError(
+        f"numerical failure ({what}); the input passed validation, so please report it with the input files"
+    )
+
+
 def _fail(err: TextIO, message: str, code: int) -> int:
     one_line = " ".join(message.split())
     print(f"hfcore: error: {one_line}", file=err, flush=True)
@@ -558,8 +597,9 @@ def main(argv: Sequence[str] | None = None, *, stdout: TextIO | None = None, std
     -------
     int
         The exit code: 0 on success, the error class's ``exit_code`` for an
-        :class:`~hfcore.errors.HfcoreError`, 2 for a usage error, 130 after
-        an interrupt.
+        :class:`~hfcore.errors.HfcoreError` (6 for a floating-point failure
+        that validation did not prevent), 2 for a usage error, 130 after an
+        interrupt.
     """
     out = sys.stdout if stdout is None else stdout
     err = sys.stderr if stderr is None else stderr
@@ -572,7 +612,11 @@ def main(argv: Sequence[str] | None = None, *, stdout: TextIO | None = None, std
     json_to_stdout = getattr(args, "json", None) == "-"
     console = _Console(out, err, json_to_stdout, getattr(args, "quiet", False))
     try:
-        return args.handler(args, console)
+        try:
+            with _floating_point_errors_as_exceptions():
+                return args.handler(args, console)
+        except (FloatingPointError, RuntimeWarning, np.linalg.LinAlgError) as exc:
+            raise _numerical_failure(exc) from None
     except HfcoreError as exc:
         return _fail(err, str(exc), exc.exit_code)
     except MemoryError:

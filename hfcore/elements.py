@@ -53,7 +53,8 @@ def atomic_number(token: str) -> int:
         If the token names no known element.
     """
     t = token.strip()
-    if t.isdigit():
+    # isdecimal and isascii, not isdigit: "²" is a digit that int() refuses.
+    if t.isascii() and t.isdecimal():
         z = int(t)
         if 1 <= z <= MAX_Z:
             return z

@@ -59,4 +59,15 @@ class ResourceError(HfcoreError):
     exit_code = 5
 
 
-__all__ = ["HfcoreError", "InputError", "BasisError", "ConvergenceError", "ResourceError"]
+class NumericalError(HfcoreError):
+    """A floating-point failure that input validation did not prevent.
+
+    Overflow, an invalid value (NaN) or a linear-algebra routine that did not
+    converge. Validated input should never lead here; the command line turns
+    such a failure into this error instead of a numpy warning or traceback.
+    """
+
+    exit_code = 6
+
+
+__all__ = ["HfcoreError", "InputError", "BasisError", "ConvergenceError", "ResourceError", "NumericalError"]

@@ -1,8 +1,9 @@
 """Reading molecular geometries and the quantities that depend on them alone.
 
 Input validation happens here, once: every later stage may assume a
-``Molecule`` is well formed (finite coordinates, known elements, no two
-nuclei on top of each other).
+``Molecule`` is well formed (at least one atom, known elements, finite
+coordinates within :data:`MAX_COORDINATE_ANGSTROM` of the origin, a whole
+number charge; the XYZ reader also refuses two nuclei on top of each other).
 """
 
 from __future__ import annotations
@@ -12,6 +13,7 @@ import os
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy.spatial import cKDTree
 
 from . import elements
 from .errors import InputError
@@ -19,6 +21,17 @@ from .units import ANGSTROM_IN_BOHR, BOHR_IN_ANGSTROM
 
 #: Two nuclei closer than this (in ångström) are taken as a typing error.
 MIN_DISTANCE_ANGSTROM: float = 0.1
+
+#: Largest coordinate magnitude accepted, in ångström: every |x|, |y|, |z|
+#: must be at most this. Real molecules span tens of ångström; the bound keeps
+#: every distance and every exponent-times-distance² product of the integrals
+#: far from floating-point overflow.
+MAX_COORDINATE_ANGSTROM: float = 1.0e4
+
+#: A geometry file larger than this (bytes) is refused unread: 64 MiB is
+#: about a million atom lines, and the bound keeps a device such as
+#: /dev/zero from being read for ever.
+MAX_FILE_BYTES: int = 64 * 2**20
 
 _UNITS = {"angstrom": ANGSTROM_IN_BOHR, "bohr": 1.0}
 
@@ -49,15 +62,18 @@ class Molecule:
     _line_numbers: tuple[int, ...] = field(default=(), repr=False, compare=False)
 
     def __post_init__(self) -> None:
-        z = np.ascontiguousarray(self.atomic_numbers, dtype=np.int64).reshape(-1)
-        xyz = np.ascontiguousarray(self.coordinates, dtype=np.float64).reshape(-1, 3)
-        if z.shape[0] != xyz.shape[0]:
-            raise InputError(f"{self.source}: {z.shape[0]} atomic numbers but {xyz.shape[0]} positions")
+        z, xyz = _checked_arrays(self.atomic_numbers, self.coordinates, self.source)
+        charge = self.charge
+        whole = isinstance(charge, (int, np.integer)) or (
+            isinstance(charge, (float, np.floating)) and math.isfinite(charge) and charge == int(charge)
+        )
+        if isinstance(charge, bool) or not whole:
+            raise InputError(f"{self.source}: the charge must be a whole number, got {charge!r}")
         z.setflags(write=False)
         xyz.setflags(write=False)
         object.__setattr__(self, "atomic_numbers", z)
         object.__setattr__(self, "coordinates", xyz)
-        object.__setattr__(self, "charge", int(self.charge))
+        object.__setattr__(self, "charge", int(charge))
 
     @property
     def natom(self) -> int:
@@ -108,6 +124,50 @@ class Molecule:
             )
 
 
+def _checked_arrays(atomic_numbers: object, coordinates: object, source: str) -> tuple[np.ndarray, np.ndarray]:
+    """The arrays of a :class:`Molecule`, after every check that needs no file lines.
+
+    Returns
+    -------
+    z : ndarray of int64, shape (natom,)
+    xyz : ndarray of float64, shape (natom, 3)
+        In bohr, as given.
+
+    Raises
+    ------
+    InputError
+        For no atoms, a count mismatch, an atomic number outside
+        1..``elements.MAX_Z``, or a coordinate that is not finite or exceeds
+        :data:`MAX_COORDINATE_ANGSTROM` in magnitude.
+    """
+    try:
+        raw_z = np.asarray(atomic_numbers).reshape(-1)
+        xyz = np.ascontiguousarray(coordinates, dtype=np.float64).reshape(-1, 3)
+        z = np.ascontiguousarray(raw_z, dtype=np.int64)
+        whole = raw_z.dtype != object and bool(np.all(z == raw_z))
+    except (TypeError, ValueError, OverflowError):
+        raise InputError(f"{source}: atomic numbers must be whole numbers and positions an (natom, 3) array of numbers") from None
+    if not whole:
+        raise InputError(f"{source}: atomic numbers must be whole numbers, got {raw_z.tolist()!r}")
+    if z.shape[0] != xyz.shape[0]:
+        raise InputError(f"{source}: {z.shape[0]} atomic numbers but {xyz.shape[0]} positions")
+    if z.shape[0] == 0:
+        raise InputError(f"{source}: a molecule needs at least one atom")
+    unknown = np.flatnonzero((z < 1) | (z > elements.MAX_Z))
+    if unknown.size:
+        k = int(unknown[0])
+        raise InputError(f"{source}: atom {k + 1} has atomic number {z[k]}; hfcore knows elements 1 to {elements.MAX_Z}")
+    limit = MAX_COORDINATE_ANGSTROM * ANGSTROM_IN_BOHR
+    bad = np.flatnonzero(~np.all(np.isfinite(xyz) & (np.abs(xyz) <= limit), axis=1))
+    if bad.size:
+        k = int(bad[0])
+        raise InputError(
+            f"{source}: atom {k + 1} is at {xyz[k].tolist()} bohr; every coordinate must be a finite number "
+            f"of at most {MAX_COORDINATE_ANGSTROM:g} Å ({limit:.6g} bohr) in magnitude"
+        )
+    return z, xyz
+
+
 def nuclear_repulsion(atomic_numbers: np.ndarray, coordinates: np.ndarray) -> float:
     """Nuclear repulsion energy in hartree.
 
@@ -133,10 +193,26 @@ def nuclear_repulsion(atomic_numbers: np.ndarray, coordinates: np.ndarray) -> fl
 
 
 def _parse_float(text: str) -> float:
+    # Fortran-style exponents (1.0D+00) are read as E.
     value = float(text.replace("D", "E").replace("d", "e"))
     if not math.isfinite(value):
         raise ValueError(text)
     return value
+
+
+def _symbol_problem(token: str) -> str:
+    """Why ``token`` is not an element symbol, for the error message."""
+    if token.upper() == "X":
+        return f"{token!r} is a dummy atom, which hfcore does not accept; remove the line"
+    bare = token.rstrip("+-0123456789")
+    if bare and bare != token:
+        try:
+            elements.atomic_number(bare)
+        except KeyError:
+            pass
+        else:
+            return f"unknown element {token!r}: write the bare symbol {bare!r} (the charge comes from --charge)"
+    return f"unknown element {token!r}"
 
 
 def parse_xyz(text: str, source: str = "<string>", units: str = "angstrom", charge: int = 0) -> Molecule:
@@ -145,7 +221,10 @@ def parse_xyz(text: str, source: str = "<string>", units: str = "angstrom", char
     Format: line 1 holds the number of atoms, line 2 a free comment, then one
     line per atom ``symbol x y z`` (symbol in any case, or an atomic number).
     Extra columns after z are ignored; blank lines after the last atom are
-    allowed.
+    allowed. Also accepted: a leading byte-order mark, CRLF or CR line ends,
+    tabs between fields, and Fortran exponents (``1.0D+00``). Every
+    coordinate must be finite and at most :data:`MAX_COORDINATE_ANGSTROM` Å
+    in magnitude; nuclei closer than 0.1 Å are refused.
 
     Parameters
     ----------
@@ -172,7 +251,12 @@ def parse_xyz(text: str, source: str = "<string>", units: str = "angstrom", char
     if unit not in _UNITS:
         raise InputError(f"unknown length unit {units!r}: use 'angstrom' or 'bohr'")
     scale = _UNITS[unit]
-    lines = text.splitlines()
+    limit = MAX_COORDINATE_ANGSTROM * ANGSTROM_IN_BOHR
+    # Only LF, CRLF and CR end a line, so line numbers match a text editor's
+    # (str.splitlines would also split at form feeds and other separators).
+    lines = text.removeprefix("\ufeff").replace("\r\n", "\n").replace("\r", "\n").split("\n")
+    if lines and lines[-1] == "":
+        lines.pop()
     if not lines or not any(line.strip() for line in lines):
         raise InputError(f"{source}:1: the file is empty; expected an atom count on line 1")
     head = lines[0].strip()
@@ -205,28 +289,49 @@ def parse_xyz(text: str, source: str = "<string>", units: str = "angstrom", char
         try:
             z = elements.atomic_number(fields[0])
         except KeyError:
-            raise InputError(f"{source}:{number}: unknown element {fields[0]!r}") from None
+            raise InputError(f"{source}:{number}: {_symbol_problem(fields[0])}") from None
         coords = []
         for axis, token in zip("xyz", fields[1:4]):
             try:
-                coords.append(_parse_float(token) * scale)
+                value = _parse_float(token) * scale
             except ValueError:
                 raise InputError(f"{source}:{number}: the {axis} coordinate {token!r} is not a finite number") from None
+            if not abs(value) <= limit:
+                raise InputError(
+                    f"{source}:{number}: the {axis} coordinate {token} is out of range; "
+                    f"every coordinate must be at most {MAX_COORDINATE_ANGSTROM:g} Å in magnitude"
+                )
+            coords.append(value)
         zs.append(z)
         xyz.append((coords[0], coords[1], coords[2]))
         line_numbers.append(number)
     r = np.array(xyz, dtype=np.float64)
-    if natom > 1:
-        i, j = np.triu_indices(natom, k=1)
-        d = np.linalg.norm(r[i] - r[j], axis=1) * BOHR_IN_ANGSTROM
-        k = int(np.argmin(d))
-        if d[k] < MIN_DISTANCE_ANGSTROM:
-            a, b = int(i[k]), int(j[k])
-            raise InputError(
-                f"{source}:{line_numbers[b]}: atom {b + 1} is {d[k]:.3g} Å from atom {a + 1} "
-                f"(line {line_numbers[a]}); atoms closer than {MIN_DISTANCE_ANGSTROM} Å are not allowed"
-            )
+    close = _closest_close_pair(r, MIN_DISTANCE_ANGSTROM * ANGSTROM_IN_BOHR)
+    if close is not None:
+        a, b, d = close
+        raise InputError(
+            f"{source}:{line_numbers[b]}: atom {b + 1} is {d * BOHR_IN_ANGSTROM:.3g} Å from atom {a + 1} "
+            f"(line {line_numbers[a]}); atoms closer than {MIN_DISTANCE_ANGSTROM} Å are not allowed"
+        )
     return Molecule(np.array(zs), r, charge, source, comment, tuple(line_numbers))
+
+
+def _closest_close_pair(r: np.ndarray, cutoff: float) -> tuple[int, int, float] | None:
+    """The closest pair (a < b, distance) among pairs nearer than ``cutoff``, or None.
+
+    A k-d tree finds the near pairs in O(n log n), so a file with very many
+    atoms is checked without an n² distance table.
+    """
+    pairs = cKDTree(r).query_pairs(cutoff, output_type="ndarray")
+    # query_pairs includes pairs at exactly the cutoff; keep the strict ones.
+    if pairs.shape[0] == 0:
+        return None
+    d = np.linalg.norm(r[pairs[:, 0]] - r[pairs[:, 1]], axis=1)
+    order = np.lexsort((pairs[:, 1], pairs[:, 0], d))
+    k = int(order[0])
+    if not d[k] < cutoff:
+        return None
+    return int(pairs[k, 0]), int(pairs[k, 1]), float(d[k])
 
 
 def read_xyz(path: str | os.PathLike, units: str = "angstrom", charge: int = 0) -> Molecule:
@@ -252,18 +357,24 @@ def read_xyz(path: str | os.PathLike, units: str = "angstrom", charge: int = 0) 
     """
     source = os.fspath(path)
     try:
-        # utf-8-sig: some editors start UTF-8 files with a byte-order mark,
-        # which would otherwise spoil the atom count on line 1.
-        with open(source, encoding="utf-8-sig") as handle:
-            text = handle.read()
+        with open(source, "rb") as handle:
+            data = handle.read(MAX_FILE_BYTES + 1)
     except FileNotFoundError:
         raise InputError(f"{source}: no such file") from None
     except IsADirectoryError:
         raise InputError(f"{source}: is a directory, not a geometry file") from None
+    except OSError as exc:
+        raise InputError(f"{source}: cannot read ({exc.strerror or exc})") from None
+    if len(data) > MAX_FILE_BYTES:
+        raise InputError(f"{source}: larger than {MAX_FILE_BYTES // 2**20} MiB; not a geometry file hfcore can read")
+    if b"\0" in data:
+        raise InputError(f"{source}: not a text file (it contains NUL bytes)")
+    try:
+        # utf-8-sig: some editors start UTF-8 files with a byte-order mark,
+        # which would otherwise spoil the atom count on line 1.
+        text = data.decode("utf-8-sig")
     except UnicodeDecodeError:
         raise InputError(f"{source}: not a text file (cannot decode as UTF-8)") from None
-    except OSError as exc:
-        raise InputError(f"{source}: cannot read ({exc.strerror})") from None
     return parse_xyz(text, source=source, units=units, charge=charge)
 
 
@@ -274,4 +385,5 @@ __all__ = [
     "nuclear_repulsion",
     "BOHR_IN_ANGSTROM",
     "ANGSTROM_IN_BOHR",
+    "MAX_COORDINATE_ANGSTROM",
 ]

@@ -87,6 +87,8 @@ def _mib(n_bytes: int) -> str:
 def _jk_rows(plan: Any) -> list[tuple[str, str]]:
     if plan.mode == "stored":
         how = "stored once, reused every iteration"
+    elif plan.mode == "stored-lean":
+        how = "stored once, no exchange kernel (lean: half the memory, slower K builds)"
     else:
         how = "direct: recomputed every iteration from density changes"
     return [

@@ -12,10 +12,16 @@ Usage::
     python scripts/benchmark.py --threads 2     # both programs on two threads
     python scripts/benchmark.py --scaling       # add the water-cluster series
     python scripts/benchmark.py --json out.json
+    python scripts/benchmark.py --exact-tz      # benzene/cc-pVTZ, integrals stored
+    python scripts/benchmark.py --speedup       # two threads against one, benzene/cc-pVDZ
 
 The table reports wall times (integrals and SCF separately for hfcore), the
 hfcore/reference ratio, the energy difference, iteration counts and peak
-resident memory. Benchmarks are not tests: nothing here asserts a time.
+resident memory. ``proc/s`` is the whole child process (interpreter start,
+imports, run) as the parent timed it; peak memory is the child's own
+maximum resident set. hfcore's J/K mode (stored, stored-lean or direct) is
+the one its automatic choice makes unless a case forces it. Benchmarks are
+not tests: nothing here asserts a time.
 """
 
 from __future__ import annotations
@@ -41,6 +47,10 @@ CASES = [
     ("benzene/cc-pVDZ", "benzene.xyz", "cc-pvdz", None),
 ]
 SCALING = [(f"(H2O){n}/6-31G", f"water_cluster_{n}.xyz", "6-31g", None) for n in range(1, 9)]
+#: Exact (stored) benzene in cc-pVTZ, 264 functions: minutes per program.
+EXACT_TZ = [("benzene/cc-pVTZ", "benzene.xyz", "cc-pvtz", None)]
+#: The case of the two-thread speed-up.
+SPEEDUP = ("benzene/cc-pVDZ", "benzene.xyz", "cc-pvdz", None)
 
 ENERGY_TOL = 1e-10
 GRADIENT_TOL = 1e-7
@@ -66,7 +76,8 @@ def _run_hfcore(path: str, basis_name: str, spherical, threads: int, queue) -> N
         t0 = time.perf_counter()
         mol = hfcore.read_xyz(path)
         basis = hfcore.build_basis(mol, basis_name, spherical=spherical)
-        res = hfcore.run_rhf(mol, basis, SCFOptions(energy_tol=ENERGY_TOL, gradient_tol=GRADIENT_TOL))
+        options = SCFOptions(energy_tol=ENERGY_TOL, gradient_tol=GRADIENT_TOL, threads=threads)
+        res = hfcore.run_rhf(mol, basis, options)
         wall = time.perf_counter() - t0
         timings = dict(res.timings)
         queue.put(
@@ -78,6 +89,7 @@ def _run_hfcore(path: str, basis_name: str, spherical, threads: int, queue) -> N
                 "wall": wall,
                 "integrals": timings.get("integrals", math.nan),
                 "scf": timings.get("scf", math.nan),
+                "jk_mode": res.jk_mode,
                 "peak_mib": _peak_mib(),
                 "shells": _shell_dump(mol, basis),
             }
@@ -129,9 +141,11 @@ def _in_child(target, *args) -> dict:
     ctx = mp.get_context("spawn")
     queue = ctx.Queue()
     proc = ctx.Process(target=target, args=(*args, queue))
+    t0 = time.perf_counter()
     proc.start()
     out = queue.get()
     proc.join()
+    out["process_wall"] = time.perf_counter() - t0
     return out
 
 
@@ -153,7 +167,33 @@ def run_case(label: str, geometry: str, basis: str, spherical, threads: int) -> 
     else:
         row.update({f"reference_{k}": v for k, v in ref.items()})
         row["ratio"] = ours["wall"] / ref["wall"]
+        row["process_ratio"] = ours["process_wall"] / ref["process_wall"]
+        row["memory_ratio"] = ours["peak_mib"] / ref["peak_mib"]
         row["energy_difference"] = ours["energy"] - ref["energy"]
+    return row
+
+
+def speedup(label: str, geometry: str, basis: str, spherical) -> dict:
+    """Whole-process time on one thread over that on two, for each program, one child process each run."""
+    path = str(INPUTS / geometry)
+    one = _in_child(_run_hfcore, path, basis, spherical, 1)
+    two = _in_child(_run_hfcore, path, basis, spherical, 2)
+    row = {"case": label}
+    if "error" in one or "error" in two:
+        row["error"] = one.get("error") or two.get("error")
+        return row
+    dump = one.pop("shells")
+    two.pop("shells")
+    row["hfcore_speedup"] = one["process_wall"] / two["process_wall"]
+    row["hfcore_process_wall"] = (one["process_wall"], two["process_wall"])
+    row["hfcore_integrals"] = (one["integrals"], two["integrals"])
+    row["hfcore_scf"] = (one["scf"], two["scf"])
+    row["same_energy"] = one["energy"] == two["energy"]
+    ref_one = _in_child(_run_reference, dump, one["spherical"], 1)
+    ref_two = _in_child(_run_reference, dump, one["spherical"], 2)
+    if "error" not in ref_one and "error" not in ref_two:
+        row["reference_speedup"] = ref_one["process_wall"] / ref_two["process_wall"]
+        row["reference_process_wall"] = (ref_one["process_wall"], ref_two["process_wall"])
     return row
 
 
@@ -171,8 +211,8 @@ def scaling_exponent(rows: list[dict], key: str) -> float | None:
 
 def _format(rows: list[dict]) -> str:
     head = (
-        f"{'case':<18}{'nbf':>5}{'ints/s':>9}{'scf/s':>8}{'hfcore/s':>10}{'ref/s':>8}{'ratio':>7}"
-        f"{'dE/Eh':>10}{'it':>4}{'ref it':>7}{'MiB':>7}{'ref MiB':>8}"
+        f"{'case':<18}{'nbf':>5}{'mode':>12}{'ints/s':>9}{'scf/s':>8}{'hfcore/s':>10}{'ref/s':>8}{'ratio':>7}"
+        f"{'proc':>6}{'dE/Eh':>10}{'it':>4}{'ref it':>7}{'MiB':>7}{'ref MiB':>8}{'mem':>6}"
     )
     lines = [head, "-" * len(head)]
     for r in rows:
@@ -181,13 +221,17 @@ def _format(rows: list[dict]) -> str:
             continue
         ref = "reference_wall" in r
         lines.append(
-            f"{r['case']:<18}{r['n_functions']:>5}{r['hfcore_integrals']:>9.3f}{r['hfcore_scf']:>8.3f}"
-            f"{r['hfcore_wall']:>10.3f}"
-            + (f"{r['reference_wall']:>8.3f}{r['ratio']:>7.2f}{r['energy_difference']:>10.1e}" if ref else f"{'-':>8}{'-':>7}{'-':>10}")
+            f"{r['case']:<18}{r['n_functions']:>5}{r['hfcore_jk_mode']:>12}{r['hfcore_integrals']:>9.3f}"
+            f"{r['hfcore_scf']:>8.3f}{r['hfcore_wall']:>10.3f}"
+            + (
+                f"{r['reference_wall']:>8.3f}{r['ratio']:>7.2f}{r['process_ratio']:>6.2f}{r['energy_difference']:>10.1e}"
+                if ref
+                else f"{'-':>8}{'-':>7}{'-':>6}{'-':>10}"
+            )
             + f"{r['hfcore_iterations']:>4}"
             + (f"{r['reference_iterations']:>7}" if ref else f"{'-':>7}")
             + f"{r['hfcore_peak_mib']:>7.0f}"
-            + (f"{r['reference_peak_mib']:>8.0f}" if ref else f"{'-':>8}")
+            + (f"{r['reference_peak_mib']:>8.0f}{r['memory_ratio']:>6.2f}" if ref else f"{'-':>8}{'-':>6}")
         )
     return "\n".join(lines)
 
@@ -196,13 +240,16 @@ def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--threads", type=int, default=1, help="threads for both programs (default 1)")
     parser.add_argument("--scaling", action="store_true", help="also run the water-cluster series and fit the cost exponent")
-    parser.add_argument("--only", help="comma-separated case labels to run")
+    parser.add_argument("--exact-tz", action="store_true", help="also run benzene/cc-pVTZ with stored integrals")
+    parser.add_argument("--speedup", action="store_true",
+                        help="also time benzene/cc-pVDZ on two threads against one (whole process, each program)")
+    parser.add_argument("--only", help="comma-separated case labels to run ('none' for no fixed case)")
     parser.add_argument("--json", help="write the rows as JSON to this path ('-' for stdout)")
     args = parser.parse_args(argv)
-    cases = CASES + (SCALING if args.scaling else [])
+    cases = CASES + (SCALING if args.scaling else []) + (EXACT_TZ if args.exact_tz else [])
     if args.only:
         wanted = {s.strip() for s in args.only.split(",")}
-        cases = [c for c in cases if c[0] in wanted]
+        cases = [c for c in cases if c[0] in wanted or (c in EXACT_TZ and args.exact_tz)]
     rows = []
     for label, geometry, basis, spherical in cases:
         print(f"running {label} ...", file=sys.stderr, flush=True)
@@ -212,6 +259,9 @@ def main(argv: list[str] | None = None) -> int:
     if series:
         summary["scaling_exponent_hfcore"] = scaling_exponent(series, "hfcore_wall")
         summary["scaling_exponent_reference"] = scaling_exponent(series, "reference_wall")
+    if args.speedup:
+        print(f"running {SPEEDUP[0]} on one and two threads ...", file=sys.stderr, flush=True)
+        summary["speedup"] = speedup(*SPEEDUP)
     if args.json:
         text = json.dumps({"threads": args.threads, "rows": rows, "summary": summary}, indent=2)
         if args.json == "-":
@@ -221,9 +271,26 @@ def main(argv: list[str] | None = None) -> int:
     print(f"threads: {args.threads}; energy threshold {ENERGY_TOL:g} Eh, gradient {GRADIENT_TOL:g}")
     print(_format(rows))
     for key, value in summary.items():
-        if value is not None:
+        if isinstance(value, dict):
+            print(_format_speedup(value))
+        elif value is not None:
             print(f"{key}: {value:.2f}")
     return 0
+
+
+def _format_speedup(row: dict) -> str:
+    if "error" in row:
+        return f"speed-up {row['case']}: failed: {row['error']}"
+    one, two = row["hfcore_process_wall"]
+    text = (
+        f"two threads against one, {row['case']}, whole process: hfcore {one:.2f} s / {two:.2f} s = "
+        f"{row['hfcore_speedup']:.2f} (integrals {row['hfcore_integrals'][0]:.2f} / {row['hfcore_integrals'][1]:.2f} s, "
+        f"SCF {row['hfcore_scf'][0]:.2f} / {row['hfcore_scf'][1]:.2f} s; same energy: {row['same_energy']})"
+    )
+    if "reference_speedup" in row:
+        r1, r2 = row["reference_process_wall"]
+        text += f"; reference {r1:.2f} s / {r2:.2f} s = {row['reference_speedup']:.2f}"
+    return text
 
 
 if __name__ == "__main__":

@@ -9,24 +9,17 @@ from __future__ import annotations
 import io
 import json
 import os
-import subprocess
-import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
-from conftest import assert_valid_png
+from conftest import assert_one_line_error, assert_valid_png, cli_result, hfcore_process, only_inputs_left, run_main
+
+from reference import family_shells, reference_mole, reference_rhf
 
 from hfcore import export
+from hfcore.geometry import read_xyz
 from hfcore.cli import main, parse_basis_for
 from hfcore.errors import InputError
-
-WATER = """3
-water, neutral
-O   0.000000   0.000000   0.117300
-H   0.000000   0.757200  -0.469200
-H   0.000000  -0.757200  -0.469200
-"""
 
 REQUIRED_JSON_KEYS = [
     ("energy", "total"),
@@ -51,45 +44,6 @@ REQUIRED_JSON_KEYS = [
     ("molecule", "coordinates_bohr"),
     ("hfcore", "version"),
 ]
-
-
-def hfcore_process(*args: str, cwd: Path) -> subprocess.CompletedProcess:
-    """Run ``python -m hfcore ARGS`` in ``cwd`` and capture its streams."""
-    return subprocess.run(
-        [sys.executable, "-m", "hfcore", *args],
-        cwd=cwd,
-        capture_output=True,
-        text=True,
-        timeout=120,
-    )
-
-
-def run_main(*args: str) -> tuple[int, str, str]:
-    out, err = io.StringIO(), io.StringIO()
-    code = main(list(args), stdout=out, stderr=err)
-    return code, out.getvalue(), err.getvalue()
-
-
-@pytest.fixture()
-def water(tmp_path) -> Path:
-    path = tmp_path / "water.xyz"
-    path.write_text(WATER)
-    return path
-
-
-def assert_one_line_error(proc: subprocess.CompletedProcess, code: int, *fragments: str) -> None:
-    assert proc.returncode == code, proc.stderr
-    assert "Traceback" not in proc.stderr
-    lines = proc.stderr.splitlines()
-    assert len(lines) == 1, proc.stderr
-    assert lines[0].startswith("hfcore: error: ")
-    for fragment in fragments:
-        assert fragment in lines[0]
-    assert proc.stdout == ""
-
-
-def only_inputs_left(directory: Path, *inputs: str) -> bool:
-    return sorted(p.name for p in directory.iterdir()) == sorted(inputs)
 
 
 # --- bad input: one line, an exit code, no traceback, nothing written ---------------
@@ -143,38 +97,20 @@ def test_element_the_basis_does_not_cover_exits_3(tmp_path, basis, element, char
     assert only_inputs_left(tmp_path, "mol.xyz")
 
 
-def test_unknown_basis_name_exits_3(water):
-    proc = hfcore_process("energy", water.name, "--basis", "no-such-basis-zz", "--json", "o.json", cwd=water.parent)
+def test_unknown_basis_name_exits_3(water_file):
+    proc = hfcore_process("energy", water_file.name, "--basis", "no-such-basis-zz", "--json", "o.json", cwd=water_file.parent)
     assert_one_line_error(proc, 3, "no-such-basis-zz")
-    assert only_inputs_left(water.parent, water.name)
+    assert only_inputs_left(water_file.parent, water_file.name)
 
 
 @pytest.mark.parametrize(
     ("names", "code", "fragment"),
     [("sto-3g,no-such-basis-zz", 3, "no-such-basis-zz"), ("sto-3g,STO-3G", 2, "more than once")],
 )
-def test_compare_with_a_bad_basis_list_prints_only_the_error(water, names, code, fragment):
-    proc = hfcore_process("compare", water.name, "--basis", names, "--json", "o.json", cwd=water.parent)
+def test_compare_with_a_bad_basis_list_prints_only_the_error(water_file, names, code, fragment):
+    proc = hfcore_process("compare", water_file.name, "--basis", names, "--json", "o.json", cwd=water_file.parent)
     assert_one_line_error(proc, code, fragment)
-    assert only_inputs_left(water.parent, water.name)
-
-
-def cli_result(*args: str, cwd: Path, via: str) -> subprocess.CompletedProcess:
-    """The command's outcome, from a real process or from :func:`main` in this one.
-
-    The variants of one kind of flag error share a code path, so one of each
-    kind runs as a process (the exit code the shell sees, no traceback) and
-    the rest in-process, where ``main``'s return value is that exit code.
-    """
-    if via == "process":
-        return hfcore_process(*args, cwd=cwd)
-    here = os.getcwd()
-    os.chdir(cwd)
-    try:
-        code, out, err = run_main(*args)
-    finally:
-        os.chdir(here)
-    return subprocess.CompletedProcess(list(args), code, out, err)
+    assert only_inputs_left(water_file.parent, water_file.name)
 
 
 @pytest.mark.parametrize(
@@ -187,10 +123,10 @@ def cli_result(*args: str, cwd: Path, via: str) -> subprocess.CompletedProcess:
         ("H:2sp=1.0", "2sp", "main"),
     ],
 )
-def test_bad_zeta_exits_2(water, item, fragment, via):
-    proc = cli_result("energy", water.name, "--zeta", item, "--json", "o.json", cwd=water.parent, via=via)
+def test_bad_zeta_exits_2(water_file, item, fragment, via):
+    proc = cli_result("energy", water_file.name, "--zeta", item, "--json", "o.json", cwd=water_file.parent, via=via)
     assert_one_line_error(proc, 2, "zeta", fragment)
-    assert only_inputs_left(water.parent, water.name)
+    assert only_inputs_left(water_file.parent, water_file.name)
 
 
 @pytest.mark.parametrize(
@@ -202,20 +138,20 @@ def test_bad_zeta_exits_2(water, item, fragment, via):
         ("H=no-such-basis-zz", 3, "no-such-basis-zz", "process"),
     ],
 )
-def test_bad_basis_for(water, item, code, fragment, via):
-    proc = cli_result("energy", water.name, "--basis-for", item, "--json", "o.json", cwd=water.parent, via=via)
+def test_bad_basis_for(water_file, item, code, fragment, via):
+    proc = cli_result("energy", water_file.name, "--basis-for", item, "--json", "o.json", cwd=water_file.parent, via=via)
     assert_one_line_error(proc, code, fragment)
-    assert only_inputs_left(water.parent, water.name)
+    assert only_inputs_left(water_file.parent, water_file.name)
 
 
-def test_bad_basis_file_exits_3(water):
-    (water.parent / "bad.json").write_text('{"format": "hfcore-basis/1", "name": "x", "elements": {"O": [}')
-    proc = hfcore_process("energy", water.name, "--basis-file", "bad.json", cwd=water.parent)
+def test_bad_basis_file_exits_3(water_file):
+    (water_file.parent / "bad.json").write_text('{"format": "hfcore-basis/1", "name": "x", "elements": {"O": [}')
+    proc = hfcore_process("energy", water_file.name, "--basis-file", "bad.json", cwd=water_file.parent)
     assert_one_line_error(proc, 3, "bad.json")
 
 
-def test_output_in_a_missing_directory_fails_before_computing(water):
-    proc = hfcore_process("energy", water.name, "--json", "nodir/out.json", cwd=water.parent)
+def test_output_in_a_missing_directory_fails_before_computing(water_file):
+    proc = hfcore_process("energy", water_file.name, "--json", "nodir/out.json", cwd=water_file.parent)
     assert_one_line_error(proc, 2, "nodir/out.json", "does not exist")
 
 
@@ -237,18 +173,18 @@ def test_usage_errors_exit_2_without_traceback(tmp_path, args, via):
     assert_one_line_error(proc, 2)
 
 
-def test_scf_not_converged_exits_4_with_last_energy_and_gradient(water):
+def test_scf_not_converged_exits_4_with_last_energy_and_gradient(water_file):
     old = '{"kept": true}\n'
-    (water.parent / "o.json").write_text(old)
-    proc = hfcore_process("energy", water.name, "--max-iterations", "2", "--json", "o.json", "--quiet", cwd=water.parent)
+    (water_file.parent / "o.json").write_text(old)
+    proc = hfcore_process("energy", water_file.name, "--max-iterations", "2", "--json", "o.json", "--quiet", cwd=water_file.parent)
     assert proc.returncode == 4
     assert "Traceback" not in proc.stderr
     line = proc.stderr.strip()
     assert line.startswith("hfcore: error: ") and "\n" not in line
     assert "energy" in line and "gradient" in line
     # a failed run leaves an existing output file as it was
-    assert (water.parent / "o.json").read_text() == old
-    assert only_inputs_left(water.parent, water.name, "o.json")
+    assert (water_file.parent / "o.json").read_text() == old
+    assert only_inputs_left(water_file.parent, water_file.name, "o.json")
 
 
 def test_parse_basis_for_canonicalises_symbols():
@@ -260,8 +196,8 @@ def test_parse_basis_for_canonicalises_symbols():
 # --- successful runs ------------------------------------------------------------------
 
 
-def test_json_to_stdout_is_pure_json_with_the_required_keys(water):
-    proc = hfcore_process("energy", water.name, "--basis", "sto-3g", "--json", "-", cwd=water.parent)
+def test_json_to_stdout_is_pure_json_with_the_required_keys(water_file):
+    proc = hfcore_process("energy", water_file.name, "--basis", "sto-3g", "--json", "-", cwd=water_file.parent)
     assert proc.returncode == 0, proc.stderr
     assert proc.stderr == ""
     record = json.loads(proc.stdout)
@@ -274,34 +210,36 @@ def test_json_to_stdout_is_pure_json_with_the_required_keys(water):
     assert record["molecule"]["n_electrons"] == 10
     assert record["orbitals"]["homo"] == 4 and record["orbitals"]["lumo"] == 5
     assert record["orbitals"]["occupations"] == [2.0] * 5 + [0.0] * 2
-    e = record["energy"]
-    # source: exact property — the parts add up to the total
-    assert e["electronic"] == pytest.approx(e["one_electron"] + e["two_electron"], abs=1e-12)
-    assert e["total"] == pytest.approx(e["electronic"] + e["nuclear_repulsion"], abs=1e-12)
+    # source: exact property — sum of Z_A Z_B / R_AB over inputs/water.xyz, with the CODATA 2018
+    # Bohr radius 0.529177210903 Å from memory (not the record's own coordinates)
+    xyz = np.array([[0.0, 0.0, 0.065634], [0.0, 0.757481, -0.520870], [0.0, -0.757481, -0.520870]]) / 0.529177210903
+    z = [8.0, 1.0, 1.0]
+    nuclear = sum(z[a] * z[b] / np.linalg.norm(xyz[a] - xyz[b]) for a in range(3) for b in range(a))
+    assert record["energy"]["nuclear_repulsion"] == pytest.approx(nuclear, rel=2e-9)
     assert len(record["scf"]["history"]) == record["scf"]["iterations"]
 
 
-def test_json_file_matches_json_stdout_and_the_human_report(water):
-    code, out, err = run_main("energy", str(water), "--json", str(water.parent / "w.json"))
+def test_json_file_matches_json_stdout_and_the_human_report(water_file):
+    code, out, err = run_main("energy", str(water_file), "--json", str(water_file.parent / "w.json"))
     assert code == 0, err
-    record = json.loads((water.parent / "w.json").read_text())
+    record = json.loads((water_file.parent / "w.json").read_text())
     # the human report shows the same total energy, to the digits it prints
     assert f"{record['energy']['total']:22.12f}".strip() in out
     for section in ("Molecule", "Basis", "SCF iterations", "Energy / Eh", "Orbitals", "Mulliken charges", "Dipole moment", "Timings"):
         assert section in out
     assert "HOMO" in out and "LUMO" in out
-    assert only_inputs_left(water.parent, water.name, "w.json")
+    assert only_inputs_left(water_file.parent, water_file.name, "w.json")
 
 
-def test_human_report_prints_one_row_per_iteration_and_quiet_drops_them(water):
-    code, out, _ = run_main("energy", str(water), "--json", str(water.parent / "w.json"))
+def test_human_report_prints_one_row_per_iteration_and_quiet_drops_them(water_file):
+    code, out, _ = run_main("energy", str(water_file), "--json", str(water_file.parent / "w.json"))
     assert code == 0
-    iterations = json.loads((water.parent / "w.json").read_text())["scf"]["iterations"]
+    iterations = json.loads((water_file.parent / "w.json").read_text())["scf"]["iterations"]
     lines = out.splitlines()
     table = lines[lines.index("SCF iterations") + 3 : next(k for k, l in enumerate(lines) if "converged after" in l)]
     rows = [line for line in table if line.strip()]
     assert [int(r.split()[0]) for r in rows] == list(range(1, iterations + 1))
-    code, quiet, _ = run_main("energy", str(water), "--quiet")
+    code, quiet, _ = run_main("energy", str(water_file), "--quiet")
     assert code == 0
     assert "SCF iterations" not in quiet and "total energy" in quiet
 
@@ -312,23 +250,23 @@ def energy_record(*args: str) -> dict:
     return json.loads(out)
 
 
-def test_basis_for_gives_one_element_another_basis(water):
-    record = energy_record(str(water), "--basis", "sto-3g", "--basis-for", "H=6-31g")
+def test_basis_for_gives_one_element_another_basis(water_file):
+    record = energy_record(str(water_file), "--basis", "sto-3g", "--basis-for", "H=6-31g")
     # source: common practice — STO-3G O has 5 functions, 6-31G H has 2
     assert record["basis"]["n_functions"] == 5 + 2 * 2
     assert "6-31G" in record["basis"]["name"]
 
 
-def test_several_items_after_one_flag_or_repeated_flags_are_the_same(water):
-    one = energy_record(str(water), "--basis", "sto-3g", "--zeta", "O=7.7", "H=1.3")
-    repeated = energy_record(str(water), "--basis", "sto-3g", "--zeta", "O=7.7", "--zeta", "H=1.3")
-    default = energy_record(str(water), "--basis", "sto-3g")
+def test_several_items_after_one_flag_or_repeated_flags_are_the_same(water_file):
+    one = energy_record(str(water_file), "--basis", "sto-3g", "--zeta", "O=7.7", "H=1.3")
+    repeated = energy_record(str(water_file), "--basis", "sto-3g", "--zeta", "O=7.7", "--zeta", "H=1.3")
+    default = energy_record(str(water_file), "--basis", "sto-3g")
     assert one["energy"]["total"] == repeated["energy"]["total"] != default["energy"]["total"]
 
 
-def test_cartesian_and_spherical_flags_change_the_d_functions(water):
-    spherical = energy_record(str(water), "--basis", "cc-pvdz", "--spherical", "--quiet")
-    cartesian = energy_record(str(water), "--basis", "cc-pvdz", "--cartesian", "--quiet")
+def test_cartesian_and_spherical_flags_change_the_d_functions(water_file):
+    spherical = energy_record(str(water_file), "--basis", "cc-pvdz", "--spherical", "--quiet")
+    cartesian = energy_record(str(water_file), "--basis", "cc-pvdz", "--cartesian", "--quiet")
     # source: common practice — cc-pVDZ water: O 3s2p1d, H 2s1p; a d shell has 5 spherical or 6 Cartesian functions
     assert (spherical["basis"]["n_functions"], cartesian["basis"]["n_functions"]) == (24, 25)
     assert spherical["basis"]["spherical"] is True and cartesian["basis"]["spherical"] is False
@@ -350,22 +288,22 @@ def test_basis_file_with_the_textbook_fit_reproduces_sto3g(tmp_path):
     assert mine["energy"]["total"] == pytest.approx(fitted["energy"]["total"], abs=1e-6)
 
 
-def test_core_guess_reaches_the_same_energy(water):
-    sad = energy_record(str(water))
-    core = energy_record(str(water), "--guess", "core")
+def test_core_guess_reaches_the_same_energy(water_file):
+    sad = energy_record(str(water_file))
+    core = energy_record(str(water_file), "--guess", "core")
     # source: common practice — for closed-shell water near equilibrium both guesses reach the same RHF solution
     assert core["energy"]["total"] == pytest.approx(sad["energy"]["total"], abs=1e-9)
 
 
-def test_scf_thresholds_are_passed_on(water):
-    record = energy_record(str(water), "--energy-tol", "1e-6", "--gradient-tol", "1e-4", "--max-diis-size", "4")
+def test_scf_thresholds_are_passed_on(water_file):
+    record = energy_record(str(water_file), "--energy-tol", "1e-6", "--gradient-tol", "1e-4", "--max-diis-size", "4")
     thresholds = record["scf"]["thresholds"]
     assert (thresholds["energy_tol"], thresholds["gradient_tol"], thresholds["max_diis_size"]) == (1e-6, 1e-4, 4)
     assert max(h["diis_size"] for h in record["scf"]["history"]) <= 4
 
 
-def test_long_orbital_lists_are_cut_after_ten_virtuals(water):
-    code, out, _ = run_main("energy", str(water), "--basis", "cc-pvdz", "--quiet")
+def test_long_orbital_lists_are_cut_after_ten_virtuals(water_file):
+    code, out, _ = run_main("energy", str(water_file), "--basis", "cc-pvdz", "--quiet")
     assert code == 0
     orbitals = out[out.index("Orbitals") : out.index("Mulliken charges")]
     rows = [line for line in orbitals.splitlines() if line.strip()[:1].isdigit()]
@@ -375,11 +313,11 @@ def test_long_orbital_lists_are_cut_after_ten_virtuals(water):
     assert "9 higher virtual orbitals not shown" in orbitals
 
 
-def test_npz_holds_the_arrays_for_prototyping(water):
-    path = water.parent / "w.npz"
-    code, _, err = run_main("energy", str(water), "--npz", str(path), "--json", str(water.parent / "w.json"))
+def test_npz_holds_the_arrays_for_prototyping(water_file):
+    path = water_file.parent / "w.npz"
+    code, _, err = run_main("energy", str(water_file), "--npz", str(path), "--json", str(water_file.parent / "w.json"))
     assert code == 0, err
-    record = json.loads((water.parent / "w.json").read_text())
+    record = json.loads((water_file.parent / "w.json").read_text())
     with np.load(path, allow_pickle=False) as data:
         arrays = {k: data[k] for k in data.files}
     nbf = 7
@@ -388,11 +326,13 @@ def test_npz_holds_the_arrays_for_prototyping(water):
     assert arrays["eri"].shape == (nbf,) * 4
     assert arrays["coordinates"].shape == (3, 3)
     assert arrays["atomic_numbers"].tolist() == [8, 1, 1]
-    # source: exact property — H = T + V
-    np.testing.assert_allclose(arrays["core_hamiltonian"], arrays["kinetic"] + arrays["nuclear_attraction"], atol=1e-12)
-    c_occ = arrays["coefficients"][:, arrays["occupations"] > 0]
-    # source: exact property — the total density is 2 C_occ C_occ^T
-    np.testing.assert_allclose(arrays["density"], 2 * c_occ @ c_occ.T, atol=1e-12)
+    mol = reference_mole(read_xyz(water_file), family_shells(read_xyz(water_file), "sto-3g"), spherical=False)
+    # source: reference library run (PySCF integrals and RHF density), same shells and geometry
+    np.testing.assert_allclose(arrays["overlap"], mol.intor("int1e_ovlp"), rtol=0, atol=1e-10)
+    np.testing.assert_allclose(arrays["kinetic"], mol.intor("int1e_kin"), rtol=0, atol=1e-10)
+    np.testing.assert_allclose(arrays["nuclear_attraction"], mol.intor("int1e_nuc"), rtol=0, atol=1e-10)
+    np.testing.assert_allclose(arrays["core_hamiltonian"], mol.intor("int1e_kin") + mol.intor("int1e_nuc"), rtol=0, atol=1e-10)
+    np.testing.assert_allclose(arrays["density"], reference_rhf(mol).make_rdm1(), rtol=0, atol=1e-6)
     np.testing.assert_allclose(arrays["coordinates"], record["molecule"]["coordinates_bohr"], rtol=0, atol=0)
     assert float(arrays["energy_total"]) == record["energy"]["total"]
     # source: exact property — the energy is recovered from the saved arrays:
@@ -403,34 +343,34 @@ def test_npz_holds_the_arrays_for_prototyping(water):
     assert energy == pytest.approx(record["energy"]["total"], abs=1e-8)
 
 
-def test_npz_leaves_out_the_eri_tensor_above_the_size_limit(water):
+def test_npz_leaves_out_the_eri_tensor_above_the_size_limit(water_file):
     import hfcore
 
-    mol = hfcore.read_xyz(water)
+    mol = hfcore.read_xyz(water_file)
     result = hfcore.run_rhf(mol, hfcore.build_basis(mol, "sto-3g"))
     assert "eri" in export.result_arrays(result)
     assert "eri" not in export.result_arrays(result, eri_max_functions=6)
 
 
-def test_outputs_replace_existing_files_whole(water):
-    target = water.parent / "w.json"
+def test_outputs_replace_existing_files_whole(water_file):
+    target = water_file.parent / "w.json"
     target.write_text("old content that is longer than nothing\n" * 1000)
-    code, _, _ = run_main("energy", str(water), "--json", str(target), "--quiet")
+    code, _, _ = run_main("energy", str(water_file), "--json", str(target), "--quiet")
     assert code == 0
     json.loads(target.read_text())
-    assert only_inputs_left(water.parent, water.name, "w.json")
+    assert only_inputs_left(water_file.parent, water_file.name, "w.json")
 
 
-def test_outputs_get_the_permissions_of_any_new_file(water):
+def test_outputs_get_the_permissions_of_any_new_file(water_file):
     previous = os.umask(0o027)
     try:
-        code, _, err = run_main("energy", str(water), "--json", str(water.parent / "w.json"), "--npz", str(water.parent / "w.npz"))
+        code, _, err = run_main("energy", str(water_file), "--json", str(water_file.parent / "w.json"), "--npz", str(water_file.parent / "w.npz"))
     finally:
         os.umask(previous)
     assert code == 0, err
     for name in ("w.json", "w.npz"):
         # common practice: a new file gets 0666 less the umask, not a temporary file's private 0600
-        assert (water.parent / name).stat().st_mode & 0o777 == 0o640
+        assert (water_file.parent / name).stat().st_mode & 0o777 == 0o640
 
 
 def test_staging_failure_writes_no_file_at_all(tmp_path):
@@ -440,8 +380,8 @@ def test_staging_failure_writes_no_file_at_all(tmp_path):
     assert only_inputs_left(tmp_path)
 
 
-def test_json_and_npz_to_the_same_path_is_refused(water):
-    code, out, err = run_main("energy", str(water), "--json", "x.out", "--npz", "x.out")
+def test_json_and_npz_to_the_same_path_is_refused(water_file):
+    code, out, err = run_main("energy", str(water_file), "--json", "x.out", "--npz", "x.out")
     assert code == 2 and "given for two outputs" in err and out == ""
 
 
@@ -536,14 +476,14 @@ def test_version_flag(tmp_path):
     assert proc.returncode == 0 and proc.stdout.startswith("hfcore ")
 
 
-def test_numpy_out_of_memory_exits_5_with_one_line(monkeypatch, water):
+def test_numpy_out_of_memory_exits_5_with_one_line(monkeypatch, water_file):
     import hfcore.cli as cli
 
     def exhausted(*args, **kwargs):
         raise MemoryError
 
     monkeypatch.setattr(cli, "_read_molecule", exhausted)
-    code, out, err = run_main("energy", str(water))
+    code, out, err = run_main("energy", str(water_file))
     assert code == 5 and out == ""
     assert err.startswith("hfcore: error: not enough memory") and err.count("\n") == 1
 
@@ -553,20 +493,20 @@ class _ClosedPipe(io.StringIO):
         raise BrokenPipeError(32, "Broken pipe")
 
 
-def test_reader_that_goes_away_ends_the_run_quietly_with_141(water):
+def test_reader_that_goes_away_ends_the_run_quietly_with_141(water_file):
     err = io.StringIO()
-    code = main(["energy", str(water)], stdout=_ClosedPipe(), stderr=err)
+    code = main(["energy", str(water_file)], stdout=_ClosedPipe(), stderr=err)
     # common practice: 128 + SIGPIPE, and no message, as for a pipeline member killed by the signal
     assert code == 141 and err.getvalue() == ""
 
 
-def test_interrupt_exits_130_with_one_line(monkeypatch, water):
+def test_interrupt_exits_130_with_one_line(monkeypatch, water_file):
     import hfcore.cli as cli
 
     def interrupted(*args, **kwargs):
         raise KeyboardInterrupt
 
     monkeypatch.setattr(cli, "_read_molecule", interrupted)
-    code, out, err = run_main("energy", str(water))
+    code, out, err = run_main("energy", str(water_file))
     assert code == 130 and out == "" and err == "hfcore: interrupted\n"
-    assert os.path.exists(water)
+    assert os.path.exists(water_file)

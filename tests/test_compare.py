@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import json
 import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -21,19 +20,13 @@ from hfcore.analysis import (
 from hfcore.errors import InputError
 from hfcore.plots import plot_comparison
 
-INPUTS = Path(__file__).resolve().parent.parent / "inputs"
 NESTED = ["6-31g*", "6-31g"]
 
 
 @pytest.fixture(scope="module")
-def hydrogen_fluoride():
-    return hfcore.read_xyz(INPUTS / "hydrogen_fluoride.xyz")
-
-
-@pytest.fixture(scope="module")
-def nested(hydrogen_fluoride):
+def nested(hydrogen_fluoride_molecule):
     messages: list[str] = []
-    comparison = compare_bases(hydrogen_fluoride, NESTED, progress=messages.append)
+    comparison = compare_bases(hydrogen_fluoride_molecule, NESTED, progress=messages.append)
     return comparison, messages
 
 
@@ -70,9 +63,9 @@ def test_rows_keep_the_given_order_and_results(nested):
     assert [res.basis.n_functions for res in comparison.results] == [r.n_functions for r in comparison.rows]
 
 
-def test_projected_guess_reaches_the_same_energy_as_atomic_guess(hydrogen_fluoride, nested):
+def test_projected_guess_reaches_the_same_energy_as_atomic_guess(hydrogen_fluoride_molecule, nested):
     comparison, _ = nested
-    atomic = compare_bases(hydrogen_fluoride, NESTED, guess="sad")
+    atomic = compare_bases(hydrogen_fluoride_molecule, NESTED, guess="sad")
     assert atomic.rows[0].guess == "sad"
     for a, b in zip(comparison.rows, atomic.rows):
         # source: exact property — the converged RHF state does not depend on the start (same state here)
@@ -87,7 +80,7 @@ def test_automatic_guess_projects_for_molecules_and_not_for_atoms(nested):
     assert [r.guess for r in atom.rows] == ["sad", "sad"]
 
 
-def test_projection_keeps_a_density_in_the_same_basis(hydrogen_fluoride, nested):
+def test_projection_keeps_a_density_in_the_same_basis(hydrogen_fluoride_molecule, nested):
     comparison, _ = nested
     result = comparison.results[0]
     # source: exact property — projecting onto the same space is the identity
@@ -171,14 +164,14 @@ def test_unconverged_rows_are_left_out_of_estimates():
 
 
 @pytest.mark.parametrize("names", [[], ["6-31g", "6-31G"], "6-31g"], ids=["empty", "repeated", "one string"])
-def test_bad_name_lists_are_refused(hydrogen_fluoride, names):
+def test_bad_name_lists_are_refused(hydrogen_fluoride_molecule, names):
     with pytest.raises(InputError):
-        compare_bases(hydrogen_fluoride, names)
+        compare_bases(hydrogen_fluoride_molecule, names)
 
 
-def test_unknown_guess_is_refused(hydrogen_fluoride):
+def test_unknown_guess_is_refused(hydrogen_fluoride_molecule):
     with pytest.raises(InputError, match="guess"):
-        compare_bases(hydrogen_fluoride, ["sto-3g"], guess="core")
+        compare_bases(hydrogen_fluoride_molecule, ["sto-3g"], guess="core")
 
 
 def test_plot_writes_a_png(nested, tmp_path):
@@ -203,8 +196,8 @@ def test_plot_without_matplotlib_names_the_install_command(nested, tmp_path, mon
         plot_comparison(comparison, tmp_path / "compare.png")
 
 
-def test_unconverged_runs_are_flagged_not_raised(hydrogen_fluoride):
-    comparison = compare_bases(hydrogen_fluoride, ["sto-3g", "6-31g"], options=hfcore.SCFOptions(max_iterations=2))
+def test_unconverged_runs_are_flagged_not_raised(hydrogen_fluoride_molecule):
+    comparison = compare_bases(hydrogen_fluoride_molecule, ["sto-3g", "6-31g"], options=hfcore.SCFOptions(max_iterations=2))
     assert [r.converged for r in comparison.rows] == [False, False]
     assert [r.iterations for r in comparison.rows] == [2, 2]
     # Nothing converged, so nothing could be projected.

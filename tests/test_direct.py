@@ -7,40 +7,14 @@ import json
 
 import numpy as np
 import pytest
+from conftest import read_input, run_main
 
 import hfcore
 from hfcore import integrals
-from hfcore.cli import _IntegralProgress, main
+from hfcore.cli import _IntegralProgress
 from hfcore.errors import InputError, ResourceError
-from hfcore.geometry import parse_xyz
 from hfcore.scf import IncrementalJK, SCFOptions, plan_jk, run_rhf, solve_rhf
 from hfcore.scf.options import FALLBACK_MEMORY_MIB, MEMORY_FRACTION, default_memory_limit
-
-WATER = """3
-water
-O   0.000000   0.000000   0.117300
-H   0.000000   0.757200  -0.469200
-H   0.000000  -0.757200  -0.469200
-"""
-
-HYDROGEN_FLUORIDE = """2
-hydrogen fluoride
-F   0.000000   0.000000   0.000000
-H   0.000000   0.000000   0.917000
-"""
-
-AMMONIA = """4
-ammonia
-N   0.000000   0.000000   0.116700
-H   0.000000   0.939700  -0.272300
-H   0.813800  -0.469800  -0.272300
-H  -0.813800  -0.469800  -0.272300
-"""
-
-
-def molecule(text: str) -> hfcore.Molecule:
-    return parse_xyz(text, source="test")
-
 
 def random_symmetric(n: int, seed: int = 7) -> np.ndarray:
     a = np.random.default_rng(seed).standard_normal((n, n))
@@ -48,13 +22,13 @@ def random_symmetric(n: int, seed: int = 7) -> np.ndarray:
 
 
 @pytest.mark.parametrize(
-    "text, basis, spherical",
-    [(WATER, "6-31g*", False), (HYDROGEN_FLUORIDE, "cc-pvdz", True), (AMMONIA, "3-21g", None)],
+    "name, basis, spherical",
+    [("water", "6-31g*", False), ("hydrogen_fluoride", "cc-pvdz", True), ("ammonia", "3-21g", None)],
 )
-def test_direct_jk_equals_stored_jk(text, basis, spherical):
+def test_direct_jk_equals_stored_jk(name, basis, spherical):
     # exact property: both modes contract the same screened integrals
     # (Cartesian and spherical d, sp families, general contractions)
-    b = hfcore.build_basis(molecule(text), basis, spherical=spherical)
+    b = hfcore.build_basis(read_input(name), basis, spherical=spherical)
     d = random_symmetric(b.n_functions)
     j_ref, k_ref = integrals.compute_eri(b).jk(d)
     j, k = integrals.DirectERI(b).jk(d)
@@ -62,9 +36,9 @@ def test_direct_jk_equals_stored_jk(text, basis, spherical):
     np.testing.assert_allclose(k, k_ref, rtol=0, atol=1e-11)
 
 
-@pytest.mark.parametrize("text, basis", [(WATER, "6-31g*"), (HYDROGEN_FLUORIDE, "cc-pvdz"), (AMMONIA, "sto-3g")])
-def test_direct_energy_equals_stored_energy(text, basis):
-    mol = molecule(text)
+@pytest.mark.parametrize("name, basis", [("water", "6-31g*"), ("hydrogen_fluoride", "cc-pvdz"), ("ammonia", "sto-3g")])
+def test_direct_energy_equals_stored_energy(name, basis):
+    mol = read_input(name)
     b = hfcore.build_basis(mol, basis)
     stored = run_rhf(mol, b, SCFOptions(direct=False))
     direct = run_rhf(mol, b, SCFOptions(direct=True))
@@ -83,7 +57,7 @@ def _direct_solve(mol, b, interval: int) -> tuple[float, IncrementalJK]:
 
 
 def test_incremental_builds_with_periodic_rebuild_reach_the_full_build_energy():
-    mol = molecule(WATER)
+    mol = read_input("water")
     b = hfcore.build_basis(mol, "6-31g*")
     e_full, jk_full = _direct_solve(mol, b, interval=1)
     e_inc, jk_inc = _direct_solve(mol, b, interval=4)
@@ -96,7 +70,7 @@ def test_incremental_builds_with_periodic_rebuild_reach_the_full_build_energy():
 
 
 def test_small_density_changes_skip_quartets():
-    b = hfcore.build_basis(molecule(WATER), "6-31g*")
+    b = hfcore.build_basis(read_input("water"), "6-31g*")
     direct = integrals.DirectERI(b)
     d = random_symmetric(b.n_functions)
     direct.jk(d)
@@ -111,7 +85,7 @@ def test_small_density_changes_skip_quartets():
 
 def test_density_in_one_atom_block_screens_the_rest():
     # exact property: quartets whose six density blocks are all zero add nothing
-    mol = molecule(WATER)
+    mol = read_input("water")
     b = hfcore.build_basis(mol, "6-31g*")
     n_o = sum(s.n_functions(b.spherical) for s in b.shells if s.atom == 0)
     d = np.zeros((b.n_functions, b.n_functions))
@@ -125,7 +99,7 @@ def test_density_in_one_atom_block_screens_the_rest():
 
 
 def test_memory_estimate_is_the_size_of_the_store():
-    b = hfcore.build_basis(molecule(WATER), "6-31g*")
+    b = hfcore.build_basis(read_input("water"), "6-31g*")
     store = integrals.compute_eri(b)
     store.jk(np.eye(b.n_functions))
     # exact property: two packed float64 arrays of npair(npair+1)/2 elements
@@ -134,15 +108,54 @@ def test_memory_estimate_is_the_size_of_the_store():
     assert integrals.estimate_eri_memory(b) == 16 * npair * (npair + 1) // 2
 
 
-def test_automatic_mode_stores_when_it_fits_and_goes_direct_when_not():
-    mol = molecule(WATER)
+def test_automatic_mode_stores_then_stores_lean_then_goes_direct_as_the_budget_shrinks():
+    mol = read_input("water")
     b = hfcore.build_basis(mol, "sto-3g")
     assert plan_jk(b, SCFOptions()).mode == "stored"
-    small = SCFOptions(memory_limit=integrals.estimate_eri_memory(b) / 2**20 / 2)
+    lean = integrals.estimate_eri_memory(b, lean=True)
+    assert plan_jk(b, SCFOptions(memory_limit=lean / 2**20)).mode == "stored-lean"
+    small = SCFOptions(memory_limit=lean / 2**20 / 2)
     assert plan_jk(b, small).mode == "direct"
     result = run_rhf(mol, b, small)
     assert result.jk_mode == "direct"
     assert result.converged
+
+
+def test_a_store_past_the_kernel_limit_goes_lean_even_with_memory_to_spare(monkeypatch):
+    from hfcore.scf import driver
+
+    b = hfcore.build_basis(read_input("water"), "sto-3g")
+    monkeypatch.setattr(driver, "EXCHANGE_KERNEL_LIMIT_BYTES", integrals.estimate_eri_memory(b) - 1)
+    plan = plan_jk(b, SCFOptions(memory_limit=1000.0))
+    assert (plan.mode, plan.eri_bytes) == ("stored-lean", integrals.estimate_eri_memory(b, lean=True))
+
+
+def test_lean_store_is_half_the_size_and_gives_the_same_energy():
+    mol = read_input("water")
+    b = hfcore.build_basis(mol, "6-31g*")
+    full = run_rhf(mol, b)
+    lean_bytes = integrals.estimate_eri_memory(b, lean=True)
+    # exact property: one packed float64 array of npair(npair+1)/2 elements
+    assert lean_bytes == 8 * (19 * 20 // 2) * (19 * 20 // 2 + 1) // 2
+    lean = run_rhf(mol, b, SCFOptions(direct=False, memory_limit=lean_bytes / 2**20))
+    assert (full.jk_mode, lean.jk_mode) == ("stored", "stored-lean")
+    assert lean.eri_bytes == lean_bytes
+    # exact property: the same integrals contracted in another order
+    assert lean.energy_total == pytest.approx(full.energy_total, abs=1e-10)
+
+
+def test_lean_store_builds_k_like_the_dense_contraction():
+    b = hfcore.build_basis(read_input("water"), "6-31g*")
+    store = integrals.compute_eri(b, threshold=0.0, lean=True)
+    rng = np.random.default_rng(3)
+    a = rng.standard_normal((b.n_functions, b.n_functions))
+    density = a + a.T
+    eri = store.to_dense()
+    j, k = store.jk(density)
+    # exact property: the definitions J = (mn|ls) D_ls and K = (ml|ns) D_ls
+    np.testing.assert_allclose(j, np.einsum("mnls,ls->mn", eri, density), rtol=0, atol=1e-12)
+    np.testing.assert_allclose(k, np.einsum("mlns,ls->mn", eri, density), rtol=0, atol=1e-12)
+    assert store.nbytes == integrals.estimate_eri_memory(b, lean=True)  # no exchange kernel was built
 
 
 def test_forced_stored_mode_beyond_the_budget_fails_before_allocating(monkeypatch):
@@ -152,7 +165,7 @@ def test_forced_stored_mode_beyond_the_budget_fails_before_allocating(monkeypatc
     monkeypatch.setattr(integrals, "compute_eri", no_integrals)
     monkeypatch.setattr(integrals, "DirectERI", no_integrals)
     with pytest.raises(ResourceError) as info:
-        run_rhf(molecule(WATER), "6-31g*", SCFOptions(direct=False, memory_limit=0.1))
+        run_rhf(read_input("water"), "6-31g*", SCFOptions(direct=False, memory_limit=0.1))
     message = str(info.value)
     assert "0.277 MiB" in message and "0.1 MiB" in message  # exact property: 16 * 18145 bytes
     assert "--direct" in message and "--memory" in message
@@ -174,46 +187,45 @@ def test_bad_memory_options_are_input_errors(kwargs):
         SCFOptions(**kwargs)
 
 
-def run_main(*args: str) -> tuple[int, str, str]:
-    out, err = io.StringIO(), io.StringIO()
-    code = main(list(args), stdout=out, stderr=err)
-    return code, out.getvalue(), err.getvalue()
-
-
-@pytest.fixture()
-def water_file(tmp_path):
-    path = tmp_path / "water.xyz"
-    path.write_text(WATER)
-    return str(path)
-
-
 def test_cli_direct_mode_shows_in_json(water_file):
-    code, out, err = run_main("energy", water_file, "--direct", "--json", "-")
+    code, out, err = run_main("energy", str(water_file), "--direct", "--json", "-")
     assert code == 0, err
     assert err == ""
     record = json.loads(out)
     assert record["scf"]["jk_mode"] == "direct"
     # exact property: STO-3G water has 7 functions, 28 pairs, 28·29/2 unique quartets at 16 bytes
     assert record["scf"]["eri_memory_bytes"] == 16 * 28 * 29 // 2
-    code, out, _ = run_main("energy", water_file, "--json", "-")
+    code, out, _ = run_main("energy", str(water_file), "--json", "-")
     assert json.loads(out)["scf"]["jk_mode"] == "stored"
 
 
+def test_cli_lean_store_shows_in_json_and_report(water_file):
+    lean_mib = 8 * (28 * 29 // 2) / 2**20  # exact property: 8 bytes per unique quartet of STO-3G water
+    code, out, err = run_main("energy", water_file, "--stored", "--memory", repr(lean_mib), "--json", "-")
+    assert code == 0, err
+    record = json.loads(out)
+    assert record["scf"]["jk_mode"] == "stored-lean"
+    assert record["scf"]["eri_memory_bytes"] == 8 * 28 * 29 // 2
+    code, out, err = run_main("energy", water_file, "--memory", repr(lean_mib))
+    assert code == 0, err
+    assert "lean" in out
+
+
 def test_cli_report_states_the_mode_before_the_iterations(water_file):
-    code, out, _ = run_main("energy", water_file, "--memory", "1e-6")
+    code, out, _ = run_main("energy", str(water_file), "--memory", "1e-6")
     assert code == 0
     head = out[: out.index("SCF iterations")]
     assert "direct" in head and "MiB predicted" in head
 
 
 def test_cli_stored_beyond_memory_fails_with_resource_code(water_file):
-    code, out, err = run_main("energy", water_file, "--stored", "--memory", "1e-6")
+    code, out, err = run_main("energy", str(water_file), "--stored", "--memory", "1e-6")
     assert code == ResourceError.exit_code
     assert "--direct" in err and out == ""
 
 
 def test_cli_direct_and_stored_exclude_each_other(water_file):
-    code, _, err = run_main("energy", water_file, "--direct", "--stored")
+    code, _, err = run_main("energy", str(water_file), "--direct", "--stored")
     assert code == 2
     assert "not allowed" in err
 
@@ -254,7 +266,7 @@ def test_a_pass_that_ends_before_the_delay_prints_nothing(tty):
 
 def test_api_reports_integral_progress_only_to_its_callback(capsys):
     fractions: list[float] = []
-    run_rhf(molecule(WATER), "sto-3g", integral_progress=fractions.append)
+    run_rhf(read_input("water"), "sto-3g", integral_progress=fractions.append)
     assert fractions and fractions[-1] == pytest.approx(1.0)
     assert all(a <= b for a, b in zip(fractions, fractions[1:]))
     captured = capsys.readouterr()

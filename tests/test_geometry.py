@@ -6,7 +6,6 @@ import re
 
 import numpy as np
 import pytest
-from scipy import constants
 
 from hfcore.errors import InputError
 from hfcore.geometry import ANGSTROM_IN_BOHR, BOHR_IN_ANGSTROM, Molecule, parse_xyz, read_xyz
@@ -48,15 +47,14 @@ def test_coordinates_are_stored_in_bohr_float64_c_ordered(tmp_path):
     mol = read_xyz(write(tmp_path, WATER))
     assert mol.coordinates.dtype == np.float64 and mol.coordinates.flags.c_contiguous
     assert mol.coordinates.shape == (3, 3)
-    # source: common practice — 1 Å = 1e-10 m / a0 with the CODATA Bohr radius shipped in scipy.constants
-    a0 = constants.physical_constants["Bohr radius"][0]
-    assert mol.coordinates[1, 1] == pytest.approx(0.7572e-10 / a0, rel=1e-14)
+    # source: from memory — CODATA 2018 Bohr radius 0.529177210903 Å (CODATA 2022 differs by 7e-10 relative)
+    assert mol.coordinates[1, 1] == pytest.approx(0.7572 / 0.529177210903, rel=2e-9)
 
 
 def test_conversion_factors_are_codata_reciprocals():
     # source: common practice — CODATA Bohr radius 0.529177210903(80) Å (CODATA 2018) via scipy.constants
     assert BOHR_IN_ANGSTROM == pytest.approx(0.529177210903, rel=1e-9)
-    assert BOHR_IN_ANGSTROM * ANGSTROM_IN_BOHR == pytest.approx(1.0, rel=1e-15)
+    assert ANGSTROM_IN_BOHR == pytest.approx(1.0 / 0.529177210903, rel=1e-9)
 
 
 def test_bohr_units_are_taken_as_is(tmp_path):
@@ -70,9 +68,10 @@ def test_angstrom_and_bohr_files_give_the_same_molecule(tmp_path):
     body = []
     for line in lines[2:]:
         sym, *xyz = line.split()
-        body.append(sym + " " + " ".join(repr(float(v) * ANGSTROM_IN_BOHR) for v in xyz))
+        # source: from memory — CODATA 2018 Bohr radius 0.529177210903 Å, not the factor hfcore uses
+        body.append(sym + " " + " ".join(repr(float(v) / 0.529177210903) for v in xyz))
     bohr = read_xyz(write(tmp_path, "\n".join(lines[:2] + body) + "\n", "b.xyz"), units="bohr")
-    np.testing.assert_allclose(bohr.coordinates, ang.coordinates, rtol=0, atol=1e-13)
+    np.testing.assert_allclose(bohr.coordinates, ang.coordinates, rtol=2e-9, atol=1e-12)
 
 
 def test_symbols_in_any_case_and_atomic_numbers_are_accepted(tmp_path):

@@ -13,21 +13,14 @@ within about 1e-5 Eh (2e-5 Eh allowed).
 from __future__ import annotations
 
 import json
-import subprocess
-import sys
 
 import pytest
+from conftest import hfcore_process
 
 
 def energy_json(tmp_path, xyz: str, *args: str) -> dict:
     (tmp_path / "mol.xyz").write_text(xyz)
-    proc = subprocess.run(
-        [sys.executable, "-m", "hfcore", "energy", "mol.xyz", "--basis", "sto-3g", "--units", "bohr", "--json", "-", *args],
-        cwd=tmp_path,
-        capture_output=True,
-        text=True,
-        timeout=120,
-    )
+    proc = hfcore_process("energy", "mol.xyz", "--basis", "sto-3g", "--units", "bohr", "--json", "-", *args, cwd=tmp_path)
     assert proc.returncode == 0, proc.stderr
     return json.loads(proc.stdout)
 

@@ -115,4 +115,29 @@ def build_basis(
     return BasisSet(name, tuple(shells), sph)
 
 
-__all__ = ["BasisSet", "Shell", "ElementShell", "BasisFamily", "build_basis", "get_family"]
+def require_room_for(molecule: Molecule, basis: BasisSet) -> None:
+    """Refuse, before any integral is computed, a basis with fewer functions than occupied orbitals.
+
+    Parameters
+    ----------
+    molecule : Molecule
+        Supplies the electron count (sum of Z minus the charge).
+    basis : BasisSet
+        The basis placed on it.
+
+    Raises
+    ------
+    BasisError
+        If ``basis.n_functions`` is below ``n_electrons / 2``. (Removing
+        near-linear dependence can leave fewer orbitals still; the SCF
+        checks that count after the overlap is known.)
+    """
+    n_occ = (molecule.n_electrons + 1) // 2
+    if basis.n_functions < n_occ:
+        raise BasisError(
+            f"{molecule.source}: {molecule.n_electrons} electrons need {n_occ} orbitals but basis {basis.name} "
+            f"has only {basis.n_functions} functions on this molecule; use a larger basis"
+        )
+
+
+__all__ = ["BasisSet", "Shell", "ElementShell", "BasisFamily", "build_basis", "get_family", "require_room_for"]

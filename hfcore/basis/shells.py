@@ -41,6 +41,14 @@ from .components import (
 #: Highest angular momentum the integral layer supports (g functions).
 MAX_L: int = 4
 
+#: Gaussian exponents accepted, in bohr⁻² (inclusive bounds). Published sets
+#: for H–Kr stay well inside (about 1e-3 to 1e8); outside it the products of
+#: exponents and squared distances in the integrals leave floating point.
+EXPONENT_RANGE: tuple[float, float] = (1e-8, 1e10)
+#: Largest magnitude of a contraction coefficient (of normalised primitives,
+#: so published values are of order one).
+MAX_COEFFICIENT: float = 1e6
+
 
 def primitive_norms(l: int, exponents: np.ndarray) -> np.ndarray:
     """Normalisation constants of primitive x^l exp(-a r²) Gaussians.
@@ -109,14 +117,36 @@ class ElementShell:
     label: str = ""
 
     def __post_init__(self) -> None:
-        e = np.ascontiguousarray(self.exponents, dtype=np.float64).reshape(-1)
-        c = np.ascontiguousarray(np.atleast_2d(np.asarray(self.coefficients, dtype=np.float64)))
-        if c.shape[1] != e.shape[0]:
-            raise BasisError(f"shell {self.label or L_LETTERS[self.l]}: {e.shape[0]} exponents but {c.shape[1]} coefficients")
-        if not 0 <= self.l <= MAX_L:
-            raise BasisError(f"angular momentum l = {self.l} is not supported (s..g, l <= {MAX_L})")
-        if np.any(~np.isfinite(e)) or np.any(e <= 0):
-            raise BasisError("Gaussian exponents must be positive finite numbers")
+        # Every rule a shell must meet is checked here, whatever family made it.
+        if isinstance(self.l, bool) or not isinstance(self.l, (int, np.integer)) or not 0 <= self.l <= MAX_L:
+            raise BasisError(f"angular momentum l = {self.l!r} is not supported (s..g, l <= {MAX_L})")
+        try:
+            e = np.ascontiguousarray(self.exponents, dtype=np.float64).reshape(-1)
+            c = np.ascontiguousarray(np.atleast_2d(np.asarray(self.coefficients, dtype=np.float64)))
+        except (TypeError, ValueError, OverflowError):
+            raise BasisError("shell exponents and coefficients must be arrays of numbers") from None
+        name = f"shell {self.label or L_LETTERS[self.l]}"
+        if c.ndim != 2 or c.shape[1] != e.shape[0] or e.shape[0] == 0 or c.shape[0] == 0:
+            raise BasisError(f"{name}: {e.shape[0]} exponents but coefficients of shape {c.shape}")
+        low, high = EXPONENT_RANGE
+        bad = np.flatnonzero(~((e >= low) & (e <= high)))
+        if bad.size:
+            raise BasisError(
+                f"{name}: exponent {e[bad[0]]:g} is outside the accepted range {low:g} to {high:g} bohr⁻² "
+                "(exponents must be positive and finite)"
+            )
+        bad = np.flatnonzero(~(np.abs(c) <= MAX_COEFFICIENT))
+        if bad.size:
+            raise BasisError(
+                f"{name}: coefficient {c.flat[bad[0]]:g} is not a finite number of at most {MAX_COEFFICIENT:g} in magnitude"
+            )
+        # Norm² of each contraction over normalised primitives, whose overlap
+        # is (2 sqrt(a b) / (a + b))^(l + 3/2); zero means the coefficients cancel.
+        ratio = 2.0 * np.sqrt(e[:, None] * e[None, :]) / (e[:, None] + e[None, :])
+        norms = np.einsum("ck,kj,cj->c", c, ratio ** (self.l + 1.5), c)
+        flat = np.flatnonzero(~(norms > 1e-10 * np.sum(c * c, axis=1)))
+        if flat.size:
+            raise BasisError(f"{name}: contraction {flat[0] + 1} has zero norm (its primitives cancel)")
         e.setflags(write=False)
         c.setflags(write=False)
         object.__setattr__(self, "exponents", e)
@@ -271,6 +301,8 @@ class BasisSet:
 
 __all__ = [
     "MAX_L",
+    "EXPONENT_RANGE",
+    "MAX_COEFFICIENT",
     "ElementShell",
     "Shell",
     "BasisSet",

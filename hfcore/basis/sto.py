@@ -59,6 +59,11 @@ SLATER_SHELLS: Mapping[str, tuple[int, tuple[int, ...]]] = {
 
 MAX_GAUSSIANS: int = 6
 
+#: Largest Slater exponent accepted (bohr⁻¹). The standard values for H–Ar
+#: stay below 20; far beyond, ζ² times the fitted exponents leaves the range
+#: of Gaussian exponents a shell may have.
+MAX_ZETA: float = 1000.0
+
 CITATION: str = (
     "W. J. Hehre, R. F. Stewart and J. A. Pople, J. Chem. Phys. 51, 2657 (1969); "
     "W. J. Hehre, R. Ditchfield, R. F. Stewart and J. A. Pople, J. Chem. Phys. 52, 2769 (1970)"
@@ -347,8 +352,8 @@ def fit_sto(shell: str = "1s", n_gaussians: int = 3, zeta: float = 1.0) -> STOFi
         raise InputError(f"unknown Slater shell {shell!r}; known: {', '.join(SLATER_SHELLS)}")
     if not _is_count(n_gaussians):
         raise InputError(f"STO-nG needs 1 <= n <= {MAX_GAUSSIANS} Gaussians, got {n_gaussians!r}")
-    if not (math.isfinite(zeta) and zeta > 0):
-        raise InputError(f"Slater exponent must be a positive number, got {zeta!r}")
+    if not (math.isfinite(zeta) and 0 < zeta <= MAX_ZETA):
+        raise InputError(f"Slater exponent must be a positive number of at most {MAX_ZETA:g}, got {zeta!r}")
     n_gaussians = int(n_gaussians)
     exponents, coefficients, overlaps = _fit_unit(shell, n_gaussians)
     principal, ls = SLATER_SHELLS[shell]
@@ -391,8 +396,8 @@ def _check_override_value(value: object, item: str) -> float:
         zeta = float(value)  # type: ignore[arg-type]
     except (TypeError, ValueError):
         raise InputError(f"zeta override {item!r}: {value!r} is not a number") from None
-    if not (math.isfinite(zeta) and zeta > 0):
-        raise InputError(f"zeta override {item!r}: the exponent must be positive, got {value!r}")
+    if not (math.isfinite(zeta) and 0 < zeta <= MAX_ZETA):
+        raise InputError(f"zeta override {item!r}: the exponent must be positive and at most {MAX_ZETA:g}, got {value!r}")
     return zeta
 
 

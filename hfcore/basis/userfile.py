@@ -37,6 +37,10 @@ from .shells import MAX_L, ElementShell
 #: The value of the ``"format"`` key that marks a document as ours.
 FORMAT_TAG = "hfcore-basis/1"
 
+#: A basis file larger than this (bytes) is refused unread; the largest
+#: shipped set is about 40 kB.
+MAX_FILE_BYTES: int = 64 * 2**20
+
 
 def _number(value: Any, what: str, where: str) -> float:
     """Parse a JSON number or decimal string, rejecting booleans and non-finite values."""
@@ -44,8 +48,8 @@ def _number(value: Any, what: str, where: str) -> float:
         raise BasisError(f"{where}: {what} {value!r} is not a number")
     try:
         x = float(value)
-    except ValueError:
-        raise BasisError(f"{where}: {what} {value!r} is not a number") from None
+    except (ValueError, OverflowError):
+        raise BasisError(f"{where}: {what} {str(value)[:40]!r} is not a number") from None
     if not math.isfinite(x):
         raise BasisError(f"{where}: {what} {value!r} is not finite")
     return x
@@ -101,7 +105,10 @@ def parse_shell(record: Any, where: str) -> ElementShell:
         if not any(values):
             raise BasisError(f"{where}: contraction {i} has only zero coefficients")
         matrix.append(values)
-    return ElementShell(l, np.array(exponents), np.array(matrix))
+    try:
+        return ElementShell(l, np.array(exponents), np.array(matrix))
+    except BasisError as exc:
+        raise BasisError(f"{where}: {str(exc).removeprefix(f'shell {L_LETTERS[l]}: ')}") from None
 
 
 def parse_element_shells(symbol: str, records: Any, source: str) -> list[ElementShell]:
@@ -212,13 +219,23 @@ def read_document(path: str | Path) -> Any:
     """Read a JSON file, turning syntax errors into a one-line :class:`BasisError`."""
     source = str(path)
     try:
-        text = Path(path).read_text(encoding="utf-8")
+        with open(path, "rb") as handle:
+            data = handle.read(MAX_FILE_BYTES + 1)
     except OSError as exc:
         raise BasisError(f"{source}: cannot read basis file ({exc.strerror or exc})") from None
+    if len(data) > MAX_FILE_BYTES:
+        raise BasisError(f"{source}: larger than {MAX_FILE_BYTES // 2**20} MiB; not a basis file hfcore can read")
+    try:
+        # utf-8-sig: a leading byte-order mark is accepted, as in geometry files.
+        text = data.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise BasisError(f"{source}: not a text file (cannot decode as UTF-8)") from None
     try:
         return json.loads(text)
     except json.JSONDecodeError as exc:
         raise BasisError(f"{source}:{exc.lineno}: invalid JSON at column {exc.colno}: {exc.msg}") from None
+    except RecursionError:
+        raise BasisError(f"{source}: JSON nested too deeply to be a basis file") from None
 
 
 def load_basis_file(path: str | Path) -> BasisFamily:

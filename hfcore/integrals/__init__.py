@@ -16,7 +16,7 @@ per ``basis.spherical``), in atomic units, functions ordered as
 Rooms of the two-electron layer: :mod:`.eri_pairs` prepares the screened
 pair batches, :mod:`.tiles` is the one tile generator every pass uses
 (stored, direct and three-centre), :mod:`.store` and :mod:`.direct` are
-the passes.
+the passes, :mod:`.pool` the thread pool they share.
 * :func:`boys` (:mod:`.boys`), :func:`c2s` (:mod:`hfcore.basis.components`).
 """
 

@@ -1,7 +1,14 @@
-"""The direct pass: J and K contracted from each tile as it is computed, nothing stored."""
+"""The direct pass: J and K contracted from each tile as it is computed, nothing stored.
+
+The tiles (:mod:`hfcore.integrals.tiles`) are listed once; every build cuts
+them into fixed work units, runs the units on the thread pool
+(:mod:`hfcore.integrals.pool`), each into its own partial J and K, and
+adds the partial sums in unit order.
+"""
 
 from __future__ import annotations
 
+import threading
 from dataclasses import dataclass
 
 import numpy as np
@@ -9,12 +16,18 @@ import numpy as np
 from ..basis.shells import BasisSet
 from ..errors import InputError
 from .eri_pairs import function_families, prepare_pairs
-from .tiles import PairBatch, batch_pairs, iter_tiles, tile_integrals
+from .pool import ordered_map, resolve_threads, work_units
+from .tiles import PairBatch, Tile, batch_pairs, iter_tiles, tile_integrals
 
 #: Direct tiles are this many times larger: each carries a fixed cost of
 #: contraction steps, and larger tiles measured 15-20 % faster per pass
 #: (benzene, 6-31G*).
 _DIRECT_TILE_SCALE = 4
+#: A build's tiles are cut into about this many work units for the thread
+#: pool (fixed, so the sums are the same for any thread count) ...
+_UNITS = 128
+#: ... each of at least this many primitive quartets.
+_MIN_UNIT_QUARTETS = 1 << 16
 
 
 @dataclass(frozen=True)
@@ -62,14 +75,19 @@ class _Accumulator:
     """
 
     _BATCH = 1 << 21
+    _buffers = threading.local()
 
     def __init__(self, n: int) -> None:
         self.n = n
         self.j = np.zeros(n * (n + 1) // 2)
         self.k = np.zeros(n * n)
         self._jparts: list[tuple[np.ndarray, np.ndarray]] = []
-        self._kindex = np.empty(self._BATCH, dtype=np.intp)
-        self._kvalue = np.empty(self._BATCH)
+        # Each pool thread keeps one pair of scatter buffers for all its work units.
+        cache = self._buffers
+        if not hasattr(cache, "index"):
+            cache.index = np.empty(self._BATCH, dtype=np.intp)
+            cache.value = np.empty(self._BATCH)
+        self._kindex, self._kvalue = cache.index, cache.value
         self._used = 0
 
     def add_j(self, index: np.ndarray, value: np.ndarray) -> None:
@@ -81,8 +99,8 @@ class _Accumulator:
         if self._used + size > self._kindex.size:
             self.flush()
             if size > self._kindex.size:
-                self._kindex = np.empty(size, dtype=np.intp)
-                self._kvalue = np.empty(size)
+                self._kindex = self._buffers.index = np.empty(size, dtype=np.intp)
+                self._kvalue = self._buffers.value = np.empty(size)
         start, self._used = self._used, self._used + size
         window = slice(start, self._used)
         return self._kindex[window].reshape(rows, cols), self._kvalue[window].reshape(rows, cols)
@@ -97,15 +115,19 @@ class _Accumulator:
             self.k += np.bincount(self._kindex[: self._used], self._kvalue[: self._used], minlength=self.k.size)
             self._used = 0
 
-    def result(self) -> tuple[np.ndarray, np.ndarray]:
-        """(J, K), each symmetric (nbf, nbf)."""
+    def partial(self) -> tuple[np.ndarray, np.ndarray]:
+        """The sums so far: J over packed pairs, shape (npair,), and N, shape (nbf * nbf,)."""
         self.flush()
-        n = self.n
-        m = np.zeros((n, n))
-        first, second = np.tril_indices(n)
-        m[first, second] = self.j
-        half = self.k.reshape(n, n)
-        return m + m.T, half + half.T
+        return self.j, self.k
+
+
+def _symmetrised(j: np.ndarray, half: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """(J, K), each symmetric (nbf, nbf), from the packed J sums and the half-exchange N."""
+    m = np.zeros((n, n))
+    first, second = np.tril_indices(n)
+    m[first, second] = j
+    half = half.reshape(n, n)
+    return m + m.T, half + half.T
 
 
 class DirectERI:
@@ -113,8 +135,8 @@ class DirectERI:
 
     The integrals come in the same tiles as :func:`compute_eri` builds, each
     contracted with the density at once and dropped, so memory stays at a
-    few nbf^2 arrays plus a 32 MiB scatter buffer. Every unique integral is used once with all eight of
-    its index permutations. A quartet counts as negligible when its Schwarz
+    few nbf^2 arrays plus a 32 MiB scatter buffer per thread. Every unique
+    integral is used once with all eight of its index permutations. A quartet counts as negligible when its Schwarz
     bound Q_ab Q_cd times the largest density element over the six
     shell-family blocks it touches (ab, cd, ac, ad, bc, bd) is below the
     threshold; tiles shrink to the bra and ket rows that hold a quartet
@@ -125,6 +147,10 @@ class DirectERI:
     basis : BasisSet
     threshold : float
         Screening threshold (hartree), as in :func:`compute_eri`.
+    threads : int
+        Threads the tiles of a build are spread over (see
+        :mod:`hfcore.integrals.pool`); J and K are the same bits for any
+        number.
 
     Attributes
     ----------
@@ -132,11 +158,12 @@ class DirectERI:
         Work of the latest :meth:`jk` call.
     """
 
-    def __init__(self, basis: BasisSet, *, threshold: float = 1e-12) -> None:
+    def __init__(self, basis: BasisSet, *, threshold: float = 1e-12, threads: int = 1) -> None:
         if threshold < 0:
             raise InputError(f"the screening threshold must be >= 0, not {threshold}")
         self.n_functions = basis.n_functions
         self.threshold = float(threshold)
+        self.threads = resolve_threads(threads)
         self._families = function_families(basis)
         shell_of = np.repeat(np.arange(basis.n_shells), [s.n_functions(basis.spherical) for s in basis.shells])
         first, second = np.tril_indices(basis.n_functions)
@@ -147,6 +174,15 @@ class DirectERI:
             fam = self._families
             self._groups.append(_DirectGroup(pairs, hi, lo, weight, fam[hi[:, 0]], fam[lo[:, 0]]))
         self._group_of = {id(g.pairs): g for g in self._groups}
+        # A diagonal tile must keep every row on both sides so each bra-ket
+        # pair appears in both orders and the 1/2 weight holds.
+        self._tiles = [
+            tile
+            for g1, g2 in batch_pairs([g.pairs for g in self._groups])
+            for tile in iter_tiles(g1, g2, self.threshold, scale=_DIRECT_TILE_SCALE, trim_diagonal=False)
+        ]
+        weights = [tile.quartets for tile in self._tiles]
+        self._units = work_units(weights, max(sum(weights) // _UNITS, _MIN_UNIT_QUARTETS))
         self.last_stats: DirectPassStats | None = None
 
     def jk(self, density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -164,21 +200,29 @@ class DirectERI:
         """
         d = np.ascontiguousarray(density, dtype=np.float64)
         block_max = _block_max(np.abs(d), self._families)
+        dmax = float(block_max.max()) if block_max.size else 0.0
+        n = self.n_functions
+        j, half = np.zeros(n * (n + 1) // 2), np.zeros(n * n)
+        counts = np.zeros(2, dtype=np.int64)
+
+        def run(unit: slice) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+            return self._unit(self._tiles[unit], d, block_max, dmax)
+
+        # Partial sums are added in unit order: the same bits for any thread count.
+        for pj, pk, pc in ordered_map(run, self._units, self.threads):
+            j += pj
+            half += pk
+            counts += pc
+        self.last_stats = DirectPassStats(int(counts[0]), int(counts[1]))
+        return _symmetrised(j, half, n)
+
+    def _unit(
+        self, tiles: list[Tile], d: np.ndarray, block_max: np.ndarray, dmax: float
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Packed J sums, half-exchange and quartet counts of one work unit of tiles."""
         acc = _Accumulator(self.n_functions)
         counts = np.zeros(2, dtype=np.int64)
-        for g1, g2 in batch_pairs([g.pairs for g in self._groups]):
-            self._batch_pair(g1, g2, d, block_max, acc, counts)
-        self.last_stats = DirectPassStats(int(counts[0]), int(counts[1]))
-        return acc.result()
-
-    def _batch_pair(
-        self, g1: PairBatch, g2: PairBatch, d: np.ndarray, block_max: np.ndarray, acc: _Accumulator,
-        counts: np.ndarray,
-    ) -> None:
-        dmax = float(block_max.max()) if block_max.size else 0.0
-        # A diagonal tile must keep every row on both sides so each bra-ket
-        # pair appears in both orders and the 1/2 weight holds.
-        for tile in iter_tiles(g1, g2, self.threshold, scale=_DIRECT_TILE_SCALE, trim_diagonal=False):
+        for tile in tiles:
             counts[0] += tile.quartets
             if tile.bra.q[tile.brows.start] * tile.ket.q[tile.krows.start] * dmax < self.threshold:
                 continue
@@ -189,6 +233,8 @@ class DirectERI:
             counts[1] += rows.size * cols.size * tile.bra.nprim * tile.ket.nprim
             block = tile_integrals(tile.bra, rows, tile.ket, cols)
             _contract(bra, rows, ket, cols, block, 0.5 if tile.diagonal else 1.0, d, acc)
+        pj, pk = acc.partial()
+        return pj, pk, counts
 
 
 def _block_max(absd: np.ndarray, families: np.ndarray) -> np.ndarray:

@@ -25,12 +25,24 @@ from ..basis.shells import BasisSet
 from ..errors import InputError, ResourceError
 from .eri_pairs import pair_index, prepare_pairs
 from .hermite import n_hermite
+from .pool import ordered_map, resolve_threads, work_units
 from .tiles import Tile, batch_pairs, iter_tiles
 
 #: Largest dense (nbf,)*4 array ``to_dense`` will build, in bytes.
 DENSE_LIMIT_BYTES = 4 << 30
 #: Largest store (integrals plus exchange kernel) ``compute_eri`` will build, in bytes.
 STORE_LIMIT_BYTES = 12 << 30
+#: Largest store (integrals plus exchange kernel, bytes) worth its kernel.
+#: Building the kernel costs a gather over the whole store; the lean K build
+#: costs more per iteration only while the store is small. Measured (shared
+#: 2-core machine, one thread): benzene 6-31G, 66 functions, 37 MiB: the
+#: kernel pays back after 2.5 iterations; 6-31G*, 102 functions, 211 MiB:
+#: after 19; cc-pVTZ, 264 functions: never (its lean builds were faster).
+EXCHANGE_KERNEL_LIMIT_BYTES = 128 << 20
+#: A lean K build is cut into this many work units (fixed, for the same sums on any thread count).
+_LEAN_UNITS = 16
+#: The pass is cut into about this many work units (thread pool tasks and progress steps).
+_UNITS = 256
 
 
 def _canonical(a: np.ndarray, b: np.ndarray, tri: np.ndarray) -> np.ndarray:
@@ -52,18 +64,28 @@ class ERIStore:
         Schwarz screening hold zero.
     threshold : float
         Schwarz threshold used (hartree).
+    lean : bool
+        Build K from the packed integrals directly (8 bytes per unique
+        integral in all) instead of from an exchange kernel (16).
+    threads : int
+        Threads of the lean K build (the same bits for any number).
 
     Notes
     -----
-    The first :meth:`jk` call builds the exchange kernel, a second packed
-    array of the same length (another 8 bytes per unique integral, reported
-    by :attr:`nbytes`); every call is then two BLAS packed symmetric
-    matrix-vector products over npair(npair+1)/2 elements.
+    Unless ``lean``, the first :meth:`jk` call builds the exchange kernel, a
+    second packed array of the same length (another 8 bytes per unique
+    integral, reported by :attr:`nbytes`); every call is then two BLAS
+    packed symmetric matrix-vector products over npair(npair+1)/2 elements.
+    A lean store reads each row of the packed integrals twice per K build
+    instead (:meth:`_lean_exchange`): the same memory traffic, in about
+    npair BLAS calls rather than one.
     """
 
     n_functions: int
     packed: np.ndarray
     threshold: float
+    lean: bool = False
+    threads: int = 1
     _exchange: np.ndarray | None = field(default=None, repr=False)
 
     @property
@@ -144,8 +166,65 @@ class ERIStore:
         first, second = np.tril_indices(n)
         dp = d[first, second] * np.where(first == second, 1.0, 2.0)
         jp = blas.dspmv(self.n_pairs, 1.0, self.packed, dp)
+        if self.lean:
+            return _unpack_symmetric(jp, n), self._lean_exchange(d)
         kp = blas.dspmv(self.n_pairs, 1.0, self._exchange_kernel(), dp)
         return _unpack_symmetric(jp, n), _unpack_symmetric(kp, n)
+
+    def _lean_exchange(self, d: np.ndarray) -> np.ndarray:
+        """K of a symmetric density straight from the packed integrals, shape (nbf, nbf).
+
+        K_ab = Σ_cd (ac|bd) D_cd. The stored row of pair IJ = (i, j) holds
+        (ij|bd) for every pair BD <= IJ: as a packed symmetric matrix V
+        (zero past the row's end, its last element (ij|ij) halved) it gives
+        H[i] += V D[j] and, for i != j, H[j] += V D[i]; the pairs BD > IJ
+        give the transposed terms, so K = H + H^T. The part of V over b < i
+        is a complete packed matrix of order i: one BLAS ``spmv`` per
+        ordered pair, in place. The elements (ij|id), d <= j, of all rows
+        j of one i form a lower triangle R[j, d] and are added with a few
+        whole-array operations.
+        """
+        n = self.n_functions
+        # Units of first indices i of about equal work (~i^3 each), fixed by
+        # nbf alone; their partial H are added in unit order.
+        cost = np.cumsum(np.arange(n, dtype=np.float64) ** 3)
+        cuts = np.searchsorted(cost, cost[-1] * np.arange(1, _LEAN_UNITS) / _LEAN_UNITS) if n else []
+        bounds = np.unique(np.concatenate([[0], cuts, [n]])).astype(int)
+        units = list(zip(bounds[:-1], bounds[1:]))
+        h = np.zeros((n, n))
+        for part in ordered_map(lambda unit: self._lean_rows(unit[0], unit[1], d), units, self.threads):
+            h += part
+        return h + h.T
+
+    def _lean_rows(self, first: int, stop: int, d: np.ndarray) -> np.ndarray:
+        """The share of H in :meth:`_lean_exchange` of the rows with first index in [first, stop)."""
+        n = self.n_functions
+        h = np.zeros((n, n))
+        packed = self.packed
+        spmv = blas.dspmv
+        for i in range(first, stop):
+            ti = i * (i + 1) // 2
+            js = np.arange(i + 1)
+            starts = (ti + js) * (ti + js + 1) // 2 + ti  # where (ij|i0) sits in row IJ
+            lower = js[None, :] <= js[:, None]
+            r = np.where(lower, packed[np.where(lower, starts[:, None] + js[None, :], 0)], 0.0)
+            r[js, js] *= 0.5
+            dd = d[: i + 1, : i + 1]
+            # (a, c) = (i, j): H[i, i] += Σ_j R[j] · D[j], H[i, d] += Σ_j R[j, d] D[j, i] for d != i.
+            h[i, i] += np.einsum("jd,jd->", r, dd) - r[i, i] * d[i, i]
+            h[i, : i + 1] += r.T @ d[: i + 1, i]
+            # (a, c) = (j, i), j < i: H[j, i] += R[j] · D[i], H[j, d] += R[j, d] D[i, i].
+            h[:i, i] += r[:i] @ d[i, : i + 1]
+            h[:i, :i] += r[:i, :i] * d[i, i]
+            if i == 0:
+                continue
+            for j in range(i + 1):
+                start = int(starts[j]) - ti
+                full = packed[start : start + ti]
+                spmv(i, 1.0, full, d[j, :i], beta=1.0, y=h[i, :i], overwrite_y=1)
+                if j < i:
+                    spmv(i, 1.0, full, d[i, :i], beta=1.0, y=h[j, :i], overwrite_y=1)
+        return h
 
 
 def _unpack_symmetric(vec: np.ndarray, n: int) -> np.ndarray:
@@ -166,7 +245,12 @@ def _store(tile: Tile, block: np.ndarray, packed: np.ndarray) -> None:
 
 
 def compute_eri(
-    basis: BasisSet, *, threshold: float = 1e-12, progress: Callable[[float], None] | None = None
+    basis: BasisSet,
+    *,
+    threshold: float = 1e-12,
+    progress: Callable[[float], None] | None = None,
+    threads: int = 1,
+    lean: bool = False,
 ) -> ERIStore:
     """Compute all unique electron-repulsion integrals of a basis.
 
@@ -180,6 +264,13 @@ def compute_eri(
         all screening.
     progress : callable, optional
         Called with the fraction of the work done (0..1] as the pass proceeds.
+    threads : int
+        Threads the tiles are spread over (:mod:`hfcore.integrals.pool`);
+        every integral is computed by one tile alone, so the store holds
+        the same bits for any number.
+    lean : bool
+        Build K from the packed integrals themselves (:attr:`ERIStore.lean`):
+        8 bytes per unique integral instead of 16, slower K builds.
 
     Returns
     -------
@@ -190,43 +281,55 @@ def compute_eri(
     InputError
         If ``threshold`` is negative.
     ResourceError
-        If the store and its exchange kernel (16 bytes per unique integral)
-        would exceed :data:`STORE_LIMIT_BYTES`.
+        If the store and its exchange kernel (16 bytes per unique integral,
+        8 if ``lean``) would exceed :data:`STORE_LIMIT_BYTES`.
     """
     if threshold < 0:
         raise InputError(f"the screening threshold must be >= 0, not {threshold}")
     n = basis.n_functions
     npair = n * (n + 1) // 2
     size = npair * (npair + 1) // 2
-    if 16 * size > STORE_LIMIT_BYTES:
+    per = 8 if lean else 16
+    if per * size > STORE_LIMIT_BYTES:
         raise ResourceError(
-            f"stored integrals for {n} functions need {16 * size / 2**30:.1f} GiB "
+            f"stored integrals for {n} functions need {per * size / 2**30:.1f} GiB "
             f"(limit {STORE_LIMIT_BYTES / 2**30:.0f} GiB)"
         )
+    threads = resolve_threads(threads)
     packed = np.zeros(size)
-    jobs = batch_pairs(prepare_pairs(basis, threshold))
-    total = sum(a.n * a.nprim * b.n * b.nprim * n_hermite(a.L + b.L) for a, b in jobs) or 1
-    done = 0
-    for g1, g2 in jobs:
-        for tile in iter_tiles(g1, g2, threshold):
+    tiles = [tile for g1, g2 in batch_pairs(prepare_pairs(basis, threshold)) for tile in iter_tiles(g1, g2, threshold)]
+    weights = [tile.quartets * n_hermite(tile.bra.L + tile.ket.L) for tile in tiles]
+    total = sum(weights)
+
+    def run(unit: slice) -> int:
+        for tile in tiles[unit]:
             _store(tile, tile.integrals(), packed)
-        done += g1.n * g1.nprim * g2.n * g2.nprim * n_hermite(g1.L + g2.L)
+        return sum(weights[unit])
+
+    done = 0
+    for work in ordered_map(run, work_units(weights, max(total // _UNITS, 1)), threads):
+        done += work
         if progress is not None:
             progress(done / total)
-    return ERIStore(n, packed, float(threshold))
+    if progress is not None and total == 0:
+        progress(1.0)
+    return ERIStore(n, packed, float(threshold), lean=bool(lean), threads=threads)
 
 
-def estimate_eri_memory(basis: BasisSet) -> int:
+def estimate_eri_memory(basis: BasisSet, *, lean: bool = False) -> int:
     """Bytes the stored integrals need for J/K builds, before any is computed.
 
     The packed store holds one float64 per unique integral and its exchange
     kernel another, so 16 bytes per unique integral, npair(npair+1)/2 of
-    them with npair = nbf(nbf+1)/2. Screening does not shrink the packed
-    arrays, so the estimate is exact.
+    them with npair = nbf(nbf+1)/2; a lean store (K from the integrals
+    themselves) needs 8. Screening does not shrink the packed arrays, so
+    the estimate is exact.
 
     Parameters
     ----------
     basis : BasisSet
+    lean : bool
+        The size of a lean store (no exchange kernel).
 
     Returns
     -------
@@ -234,7 +337,7 @@ def estimate_eri_memory(basis: BasisSet) -> int:
         Bytes.
     """
     npair = basis.n_functions * (basis.n_functions + 1) // 2
-    return 16 * (npair * (npair + 1) // 2)
+    return (8 if lean else 16) * (npair * (npair + 1) // 2)
 
 
 def eri_tensor(basis: BasisSet) -> np.ndarray:
@@ -248,4 +351,12 @@ def eri_tensor(basis: BasisSet) -> np.ndarray:
     return compute_eri(basis, threshold=0.0).to_dense()
 
 
-__all__ = ["ERIStore", "compute_eri", "estimate_eri_memory", "eri_tensor", "DENSE_LIMIT_BYTES", "STORE_LIMIT_BYTES"]
+__all__ = [
+    "ERIStore",
+    "compute_eri",
+    "estimate_eri_memory",
+    "eri_tensor",
+    "DENSE_LIMIT_BYTES",
+    "STORE_LIMIT_BYTES",
+    "EXCHANGE_KERNEL_LIMIT_BYTES",
+]

@@ -180,10 +180,12 @@ def tile_cost(bra: PairBatch, ket: PairBatch) -> float:
 
 
 def chunks(n: int, size: int) -> list[slice]:
+    """Consecutive row ranges of at most ``size`` rows covering ``range(n)``."""
     return [slice(s, min(s + size, n)) for s in range(0, n, size)]
 
 
 def tile_sizes(a: PairBatch, b: PairBatch, scale: int = 1) -> tuple[int, int]:
+    """Rows of ``a`` and of ``b`` per tile: about ``scale`` x 4k quartets and 64k Hermite integrals."""
     per = a.nprim * b.nprim
     target = max(1, scale * min(_TILE_QUARTETS, _TILE_ELEMENTS // n_hermite(a.L + b.L)) // per)
     na = max(1, min(a.n, int(np.sqrt(target))))

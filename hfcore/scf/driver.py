@@ -9,11 +9,12 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from .. import integrals
-from ..basis import build_basis
+from ..basis import build_basis, require_room_for
 from ..basis.shells import BasisSet
 from ..errors import ConvergenceError, InputError, ResourceError
 from ..geometry import Molecule
-from ..integrals.store import STORE_LIMIT_BYTES
+from ..integrals.pool import blas_threads
+from ..integrals.store import EXCHANGE_KERNEL_LIMIT_BYTES, STORE_LIMIT_BYTES
 from .guess import sad_density
 from .jk import IncrementalJK, JKBuilder
 from .options import SCFOptions
@@ -78,11 +79,24 @@ def run_rhf(
         ``raise_on_failure`` is False); ``.result`` holds the unconverged
         record (with molecule and basis filled in).
     """
-    t0 = time.perf_counter()
     options = options or SCFOptions()
+    with blas_threads(options.n_threads):
+        return _run_rhf(molecule, basis, options, guess, progress, integral_progress)
+
+
+def _run_rhf(
+    molecule: Molecule,
+    basis: BasisSet | str,
+    options: SCFOptions,
+    guess: str | np.ndarray,
+    progress: Progress | None,
+    integral_progress: Callable[[float], None] | None,
+) -> RHFResult:
+    t0 = time.perf_counter()
     molecule.require_closed_shell()
     if isinstance(basis, str):
         basis = build_basis(molecule, basis)
+    require_room_for(molecule, basis)
     guess_density = _checked_guess(guess, basis)
     overlap = integrals.overlap(basis)
     hcore = integrals.kinetic(basis) + integrals.nuclear_attraction(
@@ -142,11 +156,15 @@ class JKPlan:
 
     Attributes
     ----------
-    mode : {"stored", "direct"}
-        Store the integrals once, or recompute them every iteration.
+    mode : {"stored", "stored-lean", "direct"}
+        Store the integrals once with an exchange kernel beside them
+        (16 bytes per unique integral, the fastest builds), store them alone
+        and build K from them directly (8 bytes), or recompute them every
+        iteration.
     eri_bytes : int
         Memory the stored integrals need (bytes), from
-        :func:`hfcore.integrals.estimate_eri_memory`.
+        :func:`hfcore.integrals.estimate_eri_memory`: the lean size for
+        "stored-lean", the size with the exchange kernel otherwise.
     limit_bytes : int
         The budget they were measured against (bytes): ``memory_limit``,
         capped at :data:`hfcore.integrals.store.STORE_LIMIT_BYTES`.
@@ -158,14 +176,19 @@ class JKPlan:
 
 
 def plan_jk(basis: BasisSet, options: SCFOptions | None = None) -> JKPlan:
-    """Choose stored or direct J/K builds for a basis, per ``options.direct``.
+    """Choose stored, lean stored or direct J/K builds for a basis, per ``options.direct``.
 
     Parameters
     ----------
     basis : BasisSet
     options : SCFOptions, optional
-        ``direct`` True or False forces the mode; None picks stored if it
-        fits within ``memory_limit``, else direct.
+        ``direct=True`` forces the direct mode. Otherwise the integrals are
+        stored with their exchange kernel if that fits within
+        ``memory_limit`` and within
+        :data:`hfcore.integrals.store.EXCHANGE_KERNEL_LIMIT_BYTES` (beyond
+        it the kernel costs more than it saves), else stored alone
+        ("stored-lean") if that fits; else ``direct=None`` goes direct and
+        ``direct=False`` fails.
 
     Returns
     -------
@@ -174,31 +197,40 @@ def plan_jk(basis: BasisSet, options: SCFOptions | None = None) -> JKPlan:
     Raises
     ------
     ResourceError
-        If stored integrals are forced (``direct=False``) and do not fit.
+        If stored integrals are forced (``direct=False``) and not even the
+        lean store fits.
     """
     options = options or SCFOptions()
     need = integrals.estimate_eri_memory(basis)
+    lean = integrals.estimate_eri_memory(basis, lean=True)
     limit = min(options.memory_limit_bytes, STORE_LIMIT_BYTES)
-    if options.direct is None:
-        mode = "stored" if need <= limit else "direct"
+    if options.direct:
+        mode = "direct"
+    elif need <= min(limit, EXCHANGE_KERNEL_LIMIT_BYTES):
+        mode = "stored"
+    elif lean <= limit:
+        mode = "stored-lean"
+    elif options.direct is None:
+        mode = "direct"
     else:
-        mode = "direct" if options.direct else "stored"
-    if mode == "stored" and need > limit:
         raise ResourceError(
-            f"stored integrals for {basis.n_functions} functions need {need / 2**20:.3g} MiB but "
-            f"{limit / 2**20:.3g} MiB are allowed; use the direct mode (--direct, direct=True) "
-            f"or raise the limit (--memory MIB, memory_limit)"
+            f"stored integrals for {basis.n_functions} functions need {lean / 2**20:.3g} MiB "
+            f"({need / 2**20:.3g} MiB with the exchange kernel) but {limit / 2**20:.3g} MiB are allowed; "
+            f"use the direct mode (--direct, direct=True) or raise the limit (--memory MIB, memory_limit)"
         )
-    return JKPlan(mode, need, limit)
+    return JKPlan(mode, lean if mode == "stored-lean" else need, limit)
 
 
 def _jk_builder(
     basis: BasisSet, options: SCFOptions, plan: JKPlan, integral_progress: Callable[[float], None] | None
 ) -> JKBuilder:
     if plan.mode == "direct":
-        engine = integrals.DirectERI(basis, threshold=options.screening)
+        engine = integrals.DirectERI(basis, threshold=options.screening, threads=options.n_threads)
         return IncrementalJK(engine, options.rebuild_interval)
-    return integrals.compute_eri(basis, threshold=options.screening, progress=integral_progress)
+    return integrals.compute_eri(
+        basis, threshold=options.screening, progress=integral_progress, threads=options.n_threads,
+        lean=plan.mode == "stored-lean",
+    )
 
 
 __all__ = ["run_rhf", "plan_jk", "JKPlan", "GUESSES"]

@@ -100,6 +100,11 @@ class SCFOptions:
         In direct mode J and K are built from the density change of each
         iteration; every this many builds they are rebuilt from the full
         density so round-off cannot accumulate.
+    threads : int or None
+        Threads of the integral passes (stored and direct) and of BLAS
+        (when ``threadpoolctl`` is installed); None means the cores this
+        process may use. The energy is the same to the last digit for any
+        number.
 
     ``diis_space`` is the deprecated name of ``max_diis_size``, kept for
     one release: ``SCFOptions(diis_space=N)`` still works (with a
@@ -124,6 +129,7 @@ class SCFOptions:
     direct: bool | None = None
     memory_limit: float | None = None
     rebuild_interval: int = 8
+    threads: int | None = None
 
     def __post_init__(self) -> None:
         for name in ("energy_tol", "gradient_tol", "lindep_threshold"):
@@ -138,6 +144,8 @@ class SCFOptions:
         if self.memory_limit is not None:
             object.__setattr__(self, "memory_limit", _positive("memory_limit", self.memory_limit))
         object.__setattr__(self, "rebuild_interval", _count("rebuild_interval", self.rebuild_interval, 1))
+        if self.threads is not None:
+            object.__setattr__(self, "threads", _count("threads", self.threads, 1))
 
     @property
     def diis_space(self) -> int:
@@ -149,6 +157,13 @@ class SCFOptions:
         """The memory budget of the stored integrals in bytes (``memory_limit`` or the default)."""
         mib = default_memory_limit() if self.memory_limit is None else self.memory_limit
         return int(mib * 2**20)
+
+    @property
+    def n_threads(self) -> int:
+        """The thread count to use: ``threads``, or the cores this process may use."""
+        from ..integrals.pool import resolve_threads
+
+        return resolve_threads(self.threads)
 
     def _check_ranges(self) -> None:
         if self.lindep_threshold >= 1.0:

@@ -98,9 +98,10 @@ class RHFResult:
         The settings used.
     message : str
         Why the run stopped, in words.
-    jk_mode : {"stored", "direct", "given"}
-        How J and K were built: from stored integrals, by recomputing them
-        every iteration, or by a builder handed to :func:`solve_rhf`.
+    jk_mode : {"stored", "stored-lean", "direct", "given"}
+        How J and K were built: from stored integrals (with an exchange
+        kernel, or lean: K from the integrals themselves), by recomputing
+        them every iteration, or by a builder handed to :func:`solve_rhf`.
     eri_bytes : int
         Predicted memory of the stored integrals (bytes), whichever mode
         ran; 0 when unknown (bare matrices).

@@ -8,7 +8,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from ..errors import ConvergenceError, InputError
+from ..errors import BasisError, ConvergenceError, InputError
 from .accelerators import Accelerator, FockStep, build_accelerator
 from .jk import JKBuilder
 from .options import SCFOptions
@@ -136,7 +136,10 @@ def solve_rhf(
     ortho = Orthogonaliser.from_overlap(s, options.lindep_threshold)
     n_occ = int(n_electrons) // 2
     if n_occ > ortho.n_orbitals:
-        raise InputError(f"{n_electrons} electrons need {n_occ} orbitals but the basis has only {ortho.n_orbitals}")
+        raise BasisError(
+            f"{n_electrons} electrons need {n_occ} orbitals but the basis leaves only {ortho.n_orbitals} after dropping "
+            f"{ortho.n_dropped} near-linearly dependent combinations (overlap eigenvalues below {options.lindep_threshold:g})"
+        )
     problem = _Problem(s, h, jk, n_occ, ortho)
     density, guess_energy = _initial_density(problem, guess_density)
     t_guess = time.perf_counter()

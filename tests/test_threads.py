@@ -1,0 +1,108 @@
+"""Threads: the integral passes give the same bits for any thread count; the count is checked once.
+
+Source for every equality here: exact property of the design — each work
+unit's tiles are fixed by the basis alone and the partial sums are added in
+unit order, so the thread count cannot change any floating-point operation.
+"""
+
+from __future__ import annotations
+
+import io
+import json
+
+import numpy as np
+import pytest
+
+import hfcore
+from hfcore.cli import main
+from hfcore.errors import InputError
+from hfcore.integrals import DirectERI, compute_eri, direct, pool
+from hfcore.scf import SCFOptions
+
+FORMALDEHYDE = """4
+formaldehyde
+C   0.000000   0.000000  -0.528500
+O   0.000000   0.000000   0.678800
+H   0.000000   0.934700  -1.114400
+H   0.000000  -0.934700  -1.114400
+"""
+
+
+@pytest.fixture(scope="module")
+def basis(tmp_path_factory):
+    path = tmp_path_factory.mktemp("threads") / "formaldehyde.xyz"
+    path.write_text(FORMALDEHYDE)
+    return hfcore.build_basis(hfcore.read_xyz(path), "6-31g*")
+
+
+def _energy(path, threads: int, *extra: str) -> float:
+    out, err = io.StringIO(), io.StringIO()
+    code = main(["energy", str(path), "--basis", "6-31g", "--threads", str(threads), "--json", "-", *extra],
+                stdout=out, stderr=err)
+    assert code == 0, err.getvalue()
+    return json.loads(out.getvalue())["energy"]["total"]
+
+
+@pytest.mark.parametrize("mode", ["--stored", "--direct"])
+def test_two_threads_give_the_energy_of_one(tmp_path, mode):
+    path = tmp_path / "formaldehyde.xyz"
+    path.write_text(FORMALDEHYDE)
+    one, two = _energy(path, 1, mode), _energy(path, 2, mode)
+    assert two == pytest.approx(one, abs=1e-10)
+    assert two == one  # bitwise, by the fixed reduction order
+
+
+def test_stored_integrals_are_bitwise_the_same_on_two_threads(basis):
+    one = compute_eri(basis, threads=1).packed
+    two = compute_eri(basis, threads=2).packed
+    assert np.array_equal(one, two)
+
+
+def test_direct_jk_is_bitwise_the_same_on_two_threads(basis, monkeypatch):
+    # Small work units, so the pool really splits this small basis.
+    monkeypatch.setattr(direct, "_MIN_UNIT_QUARTETS", 1 << 10)
+    rng = np.random.default_rng(7)
+    a = rng.standard_normal((basis.n_functions, basis.n_functions))
+    density = a + a.T
+    one, two = DirectERI(basis, threads=1), DirectERI(basis, threads=2)
+    assert len(one._units) > 4
+    for x, y in zip(one.jk(density), two.jk(density)):
+        assert np.array_equal(x, y)
+
+
+def test_work_units_depend_only_on_the_weights():
+    units = pool.work_units([3, 1, 4, 1, 5, 9, 2, 6], 6)
+    assert units == [slice(0, 3), slice(3, 5), slice(5, 6), slice(6, 8)]
+
+
+def test_ordered_map_keeps_item_order_on_several_threads():
+    assert list(pool.ordered_map(lambda x: x * x, range(50), 3)) == [x * x for x in range(50)]
+
+
+@pytest.mark.parametrize("bad", [0, -2, 1.5, True])
+def test_a_thread_count_below_one_or_not_an_integer_is_refused(bad):
+    with pytest.raises(InputError):
+        SCFOptions(threads=bad)
+
+
+def test_default_thread_count_is_the_cores_this_process_may_use():
+    assert SCFOptions().n_threads == pool.available_cores() >= 1
+
+
+def test_cli_refuses_zero_threads(tmp_path):
+    path = tmp_path / "formaldehyde.xyz"
+    path.write_text(FORMALDEHYDE)
+    err = io.StringIO()
+    code = main(["energy", str(path), "--threads", "0"], stdout=io.StringIO(), stderr=err)
+    assert code == 2
+    assert err.getvalue().startswith("hfcore: error: ") and len(err.getvalue().splitlines()) == 1
+
+
+def test_lean_exchange_is_bitwise_the_same_on_two_threads(basis):
+    rng = np.random.default_rng(11)
+    a = rng.standard_normal((basis.n_functions, basis.n_functions))
+    density = a + a.T
+    one = compute_eri(basis, lean=True, threads=1)
+    two = compute_eri(basis, lean=True, threads=2)
+    for x, y in zip(one.jk(density), two.jk(density)):
+        assert np.array_equal(x, y)
