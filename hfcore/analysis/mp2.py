@@ -231,10 +231,10 @@ def mp2_energy(
         near the SCF's).
     memory_bytes : int, optional
         Budget for the work array of one occupied block, in bytes
-        (default: the packed store's own size, at least 32 MiB, so the
-        peak stays near the SCF's, which held the store and an exchange
-        kernel of the same size). At least one occupied orbital is done at
-        a time, whatever the budget.
+        (default: half the packed store's size, at least 32 MiB, so the
+        peak stays within 1.5 times the SCF's, which held at least the
+        store). At least one occupied orbital is done at a time, whatever
+        the budget.
     progress : callable, optional
         Called with the fraction (0..1] of the work done: the integral pass
         (when the store is computed here) as the first half, then each
@@ -278,7 +278,9 @@ def mp2_energy(
                 f"{limit / 2**20:.3g} MiB are allowed (--memory MIB, memory_limit)"
             )
         report = None if progress is None else (lambda fraction: progress(0.5 * fraction))
-        eri = compute_eri(result.basis, threshold=result.options.screening, progress=report)
+        eri = compute_eri(
+            result.basis, threshold=result.options.screening, progress=report, threads=result.options.n_threads, lean=True
+        )
         start = 0.5
     else:
         start = 0.0
@@ -291,7 +293,7 @@ def mp2_energy(
     energies = np.asarray(result.orbital_energies, dtype=np.float64)
     e_occ, e_vir = energies[active], energies[virtual]
 
-    budget = max(_MIN_WORK_BYTES, eri.packed.nbytes) if memory_bytes is None else int(memory_bytes)
+    budget = max(_MIN_WORK_BYTES, eri.packed.nbytes // 2) if memory_bytes is None else int(memory_bytes)
     done = None if progress is None else (lambda fraction: progress(start + (1.0 - start) * fraction))
     opposite, exchange = _opposite_and_exchange(eri.packed, c_occ, c_vir, e_occ, e_vir, budget, done)
     same = opposite - exchange

@@ -81,7 +81,7 @@ def run_rhf(
     """
     options = options or SCFOptions()
     with blas_threads(options.n_threads):
-        return _run_rhf(molecule, basis, options, guess, progress, integral_progress)
+        return _run_rhf(molecule, basis, options, guess, progress, integral_progress, raise_on_failure)
 
 
 def _run_rhf(
@@ -91,6 +91,7 @@ def _run_rhf(
     guess: str | np.ndarray,
     progress: Progress | None,
     integral_progress: Callable[[float], None] | None,
+    raise_on_failure: bool = True,
 ) -> RHFResult:
     t0 = time.perf_counter()
     molecule.require_closed_shell()
