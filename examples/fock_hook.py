@@ -6,7 +6,9 @@ matrix, may change it, and passes it on to DIIS. Here the hook records the
 HOMO-LUMO gap of every Fock matrix and, for the first iterations, lifts the
 virtual orbitals by a level shift b (1 - P), P the occupied projector. The
 SCF's convergence test always uses the unmodified Fock matrix, so a hook
-like this changes the path, not the answer.
+like this changes the path, not the answer. ``SCFOptions(auto_aids=False)``
+keeps the hook in charge throughout: otherwise, when the iterations stall,
+the SCF's automatic aids replace the whole accelerator chain, hook included.
 
 (A model potential that should enter the energy belongs in the core
 Hamiltonian instead: ``solve_rhf`` takes any ``core_hamiltonian``.)
@@ -49,8 +51,11 @@ class FockHook(Accelerator):
 
 def run_with_hook(molecule: hfcore.Molecule, basis_name: str, hook: Callable[[FockStep], np.ndarray],
                   options: hfcore.SCFOptions | None = None) -> hfcore.RHFResult:
-    """RHF through :func:`solve_rhf` with ``hook`` in front of the accelerator the options ask for."""
-    options = options or hfcore.SCFOptions()
+    """RHF through :func:`solve_rhf` with ``hook`` in front of the accelerator the options ask for.
+
+    Without ``options``, the defaults with ``auto_aids=False``, so the hook sees every iteration.
+    """
+    options = options or hfcore.SCFOptions(auto_aids=False)
     basis = hfcore.build_basis(molecule, basis_name)
     s = integrals.overlap(basis)
     h = integrals.kinetic(basis) + integrals.nuclear_attraction(basis, molecule.atomic_numbers, molecule.coordinates)

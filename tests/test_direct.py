@@ -201,12 +201,12 @@ def test_cli_direct_mode_shows_in_json(water_file):
 
 def test_cli_lean_store_shows_in_json_and_report(water_file):
     lean_mib = 8 * (28 * 29 // 2) / 2**20  # exact property: 8 bytes per unique quartet of STO-3G water
-    code, out, err = run_main("energy", water_file, "--stored", "--memory", repr(lean_mib), "--json", "-")
+    code, out, err = run_main("energy", str(water_file), "--stored", "--memory", repr(lean_mib), "--json", "-")
     assert code == 0, err
     record = json.loads(out)
     assert record["scf"]["jk_mode"] == "stored-lean"
     assert record["scf"]["eri_memory_bytes"] == 8 * 28 * 29 // 2
-    code, out, err = run_main("energy", water_file, "--memory", repr(lean_mib))
+    code, out, err = run_main("energy", str(water_file), "--memory", repr(lean_mib))
     assert code == 0, err
     assert "lean" in out
 

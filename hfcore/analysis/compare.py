@@ -19,7 +19,7 @@ import numpy as np
 import scipy.linalg
 
 from ..errors import ConvergenceError, InputError
-from ..units import KCAL_MOL_PER_HARTREE
+from ..units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
 from .extrapolation import (
     FELLER_CITATION,
     KARTON_MARTIN_CITATION,
@@ -66,6 +66,10 @@ class ComparisonRow:
         Whether the SCF converged.
     guess : str
         ``"sad"`` or ``"projected from <basis>"``.
+    stable : bool or None
+        Verdict of the internal stability analysis of the solution
+        (``RHFResult.stability``); None when it was off or the SCF did not
+        converge.
     """
 
     basis: str
@@ -78,6 +82,7 @@ class ComparisonRow:
     wall_time: float
     converged: bool
     guess: str
+    stable: bool | None = None
 
 
 @dataclass(frozen=True)
@@ -330,6 +335,7 @@ def _assemble(labels: list[str], bases: list, runs: dict[int, tuple]) -> BasisCo
                 wall_time=float(seconds),
                 converged=converged,
                 guess=used,
+                stable=None if result.stability is None else bool(result.stability.stable),
             )
         )
     estimates, notes = basis_limit_estimates(rows, e_ref)
@@ -412,6 +418,7 @@ def _estimate(method, family, used, cardinals, energy, e_ref, citation) -> Basis
 __all__ = [
     "COMPARISON_GUESSES",
     "KCAL_MOL_PER_HARTREE",
+    "KJ_MOL_PER_HARTREE",
     "ComparisonRow",
     "BasisLimitEstimate",
     "BasisComparison",

@@ -30,7 +30,7 @@ if TYPE_CHECKING:
 
 
 def nuclear_charge_centre(molecule: Molecule) -> np.ndarray:
-    """Centre of nuclear charge sum_A Z_A R_A / sum_A Z_A.
+    """Centre of nuclear charge sum_A Z_A R_A / sum_A Z_A (ghost atoms have Z_A = 0).
 
     Parameters
     ----------
@@ -41,12 +41,12 @@ def nuclear_charge_centre(molecule: Molecule) -> np.ndarray:
     ndarray, shape (3,)
         Position in bohr.
     """
-    z = np.asarray(molecule.atomic_numbers, dtype=np.float64)
+    z = molecule.nuclear_charges
     return z @ np.asarray(molecule.coordinates, dtype=np.float64) / z.sum()
 
 
 def centre_of_mass(molecule: Molecule) -> np.ndarray:
-    """Centre of mass with standard atomic weights, sum_A m_A R_A / sum_A m_A.
+    """Centre of mass with standard atomic weights, sum_A m_A R_A / sum_A m_A (ghost atoms weigh nothing).
 
     Parameters
     ----------
@@ -58,6 +58,7 @@ def centre_of_mass(molecule: Molecule) -> np.ndarray:
         Position in bohr.
     """
     m = np.array([elements.atomic_weight(int(z)) for z in molecule.atomic_numbers])
+    m = np.where(molecule.ghosts, 0.0, m)
     return m @ np.asarray(molecule.coordinates, dtype=np.float64) / m.sum()
 
 
@@ -89,7 +90,7 @@ def dipole_moment(result: RHFResult, origin: ArrayLike | None = None) -> np.ndar
     require_placed(result, "the dipole moment")
     molecule = result.molecule
     o = _origin(molecule, origin)
-    z = np.asarray(molecule.atomic_numbers, dtype=np.float64)
+    z = molecule.nuclear_charges
     nuclear = z @ (np.asarray(molecule.coordinates, dtype=np.float64) - o)
     integrals = multipole(result.basis, 1, o)
     electronic = np.einsum("kij,ij->k", integrals, np.asarray(result.density, dtype=np.float64))
@@ -115,7 +116,7 @@ def second_moment(result: RHFResult, origin: ArrayLike | None = None) -> np.ndar
     require_placed(result, "the quadrupole moment")
     molecule = result.molecule
     o = _origin(molecule, origin)
-    z = np.asarray(molecule.atomic_numbers, dtype=np.float64)
+    z = molecule.nuclear_charges
     r = np.asarray(molecule.coordinates, dtype=np.float64) - o
     nuclear = np.einsum("a,ai,aj->ij", z, r, r)
     # hfcore's Cartesian order for l = 2: xx, xy, xz, yy, yz, zz.
