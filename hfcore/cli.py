@@ -2,9 +2,13 @@
 
 Subcommands: ``energy`` (one RHF run with a human report, JSON and .npz
 exports), ``fit-sto`` (a least-squares Gaussian fit to a Slater function),
-``compare`` (one molecule in several basis sets) and ``bases`` (the sets on
-offer). Errors hfcore raises on purpose become one line on stderr and the
-exit code of their class; see the README for the table.
+``compare`` (one molecule in several basis sets), ``interaction`` (raw and
+counterpoise-corrected interaction energies), ``reaction`` (reaction
+energies across basis sets), ``bases`` (the sets on offer) and ``batch``
+(many geometries and bases, resumable; registered from
+:mod:`hfcore.batch.command`). Errors
+hfcore raises on purpose become one line on stderr and the exit code of
+their class; see the README for the table.
 """
 
 from __future__ import annotations
@@ -71,14 +75,16 @@ class _Parser(argparse.ArgumentParser):
         self.exit(2, f"hfcore: error: {where}{message} (see '{self.prog} --help')\n")
 
 
-def _add_geometry_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("geometry", metavar="GEOMETRY", help="XYZ file (atom count, comment, then 'symbol x y z' lines)")
+def _add_geometry_arguments(parser: argparse.ArgumentParser, *, geometry: bool = True, charge: bool = True) -> None:
+    if geometry:
+        parser.add_argument("geometry", metavar="GEOMETRY", help="XYZ file (atom count, comment, then 'symbol x y z' lines)")
     parser.add_argument(
         "--units", choices=("angstrom", "bohr"), default="angstrom", help="units of the XYZ coordinates (default angstrom)"
     )
-    parser.add_argument(
-        "--charge", type=_charge, default=0, help="total molecular charge (default 0; never read from the file)"
-    )
+    if charge:
+        parser.add_argument(
+            "--charge", type=_charge, default=0, help="total molecular charge (default 0; never read from the file)"
+        )
     form = parser.add_mutually_exclusive_group()
     form.add_argument("--cartesian", dest="spherical", action="store_false", default=None, help="Cartesian d, f, ... functions")
     form.add_argument("--spherical", dest="spherical", action="store_true", help="real spherical d, f, ... functions")
@@ -98,6 +104,7 @@ def _add_scf_arguments(parser: argparse.ArgumentParser) -> None:
         metavar="X",
         help="drop overlap eigenvectors with eigenvalue below X (1e-7)",
     )
+    _add_stability_argument(group)
     memory = parser.add_argument_group("two-electron integrals (default: stored if they fit in --memory, else direct)")
     mode = memory.add_mutually_exclusive_group()
     mode.add_argument("--direct", dest="direct", action="store_const", const=True, default=None,
@@ -115,6 +122,16 @@ def _add_threads_argument(parser: Any) -> None:
                         "(default: the cores this process may use); the energy does not depend on N beyond ~1e-13 Eh")
 
 
+def _add_stability_argument(parser: Any) -> None:
+    parser.add_argument(
+        "--stability",
+        choices=("off", "check", "follow"),
+        default="follow",
+        help="after convergence, check that no orbital rotation lowers the energy; 'follow' (default) moves "
+        "to the lower solution if one does, 'check' only warns, 'off' skips the analysis",
+    )
+
+
 def _add_json_argument(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--json",
@@ -129,7 +146,8 @@ def build_parser() -> argparse.ArgumentParser:
         prog="hfcore",
         description="Restricted Hartree-Fock energies of small closed-shell molecules.",
         epilog="Exit codes: 0 success, 2 bad input, 3 basis problem, 4 SCF not converged, "
-        "5 not enough memory, 6 numerical failure, 130 interrupted, 141 output pipe closed.",
+        "5 not enough memory, 6 numerical failure, 10 some batch jobs failed, 11 batch results file unusable, "
+        "12 no Dask scheduler answered, 130 interrupted, 141 output pipe closed, 143 terminated.",
     )
     parser.add_argument("--version", action="version", version=f"hfcore {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
@@ -157,6 +175,17 @@ def build_parser() -> argparse.ArgumentParser:
     )
     _add_scf_arguments(energy)
     energy.add_argument("--guess", choices=("sad", "core"), default="sad", help="starting density (default sad)")
+    energy.add_argument(
+        "--ghost",
+        metavar="ATOMS",
+        help="atoms (1-based ranges in file order, e.g. 4-6 or 1,3) that keep their basis functions "
+        "but have no nucleus and no electrons",
+    )
+    energy.add_argument(
+        "--atoms",
+        metavar="ATOMS",
+        help="run only these atoms of the file (1-based ranges in file order, e.g. 1-3): one fragment of a complex",
+    )
     _add_json_argument(energy)
     energy.add_argument(
         "--npz",
@@ -182,13 +211,24 @@ def build_parser() -> argparse.ArgumentParser:
     compare.add_argument(
         "--basis", required=True, metavar="NAMES", help="comma-separated basis names, e.g. sto-3g,6-31g*,cc-pvdz"
     )
+    _add_stability_argument(compare)
     _add_json_argument(compare)
     compare.add_argument("--plot", metavar="PNG", help="plot energy against the number of basis functions")
     _add_threads_argument(compare)
     compare.set_defaults(handler=_run_compare)
 
+    from .cli_differences import add_difference_commands
+
+    add_difference_commands(sub)
+
     bases = sub.add_parser("bases", help="list the basis sets on offer")
     bases.set_defaults(handler=_run_bases)
+
+    # Last, so that every option any part of build_parser gives 'energy'
+    # reaches the batch jobs too.
+    from .batch.command import add_batch_parser
+
+    add_batch_parser(sub, energy)
     return parser
 
 
@@ -216,6 +256,10 @@ class _Console:
         if not (self.json_to_stdout or self.quiet):
             print(text, file=self.stdout, flush=True)
 
+    def warn(self, text: str) -> None:
+        """A one-line warning on stderr, shown in every mode."""
+        print(f"hfcore: warning: {text}", file=self.stderr, flush=True)
+
     def data(self, text: str) -> None:
         """The JSON document on stdout."""
         self.stdout.write(text)
@@ -237,9 +281,19 @@ def _output_paths(args: argparse.Namespace, *names: str) -> dict[str, str]:
 
 
 def _read_molecule(args: argparse.Namespace) -> Any:
-    from .geometry import read_xyz
+    from .geometry import parse_atom_ranges, read_xyz
 
     molecule = read_xyz(args.geometry, units=args.units, charge=args.charge)
+    if getattr(args, "ghost", None):
+        ghosts = parse_atom_ranges(args.ghost, molecule.natom, "--ghost")
+        if len(ghosts) == molecule.natom:
+            raise InputError(f"--ghost {args.ghost}: every atom would be a ghost; keep at least one real atom")
+        molecule = molecule.with_ghosts(ghosts)
+    if getattr(args, "atoms", None):
+        keep = parse_atom_ranges(args.atoms, molecule.natom, "--atoms")
+        if molecule.ghosts[keep].all():
+            raise InputError(f"--atoms {args.atoms}: every atom kept is a ghost; keep at least one real atom")
+        molecule = molecule.subset(keep, molecule.charge)
     molecule.require_closed_shell()
     return molecule
 
@@ -299,7 +353,10 @@ def _build_basis(args: argparse.Namespace, molecule: Any) -> Any:
 def _scf_options(args: argparse.Namespace) -> Any:
     from .scf import SCFOptions
 
-    names = ("energy_tol", "gradient_tol", "max_iterations", "diis_space", "lindep_threshold", "direct", "threads")
+    names = (
+        "energy_tol", "gradient_tol", "max_iterations", "diis_space", "lindep_threshold", "direct", "threads",
+        "stability",
+    )
     given = {name: getattr(args, name) for name in names if getattr(args, name, None) is not None}
     if getattr(args, "memory", None) is not None:
         given["memory_limit"] = args.memory
@@ -367,10 +424,20 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
     console.report(report.format_basis(basis, plan))
     integral_progress = None if console.json_to_stdout or console.quiet else _IntegralProgress(console.stderr)
     console.live(report.history_header())
-    result = run_rhf(
-        molecule, basis, options, guess=args.guess, progress=lambda rec: console.live(report.format_iteration(rec)),
-        integral_progress=integral_progress,
-    )
+
+    previous: list[Any] = [None]
+
+    def show(rec: Any) -> None:
+        last = previous[0]
+        if rec.solution and rec.iteration == 1:
+            console.live(report.format_new_solution(rec))
+        elif last is not None and rec.aid and last.aid and rec.aid != last.aid:
+            console.live(report.format_aid_switch(rec))
+        console.live(report.format_iteration(rec))
+        previous[0] = rec
+
+    result = run_rhf(molecule, basis, options, guess=args.guess, progress=show, integral_progress=integral_progress)
+    _warn_about_solution(console, result)
     record = export.result_record(result, _analysis(result))
     files: dict[str, bytes] = {}
     if "json" in paths:
@@ -386,6 +453,23 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
     return 0
 
 
+def _warn_about_solution(console: _Console, result: Any, label: str = "") -> None:
+    """One stderr line for an unstable solution or a broken aufbau occupation, in every output mode."""
+    where = f"{label}: " if label else ""
+    st = result.stability
+    if st is not None and not st.stable:
+        hint = " (rerun with --stability follow)" if st.mode == "check" else ""
+        console.warn(
+            f"{where}the RHF solution is unstable: the orbital Hessian has eigenvalue {st.lowest_eigenvalue:.6f} Eh, "
+            f"so a lower RHF solution exists{hint}"
+        )
+    if not result.aufbau:
+        console.warn(
+            f"{where}the occupation is not aufbau: a virtual orbital lies {-result.aufbau_gap:.6f} Eh "
+            "below an occupied one"
+        )
+
+
 def _report_energy(console: _Console, result: Any, analysis: dict[str, Any], wall: float) -> None:
     from .analysis import DEBYE_PER_AU
 
@@ -394,11 +478,52 @@ def _report_energy(console: _Console, result: Any, analysis: dict[str, Any], wal
         console.report(report.heading("SCF"))
     console.report(report.format_convergence(result))
     console.report(report.format_linear_dependence(result.n_dropped, result.options.lindep_threshold))
+    console.report(report.format_stability(result))
     console.report(report.format_energies(result))
     console.report(report.format_orbitals(result))
-    console.report(report.format_charges(molecule.symbols, analysis["mulliken_charges"]))
+    console.report(report.format_charges(molecule.symbols, analysis["mulliken_charges"], molecule.ghosts))
     console.report(report.format_dipole(analysis["dipole_au"], DEBYE_PER_AU, molecule.charge != 0))
     console.report(report.format_timings(result.timings, wall))
+
+
+def energy_record(args: argparse.Namespace) -> dict[str, Any]:
+    """The record ``hfcore energy --json -`` prints, for parsed ``energy`` arguments.
+
+    Used by the batch workers, so a job is exactly the single run.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        Every ``energy`` option (``json`` and ``npz`` are ignored).
+
+    Returns
+    -------
+    dict
+        The JSON record, as plain values.
+
+    Raises
+    ------
+    HfcoreError
+        As the single run would.
+    """
+    import io
+    import json
+
+    out = io.StringIO()
+    job_args = argparse.Namespace(**{**vars(args), "json": "-", "npz": None, "quiet": True})
+    _run_energy(job_args, _Console(out, io.StringIO(), json_to_stdout=True, quiet=True))
+    return json.loads(out.getvalue())
+
+
+def basis_function_count(args: argparse.Namespace) -> int:
+    """Number of basis functions an ``energy`` run with these arguments would use.
+
+    Raises
+    ------
+    HfcoreError
+        If the geometry or basis cannot be used.
+    """
+    return int(_build_basis(args, _read_molecule(args)).n_functions)
 
 
 def _run_fit_sto(args: argparse.Namespace, console: _Console) -> int:
@@ -428,14 +553,16 @@ def _run_compare(args: argparse.Namespace, console: _Console) -> int:
     from .scf import SCFOptions
 
     paths = _output_paths(args, "json", "plot")
-    names = [n.strip() for n in args.basis.split(",") if n.strip()]
-    if not names:
-        raise InputError("--basis: give at least one basis name, e.g. sto-3g,cc-pvdz")
+    names = _basis_names(args)
     molecule = _read_molecule(args)
-    options = SCFOptions(threads=args.threads)
+    options = SCFOptions(stability=args.stability, threads=args.threads)
     comparison = compare_bases(
         molecule, names, spherical=args.spherical, options=options, progress=_stderr_progress(console)
     )
+    for row in comparison.rows:
+        if row.stable is False:
+            hint = " (rerun with --stability follow)" if args.stability == "check" else ""
+            console.warn(f"{row.basis}: the RHF solution is unstable, so a lower RHF solution exists{hint}")
     record = export.comparison_record(comparison)
     if "plot" in paths:
         from .plots import plot_comparison
@@ -452,6 +579,13 @@ def _run_compare(args: argparse.Namespace, console: _Console) -> int:
     console.report(report.format_comparison(comparison))
     _report_written(console, paths.values())
     return 0
+
+
+def _basis_names(args: argparse.Namespace) -> list[str]:
+    names = [n.strip() for n in args.basis.split(",") if n.strip()]
+    if not names:
+        raise InputError("--basis: give at least one basis name, e.g. sto-3g,cc-pvdz")
+    return names
 
 
 def _report_written(console: _Console, paths: Iterable[str]) -> None:
@@ -575,4 +709,12 @@ def main(argv: Sequence[str] | None = None, *, stdout: TextIO | None = None, std
         return EXIT_BROKEN_PIPE
 
 
-__all__ = ["build_parser", "main", "parse_basis_for", "EXIT_INTERRUPTED", "EXIT_BROKEN_PIPE"]
+__all__ = [
+    "build_parser",
+    "main",
+    "parse_basis_for",
+    "energy_record",
+    "basis_function_count",
+    "EXIT_INTERRUPTED",
+    "EXIT_BROKEN_PIPE",
+]

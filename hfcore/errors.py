@@ -70,4 +70,26 @@ class NumericalError(HfcoreError):
     exit_code = 6
 
 
-__all__ = ["HfcoreError", "InputError", "BasisError", "ConvergenceError", "ResourceError", "NumericalError"]
+class ResultsFileError(InputError):
+    """A batch results file that cannot be used: unreadable, not a results
+    file, written by another version of hfcore, or held by another batch."""
+
+    exit_code = 11
+
+
+class SchedulerError(HfcoreError):
+    """A Dask scheduler that does not answer (or the Dask extra is missing)."""
+
+    exit_code = 12
+
+
+__all__ = [
+    "HfcoreError",
+    "InputError",
+    "BasisError",
+    "ConvergenceError",
+    "ResourceError",
+    "NumericalError",
+    "ResultsFileError",
+    "SchedulerError",
+]

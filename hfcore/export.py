@@ -144,6 +144,14 @@ def _plain(value: Any) -> Any:
     return value
 
 
+def plain_values(value: Any) -> Any:
+    """``value`` with arrays and numpy scalars as plain Python values, ready for :mod:`json`.
+
+    NaN and infinity become ``None`` (JSON ``null``).
+    """
+    return _plain(value)
+
+
 def to_json(record: Mapping[str, Any]) -> str:
     """Serialise a record of plain values and arrays as indented JSON text.
 
@@ -186,6 +194,7 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
             "n_electrons": mol.n_electrons,
             "symbols": mol.symbols,
             "atomic_numbers": mol.atomic_numbers,
+            "ghost_atoms": [int(k) for k in np.flatnonzero(mol.ghosts)],
             "coordinates_bohr": mol.coordinates,
         },
         "basis": {
@@ -214,7 +223,11 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
                 "diis_space": opts.diis_space,
                 "lindep_threshold": opts.lindep_threshold,
                 "screening": opts.screening,
+                "stability_threshold": opts.stability_threshold,
             },
+            "stability": stability_record(result),
+            "aufbau": {"satisfied": result.aufbau, "gap": result.aufbau_gap},
+            "aids": list(result.aids),
             "history": [
                 {
                     "iteration": h.iteration,
@@ -222,6 +235,8 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
                     "delta_e": h.delta_e,
                     "gradient_norm": h.gradient_norm,
                     "diis_size": h.diis_size,
+                    "aid": h.aid,
+                    "solution": h.solution,
                 }
                 for h in result.history
             ],
@@ -237,6 +252,31 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
     if analysis:
         record["analysis"] = dict(analysis)
     return record
+
+
+def stability_record(result: Any) -> dict[str, Any]:
+    """The ``scf.stability`` object of an RHF run's JSON record.
+
+    ``mode`` is always there; with the analysis off every other key is
+    null. Eigenvalues are those of the energy Hessian d²E/dκ² in hartree.
+    """
+    st = result.stability
+    if st is None:
+        keys = ("stable", "lowest_eigenvalue", "eigenvalues", "threshold", "solutions", "lowest_eigenvalues",
+                "rounds", "hessian_products", "message")
+        return {"mode": result.options.stability, **dict.fromkeys(keys)}
+    return {
+        "mode": st.mode,
+        "stable": st.stable,
+        "lowest_eigenvalue": st.lowest_eigenvalue,
+        "eigenvalues": st.eigenvalues,
+        "threshold": st.threshold,
+        "solutions": list(st.solutions),
+        "lowest_eigenvalues": list(st.lowest_eigenvalues),
+        "rounds": st.rounds,
+        "hessian_products": st.products,
+        "message": st.message,
+    }
 
 
 def sto_fit_record(fit: Any) -> dict[str, Any]:
@@ -277,6 +317,20 @@ def comparison_record(comparison: Any) -> dict[str, Any]:
     return {"hfcore": {"version": __version__}, "units": UNITS, "comparison": comparison.to_dict()}
 
 
+def interaction_record(study: Any) -> dict[str, Any]:
+    """The JSON record of an interaction study: ``hfcore``, ``units``, ``interaction``."""
+    from . import __version__
+
+    return {"hfcore": {"version": __version__}, "units": UNITS, "interaction": study.to_dict()}
+
+
+def reaction_record(study: Any) -> dict[str, Any]:
+    """The JSON record of a reaction study: ``hfcore``, ``units``, ``reaction``."""
+    from . import __version__
+
+    return {"hfcore": {"version": __version__}, "units": UNITS, "reaction": study.to_dict()}
+
+
 def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS) -> dict[str, np.ndarray]:
     """The arrays of an RHF run, for prototyping new methods on top of it.
 
@@ -293,7 +347,7 @@ def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS
         ``overlap``, ``kinetic``, ``nuclear_attraction``, ``core_hamiltonian``
         (nbf, nbf); ``coefficients`` (nbf, nmo); ``orbital_energies``,
         ``occupations`` (nmo,); ``density`` (total), ``fock`` (nbf, nbf);
-        ``atomic_numbers`` (natom,); ``coordinates`` (natom, 3) in bohr;
+        ``atomic_numbers`` (natom,), ``ghosts`` (natom,) bool; ``coordinates`` (natom, 3) in bohr;
         ``function_atoms``, ``function_l`` (nbf,); ``energy_total`` ();
         ``spherical`` (); and ``eri`` (nbf, nbf, nbf, nbf) in chemists'
         notation (mu nu|lambda sigma) when nbf <= ``eri_max_functions``.
@@ -306,7 +360,7 @@ def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS
     arrays = {
         "overlap": result.overlap,
         "kinetic": integrals.kinetic(basis),
-        "nuclear_attraction": integrals.nuclear_attraction(basis, mol.atomic_numbers, mol.coordinates),
+        "nuclear_attraction": integrals.nuclear_attraction(basis, mol.nuclear_charges, mol.coordinates),
         "core_hamiltonian": result.core_hamiltonian,
         "coefficients": result.coefficients,
         "orbital_energies": result.orbital_energies,
@@ -314,6 +368,7 @@ def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS
         "density": result.density,
         "fock": result.fock,
         "atomic_numbers": mol.atomic_numbers,
+        "ghosts": mol.ghosts,
         "coordinates": mol.coordinates,
         "function_atoms": basis.function_atoms(),
         "function_l": basis.function_l(),
@@ -338,10 +393,13 @@ __all__ = [
     "check_output_path",
     "write_files_atomically",
     "write_file_atomically",
+    "plain_values",
     "to_json",
     "result_record",
     "sto_fit_record",
     "comparison_record",
+    "interaction_record",
+    "reaction_record",
     "result_arrays",
     "npz_bytes",
 ]

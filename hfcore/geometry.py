@@ -10,7 +10,8 @@ from __future__ import annotations
 
 import math
 import os
-from dataclasses import dataclass, field
+from collections.abc import Iterable
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from scipy import constants
@@ -57,6 +58,10 @@ class Molecule:
         Where the geometry came from (file path), for messages.
     comment : str
         The comment line of the XYZ file.
+    ghosts : ndarray of bool, shape (natom,)
+        Ghost atoms (all False by default): a ghost keeps the basis
+        functions of its element at its position but has no nuclear charge
+        and brings no electrons (see :meth:`with_ghosts`).
     """
 
     atomic_numbers: np.ndarray
@@ -65,6 +70,7 @@ class Molecule:
     source: str = "<memory>"
     comment: str = ""
     _line_numbers: tuple[int, ...] = field(default=(), repr=False, compare=False)
+    ghosts: np.ndarray | None = None
 
     def __post_init__(self) -> None:
         z, xyz = _checked_arrays(self.atomic_numbers, self.coordinates, self.source)
@@ -79,6 +85,12 @@ class Molecule:
         object.__setattr__(self, "atomic_numbers", z)
         object.__setattr__(self, "coordinates", xyz)
         object.__setattr__(self, "charge", int(charge))
+        ghosts = np.zeros(z.shape[0], dtype=bool) if self.ghosts is None else np.asarray(self.ghosts, dtype=bool).reshape(-1)
+        if ghosts.shape[0] != z.shape[0]:
+            raise InputError(f"{self.source}: {ghosts.shape[0]} ghost flags for {z.shape[0]} atoms")
+        ghosts = ghosts.copy()
+        ghosts.setflags(write=False)
+        object.__setattr__(self, "ghosts", ghosts)
 
     @property
     def natom(self) -> int:
@@ -91,9 +103,14 @@ class Molecule:
         return [elements.symbol(int(z)) for z in self.atomic_numbers]
 
     @property
+    def nuclear_charges(self) -> np.ndarray:
+        """Nuclear charges as float64, shape (natom,): Z, or 0 for a ghost atom."""
+        return np.where(self.ghosts, 0.0, self.atomic_numbers.astype(np.float64))
+
+    @property
     def n_electrons(self) -> int:
-        """Number of electrons, sum(Z) - charge."""
-        return int(self.atomic_numbers.sum()) - self.charge
+        """Number of electrons, sum(Z) over the real (non-ghost) atoms minus the charge."""
+        return int(self.atomic_numbers[~self.ghosts].sum()) - self.charge
 
     def line_of(self, atom: int) -> int | None:
         """The line of the source file that defined atom ``atom`` (1-based), if known."""
@@ -103,7 +120,7 @@ class Molecule:
 
     def nuclear_repulsion(self) -> float:
         """Nuclear repulsion energy sum_{A<B} Z_A Z_B / R_AB in hartree."""
-        return nuclear_repulsion(self.atomic_numbers, self.coordinates)
+        return nuclear_repulsion(self.nuclear_charges, self.coordinates)
 
     def coordinates_angstrom(self) -> np.ndarray:
         """Nuclear positions in ångström, shape (natom, 3)."""
@@ -111,7 +128,50 @@ class Molecule:
 
     def with_charge(self, charge: int) -> "Molecule":
         """A copy with another total charge."""
-        return Molecule(self.atomic_numbers, self.coordinates, charge, self.source, self.comment, self._line_numbers)
+        return replace(self, charge=charge)
+
+    def with_ghosts(self, atoms: Iterable[int], charge: int | None = None) -> "Molecule":
+        """A copy in which the given atoms (0-based, file order) are ghosts.
+
+        A ghost atom keeps the basis functions of its element at its
+        position but has no nuclear charge and no electrons: nuclear
+        repulsion and nuclear attraction skip it and the starting guess
+        gives it no density. Atoms already ghosts stay ghosts.
+
+        Parameters
+        ----------
+        atoms : iterable of int
+            0-based atom indices.
+        charge : int, optional
+            Total charge of the copy (default: unchanged).
+
+        Returns
+        -------
+        Molecule
+        """
+        mask = self.ghosts.copy()
+        mask[_checked_atoms(atoms, self.natom, self.source)] = True
+        return replace(self, ghosts=mask, charge=self.charge if charge is None else charge)
+
+    def subset(self, atoms: Iterable[int], charge: int = 0) -> "Molecule":
+        """The molecule made of the given atoms only (0-based, kept in file order).
+
+        Parameters
+        ----------
+        atoms : iterable of int
+            0-based atom indices.
+        charge : int
+            Total charge of the part.
+
+        Returns
+        -------
+        Molecule
+        """
+        keep = sorted(set(_checked_atoms(atoms, self.natom, self.source)))
+        lines = tuple(self._line_numbers[k] for k in keep) if len(self._line_numbers) == self.natom else ()
+        return Molecule(
+            self.atomic_numbers[keep], self.coordinates[keep], charge, self.source, self.comment, lines, self.ghosts[keep]
+        )
 
     def require_closed_shell(self) -> None:
         """Raise ``InputError`` unless the electron count is even and positive.
@@ -171,6 +231,53 @@ def _checked_arrays(atomic_numbers: object, coordinates: object, source: str) ->
             f"of at most {MAX_COORDINATE_ANGSTROM:g} Å ({limit:.6g} bohr) in magnitude"
         )
     return z, xyz
+
+
+def _checked_atoms(atoms: Iterable[int], natom: int, source: str) -> list[int]:
+    out = [int(a) for a in atoms]
+    bad = [a for a in out if not 0 <= a < natom]
+    if bad:
+        raise InputError(f"{source}: atom {bad[0] + 1} does not exist (the molecule has {natom} atoms)")
+    return out
+
+
+def parse_atom_ranges(text: str, natom: int, what: str = "atoms") -> list[int]:
+    """0-based atom indices from 1-based ranges in file order, e.g. ``"1-3,7"``.
+
+    Parameters
+    ----------
+    text : str
+        Comma-separated items, each ``N`` or ``N-M`` (1-based, inclusive).
+    natom : int
+        Number of atoms, the largest allowed number.
+    what : str
+        Name of the option, for messages.
+
+    Returns
+    -------
+    list of int
+        Sorted, each atom once.
+
+    Raises
+    ------
+    InputError
+        For an empty or malformed item, a reversed range, or an atom beyond
+        ``natom``.
+    """
+    out: set[int] = set()
+    for item in text.split(","):
+        first, sep, last = item.strip().partition("-")
+        try:
+            lo = int(first)
+            hi = int(last) if sep else lo
+        except ValueError:
+            raise InputError(f"{what} {text!r}: expected 1-based atom numbers or ranges such as 1-3,7") from None
+        if lo < 1 or hi < lo:
+            raise InputError(f"{what} {text!r}: {item.strip()!r} is not a range of atom numbers from 1 up")
+        if hi > natom:
+            raise InputError(f"{what} {text!r}: atom {hi} does not exist (the molecule has {natom} atoms)")
+        out.update(range(lo - 1, hi))
+    return sorted(out)
 
 
 def nuclear_repulsion(atomic_numbers: np.ndarray, coordinates: np.ndarray) -> float:
@@ -388,6 +495,7 @@ __all__ = [
     "read_xyz",
     "parse_xyz",
     "nuclear_repulsion",
+    "parse_atom_ranges",
     "BOHR_IN_ANGSTROM",
     "ANGSTROM_IN_BOHR",
     "MAX_COORDINATE_ANGSTROM",

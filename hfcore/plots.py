@@ -16,6 +16,8 @@ from .export import write_file_atomically
 
 if TYPE_CHECKING:
     from .analysis.compare import BasisComparison
+    from .analysis.interaction import InteractionStudy
+    from .analysis.reactions import ReactionStudy
     from .basis.sto import STOFit
 
 
@@ -95,6 +97,99 @@ def plot_comparison(comparison: BasisComparison, path: str | os.PathLike) -> Non
         plt.close(figure)
 
 
+def _check_directory(path: str | os.PathLike) -> None:
+    if not os.path.isdir(os.path.dirname(os.path.abspath(os.fspath(path)))):
+        raise InputError(f"{os.fspath(path)}: the directory does not exist")
+
+
+def plot_interaction(study: InteractionStudy, path: str | os.PathLike) -> None:
+    """Draw raw and counterpoise-corrected interaction energies, and their difference, against basis size.
+
+    Parameters
+    ----------
+    study : InteractionStudy
+        From :func:`hfcore.analysis.interaction.interaction_energies`.
+    path : str or path-like
+        The PNG file to write (replaced atomically).
+
+    Raises
+    ------
+    InputError
+        If matplotlib is missing or the directory of ``path`` does not exist.
+    """
+    from .analysis.compare import KJ_MOL_PER_HARTREE
+
+    _check_directory(path)
+    plt = _pyplot()
+    rows = sorted(study.rows, key=lambda r: r.n_functions)
+    x = [r.n_functions for r in rows]
+    figure, axes = plt.subplots(figsize=(7.0, 4.8))
+    try:
+        axes.plot(x, [r.raw * KJ_MOL_PER_HARTREE for r in rows], "o-", label="raw")
+        axes.plot(x, [r.counterpoise * KJ_MOL_PER_HARTREE for r in rows], "s-", label="counterpoise-corrected")
+        axes.plot(x, [r.superposition_error * KJ_MOL_PER_HARTREE for r in rows], "^--",
+                  label="superposition error (corrected − raw)")
+        for r in rows:
+            axes.annotate(r.basis, (r.n_functions, r.raw * KJ_MOL_PER_HARTREE), textcoords="offset points",
+                          xytext=(6, -12), fontsize=8)
+        axes.axhline(0.0, color="black", linewidth=0.6)
+        axes.set_xlabel("basis functions of the complex")
+        axes.set_ylabel("energy / kJ mol$^{-1}$")
+        axes.set_title(f"RHF interaction energy, {os.path.basename(study.source)}", fontsize=10)
+        axes.margins(x=0.15, y=0.12)
+        axes.legend(fontsize=8, loc="best")
+        figure.tight_layout()
+        _save_atomically(figure, path)
+    finally:
+        plt.close(figure)
+
+
+def plot_reactions(study: ReactionStudy, path: str | os.PathLike) -> None:
+    """Draw each reaction energy against basis size, with the basis-limit estimates as horizontal lines.
+
+    Parameters
+    ----------
+    study : ReactionStudy
+        From :func:`hfcore.analysis.reactions.reaction_energies`.
+    path : str or path-like
+        The PNG file to write (replaced atomically).
+
+    Raises
+    ------
+    InputError
+        If matplotlib is missing or the directory of ``path`` does not exist.
+    """
+    from .analysis.compare import KJ_MOL_PER_HARTREE
+
+    _check_directory(path)
+    plt = _pyplot()
+    rows = sorted(study.rows, key=lambda r: r.n_functions)
+    figure, axes = plt.subplots(figsize=(7.0, 4.8))
+    try:
+        styles = ("--", ":", "-.")
+        for k, reaction in enumerate(study.reactions):
+            x = [r.reaction_functions(reaction) for r in rows]
+            y = [r.reaction_energies[k] * KJ_MOL_PER_HARTREE for r in rows]
+            axes.plot(x, y, "o-", color=f"C{k}", label=reaction.text)
+            if k == 0:
+                for r, n, value in zip(rows, x, y):
+                    axes.annotate(r.basis, (n, value), textcoords="offset points", xytext=(6, 6),
+                                  fontsize=8)
+            for j, est in enumerate(study.estimates):
+                axes.axhline(est.reaction_energies[k] * KJ_MOL_PER_HARTREE, color=f"C{k}", linewidth=1.0,
+                             linestyle=styles[j % len(styles)],
+                             label=f"{est.method} limit ({', '.join(est.bases)})" if k == 0 else None)
+        axes.set_xlabel("basis functions, summed over the species of the reaction")
+        axes.set_ylabel("reaction energy / kJ mol$^{-1}$")
+        axes.set_title("RHF reaction energy against basis size", fontsize=10)
+        axes.margins(x=0.15, y=0.12)
+        axes.legend(fontsize=7, loc="best")
+        figure.tight_layout()
+        _save_atomically(figure, path)
+    finally:
+        plt.close(figure)
+
+
 def _radial_range(fits: Sequence[STOFit]) -> float:
     """Outer radius (bohr) where the most diffuse Slater function has fallen to a few per cent."""
     return max((2.5 * f.principal + 2.0) / f.zeta for f in fits)
@@ -161,4 +256,49 @@ def plot_sto_fit(fits: Sequence[STOFit], path: str | os.PathLike) -> None:
         plt.close(figure)
 
 
-__all__ = ["plot_comparison", "plot_sto_fit"]
+
+def plot_batch_energies(table, path: str | os.PathLike) -> None:
+    """Draw the energies of a batch against geometry, one line per basis set.
+
+    For a scan, the horizontal axis is the coordinate taken from the XYZ
+    comment lines; otherwise the geometries in results-file order.
+
+    Parameters
+    ----------
+    table : EnergyTable
+        From :func:`hfcore.batch.energy_table`.
+    path : str or path-like
+        The PNG file to write (replaced atomically).
+
+    Raises
+    ------
+    InputError
+        If there is no energy to draw, matplotlib is missing or the
+        directory of ``path`` does not exist.
+    """
+    if not table.energies:
+        raise InputError(f"{table.path}: no successful job to plot")
+    if not os.path.isdir(os.path.dirname(os.path.abspath(os.fspath(path)))):
+        raise InputError(f"{os.fspath(path)}: the directory does not exist")
+    plt = _pyplot()
+    figure, axes = plt.subplots(figsize=(7.0, 4.8))
+    try:
+        for basis in table.bases:
+            points = [(x, table.energies[(g, basis)]) for x, g in zip(table.coordinate, table.geometries)
+                      if (g, basis) in table.energies]
+            points.sort()
+            axes.plot([p[0] for p in points], [p[1] for p in points], "o-", label=basis)
+        if table.coordinate_label.startswith("geometry") and len(table.geometries) <= 12:
+            axes.set_xticks(table.coordinate, [os.path.basename(g) for g in table.geometries], rotation=30,
+                            ha="right", fontsize=7)
+        axes.set_xlabel(table.coordinate_label)
+        axes.set_ylabel("RHF total energy / hartree")
+        axes.ticklabel_format(axis="y", useOffset=False)
+        axes.legend(fontsize=8)
+        figure.tight_layout()
+        _save_atomically(figure, path)
+    finally:
+        plt.close(figure)
+
+
+__all__ = ["plot_comparison", "plot_sto_fit", "plot_interaction", "plot_reactions", "plot_batch_energies"]

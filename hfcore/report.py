@@ -53,13 +53,28 @@ def format_molecule(molecule: Any) -> str:
         ("electrons", str(molecule.n_electrons)),
         ("nuclear repulsion", f"{molecule.nuclear_repulsion():.10f} Eh"),
     ]
+    ghosts = np.flatnonzero(molecule.ghosts)
+    if ghosts.size:
+        info.append(("ghost atoms", f"{atom_ranges(ghosts)} (basis functions only: no nucleus, no electrons)"))
     lines.append(_pairs(info))
     lines.append("")
     lines.append(f"  {'#':>4}  {'element':<7}  {'x / Å':>13}  {'y / Å':>13}  {'z / Å':>13}")
     xyz = np.asarray(molecule.coordinates) * BOHR_IN_ANGSTROM
     for k, (sym, (x, y, z)) in enumerate(zip(molecule.symbols, xyz), start=1):
-        lines.append(f"  {k:>4}  {sym:<7}  {x:13.6f}  {y:13.6f}  {z:13.6f}")
+        mark = "  ghost" if molecule.ghosts[k - 1] else ""
+        lines.append(f"  {k:>4}  {sym:<7}  {x:13.6f}  {y:13.6f}  {z:13.6f}{mark}")
     return "\n".join(lines)
+
+
+def atom_ranges(atoms: Iterable[int]) -> str:
+    """0-based atom indices as 1-based ranges in file order, e.g. [3, 4, 5, 7] -> "4-6,8"."""
+    runs: list[list[int]] = []
+    for a in sorted(int(k) + 1 for k in atoms):
+        if runs and a == runs[-1][-1] + 1:
+            runs[-1].append(a)
+        else:
+            runs.append([a])
+    return ",".join(str(r[0]) if len(r) == 1 else f"{r[0]}-{r[-1]}" for r in runs)
 
 
 def format_basis(basis: Any, plan: Any = None) -> str:
@@ -152,6 +167,56 @@ def format_convergence(result: Any) -> str:
     )
 
 
+def format_new_solution(record: Any) -> str:
+    """The line the live SCF table shows when a solution after a rotation starts."""
+    return f"  -- solution {record.solution + 1}: started along the lowest unstable mode of the previous one --"
+
+
+def format_aid_switch(record: Any) -> str:
+    """The line the live SCF table shows when an automatic convergence aid takes over."""
+    return f"  -- no progress: switching to {record.aid} --"
+
+
+def format_stability(result: Any) -> str:
+    """The stability section: what was checked after convergence, the aufbau check and the aids used.
+
+    Parameters
+    ----------
+    result : RHFResult
+        With ``stability`` (None when the analysis was off), ``aufbau``,
+        ``aufbau_gap``, ``aids`` and ``history``.
+    """
+    st = result.stability
+    rows: list[tuple[str, str]] = []
+    if st is None:
+        rows.append(("internal stability", "not checked (--stability off)"))
+    else:
+        verdict = "stable" if st.stable else "UNSTABLE"
+        rows.append(("internal stability", f"{verdict} ({st.mode}): {st.message}"))
+        threshold = f"threshold -{st.threshold:.0e}"
+        if np.isfinite(st.lowest_eigenvalue):
+            rows.append(("lowest eigenvalue", f"{st.lowest_eigenvalue:.4e} Eh (orbital Hessian, {threshold})"))
+        else:
+            rows.append(("lowest eigenvalue", "none (no occupied-virtual rotation in this basis)"))
+        rows.append(("solutions / Eh", " → ".join(f"{e:.10f}" for e in st.solutions)))
+        rows.append(("Hessian products", str(st.products)))
+    gap = "none" if not np.isfinite(result.aufbau_gap) else f"{result.aufbau_gap:.6f} Eh"
+    verdict = "yes" if result.aufbau else "NO"
+    rows.append(("aufbau occupation", f"{verdict} (lowest virtual − highest occupied: {gap})"))
+    if result.aids:
+        starts = []
+        for aid in result.aids:
+            first = next((h for h in result.history if h.aid == aid), None)
+            where = f" from iteration {first.iteration}" if first is not None else ""
+            if first is not None and first.solution:
+                where += f" of solution {first.solution + 1}"
+            starts.append(aid + where)
+        rows.append(("convergence aids", "; ".join(starts)))
+    else:
+        rows.append(("convergence aids", "none needed"))
+    return heading("Stability and occupation") + "\n" + _pairs(rows)
+
+
 def format_energies(result: Any) -> str:
     """The energy section: total and its parts, in hartree."""
     rows = [
@@ -185,11 +250,12 @@ def format_orbitals(result: Any, max_virtuals: int = MAX_VIRTUALS_SHOWN) -> str:
     return "\n".join(lines)
 
 
-def format_charges(symbols: Sequence[str], charges: np.ndarray) -> str:
-    """Mulliken atomic charges, one line per atom, in elementary charges."""
+def format_charges(symbols: Sequence[str], charges: np.ndarray, ghosts: Sequence[bool] | None = None) -> str:
+    """Mulliken atomic charges, one line per atom, in elementary charges; ghost atoms marked."""
     lines = [heading("Mulliken charges / e")]
-    for k, (sym, q) in enumerate(zip(symbols, _no_negative_zero(charges, 6)), start=1):
-        lines.append(f"  {k:>4}  {sym:<7}  {q:+10.6f}")
+    marks = ["  ghost" if g else "" for g in ghosts] if ghosts is not None else [""] * len(symbols)
+    for k, (sym, q, mark) in enumerate(zip(symbols, _no_negative_zero(charges, 6), marks), start=1):
+        lines.append(f"  {k:>4}  {sym:<7}  {q:+10.6f}{mark}")
     lines.append(f"  {'sum':>13}  {float(_no_negative_zero(np.sum(charges), 6)):+10.6f}")
     return "\n".join(lines)
 
@@ -300,16 +366,87 @@ def format_basis_list(families: Sequence[Any], fitted: Sequence[str]) -> str:
     return "\n".join(lines)
 
 
+
+def format_batch_run(outcome: Any, results_path: str) -> str:
+    """The summary at the end of ``hfcore batch``.
+
+    Parameters
+    ----------
+    outcome : BatchOutcome
+        From :func:`hfcore.batch.run_batch`.
+    results_path : str
+        The results file, named in the summary.
+    """
+    ran = outcome.ran
+    ok = sum(r["status"] == "ok" for r in ran)
+    rows = [
+        ("jobs", f"{len(outcome.jobs)}"),
+        ("run now", f"{len(ran)}: {ok} ok, {len(ran) - ok} failed"),
+        ("skipped", f"{outcome.skipped_ok} already ok, {outcome.skipped_failed} already failed"),
+    ]
+    if outcome.missing:
+        rows.append(("not finished", f"{len(outcome.missing)} (stopped; run the same command again)"))
+    rows.append(("wall time", f"{outcome.wall_seconds:.2f} s"))
+    times = [(r["batch"]["wall_seconds"], r["job"]) for r in ran if r["batch"].get("wall_seconds") is not None]
+    if times:
+        mean = sum(t for t, _ in times) / len(times)
+        longest, job = max(times, key=lambda item: item[0])
+        rows.append(("per job", f"mean {mean:.2f} s, longest {longest:.2f} s ({job['geometry']} {job['basis']})"))
+    rows.append(("results", results_path))
+    lines = [heading("Batch"), _pairs(rows)]
+    failed = outcome.failed
+    if failed:
+        groups: dict[tuple[int, str], list[str]] = {}
+        for record in failed:
+            error = record["error"]
+            groups.setdefault((error["exit_code"], error["message"]), []).append(record["job"]["basis"])
+        lines.append(heading(f"Failed jobs: {len(failed)}, by reason"))
+        for (code, message), bases in sorted(groups.items(), key=lambda item: -len(item[1])):
+            lines.append(f"  {len(bases):>4} × exit {code:<3} {message}  [{', '.join(bases)}]")
+    return "\n".join(lines)
+
+
+def format_batch_energies(table: Any) -> str:
+    """Energies from a results file as a table: one row per geometry, one column per basis.
+
+    Parameters
+    ----------
+    table : EnergyTable
+        From :func:`hfcore.batch.energy_table`.
+    """
+    if not table.geometries:
+        return heading(f"Energies / Eh in {table.path}") + "\n  no finished jobs yet"
+    width = max(len("geometry"), *(len(g) for g in table.geometries))
+    column = max(16, *(len(b) + 2 for b in table.bases))
+    lines = [heading(f"Energies / Eh in {table.path}"),
+             f"  {'geometry':<{width}}" + "".join(f"{b:>{column}}" for b in table.bases)]
+    for geometry in table.geometries:
+        cells = []
+        for basis in table.bases:
+            energy = table.energies.get((geometry, basis))
+            if energy is not None:
+                cells.append(f"{energy:>{column}.10f}")
+            else:
+                cells.append(f"{'failed' if (geometry, basis) in table.failures else '—':>{column}}")
+        lines.append(f"  {geometry:<{width}}" + "".join(cells))
+    if table.failures:
+        lines.append(f"\n  {len(table.failures)} failed job(s); their lines in the results file say why")
+    return "\n".join(lines)
+
 __all__ = [
     "MAX_VIRTUALS_SHOWN",
     "EV_PER_HARTREE",
     "heading",
     "format_molecule",
+    "atom_ranges",
     "format_basis",
     "format_linear_dependence",
     "history_header",
     "format_iteration",
     "format_convergence",
+    "format_new_solution",
+    "format_aid_switch",
+    "format_stability",
     "format_energies",
     "format_orbitals",
     "format_charges",
@@ -318,4 +455,6 @@ __all__ = [
     "format_sto_fit",
     "format_comparison",
     "format_basis_list",
+    "format_batch_run",
+    "format_batch_energies",
 ]

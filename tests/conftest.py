@@ -78,10 +78,13 @@ def water_file(tmp_path) -> Path:
 # --- the command line ----------------------------------------------------------------
 
 
-def run_main(*args: str) -> tuple[int, str, str]:
-    """Run :func:`hfcore.cli.main` in this process: (exit code, stdout, stderr)."""
+def run_main(*args: str | os.PathLike) -> tuple[int, str, str]:
+    """Run :func:`hfcore.cli.main` in this process: (exit code, stdout, stderr).
+
+    Paths (such as the ``water_file`` fixture) may be given as they are.
+    """
     out, err = io.StringIO(), io.StringIO()
-    code = main(list(args), stdout=out, stderr=err)
+    code = main([os.fspath(a) for a in args], stdout=out, stderr=err)
     return code, out.getvalue(), err.getvalue()
 
 

@@ -76,7 +76,10 @@ def named_reference_mole(molecule: Molecule, name: str, *, spherical: bool) -> g
 
 
 def _mole(molecule: Molecule, basis: str | dict, spherical: bool) -> gto.Mole:
-    atoms = [(s, tuple(map(float, r))) for s, r in zip(molecule.symbols, molecule.coordinates)]
+    # A ghost atom (basis functions, no nucleus, no electrons) is written "ghost-O"; the
+    # reference library then takes the shells of "O" and gives the atom charge 0.
+    names = [("ghost-" if g else "") + s for s, g in zip(molecule.symbols, molecule.ghosts)]
+    atoms = [(s, tuple(map(float, r))) for s, r in zip(names, molecule.coordinates)]
     return gto.M(
         atom=atoms,
         basis=basis,

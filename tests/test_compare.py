@@ -108,6 +108,7 @@ def test_to_dict_has_stable_keys_and_is_json(nested):
         "wall_time",
         "converged",
         "guess",
+        "stable",
     }
     assert data["estimates"] == []
     assert json.loads(json.dumps(data)) == data

@@ -1,4 +1,4 @@
-"""Property-based tests: the XYZ reader and the basis-file reader on random and mutated files.
+"""Property-based tests: the XYZ reader, the basis-file reader and the Molecule record on random and mutated input.
 
 The contract (issue 8, part 4): whatever the bytes, a reader returns a parsed
 record or raises hfcore's own error (InputError; BasisError is one), never
@@ -8,7 +8,7 @@ read after a few seconds). Mutations start from real files: the demo
 geometries in ``inputs/`` and the shipped 6-31G basis file.
 
 The examples are derandomised (the same ones on every run, no example
-database), so CI is deterministic; the counts add up to 2,100.
+database), so CI is deterministic; the counts add up to 2,300.
 """
 
 from __future__ import annotations
@@ -285,3 +285,24 @@ def test_basis_reader_on_mutated_bytes_returns_a_family_or_raises_basis_error(sc
     path = scratch / "mutated.json"
     path.write_bytes(data)
     _check_basis_file(path)
+
+
+# --- the Molecule record itself (the API boundary) --------------------------------------
+
+number = st.one_of(st.floats(allow_nan=True, allow_infinity=True), st.integers(-(10**6), 10**6), st.sampled_from([1e200, -1e200, 18897.0, 18898.0]))
+
+
+@settings(max_examples=200, **FUZZ)
+@given(
+    z=st.lists(st.one_of(st.integers(-3, 40), st.floats(0, 40), st.sampled_from(["8", "O", None])), max_size=4),
+    xyz=st.lists(st.lists(number, min_size=2, max_size=4), max_size=4),
+    charge=st.one_of(st.integers(-(10**3), 10**3), st.floats(allow_nan=True, allow_infinity=True), st.booleans(), st.none()),
+)
+def test_molecule_from_arrays_is_well_formed_or_refused_with_input_error(z, xyz, charge):
+    with strict():
+        try:
+            mol = Molecule(z, xyz, charge)
+        except InputError:
+            return
+    assert_well_formed(mol)
+    assert isinstance(mol.charge, int)

@@ -142,7 +142,7 @@ def test_history_and_progress_agree(water_dz):
 
 
 def test_timings_are_recorded(water_dz_result):
-    assert set(water_dz_result.timings) == {"guess", "scf", "total"}
+    assert set(water_dz_result.timings) == {"guess", "scf", "stability", "total"}
     assert all(t >= 0.0 for t in water_dz_result.timings.values())
 
 
@@ -353,7 +353,7 @@ def test_run_rhf_guesses_agree_and_record_their_timings():
     assert core.energy_total == pytest.approx(sad.energy_total, abs=1e-9)
     assert given.energy_total == pytest.approx(sad.energy_total, abs=1e-9)
     assert given.iterations <= 2
-    assert set(sad.timings) == {"integrals", "guess", "scf", "total"}
+    assert set(sad.timings) == {"integrals", "guess", "scf", "stability", "total"}
     assert sad.molecule is molecule and sad.basis.n_functions == 7
 
 

@@ -8,46 +8,32 @@ operation of a pass. The 1e-10 Eh energy tolerance is the issue's.
 
 from __future__ import annotations
 
-import io
 import json
 
 import numpy as np
 import pytest
+from conftest import assert_one_line_error, cli_result, copy_input, read_input, run_main
 
 import hfcore
-from hfcore.cli import main
 from hfcore.errors import InputError
 from hfcore.integrals import DirectERI, compute_eri, direct, pool
 from hfcore.scf import SCFOptions
 
-FORMALDEHYDE = """4
-formaldehyde
-C   0.000000   0.000000  -0.528500
-O   0.000000   0.000000   0.678800
-H   0.000000   0.934700  -1.114400
-H   0.000000  -0.934700  -1.114400
-"""
-
 
 @pytest.fixture(scope="module")
-def basis(tmp_path_factory):
-    path = tmp_path_factory.mktemp("threads") / "formaldehyde.xyz"
-    path.write_text(FORMALDEHYDE)
-    return hfcore.build_basis(hfcore.read_xyz(path), "6-31g*")
+def basis():
+    return hfcore.build_basis(read_input("formaldehyde"), "6-31g*")
 
 
 def _energy(path, threads: int, *extra: str) -> float:
-    out, err = io.StringIO(), io.StringIO()
-    code = main(["energy", str(path), "--basis", "6-31g", "--threads", str(threads), "--json", "-", *extra],
-                stdout=out, stderr=err)
-    assert code == 0, err.getvalue()
-    return json.loads(out.getvalue())["energy"]["total"]
+    code, out, err = run_main("energy", path, "--basis", "6-31g", "--threads", str(threads), "--json", "-", *extra)
+    assert code == 0, err
+    return json.loads(out)["energy"]["total"]
 
 
 @pytest.mark.parametrize("mode", ["--stored", "--direct"])
 def test_two_threads_give_the_energy_of_one(tmp_path, mode):
-    path = tmp_path / "formaldehyde.xyz"
-    path.write_text(FORMALDEHYDE)
+    path = copy_input("formaldehyde", tmp_path)
     one, two = _energy(path, 1, mode), _energy(path, 2, mode)
     # The integral passes give the same bits (tests below); threaded BLAS in
     # the SCF may move the last digits (3e-13 Eh measured on benzene/cc-pVDZ).
@@ -92,12 +78,8 @@ def test_default_thread_count_is_the_cores_this_process_may_use():
 
 
 def test_cli_refuses_zero_threads(tmp_path):
-    path = tmp_path / "formaldehyde.xyz"
-    path.write_text(FORMALDEHYDE)
-    err = io.StringIO()
-    code = main(["energy", str(path), "--threads", "0"], stdout=io.StringIO(), stderr=err)
-    assert code == 2
-    assert err.getvalue().startswith("hfcore: error: ") and len(err.getvalue().splitlines()) == 1
+    copy_input("formaldehyde", tmp_path)
+    assert_one_line_error(cli_result("energy", "formaldehyde.xyz", "--threads", "0", cwd=tmp_path), 2)
 
 
 def test_lean_exchange_is_bitwise_the_same_on_two_threads(basis):

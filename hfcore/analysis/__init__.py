@@ -1,8 +1,10 @@
 """Post-SCF analysis: populations, multipoles, MP2, basis-limit extrapolation,
-and a driver comparing several basis sets.
+and drivers over several RHF runs: basis comparison, interaction and
+reaction energies.
 
-Everything here except :func:`compare_bases` works on a finished
-:class:`hfcore.scf.RHFResult` and never runs the SCF itself.
+Everything here except the drivers (:func:`compare_bases`,
+:func:`interaction_energies`, :func:`reaction_energies`) works on a
+finished :class:`hfcore.scf.RHFResult` and never runs the SCF itself.
 """
 
 from __future__ import annotations
@@ -16,6 +18,8 @@ from .compare import (
     compare_bases,
     project_density,
 )
+from .interaction import InteractionStudy, interaction_energies
+from .reactions import ReactionStudy, reaction_energies
 from .extrapolation import cardinal_number, correlation_consistent, feller_three_point, karton_martin_two_point
 from .mp2 import MP2Result, core_orbital_count, mp2_energy
 from .multipoles import DEBYE_PER_AU, dipole_moment, nuclear_charge_centre
@@ -43,4 +47,8 @@ __all__ = [
     "compare_bases",
     "project_density",
     "basis_limit_estimates",
+    "InteractionStudy",
+    "interaction_energies",
+    "ReactionStudy",
+    "reaction_energies",
 ]

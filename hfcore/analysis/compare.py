@@ -36,6 +36,8 @@ if TYPE_CHECKING:
 
 #: kcal/mol per hartree (CODATA hartree energy × Avogadro constant / 4184 J per kcal).
 KCAL_MOL_PER_HARTREE: float = constants.physical_constants["Hartree energy"][0] * constants.Avogadro / 4184.0
+#: kJ/mol per hartree (CODATA hartree energy × Avogadro constant / 1000 J per kJ).
+KJ_MOL_PER_HARTREE: float = constants.physical_constants["Hartree energy"][0] * constants.Avogadro / 1000.0
 
 GUESSES: tuple[str, ...] = ("auto", "projected", "sad")
 
@@ -66,6 +68,10 @@ class ComparisonRow:
         Whether the SCF converged.
     guess : str
         ``"sad"`` or ``"projected from <basis>"``.
+    stable : bool or None
+        Verdict of the internal stability analysis of the solution
+        (``RHFResult.stability``); None when it was off or the SCF did not
+        converge.
     """
 
     basis: str
@@ -78,6 +84,7 @@ class ComparisonRow:
     wall_time: float
     converged: bool
     guess: str
+    stable: bool | None = None
 
 
 @dataclass(frozen=True)
@@ -328,6 +335,7 @@ def _assemble(labels: list[str], bases: list, runs: dict[int, tuple]) -> BasisCo
                 wall_time=float(seconds),
                 converged=converged,
                 guess=used,
+                stable=None if result.stability is None else bool(result.stability.stable),
             )
         )
     estimates, notes = basis_limit_estimates(rows, e_ref)
@@ -409,6 +417,7 @@ def _estimate(method, family, used, cardinals, energy, e_ref, citation) -> Basis
 
 __all__ = [
     "KCAL_MOL_PER_HARTREE",
+    "KJ_MOL_PER_HARTREE",
     "ComparisonRow",
     "BasisLimitEstimate",
     "BasisComparison",

@@ -73,10 +73,11 @@ def core_orbital_count(molecule: Molecule) -> int:
     -------
     int
         Sum over atoms of the doubly occupied orbitals of the previous
-        noble gas (0 for H-He, 1 for Li-Ne, 5 for Na-Ar, ...).
+        noble gas (0 for H-He, 1 for Li-Ne, 5 for Na-Ar, ...); ghost atoms
+        have no core.
     """
     total = 0
-    for z in molecule.atomic_numbers:
+    for z in molecule.atomic_numbers[~molecule.ghosts]:
         z = int(z)
         total += next((count for last, count in _CORE_BY_ROW if z <= last), _CORE_BY_ROW[-1][1])
     return total

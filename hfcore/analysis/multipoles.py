@@ -26,7 +26,7 @@ DEBYE_PER_AU: float = (
 
 
 def nuclear_charge_centre(molecule: Molecule) -> np.ndarray:
-    """Centre of nuclear charge sum_A Z_A R_A / sum_A Z_A.
+    """Centre of nuclear charge sum_A Z_A R_A / sum_A Z_A (ghost atoms have Z_A = 0).
 
     Parameters
     ----------
@@ -37,7 +37,7 @@ def nuclear_charge_centre(molecule: Molecule) -> np.ndarray:
     ndarray, shape (3,)
         Position in bohr.
     """
-    z = np.asarray(molecule.atomic_numbers, dtype=np.float64)
+    z = molecule.nuclear_charges
     return z @ np.asarray(molecule.coordinates, dtype=np.float64) / z.sum()
 
 
@@ -64,7 +64,7 @@ def dipole_moment(result: RHFResult, origin: ArrayLike | None = None) -> np.ndar
     o = nuclear_charge_centre(molecule) if origin is None else np.asarray(origin, dtype=np.float64).reshape(-1)
     if o.shape != (3,) or not np.all(np.isfinite(o)):
         raise InputError(f"the dipole origin must be three finite numbers (bohr), got {origin!r}")
-    z = np.asarray(molecule.atomic_numbers, dtype=np.float64)
+    z = molecule.nuclear_charges
     nuclear = z @ (np.asarray(molecule.coordinates, dtype=np.float64) - o)
     integrals = multipole(result.basis, 1, o)
     electronic = np.einsum("kij,ij->k", integrals, np.asarray(result.density, dtype=np.float64))

@@ -36,7 +36,7 @@ def _atom_charges(result: RHFResult, populations: np.ndarray) -> np.ndarray:
     atoms = result.basis.function_atoms()
     natom = result.molecule.natom
     electrons = np.bincount(atoms, weights=populations, minlength=natom)
-    return np.asarray(result.molecule.atomic_numbers, dtype=np.float64) - electrons
+    return result.molecule.nuclear_charges - electrons
 
 
 def mulliken_populations(result: RHFResult) -> np.ndarray:
@@ -67,7 +67,8 @@ def mulliken_charges(result: RHFResult) -> np.ndarray:
     Returns
     -------
     ndarray, shape (natom,)
-        Z_A minus the Mulliken population of A's functions, in units of e;
+        Z_A (0 for a ghost atom) minus the Mulliken population of A's
+        functions, in units of e;
         the entries sum to the molecular charge.
     """
     return _atom_charges(result, mulliken_populations(result))

@@ -227,6 +227,8 @@ def build_accelerator(options: SCFOptions) -> Accelerator:
     ``"diis"`` gives DIIS (with damping before ``diis_start`` if
     ``damping > 0``), ``"damping"`` gives damping alone, ``"none"`` plain
     Roothaan iterations; a positive ``level_shift`` adds a level shift last.
+    ``"second_order"`` needs no Fock matrix to diagonalise (the solver
+    takes orbital steps itself) and gives an empty chain.
     """
     stages: list[Accelerator] = []
     if options.accelerator == "diis":

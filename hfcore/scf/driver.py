@@ -32,6 +32,7 @@ def run_rhf(
     guess: str | np.ndarray = "sad",
     progress: Progress | None = None,
     integral_progress: Callable[[float], None] | None = None,
+    shared: "SharedIntegrals | None" = None,
 ) -> RHFResult:
     """Restricted Hartree-Fock energy and orbitals of a closed-shell molecule.
 
@@ -53,11 +54,19 @@ def run_rhf(
     integral_progress : callable, optional
         Called with the fraction (0..1] of the stored-integral pass done;
         the direct mode has no such pass (its cost shows per iteration).
+    shared : SharedIntegrals, optional
+        The overlap, kinetic and two-electron integrals of ``basis`` from
+        :func:`prepare_integrals`, reused instead of computed again; only
+        the nuclear attraction of ``molecule`` is computed. Several
+        molecules that differ only in their ghost atoms and charge share
+        one basis and so one set (a counterpoise calculation).
 
     Returns
     -------
     RHFResult
-        Timings hold "integrals", "guess", "scf" and "total" seconds;
+        Timings hold "integrals", "guess", "scf", "stability" and "total"
+        seconds; ``stability`` and ``aufbau`` say what was checked after
+        convergence (see ``options.stability``);
         ``jk_mode`` and ``eri_bytes`` say how J and K were built
         (see :func:`plan_jk`).
 
@@ -74,7 +83,7 @@ def run_rhf(
     """
     options = options or SCFOptions()
     with blas_threads(options.n_threads):
-        return _run_rhf(molecule, basis, options, guess, progress, integral_progress)
+        return _run_rhf(molecule, basis, options, guess, progress, integral_progress, shared)
 
 
 def _run_rhf(
@@ -84,6 +93,7 @@ def _run_rhf(
     guess: str | np.ndarray,
     progress: Progress | None,
     integral_progress: Callable[[float], None] | None,
+    shared: "SharedIntegrals | None",
 ) -> RHFResult:
     t0 = time.perf_counter()
     molecule.require_closed_shell()
@@ -91,15 +101,18 @@ def _run_rhf(
         basis = build_basis(molecule, basis)
     require_room_for(molecule, basis)
     guess_density = _checked_guess(guess, basis)
-    overlap = integrals.overlap(basis)
-    hcore = integrals.kinetic(basis) + integrals.nuclear_attraction(
-        basis, molecule.atomic_numbers.astype(np.float64), molecule.coordinates
-    )
-    plan = plan_jk(basis, options)
-    jk = _jk_builder(basis, options, plan, integral_progress)
+    if shared is None:
+        shared = prepare_integrals(basis, options, integral_progress)
+    elif shared.basis is not basis:
+        raise InputError("shared integrals belong to another basis; build them with prepare_integrals(basis)")
+    overlap = shared.overlap
+    hcore = shared.kinetic + integrals.nuclear_attraction(basis, molecule.nuclear_charges, molecule.coordinates)
+    plan = shared.plan
+    jk = shared.jk_builder()
     t_integrals = time.perf_counter()
     if isinstance(guess, str) and guess.lower() == "sad":
-        guess_density = sad_density(basis, molecule.atomic_numbers, jk)
+        # Ghost atoms enter with charge 0, which gives them no density.
+        guess_density = sad_density(basis, np.where(molecule.ghosts, 0, molecule.atomic_numbers), jk)
         if isinstance(jk, IncrementalJK):
             # The SCF starts from a full build, not from a change to an atom's density.
             jk.reset()
@@ -110,6 +123,7 @@ def _run_rhf(
             "integrals": t_integrals - t0,
             "guess": t_sad + result.timings["guess"],
             "scf": result.timings["scf"],
+            "stability": result.timings.get("stability", 0.0),
             "total": time.perf_counter() - t0,
         }
         return replace(
@@ -210,6 +224,74 @@ def plan_jk(basis: BasisSet, options: SCFOptions | None = None) -> JKPlan:
     return JKPlan(mode, lean if mode == "stored-lean" else need, limit)
 
 
+@dataclass(frozen=True)
+class SharedIntegrals:
+    """The integrals of a basis that do not depend on the nuclear charges.
+
+    Made by :func:`prepare_integrals`; handed to :func:`run_rhf` for each
+    molecule on the same basis (the same atoms, some of them ghosts).
+
+    Attributes
+    ----------
+    basis : BasisSet
+    overlap, kinetic : ndarray, shape (nbf, nbf)
+        Overlap S and kinetic energy T (hartree).
+    plan : JKPlan
+        How J and K are built.
+    engine : JKBuilder
+        The builder :func:`run_rhf` would make: the stored integrals, or the
+        direct mode's incremental builder (copied fresh for every run).
+    seconds : float
+        Wall-clock time it took to compute them.
+    """
+
+    basis: BasisSet
+    overlap: np.ndarray
+    kinetic: np.ndarray
+    plan: JKPlan
+    engine: JKBuilder
+    seconds: float
+
+    def jk_builder(self) -> JKBuilder:
+        """A J/K builder for one SCF run: the store itself, or a fresh incremental builder on the same engine."""
+        if isinstance(self.engine, IncrementalJK):
+            return IncrementalJK(self.engine.engine, self.engine.rebuild_interval)
+        return self.engine
+
+
+def prepare_integrals(
+    basis: BasisSet, options: SCFOptions | None = None, integral_progress: Callable[[float], None] | None = None
+) -> SharedIntegrals:
+    """Overlap, kinetic and two-electron integrals of a basis, for one or more RHF runs.
+
+    Parameters
+    ----------
+    basis : BasisSet
+    options : SCFOptions, optional
+        ``direct``, ``memory_limit`` and ``screening`` choose how the
+        two-electron part is built (see :func:`plan_jk`).
+    integral_progress : callable, optional
+        As for :func:`run_rhf`.
+
+    Returns
+    -------
+    SharedIntegrals
+
+    Raises
+    ------
+    ResourceError
+        As :func:`plan_jk`.
+    """
+    t0 = time.perf_counter()
+    options = options or SCFOptions()
+    plan = plan_jk(basis, options)
+    with blas_threads(options.n_threads):
+        overlap = integrals.overlap(basis)
+        kinetic = integrals.kinetic(basis)
+        engine = _jk_builder(basis, options, plan, integral_progress)
+    return SharedIntegrals(basis, overlap, kinetic, plan, engine, time.perf_counter() - t0)
+
+
 def _jk_builder(
     basis: BasisSet, options: SCFOptions, plan: JKPlan, integral_progress: Callable[[float], None] | None
 ) -> JKBuilder:
@@ -222,4 +304,4 @@ def _jk_builder(
     )
 
 
-__all__ = ["run_rhf", "plan_jk", "JKPlan", "GUESSES"]
+__all__ = ["run_rhf", "plan_jk", "JKPlan", "GUESSES", "SharedIntegrals", "prepare_integrals"]

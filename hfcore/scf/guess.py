@@ -61,7 +61,8 @@ def sad_density(basis: BasisSet, atomic_numbers: np.ndarray, molecular_jk: JKBui
     basis : BasisSet
         The molecular basis; the shells of each atom define its atomic SCF.
     atomic_numbers : ndarray of int, shape (natom,)
-        Nuclear charges (each atom is neutral in its own SCF).
+        Nuclear charges (each atom is neutral in its own SCF); an atom given
+        charge 0 (a ghost atom) gets no density.
     molecular_jk : JKBuilder, optional
         The molecule's own two-electron integrals. An atom holding at least
         half of the basis functions takes its J and K from them (a density
@@ -78,7 +79,7 @@ def sad_density(basis: BasisSet, atomic_numbers: np.ndarray, molecular_jk: JKBui
     offsets = basis.shell_offsets
     for atom, z in enumerate(atomic_numbers):
         index = [i for i, s in enumerate(basis.shells) if s.atom == atom]
-        if not index:
+        if not index or int(z) == 0:
             continue
         start, stop = int(offsets[index[0]]), int(offsets[index[-1] + 1])
         shells = tuple(basis.shells[i] for i in index)

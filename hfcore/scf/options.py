@@ -6,10 +6,11 @@ import math
 from dataclasses import dataclass
 
 from ..errors import InputError
+from .stability import check_stability_mode
 
 #: Names accepted for :attr:`SCFOptions.accelerator`; the classes live in
 #: :mod:`hfcore.scf.accelerators`.
-ACCELERATOR_NAMES: tuple[str, ...] = ("diis", "damping", "none")
+ACCELERATOR_NAMES: tuple[str, ...] = ("diis", "damping", "second_order", "none")
 
 
 def _positive(name: str, value: object) -> float:
@@ -81,8 +82,11 @@ class SCFOptions:
     level_shift : float
         Raise the virtual orbital energies by this much (hartree) while
         iterating; the final orbitals are unshifted.
-    accelerator : {"diis", "damping", "none"}
-        The convergence accelerator.
+    accelerator : {"diis", "damping", "second_order", "none"}
+        The convergence accelerator; ``"second_order"`` takes trust-region
+        Newton steps on the orbital gradient
+        (:mod:`hfcore.scf.second_order`) instead of diagonalising a Fock
+        matrix, at a few extra J/K builds per iteration.
     direct : bool or None
         Recompute two-electron integrals every iteration instead of storing
         them (True), store them (False), or let hfcore choose (None): stored
@@ -92,6 +96,26 @@ class SCFOptions:
         Memory the stored integrals may take, in MiB (2^20 bytes). None
         means half of the memory the system reports available
         (:func:`default_memory_limit`).
+    stability : {"follow", "check", "off"}
+        After convergence, analyse the internal (real RHF→RHF) stability of
+        the solution (:mod:`hfcore.scf.stability`). ``"follow"`` also leaves
+        an unstable solution along its lowest Hessian mode and converges
+        again, up to ``stability_rounds`` times; ``"check"`` only reports;
+        ``"off"`` skips the analysis. The default is the same in every J/K
+        mode, since a wrong state costs more than the check: with stored
+        integrals the lowest three eigenvalues are found (30-60 cheap J/K
+        builds); in direct mode, where each build is a full integral pass,
+        only the lowest, to a looser residual (1e-4; about 15-20 passes).
+    stability_threshold : float
+        A solution is stable when the lowest eigenvalue of the energy
+        Hessian d²E/dκ² is at least ``-stability_threshold`` (hartree).
+    stability_rounds : int
+        Most rotations ``"follow"`` makes before reporting the solution it
+        holds (as unstable, if it still is).
+    auto_aids : bool
+        When the iterations stall or oscillate, switch on convergence aids
+        (level shifting, then damping) automatically; each switch is
+        recorded in the history and in ``RHFResult.aids``.
     rebuild_interval : int
         In direct mode J and K are built from the density change of each
         iteration; every this many builds they are rebuilt from the full
@@ -121,6 +145,10 @@ class SCFOptions:
     direct: bool | None = None
     memory_limit: float | None = None
     rebuild_interval: int = 8
+    stability: str = "follow"
+    stability_threshold: float = 1e-5
+    stability_rounds: int = 4
+    auto_aids: bool = True
     threads: int | None = None
 
     def __post_init__(self) -> None:
@@ -136,6 +164,11 @@ class SCFOptions:
         if self.memory_limit is not None:
             object.__setattr__(self, "memory_limit", _positive("memory_limit", self.memory_limit))
         object.__setattr__(self, "rebuild_interval", _count("rebuild_interval", self.rebuild_interval, 1))
+        object.__setattr__(self, "stability", check_stability_mode(self.stability))
+        object.__setattr__(self, "stability_threshold", _positive("stability_threshold", self.stability_threshold))
+        object.__setattr__(self, "stability_rounds", _count("stability_rounds", self.stability_rounds, 1))
+        if not isinstance(self.auto_aids, bool):
+            raise InputError(f"SCF option auto_aids must be True or False, got {self.auto_aids!r}")
         if self.threads is not None:
             object.__setattr__(self, "threads", _count("threads", self.threads, 1))
 
@@ -168,8 +201,10 @@ class SCFOptions:
         object.__setattr__(self, "accelerator", name)
         if name == "damping" and self.damping == 0.0:
             raise InputError("the 'damping' accelerator needs a damping factor in (0, 1), e.g. damping=0.5")
-        if name == "none" and self.damping > 0.0:
-            raise InputError("damping > 0 needs accelerator 'damping' or 'diis', not 'none'")
+        if name in ("none", "second_order") and self.damping > 0.0:
+            raise InputError(f"damping > 0 needs accelerator 'damping' or 'diis', not {name!r}")
+        if name == "second_order" and self.level_shift > 0.0:
+            raise InputError("a level shift applies to Fock-matrix accelerators, not to 'second_order'")
 
 
 __all__ = ["SCFOptions", "ACCELERATOR_NAMES", "default_memory_limit", "MEMORY_FRACTION", "FALLBACK_MEMORY_MIB"]

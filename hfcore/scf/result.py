@@ -12,6 +12,7 @@ from .options import SCFOptions
 if TYPE_CHECKING:
     from ..basis.shells import BasisSet
     from ..geometry import Molecule
+    from .stability import StabilityReport
 
 
 @dataclass(frozen=True)
@@ -35,6 +36,13 @@ class SCFIteration:
     diis_size : int
         Number of Fock/error pairs the accelerator held after the step
         (0 without DIIS).
+    aid : str
+        The accelerator that made the next Fock matrix: the chosen one
+        (e.g. ``"diis"``) or an automatic aid (``"diis+level_shift"``,
+        ``"damping+level_shift"``); empty for the converged iteration.
+    solution : int
+        0 for the SCF from the guess; k for the SCF started after the k-th
+        rotation along an unstable mode (see :mod:`hfcore.scf.stability`).
     """
 
     iteration: int
@@ -42,6 +50,8 @@ class SCFIteration:
     delta_e: float
     gradient_norm: float
     diis_size: int
+    aid: str = ""
+    solution: int = 0
 
 
 @dataclass(frozen=True)
@@ -105,6 +115,20 @@ class RHFResult:
     eri_bytes : int
         Predicted memory of the stored integrals (bytes), whichever mode
         ran; 0 when unknown (bare matrices).
+    aufbau : bool
+        True when the occupied space of the density the energy belongs to
+        holds the lowest orbitals of its own Fock matrix (no virtual orbital
+        below an occupied one).
+    aufbau_gap : float
+        Lowest virtual minus highest occupied orbital energy of that
+        density's Fock matrix (hartree); negative when ``aufbau`` is False,
+        +inf without virtual orbitals.
+    aids : tuple of str
+        Automatic convergence aids switched on during the run, in order
+        (empty when the chosen accelerator sufficed).
+    stability : StabilityReport or None
+        What the stability analysis checked and did; None with
+        ``stability="off"`` or for an unconverged run.
     """
 
     energy_total: float
@@ -130,6 +154,10 @@ class RHFResult:
     basis: "BasisSet | None" = None
     jk_mode: str = "given"
     eri_bytes: int = 0
+    aufbau: bool = True
+    aufbau_gap: float = float("inf")
+    aids: tuple[str, ...] = ()
+    stability: "StabilityReport | None" = None
 
     @property
     def n_occupied(self) -> int:

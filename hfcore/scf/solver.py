@@ -9,13 +9,23 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..errors import BasisError, ConvergenceError, InputError
-from .accelerators import Accelerator, FockStep, build_accelerator
+from .accelerators import DIIS, Accelerator, Chain, Damping, FockStep, LevelShift, build_accelerator
 from .jk import JKBuilder
 from .options import SCFOptions
 from .orthogonalise import Orthogonaliser
 from .result import RHFResult, SCFIteration
+from .second_order import SecondOrderStep
+from .stability import plain_builder
 
 Progress = Callable[[SCFIteration], None]
+
+#: Automatic aids in the order they are switched on (see :class:`_AidSchedule`).
+AID_STAGES: tuple[str, ...] = ("diis+level_shift", "damping+level_shift", "second_order")
+#: Level shift (hartree) and damping factor the automatic aids use.
+AID_LEVEL_SHIFT: float = 0.5
+AID_DAMPING: float = 0.5
+#: Iterations over which progress is judged.
+AID_WINDOW: int = 8
 
 
 @dataclass(frozen=True)
@@ -53,6 +63,11 @@ class _Problem:
         fds = ev.fock @ ev.density @ self.overlap
         return self.ortho.to_orthonormal(fds - fds.T)
 
+    def orbitals_of(self, density: np.ndarray) -> np.ndarray:
+        """S-orthonormal orbitals (nbf, nmo) whose first n_occ span the occupied space of an idempotent density."""
+        _, vectors = np.linalg.eigh(self.projector(density))
+        return self.ortho.transform @ vectors[:, ::-1]  # projector eigenvalues descending: occupied first
+
     def projector(self, density: np.ndarray) -> np.ndarray:
         """Occupied-space projector in the orthonormal basis: ½ Xᵀ S D S X."""
         sx = self.overlap @ self.ortho.transform
@@ -86,6 +101,7 @@ def solve_rhf(
     *,
     progress: Progress | None = None,
     accelerator: Accelerator | None = None,
+    _solution: int = 0,
 ) -> RHFResult:
     """Run closed-shell Roothaan-Hall iterations on given matrices.
 
@@ -112,12 +128,18 @@ def solve_rhf(
         orbitals). Without it, the core Hamiltonian gives the orbitals.
     progress : callable, optional
         Called with each :class:`SCFIteration` record as it is made.
+    accelerator : Accelerator, optional
+        Replaces the one ``options`` name; the automatic aids
+        (``options.auto_aids``) may still take over from it when it stalls.
 
     Returns
     -------
     RHFResult
         With ``molecule`` and ``basis`` left as None; timings hold "guess",
-        "scf" and "total".
+        "scf", "stability" and "total". Unless ``options.stability`` is
+        "off", the converged solution has been analysed (and, with
+        "follow", left along unstable modes) by
+        :func:`hfcore.scf.following.stabilise`.
 
     Raises
     ------
@@ -144,16 +166,21 @@ def solve_rhf(
     density, guess_energy = _initial_density(problem, guess_density)
     t_guess = time.perf_counter()
     previous = 0.0 if guess_energy is None else float(guess_energy + energy_nuclear)
-    if accelerator is None:
-        accelerator = build_accelerator(options)
-    accelerator.reset()
-    state = _iterate(problem, density, previous, energy_nuclear, options, accelerator, progress)
+    schedule = _AidSchedule(options, accelerator)
+    state = _iterate(problem, density, previous, energy_nuclear, options, schedule, progress, _solution)
     t_scf = time.perf_counter()
     result = _result(problem, state, energy_nuclear, options)
-    timings = {"guess": t_guess - t0, "scf": t_scf - t_guess, "total": time.perf_counter() - t0}
-    result = replace(result, timings=timings)
+    timings = {"guess": t_guess - t0, "scf": t_scf - t_guess, "stability": 0.0, "total": time.perf_counter() - t0}
+    result = replace(result, timings=timings, aids=tuple(schedule.used))
+    if not result.converged and schedule.used:
+        result = replace(result, message=f"{result.message}; automatic aids tried: {', '.join(schedule.used)}")
     if not result.converged:
         raise ConvergenceError(result.message, result)
+    if options.stability != "off" and _solution == 0:
+        from .following import stabilise
+
+        result = stabilise(result, jk, int(n_electrons), energy_nuclear, progress=progress)
+        result = replace(result, timings={**result.timings, "total": time.perf_counter() - t0})
     return result
 
 
@@ -175,14 +202,79 @@ class _State:
     converged: bool
 
 
+class _AidSchedule:
+    """The accelerator in use, and the automatic switch to aids when it stops making progress.
+
+    The iterations count as stalled when the best orbital gradient of the
+    last :data:`AID_WINDOW` iterations is not below half the best one
+    before them (at least 12 iterations into the current accelerator), and
+    as oscillating when the energy rose in half of the last
+    :data:`AID_WINDOW` iterations. Either switches on the next of
+    :data:`AID_STAGES`: DIIS restarted with a level shift of
+    :data:`AID_LEVEL_SHIFT`; then damping by :data:`AID_DAMPING` with the
+    shift; then, to the end, trust-region Newton steps on the orbital
+    gradient (:mod:`hfcore.scf.second_order`, with the Hessian products of
+    the stability analysis). Common practice: a shift separates occupied
+    from virtual orbital energies and stops occupations swapping between
+    iterations; damping removes oscillation; a second-order step needs no
+    extrapolation history, moves downhill even near a saddle point and converges
+    fast near the solution, at a few J/K builds per step. The final
+    orbitals are never shifted.
+    """
+
+    def __init__(self, options: SCFOptions, accelerator: Accelerator | None) -> None:
+        self.options = options
+        if accelerator is None:
+            accelerator = build_accelerator(options)
+            self.name = options.accelerator + ("+level_shift" if options.level_shift > 0.0 else "")
+        else:
+            self.name = type(accelerator).__name__.lower()
+        self.accelerator = accelerator
+        self.accelerator.reset()
+        self.second_order: SecondOrderStep | None = SecondOrderStep() if self.name == "second_order" else None
+        self.used: list[str] = []
+        self._gradients: list[float] = []
+        self._energies: list[float] = []
+
+    def observe(self, energy: float, gradient: float) -> None:
+        """Record one iteration; switch to the next aid if the current accelerator is stuck."""
+        self._gradients.append(gradient)
+        self._energies.append(energy)
+        if not self.options.auto_aids or len(self.used) >= len(AID_STAGES):
+            return
+        g = self._gradients
+        stalled = len(g) >= 12 and min(g[-AID_WINDOW:]) > 0.5 * min(g[:-AID_WINDOW])
+        e = np.array(self._energies[-AID_WINDOW - 1 :])
+        rises = int(np.count_nonzero(np.diff(e) > max(self.options.energy_tol, 1e-9)))
+        oscillating = len(e) > AID_WINDOW and rises >= AID_WINDOW // 2
+        if stalled or oscillating:
+            self._switch(AID_STAGES[len(self.used)])
+
+    def _switch(self, name: str) -> None:
+        opts = self.options
+        self.second_order = None
+        if name == "diis+level_shift":
+            self.accelerator = Chain([DIIS(opts.diis_space, 1), LevelShift(AID_LEVEL_SHIFT)])
+        elif name == "second_order":
+            self.accelerator = Chain([])
+            self.second_order = SecondOrderStep()
+        else:
+            self.accelerator = Chain([Damping(AID_DAMPING), LevelShift(AID_LEVEL_SHIFT)])
+        self.name = name
+        self.used.append(name)
+        self._gradients.clear()
+        self._energies.clear()
+
+
 def _iterate(
     problem: _Problem,
     density: np.ndarray,
     previous: float,
     energy_nuclear: float,
     options: SCFOptions,
-    accelerator: Accelerator,
+    schedule: _AidSchedule,
     progress: Progress | None,
+    solution: int = 0,
 ) -> _State:
     """Iterate from ``density``; ``previous`` is the total energy the first change is measured from."""
     history: list[SCFIteration] = []
@@ -192,10 +284,21 @@ def _iterate(
         energy = float(ev.energy_electronic + energy_nuclear)
         grad = float(np.max(np.abs(error))) if error.size else 0.0
         converged = abs(energy - previous) < options.energy_tol and grad < options.gradient_tol
+        aid = ""
         if not converged:
-            step = FockStep(iteration, problem.ortho.to_orthonormal(ev.fock), error, problem.projector(ev.density))
-            _, _, density = problem.occupy(accelerator.next_fock(step))
-        record = SCFIteration(iteration, energy, energy - previous, grad, accelerator.subspace_size)
+            schedule.observe(energy, grad)
+            aid = schedule.name
+            if schedule.second_order is not None:
+                orbitals = schedule.second_order.next_orbitals(
+                    problem.orbitals_of(ev.density), ev.fock, problem.n_occ, plain_builder(problem.jk), energy
+                )
+                density = 2.0 * orbitals[:, : problem.n_occ] @ orbitals[:, : problem.n_occ].T
+            else:
+                step = FockStep(iteration, problem.ortho.to_orthonormal(ev.fock), error, problem.projector(ev.density))
+                _, _, density = problem.occupy(schedule.accelerator.next_fock(step))
+        record = SCFIteration(
+            iteration, energy, energy - previous, grad, schedule.accelerator.subspace_size, aid, solution
+        )
         history.append(record)
         if progress is not None:
             progress(record)
@@ -210,6 +313,7 @@ def _result(problem: _Problem, state: _State, energy_nuclear: float, options: SC
     energies, coefficients, density = problem.occupy(problem.ortho.to_orthonormal(ev.fock))
     occupations = np.zeros(energies.shape[0])
     occupations[: problem.n_occ] = 2.0
+    aufbau_gap = _aufbau_gap(problem, ev)
     last = state.history[-1]
     n = len(state.history)
     if state.converged:
@@ -240,7 +344,26 @@ def _result(problem: _Problem, state: _State, energy_nuclear: float, options: SC
         timings={},
         options=options,
         message=message,
+        aufbau=bool(aufbau_gap > 0.0),
+        aufbau_gap=aufbau_gap,
     )
 
 
-__all__ = ["solve_rhf", "Progress"]
+def _aufbau_gap(problem: _Problem, ev: _Evaluation) -> float:
+    """Lowest virtual minus highest occupied orbital energy of the density's own Fock matrix (hartree).
+
+    The occupied space is that of the density the energy was evaluated at
+    (projector eigenvalues near 1), not the orbitals re-occupied from its
+    Fock matrix, so a solution that holds a higher orbital shows a negative gap.
+    """
+    fock = problem.ortho.to_orthonormal(ev.fock)
+    weights, vectors = np.linalg.eigh(problem.projector(ev.density))
+    occ, vir = vectors[:, weights > 0.5], vectors[:, weights <= 0.5]
+    if occ.shape[1] == 0 or vir.shape[1] == 0:
+        return float("inf")
+    highest = float(np.linalg.eigvalsh(occ.T @ fock @ occ)[-1])
+    lowest = float(np.linalg.eigvalsh(vir.T @ fock @ vir)[0])
+    return lowest - highest
+
+
+__all__ = ["solve_rhf", "Progress", "AID_STAGES", "AID_LEVEL_SHIFT", "AID_DAMPING", "AID_WINDOW"]

@@ -1,0 +1,196 @@
+"""Running a batch: skip what the results file has, run the rest, append each line as it comes.
+
+The jobs run in local worker processes (:mod:`hfcore.batch.pool`) or on a
+Dask cluster (:mod:`hfcore.batch.cluster`); each is exactly an
+``hfcore energy --json -`` run (:mod:`hfcore.batch.worker`).
+"""
+
+from __future__ import annotations
+
+import contextlib
+import dataclasses
+import time
+from collections.abc import Callable, Iterator, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+from .cluster import connect_dask, dask_results
+from .command import energy_defaults
+from .jobs import Job, largest_first
+from .pool import LocalPool, usable_cores
+from .results import ResultsWriter
+
+
+@dataclass
+class BatchOutcome:
+    """What a batch did.
+
+    Attributes
+    ----------
+    jobs : list of Job
+        Every job the batch was asked for.
+    records : dict
+        The latest results line of each job known so far, by job key
+        (including lines from earlier runs).
+    ran : list of dict
+        The lines written by this run, in finishing order.
+    skipped_ok, skipped_failed : int
+        Jobs not run because the results file already had them (failed
+        ones are skipped unless ``retry_failed``).
+    truncated_bytes : int
+        Size of a partial last line from an earlier crash that was cut off.
+    duplicates_written : int
+        Results delivered twice (by a retried task) and not written again.
+    stopped : bool
+        True if ``should_stop`` ended the run early.
+    wall_seconds : float
+    """
+
+    jobs: list[Job]
+    records: dict[str, dict[str, Any]] = field(default_factory=dict)
+    ran: list[dict[str, Any]] = field(default_factory=list)
+    skipped_ok: int = 0
+    skipped_failed: int = 0
+    truncated_bytes: int = 0
+    duplicates_written: int = 0
+    stopped: bool = False
+    wall_seconds: float = 0.0
+
+    @property
+    def failed(self) -> list[dict[str, Any]]:
+        """The latest line of every job of this batch that failed."""
+        return [r for j in self.jobs if (r := self.records.get(j.key)) and r["status"] != "ok"]
+
+    @property
+    def missing(self) -> list[Job]:
+        """Jobs with no line yet (a run that was stopped)."""
+        return [j for j in self.jobs if j.key not in self.records]
+
+
+def run_batch(
+    jobs: Sequence[Job],
+    results_path: str,
+    *,
+    retry_failed: bool = False,
+    workers: int | None = None,
+    threads: int = 1,
+    scheduler: str | None = None,
+    scheduler_timeout: float = 10.0,
+    extra: Mapping[str, Any] | None = None,
+    should_stop: Callable[[], bool] = lambda: False,
+    on_start: Callable[[BatchOutcome, int], None] | None = None,
+    on_record: Callable[[dict[str, Any]], None] | None = None,
+    size_of: Callable[[Job], int] | None = None,
+) -> BatchOutcome:
+    """Run the jobs not yet in a results file, appending one line per finished job.
+
+    Parameters
+    ----------
+    jobs : sequence of Job
+        From :func:`hfcore.batch.make_jobs`.
+    results_path : str
+        The results file (created with a header if missing; locked while
+        the batch runs).
+    retry_failed : bool
+        Also rerun jobs whose latest line says ``failed``.
+    workers : int, optional
+        Local worker processes (default: the usable cores). Ignored with
+        ``scheduler``.
+    threads : int
+        Threads per job: BLAS, and the ``threads`` option of ``energy``.
+    scheduler : str, optional
+        Address of a Dask scheduler to send the jobs to instead.
+    scheduler_timeout : float
+        Seconds to wait for the scheduler.
+    extra : mapping, optional
+        Further ``energy`` arguments passed to every job but not part of
+        its identity.
+    should_stop : callable
+        Polled while jobs run; returning true abandons the running jobs.
+    on_start : callable, optional
+        Called as ``on_start(outcome, n_to_run)`` once the file is read.
+    on_record : callable, optional
+        Called with each line after it is on disk.
+    size_of : callable, optional
+        An estimate of a job's cost (e.g. its number of basis functions);
+        the largest jobs start first. Called only for the jobs to run.
+
+    Returns
+    -------
+    BatchOutcome
+
+    Raises
+    ------
+    ResultsFileError
+        If the results file cannot be used (see :mod:`hfcore.batch.results`).
+    SchedulerError
+        If the Dask scheduler does not answer.
+    """
+    started = time.perf_counter()
+    outcome = BatchOutcome(list(jobs))
+    with ResultsWriter(results_path) as writer:
+        outcome.truncated_bytes = writer.truncated_bytes
+        known = writer.contents.latest()
+        wanted = {j.key for j in jobs}
+        outcome.records = {k: r for k, r in known.items() if k in wanted}
+        todo = []
+        for job in jobs:
+            previous = known.get(job.key)
+            if previous is None:
+                todo.append(job)
+            elif previous["status"] == "ok":
+                outcome.skipped_ok += 1
+            elif retry_failed:
+                todo.append(job)
+            else:
+                outcome.skipped_failed += 1
+        client = connect_dask(scheduler, scheduler_timeout) if scheduler and todo else None
+        pool = LocalPool(min(workers or usable_cores(), len(todo)), threads) if todo and not scheduler else None
+        completed = False
+        try:
+            # The pool warms up while the sizes are estimated (only for the jobs to run).
+            if size_of is not None:
+                todo = [dataclasses.replace(j, size=size_of(j)) for j in todo]
+            if on_start is not None:
+                on_start(outcome, len(todo))
+            # Each job gets the batch's thread count for everything that takes
+            # one (BLAS and, where 'energy' has --threads, the integral passes),
+            # so N workers never oversubscribe the cores.
+            job_extra = {**({"threads": threads} if "threads" in energy_defaults() else {}), **(extra or {})}
+            payloads = [{"job": j.record(), "extra": job_extra, "blas_threads": threads if scheduler else None}
+                        for j in largest_first(todo)]
+            if client is not None:
+                stream: Iterator[dict[str, Any]] = dask_results(payloads, client, should_stop)
+            elif pool is not None:
+                stream = pool.results(payloads, should_stop)
+            else:
+                stream = iter(())
+            try:
+                for record in stream:
+                    if not writer.append(record):
+                        outcome.duplicates_written += 1
+                        continue
+                    outcome.records[record["job"]["key"]] = record
+                    outcome.ran.append(record)
+                    if on_record is not None:
+                        on_record(record)
+                    if should_stop():
+                        break
+                else:
+                    completed = not should_stop()
+            finally:
+                close = getattr(stream, "close", None)
+                if close is not None:
+                    close()
+        finally:
+            if pool is not None:
+                pool.close(abandon=not completed)
+            elif client is not None and not completed:
+                with contextlib.suppress(Exception):
+                    client.close()
+    outcome.stopped = bool(should_stop())
+    outcome.wall_seconds = time.perf_counter() - started
+    return outcome
+
+
+__all__ = ["BatchOutcome", "run_batch"]

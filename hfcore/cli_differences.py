@@ -1,0 +1,150 @@
+"""The ``interaction`` and ``reaction`` subcommands: energy differences across basis sets.
+
+Registered by :func:`hfcore.cli.build_parser`; they share its helpers
+(geometry, SCF and JSON options, output paths, progress on stderr) and its
+error handling, and live here so that :mod:`hfcore.cli` stays one room.
+"""
+
+from __future__ import annotations
+
+import argparse
+from typing import Any
+
+from . import cli, export, report
+from .errors import InputError
+
+
+def add_difference_commands(sub: Any) -> None:
+    """Add the ``interaction`` and ``reaction`` parsers to the subcommand set ``sub``."""
+    interaction = sub.add_parser(
+        "interaction", help="interaction energy of a complex, raw and counterpoise-corrected, in several basis sets"
+    )
+    cli._add_geometry_arguments(interaction, charge=False)
+    interaction.add_argument(
+        "--fragments", required=True, metavar="RANGES",
+        help="the fragments as 1-based atom ranges in file order, one per comma, e.g. 1-3,4-6 "
+        "(join the parts of a fragment with '+', e.g. 1-2+7,3-6)",
+    )
+    interaction.add_argument(
+        "--fragment-charges", metavar="Q,Q", help="charge of each fragment, e.g. --fragment-charges=1,-1 (default all 0)"
+    )
+    interaction.add_argument(
+        "--basis", required=True, metavar="NAMES", help="comma-separated basis names, e.g. sto-3g,6-31g,cc-pvdz"
+    )
+    cli._add_scf_arguments(interaction)
+    cli._add_json_argument(interaction)
+    interaction.add_argument("--plot", metavar="PNG", help="plot the interaction energies against basis size")
+    interaction.set_defaults(handler=_run_interaction)
+
+    reaction = sub.add_parser("reaction", help="reaction energies from RHF totals in several basis sets")
+    reaction.add_argument(
+        "reactions", nargs="+", metavar="SPEC",
+        help="an equation over geometry files, e.g. 'formaldehyde.xyz + hydrogen.xyz -> methanol.xyz', "
+        "'2 water.xyz -> water_dimer.xyz' or 'ammonia.xyz + water.xyz -> ammonium.xyz[+1] + hydroxide.xyz[-1]'; "
+        "several equations share their species",
+    )
+    reaction.add_argument(
+        "--basis", required=True, metavar="NAMES", help="comma-separated basis names, e.g. cc-pvdz,cc-pvtz,cc-pvqz"
+    )
+    cli._add_geometry_arguments(reaction, geometry=False, charge=False)
+    cli._add_scf_arguments(reaction)
+    cli._add_json_argument(reaction)
+    reaction.add_argument("--plot", metavar="PNG", help="plot the reaction energies against basis size")
+    reaction.set_defaults(handler=_run_reaction)
+
+
+def parse_fragments(text: str, natom: int) -> list[list[int]]:
+    """0-based atoms of each fragment from ``--fragments`` text such as ``"1-3,4-6"`` or ``"1-2+7,3-6"``.
+
+    Parameters
+    ----------
+    text : str
+        One item per fragment, separated by commas; an item is 1-based
+        atom numbers or ranges joined by ``+``.
+    natom : int
+        Atoms of the complex.
+
+    Returns
+    -------
+    list of list of int
+
+    Raises
+    ------
+    InputError
+        For a malformed item or an atom beyond ``natom``.
+    """
+    from .geometry import parse_atom_ranges
+
+    return [parse_atom_ranges(item.replace("+", ","), natom, "--fragments") for item in text.split(",")]
+
+
+def _parse_charges(text: str | None, count: int) -> list[int] | None:
+    if text is None:
+        return None
+    try:
+        charges = [int(item) for item in text.split(",")]
+    except ValueError:
+        raise InputError(f"--fragment-charges {text!r}: expected whole numbers separated by commas, e.g. 1,-1") from None
+    if len(charges) != count:
+        raise InputError(f"--fragment-charges {text!r}: {len(charges)} charges for {count} fragments")
+    return charges
+
+
+def _run_interaction(args: argparse.Namespace, console: Any) -> int:
+    from .analysis.interaction import interaction_energies
+    from .geometry import read_xyz
+
+    paths = cli._output_paths(args, "json", "plot")
+    names = cli._basis_names(args)
+    molecule = read_xyz(args.geometry, units=args.units)
+    fragments = parse_fragments(args.fragments, molecule.natom)
+    charges = _parse_charges(args.fragment_charges, len(fragments))
+    study = interaction_energies(
+        molecule, fragments, names, fragment_charges=charges, spherical=args.spherical, options=cli._scf_options(args),
+        progress=cli._stderr_progress(console),
+    )
+    record = export.interaction_record(study)
+    if "plot" in paths:
+        from .plots import plot_interaction
+
+        plot_interaction(study, paths["plot"])
+    if "json" in paths:
+        export.write_file_atomically(paths["json"], export.to_json(record))
+    if args.json == "-":
+        console.data(export.to_json(record))
+        return 0
+    from .report_differences import format_interaction
+
+    console.report(report.format_molecule(molecule.with_charge(sum(study.fragment_charges))))
+    console.report(format_interaction(study))
+    cli._report_written(console, paths.values())
+    return 0
+
+
+def _run_reaction(args: argparse.Namespace, console: Any) -> int:
+    from .analysis.reactions import reaction_energies
+
+    paths = cli._output_paths(args, "json", "plot")
+    names = cli._basis_names(args)
+    study = reaction_energies(
+        args.reactions, names, units=args.units, spherical=args.spherical, options=cli._scf_options(args),
+        progress=cli._stderr_progress(console),
+    )
+    record = export.reaction_record(study)
+    if "plot" in paths:
+        from .plots import plot_reactions
+
+        plot_reactions(study, paths["plot"])
+    if "json" in paths:
+        export.write_file_atomically(paths["json"], export.to_json(record))
+    if args.json == "-":
+        console.data(export.to_json(record))
+        return 0
+    from .report_differences import format_reactions
+
+    console.report(format_reactions(study))
+    cli._report_written(console, paths.values())
+    return 0
+
+
+__all__ = ["add_difference_commands", "parse_fragments"]

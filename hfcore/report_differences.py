@@ -1,0 +1,117 @@
+"""Human-readable tables of energy differences: interaction and reaction energies.
+
+A room of its own beside :mod:`hfcore.report` so that the single-molecule
+report stays short. As there, every function returns text and computes no
+physics; unit factors come from :mod:`hfcore.analysis.compare`.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from .analysis.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from .report import atom_ranges, heading
+
+
+def _units(value: float) -> str:
+    """One energy difference in hartree, kJ/mol and kcal/mol, fixed widths."""
+    return f"{value:14.8f} {value * KJ_MOL_PER_HARTREE:11.3f} {value * KCAL_MOL_PER_HARTREE:11.3f}"
+
+
+_UNIT_HEAD = f"{'Eh':>14} {'kJ/mol':>11} {'kcal/mol':>11}"
+
+
+def format_interaction(study: Any) -> str:
+    """Fragments, fragment energies and the raw and corrected interaction energies per basis.
+
+    Parameters
+    ----------
+    study : InteractionStudy
+        From :func:`hfcore.analysis.interaction.interaction_energies`.
+    """
+    n = len(study.fragments)
+    lines = [heading("Fragments")]
+    for k, (atoms, charge) in enumerate(zip(study.fragments, study.fragment_charges), start=1):
+        lines.append(f"  fragment {k}   atoms {atom_ranges(atoms):<12} charge {charge:+d}" if charge else
+                     f"  fragment {k}   atoms {atom_ranges(atoms):<12} charge 0")
+    lines.append(heading("Total energies / Eh"))
+    head = f"  {'basis':<14} {'functions':>9} {'complex':>17}"
+    for k in range(1, n + 1):
+        head += f" {f'frag {k} own':>17} {f'frag {k} full':>17}"
+    lines.append(head)
+    for row in study.rows:
+        text = f"  {row.basis:<14} {row.n_functions:>9} {row.energy_complex:17.10f}"
+        for own, full in zip(row.fragments_own_basis, row.fragments_full_basis):
+            text += f" {own:17.10f} {full:17.10f}"
+        lines.append(text)
+    lines.append("  own: the fragment alone in its own basis; full: in the complex's basis, partners as ghost atoms")
+    for title, attr in (
+        ("Raw interaction energy  E(complex) − Σ E(fragment, own basis)", "raw"),
+        ("Counterpoise-corrected interaction energy  E(complex) − Σ E(fragment, full basis)", "counterpoise"),
+        ("Basis-set superposition error  corrected − raw", "superposition_error"),
+    ):
+        lines.append(heading(title))
+        lines.append(f"  {'basis':<14} {_UNIT_HEAD}")
+        for row in study.rows:
+            lines.append(f"  {row.basis:<14} {_units(getattr(row, attr))}")
+    lines.append(f"\n  counterpoise correction: {study.citation}")
+    runs = len(study.pieces)
+    reused = sum(p.reused_integrals for p in study.pieces)
+    cost = f"  {runs} SCF runs in {study.seconds:.2f} s"
+    if reused:
+        cost += (
+            f"; {reused} full-basis fragment runs reused the complex's integrals "
+            f"(about {study.integral_seconds_saved:.2f} s of integral work not repeated)"
+        )
+    lines.append(cost)
+    return "\n".join(lines)
+
+
+def format_reactions(study: Any) -> str:
+    """Species, their energies per basis, and each reaction energy with its basis-limit estimates.
+
+    Parameters
+    ----------
+    study : ReactionStudy
+        From :func:`hfcore.analysis.reactions.reaction_energies`.
+    """
+    lines = [heading("Species")]
+    width = max(len(s.label) for s in study.species)
+    lines.append(f"  {'#':>3}  {'species':<{width}}  {'formula':<10} {'charge':>6}")
+    for k, s in enumerate(study.species, start=1):
+        lines.append(f"  {k:>3}  {s.label:<{width}}  {s.formula:<10} {s.charge:>+6d}" if s.charge else
+                     f"  {k:>3}  {s.label:<{width}}  {s.formula:<10} {0:>6d}")
+    lines.append(heading("Total energies / Eh"))
+    lines.append(f"  {'#':>8} " + " ".join(f"{row.basis:>17}" for row in study.rows))
+    for k in range(len(study.species)):
+        lines.append(f"  {k + 1:>8} " + " ".join(f"{row.species_energies[k]:17.10f}" for row in study.rows))
+    lines.append(f"  {'time / s':>8} " + " ".join(f"{row.seconds:17.2f}" for row in study.rows))
+    spread = study.uncertainty()
+    for r, reaction in enumerate(study.reactions):
+        title = "Reaction energy" if len(study.reactions) == 1 else f"Reaction {r + 1}"
+        lines.append(heading(f"{title}  {reaction.text}"))
+        lines.append(f"  {'basis':<14} {'functions':>9} {_UNIT_HEAD}   {'Δ / kJ/mol':>11} {'Δ / kcal/mol':>12}")
+        for row in study.rows:
+            d = row.deltas[r]
+            lines.append(
+                f"  {row.basis:<14} {row.reaction_functions(reaction):>9} {_units(row.reaction_energies[r])}   "
+                f"{d * KJ_MOL_PER_HARTREE:11.3f} {d * KCAL_MOL_PER_HARTREE:12.3f}"
+            )
+        lines.append(f"  functions: summed over the species; Δ: change from {study.reference_basis}")
+        if study.estimates:
+            lines.append("  basis-limit estimates from the extrapolated totals:")
+            for est in study.estimates:
+                label = f"{est.method} ({', '.join(est.bases)})"
+                lines.append(f"  {label:<24} {_units(est.reaction_energies[r])}")
+            if spread is not None:
+                lines.append(f"  {'spread (uncertainty)':<24} {_units(spread[r])}")
+    if study.estimates:
+        lines.append("")
+        for citation in dict.fromkeys(e.citation for e in study.estimates):
+            lines.append(f"  {citation}")
+    lines += [f"  note: {note}" for note in study.notes]
+    lines.append("  ΔE = Σ ν E(products) − Σ ν E(reactants), RHF totals at the given geometries (no zero-point energy)")
+    return "\n".join(lines)
+
+
+__all__ = ["format_interaction", "format_reactions"]

@@ -1,0 +1,180 @@
+"""Leaving an unstable RHF solution: analyse, rotate along the lowest mode, converge again.
+
+:func:`stabilise` is what :func:`hfcore.scf.solve_rhf` (and so
+:func:`hfcore.scf.run_rhf`) runs after convergence unless
+``SCFOptions.stability`` is "off".
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from dataclasses import replace
+
+import numpy as np
+
+from ..errors import ConvergenceError
+from .jk import IncrementalJK, JKBuilder
+from .result import RHFResult, SCFIteration
+from .stability import (
+    FOLLOW_ANGLES,
+    StabilityAnalysis,
+    StabilityReport,
+    analyse_stability,
+    plain_builder,
+    rotate_orbitals,
+)
+
+Progress = Callable[[SCFIteration], None]
+
+#: The next solution must lie at least this much lower (hartree) to count as a new one.
+NEW_SOLUTION_MARGIN: float = 1e-8
+
+
+def stabilise(
+    result: RHFResult,
+    jk: JKBuilder,
+    n_electrons: int,
+    energy_nuclear: float,
+    *,
+    progress: Progress | None = None,
+) -> RHFResult:
+    """Analyse a converged solution and, in "follow" mode, move to a stable one.
+
+    Each round: find the lowest eigenpairs of the orbital Hessian
+    (:func:`hfcore.scf.stability.analyse_stability`); if the lowest is below
+    ``-stability_threshold`` and the mode is "follow", turn the orbitals
+    along its eigenvector by the angle of :data:`FOLLOW_ANGLES` with the
+    lowest energy (a scan, one J/K build per angle) and converge again from
+    there, at most ``stability_rounds`` times. A round that does not
+    converge, or converges to no lower energy, ends the search; the last
+    good solution is kept and the report says so.
+
+    Parameters
+    ----------
+    result : RHFResult
+        A converged result; its ``options`` decide the mode.
+    jk : JKBuilder
+        The builder the SCF used.
+    n_electrons : int
+    energy_nuclear : float
+        Nuclear repulsion (hartree).
+    progress : callable, optional
+        Passed on to the SCF runs of later solutions.
+
+    Returns
+    -------
+    RHFResult
+        The final solution, with ``stability`` filled in, the histories of
+        all solutions concatenated (``SCFIteration.solution`` tells them
+        apart), ``iterations`` their total and the aids of all runs.
+    """
+    from .solver import solve_rhf
+
+    t0 = time.perf_counter()
+    options = result.options
+    inner = replace(options, stability="off")
+    energies = [result.energy_total]
+    lowest: list[float] = []
+    history = list(result.history)
+    aids = list(result.aids)
+    scf_time = result.timings.get("scf", 0.0)
+    later_scf = 0.0  # seconds in the SCF runs after rotations, kept apart from the analysis time
+    products = 0
+    message = ""
+    rounds = 0
+    while True:
+        analysis = _analyse(result, jk)
+        products += analysis.products
+        lowest.append(analysis.lowest_eigenvalue)
+        if analysis.stable:
+            plural = "instability" if rounds == 1 else "instabilities"
+            message = "stable" if rounds == 0 else f"stable after following {rounds} {plural}"
+            break
+        if options.stability == "check":
+            message = "unstable: a lower RHF solution exists (not followed in check mode)"
+            break
+        if rounds >= options.stability_rounds:
+            message = f"still unstable after {rounds} rotations (the limit, stability_rounds)"
+            break
+        density = _rotated_density(result, analysis, jk, energy_nuclear)
+        if isinstance(jk, IncrementalJK):
+            jk.reset()
+        try:
+            new = solve_rhf(
+                result.overlap, result.core_hamiltonian, jk, n_electrons, energy_nuclear, inner, density,
+                progress=progress, _solution=rounds + 1,
+            )
+        except ConvergenceError as exc:
+            message = (
+                f"unstable; the SCF after rotation {rounds + 1} did not converge ({exc}), "
+                "so the previous solution is kept"
+            )
+            break
+        rounds += 1
+        history.extend(new.history)
+        aids.extend(a for a in new.aids if a not in aids)
+        later_scf += new.timings.get("scf", 0.0)
+        if new.energy_total > result.energy_total - NEW_SOLUTION_MARGIN:
+            energies.append(new.energy_total)
+            message = "unstable; following the lowest mode led back to no lower solution, so that one is kept"
+            break
+        result = new
+        energies.append(result.energy_total)
+    report = StabilityReport(
+        mode=options.stability,
+        stable=analysis.stable,
+        lowest_eigenvalue=analysis.lowest_eigenvalue,
+        eigenvalues=analysis.eigenvalues,
+        vector=analysis.mode,
+        threshold=options.stability_threshold,
+        solutions=energies,
+        lowest_eigenvalues=lowest,
+        rounds=rounds,
+        products=products,
+        message=message,
+    )
+    timings = {**result.timings, "scf": scf_time + later_scf, "stability": time.perf_counter() - t0 - later_scf}
+    run_message = result.message
+    if len(energies) > 1:
+        run_message = f"converged in {len(history)} iterations over {len(energies)} solutions"
+    return replace(
+        result, options=options, stability=report, history=history, iterations=len(history), aids=tuple(aids),
+        timings=timings, message=run_message,
+    )
+
+
+#: Roots and residual tolerance of the analysis when J/K builds are cheap (stored
+#: integrals, a given builder) and when each is a full integral pass (direct mode).
+CHEAP_ANALYSIS: tuple[int, float] = (3, 1e-6)
+DIRECT_ANALYSIS: tuple[int, float] = (1, 1e-4)
+
+
+def _analyse(result: RHFResult, jk: JKBuilder) -> StabilityAnalysis:
+    # In direct mode only the verdict's root is sought, to a residual whose
+    # eigenvalue error (about residual² / gap) is still far below the threshold.
+    n_roots, tol = DIRECT_ANALYSIS if isinstance(jk, IncrementalJK) else CHEAP_ANALYSIS
+    return analyse_stability(
+        result.coefficients, result.fock, result.n_occupied, jk,
+        threshold=result.options.stability_threshold, n_roots=n_roots, tol=tol,
+    )
+
+
+def _rotated_density(
+    result: RHFResult, analysis: StabilityAnalysis, jk: JKBuilder, energy_nuclear: float
+) -> np.ndarray:
+    """Total density after the rotation along the unstable mode with the lowest energy on the scan."""
+    builder = plain_builder(jk)
+    n_occ = result.n_occupied
+    best_energy, best_density = np.inf, result.density
+    for angle in FOLLOW_ANGLES:
+        occ = rotate_orbitals(result.coefficients, n_occ, analysis.mode, angle)[:, :n_occ]
+        density = 2.0 * occ @ occ.T
+        j, k = builder.jk(density)
+        energy = float(np.vdot(density, result.core_hamiltonian + 0.5 * (j - 0.5 * k))) + energy_nuclear
+        if energy < best_energy:
+            best_energy, best_density = energy, density
+    return best_density
+
+
+__all__ = ["stabilise", "NEW_SOLUTION_MARGIN", "CHEAP_ANALYSIS", "DIRECT_ANALYSIS"]

@@ -1,0 +1,376 @@
+"""Internal stability of an RHF solution: the lowest eigenvalues of the orbital Hessian.
+
+A converged RHF solution is a stationary point of the energy with respect to
+real rotations between occupied orbitals i and virtual orbitals a,
+``C(κ) = C exp(K)`` with ``K[a, i] = κ_ai = -K[i, a]``. It is a minimum
+(stable) only if the Hessian of the energy in those rotations has no
+negative eigenvalue (R. Seeger and J. A. Pople, J. Chem. Phys. 66, 3045
+(1977), the RHF→RHF "internal" case; from memory). In the language of
+linear response that Hessian is ``4 (A + B)``, the singlet
+``A + B`` matrix of R. Bauernschmitt and R. Ahlrichs, J. Chem. Phys. 104,
+9047 (1996) (from memory)::
+
+    (A + B)_{ia,jb} = δ_ij F_ab - δ_ab F_ij + 4 (ia|jb) - (ib|ja) - (ij|ab)
+
+It is never formed: its product with a trial rotation ``x`` (shape
+(nvir, nocc)) needs one J/K build on the symmetric transition density
+``D_x = C_v x C_oᵀ + (C_v x C_oᵀ)ᵀ``::
+
+    (A + B) x = F_vv x - x F_oo + C_vᵀ (2 J(D_x) - K(D_x)) C_o
+
+and a Davidson eigensolver finds the lowest few eigenvalues from a handful
+of such products. The eigenvalues reported are those of the energy Hessian
+``d²E/dκ²`` itself, ``4 (A + B)``, in hartree per radian².
+
+Nothing here prints; the records say what was found.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.linalg import expm
+
+from ..errors import InputError
+from .jk import IncrementalJK, JKBuilder
+
+#: Names accepted for :attr:`hfcore.scf.SCFOptions.stability`.
+STABILITY_MODES: tuple[str, ...] = ("off", "check", "follow")
+
+#: Rotation angles (radians along the unit-norm mode) tried when leaving an unstable solution.
+FOLLOW_ANGLES: tuple[float, ...] = tuple(0.15 * k for k in range(1, 11))
+
+
+@dataclass(frozen=True)
+class StabilityAnalysis:
+    """The lowest eigenpairs of the real RHF orbital Hessian of one solution.
+
+    Attributes
+    ----------
+    eigenvalues : ndarray, shape (n_roots,)
+        Lowest eigenvalues of the energy Hessian d²E/dκ² = 4 (A + B),
+        ascending, in hartree (per radian² of rotation).
+    vectors : ndarray, shape (n_roots, nvir, nocc)
+        The matching unit-norm rotations κ_ai.
+    threshold : float
+        The solution counts as stable when the lowest eigenvalue is above
+        ``-threshold``.
+    converged : bool
+        Whether every root's residual fell below the solver tolerance.
+    products : int
+        Hessian-vector products used, each one J/K build.
+    """
+
+    eigenvalues: np.ndarray
+    vectors: np.ndarray
+    threshold: float
+    converged: bool
+    products: int
+
+    @property
+    def lowest_eigenvalue(self) -> float:
+        """The lowest eigenvalue (hartree)."""
+        return float(self.eigenvalues[0])
+
+    @property
+    def mode(self) -> np.ndarray:
+        """The rotation of the lowest eigenvalue, shape (nvir, nocc)."""
+        return self.vectors[0]
+
+    @property
+    def stable(self) -> bool:
+        """True when no eigenvalue lies below ``-threshold``."""
+        return self.lowest_eigenvalue >= -self.threshold
+
+
+@dataclass(frozen=True)
+class StabilityReport:
+    """What the stability stage of an RHF run checked and did.
+
+    Attributes
+    ----------
+    mode : {"check", "follow"}
+        The setting used (``"off"`` runs leave ``RHFResult.stability`` None).
+    stable : bool
+        Verdict on the final solution: no Hessian eigenvalue below
+        ``-threshold``.
+    lowest_eigenvalue : float
+        Lowest energy-Hessian eigenvalue of the final solution (hartree).
+    eigenvalues : ndarray, shape (n_roots,)
+        The lowest few eigenvalues of the final solution (hartree).
+    vector : ndarray, shape (nvir, nocc)
+        The rotation of the lowest eigenvalue of the final solution.
+    threshold : float
+        Stability threshold (hartree).
+    solutions : list of float
+        Total energy of each converged solution in the order found; the
+        first is the one the SCF reached from its guess, the last is the
+        reported one.
+    lowest_eigenvalues : list of float
+        The lowest eigenvalue of each analysed solution, same order.
+    rounds : int
+        Rotations along an unstable mode that were followed.
+    products : int
+        Hessian-vector products (J/K builds) spent in all analyses.
+    message : str
+        The outcome in words.
+    """
+
+    mode: str
+    stable: bool
+    lowest_eigenvalue: float
+    eigenvalues: np.ndarray
+    vector: np.ndarray
+    threshold: float
+    solutions: list[float] = field(default_factory=list)
+    lowest_eigenvalues: list[float] = field(default_factory=list)
+    rounds: int = 0
+    products: int = 0
+    message: str = ""
+
+
+def check_stability_mode(mode: object) -> str:
+    """The lower-case stability setting, or InputError naming the choices."""
+    name = mode.lower() if isinstance(mode, str) else mode
+    if name not in STABILITY_MODES:
+        raise InputError(f"unknown stability setting {mode!r}: choose one of {', '.join(STABILITY_MODES)}")
+    return str(name)
+
+
+def plain_builder(jk: JKBuilder) -> JKBuilder:
+    """A builder that treats every call independently (transition densities are not SCF steps)."""
+    return jk.engine if isinstance(jk, IncrementalJK) else jk
+
+
+class OrbitalHessian:
+    """Products of the real RHF→RHF energy Hessian with orbital rotations.
+
+    Parameters
+    ----------
+    coefficients : ndarray, shape (nbf, nmo)
+        S-orthonormal orbitals, the first ``n_occ`` occupied. Dropped
+        (linearly dependent) directions are simply absent: the rotations
+        live in the nmo-dimensional orbital space.
+    fock : ndarray, shape (nbf, nbf)
+        The Fock matrix of the solution (hartree).
+    n_occ : int
+        Number of doubly occupied orbitals.
+    jk : JKBuilder
+        J/K builder; each product makes one call.
+
+    Attributes
+    ----------
+    diagonal : ndarray, shape (nvir, nocc)
+        4 (F_aa - F_ii), the diagonal without the two-electron part, used
+        as the Davidson preconditioner.
+    products : int
+        Products made so far.
+    """
+
+    def __init__(self, coefficients: np.ndarray, fock: np.ndarray, n_occ: int, jk: JKBuilder) -> None:
+        self.occ = np.ascontiguousarray(coefficients[:, :n_occ])
+        self.vir = np.ascontiguousarray(coefficients[:, n_occ:])
+        fmo = coefficients.T @ fock @ coefficients
+        self.f_oo = fmo[:n_occ, :n_occ]
+        self.f_vv = fmo[n_occ:, n_occ:]
+        self.jk = plain_builder(jk)
+        self.diagonal = 4.0 * (np.diag(self.f_vv)[:, None] - np.diag(self.f_oo)[None, :])
+        self.products = 0
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        """(nvir, nocc), the shape of a rotation."""
+        return (self.vir.shape[1], self.occ.shape[1])
+
+    def __call__(self, x: np.ndarray) -> np.ndarray:
+        """d²E/dκ² · x for a rotation x of shape (nvir, nocc); result of the same shape, hartree."""
+        half = self.vir @ x @ self.occ.T
+        j, k = self.jk.jk(half + half.T)
+        self.products += 1
+        two_electron = self.vir.T @ (2.0 * j - k) @ self.occ
+        return 4.0 * (self.f_vv @ x - x @ self.f_oo + two_electron)
+
+
+def lowest_eigenpairs(
+    hessian: Callable[[np.ndarray], np.ndarray],
+    diagonal: np.ndarray,
+    n_roots: int = 3,
+    tol: float = 1e-6,
+    max_iterations: int = 60,
+    max_space: int = 40,
+) -> tuple[np.ndarray, np.ndarray, bool]:
+    """Davidson's method for the lowest eigenpairs of a symmetric operator.
+
+    Parameters
+    ----------
+    hessian : callable
+        Maps an array of the shape of ``diagonal`` to the product with the
+        operator.
+    diagonal : ndarray
+        An approximation of the operator's diagonal (preconditioner and
+        source of the start vectors).
+    n_roots : int
+        Number of eigenpairs wanted (capped at the dimension).
+    tol : float
+        Converged when every residual norm ``|H v - λ v|`` is below this.
+    max_iterations : int
+        Subspace expansions before giving up.
+    max_space : int
+        Subspace size at which the search restarts from the current
+        best vectors.
+
+    Returns
+    -------
+    eigenvalues : ndarray, shape (n_roots,)
+    vectors : ndarray, shape (n_roots, *diagonal.shape)
+        Unit-norm eigenvectors.
+    converged : bool
+    """
+    shape = diagonal.shape
+    d = diagonal.ravel()
+    dim = d.size
+    n_roots = max(1, min(n_roots, dim))
+    # Unit vectors on the smallest diagonal elements reach modes of several
+    # symmetries; one vector with every component nonzero (from a fixed seed,
+    # so runs repeat digit for digit) reaches any symmetry they miss.
+    order = np.argsort(d, kind="stable")
+    n_start = min(dim, max(2 * n_roots, 8))
+    basis = np.zeros((dim, n_start))
+    basis[order[:n_start], np.arange(n_start)] = 1.0
+    if n_start < dim:
+        basis = np.column_stack([basis, np.random.default_rng(20260).standard_normal(dim)])
+    basis = _orthonormal_columns(basis)
+    products = np.column_stack([hessian(v.reshape(shape)).ravel() for v in basis.T])
+    converged = False
+    for _ in range(max_iterations):
+        small = basis.T @ products
+        values, vecs = np.linalg.eigh(0.5 * (small + small.T))
+        values, vecs = values[:n_roots], vecs[:, :n_roots]
+        ritz = basis @ vecs
+        residuals = products @ vecs - ritz * values
+        norms = np.linalg.norm(residuals, axis=0)
+        if np.all(norms < tol) or basis.shape[1] >= dim:
+            converged = bool(np.all(norms < tol)) or basis.shape[1] >= dim
+            break
+        if basis.shape[1] + n_roots > max_space:
+            basis, products = ritz, products @ vecs
+        new = []
+        for k in np.flatnonzero(norms >= tol):
+            denom = d - values[k]
+            denom[np.abs(denom) < 1e-4] = 1e-4
+            new.append(residuals[:, k] / denom)
+        added = _extend(basis, np.column_stack(new))
+        if added.shape[1] == 0:
+            break
+        basis = np.column_stack([basis, added])
+        products = np.column_stack([products] + [hessian(v.reshape(shape)).ravel() for v in added.T])
+    vectors = np.array([ritz[:, k].reshape(shape) / np.linalg.norm(ritz[:, k]) for k in range(n_roots)])
+    return values.copy(), vectors, converged
+
+
+def _orthonormal_columns(m: np.ndarray) -> np.ndarray:
+    q, r = np.linalg.qr(m)
+    keep = np.abs(np.diag(r)) > 1e-10
+    return q[:, keep]
+
+
+def _extend(basis: np.ndarray, candidates: np.ndarray) -> np.ndarray:
+    """Candidates made orthonormal to ``basis`` and to each other; near-dependent ones dropped."""
+    kept: list[np.ndarray] = []
+    for v in candidates.T:
+        v = v / (np.linalg.norm(v) or 1.0)
+        for _ in range(2):  # twice is enough (Kahan's rule)
+            v = v - basis @ (basis.T @ v)
+            for w in kept:
+                v = v - w * (w @ v)
+        norm = np.linalg.norm(v)
+        if norm > 1e-6:
+            kept.append(v / norm)
+    return np.column_stack(kept) if kept else np.zeros((basis.shape[0], 0))
+
+
+def analyse_stability(
+    coefficients: np.ndarray,
+    fock: np.ndarray,
+    n_occ: int,
+    jk: JKBuilder,
+    *,
+    threshold: float = 1e-5,
+    n_roots: int = 3,
+    tol: float = 1e-6,
+) -> StabilityAnalysis:
+    """Internal (real RHF→RHF) stability analysis of a converged solution.
+
+    Parameters
+    ----------
+    coefficients : ndarray, shape (nbf, nmo)
+        The solution's canonical orbitals, occupied first (as in
+        ``RHFResult.coefficients``).
+    fock : ndarray, shape (nbf, nbf)
+        Its Fock matrix (hartree).
+    n_occ : int
+        Doubly occupied orbitals.
+    jk : JKBuilder
+        The J/K builder the SCF used.
+    threshold : float
+        Stable when the lowest eigenvalue is at least ``-threshold``.
+    n_roots : int
+        Eigenvalues wanted.
+    tol : float
+        Residual norm at which the eigensolver stops (hartree).
+
+    Returns
+    -------
+    StabilityAnalysis
+
+    Notes
+    -----
+    With no virtual orbital there is no rotation: the analysis reports an
+    eigenvalue of +inf (stable) without any J/K build.
+    """
+    hessian = OrbitalHessian(coefficients, fock, n_occ, jk)
+    nvir, nocc = hessian.shape
+    if nvir == 0 or nocc == 0:
+        return StabilityAnalysis(np.array([np.inf]), np.zeros((1, nvir, nocc)), threshold, True, 0)
+    values, vectors, converged = lowest_eigenpairs(hessian, hessian.diagonal, n_roots, tol)
+    return StabilityAnalysis(values, vectors, threshold, converged, hessian.products)
+
+
+def rotate_orbitals(coefficients: np.ndarray, n_occ: int, rotation: np.ndarray, angle: float) -> np.ndarray:
+    """Orbitals ``C exp(K)`` turned by ``angle`` along an occupied-virtual rotation.
+
+    Parameters
+    ----------
+    coefficients : ndarray, shape (nbf, nmo)
+    n_occ : int
+    rotation : ndarray, shape (nmo - n_occ, n_occ)
+        κ_ai, usually a unit-norm Hessian eigenvector.
+    angle : float
+        Scale of the rotation (radians for a unit-norm ``rotation``).
+
+    Returns
+    -------
+    ndarray, shape (nbf, nmo)
+        Still S-orthonormal (exp(K) is orthogonal for antisymmetric K).
+    """
+    nmo = coefficients.shape[1]
+    kappa = np.zeros((nmo, nmo))
+    kappa[n_occ:, :n_occ] = angle * rotation
+    kappa[:n_occ, n_occ:] = -angle * rotation.T
+    return coefficients @ expm(kappa)
+
+
+__all__ = [
+    "STABILITY_MODES",
+    "FOLLOW_ANGLES",
+    "StabilityAnalysis",
+    "StabilityReport",
+    "OrbitalHessian",
+    "lowest_eigenpairs",
+    "analyse_stability",
+    "rotate_orbitals",
+    "check_stability_mode",
+    "plain_builder",
+]

@@ -1,0 +1,157 @@
+"""Interaction energies: raw, counterpoise-corrected, superposition error; `hfcore interaction`."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from conftest import INPUTS, assert_valid_png, run_main
+from reference import family_shells, reference_energy, reference_mole
+
+import hfcore
+from hfcore.analysis.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from hfcore.analysis.interaction import check_fragments, interaction_energies, interaction_pieces
+from hfcore.cli_differences import parse_fragments
+from hfcore.errors import InputError
+
+DIMER = INPUTS / "water_dimer.xyz"  # a geometry of our own (see its comment line)
+BASES = ["sto-3g", "6-31g", "cc-pvdz"]
+FRAGMENTS = [[0, 1, 2], [3, 4, 5]]
+
+
+@pytest.fixture(scope="module")
+def dimer():
+    return hfcore.read_xyz(DIMER)
+
+
+@pytest.fixture(scope="module")
+def study(dimer):
+    return interaction_energies(dimer, FRAGMENTS, BASES)
+
+
+def _reference_interaction(dimer, basis: str) -> tuple[float, float]:
+    """Raw and corrected interaction energies assembled from reference library runs."""
+    shells = family_shells(dimer, basis)
+    spherical = hfcore.build_basis(dimer, basis).spherical
+
+    def energy(molecule):
+        return reference_energy(reference_mole(molecule, shells, spherical=spherical))
+
+    e_ab = energy(dimer)
+    own = [energy(dimer.subset(f)) for f in FRAGMENTS]
+    full = [energy(dimer.with_ghosts(FRAGMENTS[1 - k])) for k in range(2)]
+    return e_ab - sum(own), e_ab - sum(full)
+
+
+@pytest.mark.parametrize("basis", BASES)
+def test_interaction_energies_equal_the_reference_library(study, dimer, basis):
+    row = next(r for r in study.rows if r.basis == basis)
+    raw, corrected = _reference_interaction(dimer, basis)
+    # source: reference library run — complex, fragments alone and fragments with "ghost-" partner atoms,
+    # same shells, conv_tol 1e-11, assembled as Boys & Bernardi (1970)
+    assert row.raw == pytest.approx(raw, abs=1e-8)
+    assert row.counterpoise == pytest.approx(corrected, abs=1e-8)
+
+
+def test_counterpoise_correction_is_never_negative(study):
+    for row in study.rows:
+        # source: exact property within RHF — the complex's basis contains each fragment's own (variational principle)
+        for own, full in zip(row.fragments_own_basis, row.fragments_full_basis):
+            assert full <= own + 1e-10
+        assert row.superposition_error >= 0.0
+        assert row.superposition_error == pytest.approx(row.counterpoise - row.raw, abs=1e-14)
+
+
+def test_reusing_the_complex_integrals_changes_no_energy(dimer, study):
+    separate = interaction_energies(dimer, FRAGMENTS, BASES[:2], reuse_integrals=False)
+    for a, b in zip(separate.rows, study.rows):
+        # source: exact property — a fragment in the full basis has the complex's S, T and (μν|λσ)
+        assert a.counterpoise == pytest.approx(b.counterpoise, abs=1e-10)
+        assert a.raw == pytest.approx(b.raw, abs=1e-10)
+    assert not any(p.reused_integrals for p in separate.pieces)
+    assert sum(p.reused_integrals for p in study.pieces) == 2 * len(BASES)
+
+
+def test_pieces_are_explicit_data(dimer):
+    pieces = interaction_pieces(dimer.natom, FRAGMENTS, ["sto-3g"], [0, 0])
+    assert [(p.kind, p.fragment) for p in pieces] == [
+        ("complex", None), ("own basis", 0), ("own basis", 1), ("full basis", 0), ("full basis", 1)
+    ]
+    assert pieces[3].ghosts == (3, 4, 5) and pieces[3].atoms == (0, 1, 2)
+    assert pieces[2].molecule(dimer).natom == 3 and pieces[2].molecule(dimer).source == dimer.source
+
+
+@pytest.mark.parametrize(
+    "fragments, charges, fragment",
+    [
+        ([[0, 1, 2]], None, "at least two fragments"),
+        ([[0, 1, 2], [2, 3, 4, 5]], None, "atom 3 is in fragment 1 and in fragment 2"),
+        ([[0, 1, 2], [3, 4]], None, "atom 6 is in no fragment"),
+        ([[0, 1, 2], [3, 4, 5]], [0], "1 fragment charges for 2 fragments"),
+    ],
+)
+def test_bad_fragments_are_refused(fragments, charges, fragment):
+    with pytest.raises(InputError, match=fragment):
+        check_fragments(6, fragments, charges)
+
+
+def test_parse_fragments_joins_parts_with_plus():
+    assert parse_fragments("1-2+6,3-5", 6) == [[0, 1, 5], [2, 3, 4]]
+
+
+def test_interaction_command_json_and_plot(tmp_path):
+    png, path = tmp_path / "cp.png", tmp_path / "cp.json"
+    code, out, err = run_main(
+        "interaction", str(DIMER), "--fragments", "1-3,4-6", "--basis", "sto-3g", "--json", str(path), "--plot", str(png)
+    )
+    assert code == 0, err
+    assert "Counterpoise-corrected interaction energy" in out and "Basis-set superposition error" in out
+    record = json.loads(path.read_text())["interaction"]
+    row = record["rows"][0]
+    # source: exact property — unit conversions with the CODATA factors of scipy.constants
+    assert row["counterpoise_kJ_mol"] == pytest.approx(row["counterpoise"] * KJ_MOL_PER_HARTREE, rel=1e-12)
+    assert row["superposition_error_kcal_mol"] == pytest.approx(row["superposition_error"] * KCAL_MOL_PER_HARTREE, rel=1e-12)
+    assert record["fragments"] == FRAGMENTS and len(record["runs"]) == 5
+    assert_valid_png(png)
+    code, out, err = run_main("interaction", str(DIMER), "--fragments", "1-3,4-6", "--basis", "sto-3g", "--json", "-")
+    assert code == 0 and json.loads(out)["interaction"]["rows"][0]["raw"] == pytest.approx(row["raw"], abs=1e-12)
+    assert err == ""
+
+
+@pytest.mark.parametrize(
+    "extra, fragment",
+    [
+        (["--fragments", "1-3,3-6"], "atom 3 is in fragment 1 and in fragment 2"),
+        (["--fragments", "1-3,4-9"], "atom 9 does not exist"),
+        (["--fragments", "1-3,4-6", "--fragment-charges=1,-1"], "electrons"),
+        (["--fragments", "1-3,4-6", "--fragment-charges", "0"], "1 charges for 2 fragments"),
+    ],
+)
+def test_interaction_command_errors_are_one_line_before_any_run(extra, fragment):
+    code, out, err = run_main("interaction", str(DIMER), "--basis", "sto-3g", *extra)
+    assert code == 2 and out == ""
+    assert err.count("\n") == 1 and err.startswith("hfcore: error: ") and fragment in err
+
+
+def test_raw_interaction_energy_equals_the_dimerisation_energy(study, monkeypatch):
+    from hfcore.analysis.reactions import reaction_energies
+
+    monkeypatch.chdir(INPUTS)
+    dimerisation = reaction_energies("2 water.xyz -> water_dimer.xyz", BASES[:2])
+    for row, reaction in zip(study.rows, dimerisation.rows):
+        # source: exact property — both monomers of water_dimer.xyz are water.xyz moved rigidly, and the energy is
+        # invariant under rigid motion; the tolerance covers the 6-decimal rounding of the coordinates (1e-6 Å)
+        assert row.raw == pytest.approx(reaction.reaction_energies[0], abs=2e-7)
+
+
+def test_shared_integrals_must_belong_to_the_basis(dimer):
+    from hfcore.scf import prepare_integrals, run_rhf
+
+    shared = prepare_integrals(hfcore.build_basis(dimer, "sto-3g"))
+    other = hfcore.build_basis(dimer, "sto-3g")
+    with pytest.raises(InputError, match="another basis"):
+        run_rhf(dimer, other, shared=shared)
+    ghost = dimer.with_ghosts([0, 1, 2])
+    alone = run_rhf(ghost, shared.basis)
+    # source: exact property — the same integrals, whether computed for this run or shared
+    assert run_rhf(ghost, shared.basis, shared=shared).energy_total == pytest.approx(alone.energy_total, abs=1e-11)
