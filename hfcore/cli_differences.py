@@ -50,7 +50,59 @@ def add_difference_commands(sub: Any) -> None:
     cli._add_scf_arguments(reaction)
     cli._add_json_argument(reaction)
     reaction.add_argument("--plot", metavar="PNG", help="plot the reaction energies against basis size")
+    pieces = reaction.add_argument_group("running the pieces as a batch (resumable; see 'hfcore batch')")
+    pieces.add_argument("--results", metavar="FILE.jsonl",
+                        help="run each species in each basis as a batch job, recorded in FILE.jsonl; "
+                        "running again reuses the jobs already there")
+    pieces.add_argument("--workers", type=cli._positive_int, metavar="N",
+                        help="local worker processes for --results (default: the usable cores)")
     reaction.set_defaults(handler=_run_reaction)
+
+
+#: SCF and form options of ``reaction`` that its batch jobs carry, as ``energy`` option names.
+_JOB_OPTIONS = ("units", "spherical", "energy_tol", "gradient_tol", "max_iterations", "diis_space",
+                "lindep_threshold", "direct", "memory")
+
+
+def _batch_runner(args: argparse.Namespace, console: Any) -> Any:
+    """A runner for :func:`reaction_energies` that sends each species × basis to the batch machinery.
+
+    Each piece is an ``hfcore energy`` job keyed by the geometry file's
+    content, charge, basis and options, so a second run with the same
+    results file finds the finished pieces there and runs only the rest.
+    """
+    from .batch import GeometryEntry, make_jobs, run_batch, usable_cores
+    from .errors import HfcoreError
+
+    path = cli._output_paths(args, "results")["results"]
+    options = {name: getattr(args, name) for name in _JOB_OPTIONS if getattr(args, name, None) is not None}
+    say = cli._stderr_progress(console)
+
+    def run(pieces: Any, species: Any) -> dict[tuple[int, str], tuple[float, float]]:
+        bases = list(dict.fromkeys(p.basis for p in pieces))
+        entries = [GeometryEntry(s.path, s.charge, "reaction") for s in species]
+        jobs, _ = make_jobs(entries, bases, 0, options)
+        workers = min(args.workers or usable_cores(), len(jobs))
+
+        def on_record(record: dict) -> None:
+            if say is not None:
+                job = record["job"]
+                state = f"E = {record['energy']['total']:.10f} Eh" if record["status"] == "ok" else "failed"
+                say(f"batch job {job['geometry']} in {job['basis']}: {state}")
+
+        outcome = run_batch(jobs, path, workers=workers, threads=args.threads or 1, on_record=on_record)
+        out = {}
+        for job in jobs:
+            record = outcome.records.get(job.key)
+            if record is None or record["status"] != "ok":
+                error = (record or {}).get("error", {"message": "the job did not finish", "exit_code": 1})
+                failure = HfcoreError(f"{job.geometry} in {job.basis}: {error['message']} (batch results in {path})")
+                failure.exit_code = int(error["exit_code"])
+                raise failure
+            out[(job.order[0], bases[job.order[1]])] = (record["energy"]["total"], record["batch"]["wall_seconds"] or 0.0)
+        return out
+
+    return run
 
 
 def parse_fragments(text: str, natom: int) -> list[list[int]]:
@@ -124,11 +176,14 @@ def _run_interaction(args: argparse.Namespace, console: Any) -> int:
 def _run_reaction(args: argparse.Namespace, console: Any) -> int:
     from .analysis.reactions import reaction_energies
 
-    paths = cli._output_paths(args, "json", "plot")
+    paths = cli._output_paths(args, "json", "plot", "results")
     names = cli._basis_names(args)
+    if args.workers is not None and args.results is None:
+        raise InputError("--workers goes with --results")
+    runner = _batch_runner(args, console) if args.results is not None else None
     study = reaction_energies(
         args.reactions, names, units=args.units, spherical=args.spherical, options=cli._scf_options(args),
-        progress=cli._stderr_progress(console),
+        progress=cli._stderr_progress(console), runner=runner,
     )
     record = export.reaction_record(study)
     if "plot" in paths:
