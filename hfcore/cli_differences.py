@@ -64,9 +64,12 @@ def _add_batch_arguments(parser: argparse.ArgumentParser, what: str) -> None:
                         help="local worker processes for --results (default: the usable cores)")
 
 
-#: SCF and form options of ``reaction`` that its batch jobs carry, as ``energy`` option names.
-_JOB_OPTIONS = ("units", "spherical", "energy_tol", "gradient_tol", "max_iterations", "diis_space",
-                "lindep_threshold", "direct", "memory")
+def _job_options(args: argparse.Namespace) -> dict[str, Any]:
+    """The options of this command that its batch jobs carry: every per-job ``energy`` option it has."""
+    from .batch.command import job_option_defaults
+
+    return {k: getattr(args, k) for k in job_option_defaults() if k not in {"atoms", "ghost"}
+            and getattr(args, k, None) is not None}
 
 
 def _batch_runner(args: argparse.Namespace, console: Any) -> Any:
@@ -78,7 +81,7 @@ def _batch_runner(args: argparse.Namespace, console: Any) -> Any:
     """
     from .batch import GeometryEntry, make_jobs
 
-    options = {name: getattr(args, name) for name in _JOB_OPTIONS if getattr(args, name, None) is not None}
+    options = _job_options(args)
 
     def run(pieces: Any, species: Any) -> dict[tuple[int, str], tuple[float, float]]:
         bases = list(dict.fromkeys(p.basis for p in pieces))
@@ -100,7 +103,7 @@ def _interaction_runner(args: argparse.Namespace, console: Any, fragments: list[
     from .batch import GeometryEntry, make_jobs
     from .report import atom_ranges
 
-    options = {name: getattr(args, name) for name in _JOB_OPTIONS if getattr(args, name, None) is not None}
+    options = _job_options(args)
 
     def run(pieces: Any) -> dict[tuple, tuple[float, float]]:
         bases = list(dict.fromkeys(p.basis for p in pieces))
