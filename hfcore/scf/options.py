@@ -123,8 +123,8 @@ class SCFOptions:
     threads : int or None
         Threads of the integral passes (stored and direct) and of BLAS
         (when ``threadpoolctl`` is installed); None means the cores this
-        process may use. The energy is the same to the last digit for any
-        number.
+        process may use. The integral passes give the same bits for any
+        number; threaded BLAS may move the energy's last digits (~1e-13 Eh).
 
     Raises
     ------
