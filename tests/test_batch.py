@@ -7,7 +7,6 @@ file runs in well under two minutes.
 from __future__ import annotations
 
 import fcntl
-import io
 import json
 import os
 import signal
@@ -17,11 +16,10 @@ import time
 from pathlib import Path
 
 import pytest
-from conftest import assert_valid_png
+from conftest import assert_valid_png, run_main
 
 from hfcore.batch import energy_table, expand_geometries
 from hfcore.batch.results import RESULTS_FORMAT
-from hfcore.cli import main
 from hfcore.errors import InputError
 
 BASES = "sto-3g,6-31g"
@@ -42,12 +40,6 @@ def h2(r: float) -> str:
 
 def heh(r: float) -> str:
     return f"2\nHeH+ r = {r:.2f}\nHe 0 0 0\nH 0 0 {r:.6f}\n"
-
-
-def run_main(*args: str) -> tuple[int, str, str]:
-    out, err = io.StringIO(), io.StringIO()
-    code = main([str(a) for a in args], stdout=out, stderr=err)
-    return code, out.getvalue(), err.getvalue()
 
 
 def job_lines(path: Path) -> list[dict]:
