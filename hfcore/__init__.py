@@ -23,10 +23,18 @@ __version__ = "0.1.0"
 def __getattr__(name: str):
     # The SCF layer is imported lazily so that reading geometries and basis
     # sets stays cheap.
-    if name in {"run_rhf", "SCFOptions", "RHFResult"}:
+    if name in {"run_rhf", "solve_rhf", "SCFOptions", "RHFResult"}:
         from . import scf
 
         return getattr(scf, name)
+    if name in {"mp2_energy", "project_density"}:
+        from . import analysis
+
+        return getattr(analysis, name)
+    if name in {"load_arrays", "SavedArrays"}:
+        from . import export
+
+        return getattr(export, name)
     raise AttributeError(f"module 'hfcore' has no attribute {name!r}")
 
 
@@ -39,8 +47,13 @@ __all__ = [
     "build_basis",
     "get_family",
     "run_rhf",
+    "solve_rhf",
     "SCFOptions",
     "RHFResult",
+    "mp2_energy",
+    "project_density",
+    "load_arrays",
+    "SavedArrays",
     "HfcoreError",
     "InputError",
     "BasisError",

@@ -27,6 +27,7 @@ import numpy as np
 
 from . import __version__, elements, export, report
 from .errors import HfcoreError, InputError, NumericalError, ResourceError
+from .units import BOHR_IN_ANGSTROM
 
 #: Exit code after Ctrl-C (128 + SIGINT), the shell convention.
 EXIT_INTERRUPTED: int = 130
@@ -97,7 +98,8 @@ def _add_scf_arguments(parser: argparse.ArgumentParser) -> None:
         "--gradient-tol", type=_positive_float, metavar="X", help="largest orbital-gradient element threshold (1e-7)"
     )
     group.add_argument("--max-iterations", type=_positive_int, metavar="N", help="iteration limit (100)")
-    group.add_argument("--diis-space", type=_positive_int, metavar="N", help="DIIS subspace size (8)")
+    group.add_argument("--max-diis-size", "--diis-space", dest="max_diis_size", type=_positive_int, metavar="N",
+                       help="most Fock matrices DIIS keeps (8); --diis-space is the deprecated old name")
     group.add_argument(
         "--lindep-threshold",
         type=_positive_float,
@@ -119,7 +121,7 @@ def _add_scf_arguments(parser: argparse.ArgumentParser) -> None:
 def _add_threads_argument(parser: Any) -> None:
     parser.add_argument("--threads", type=_positive_int, metavar="N",
                         help="threads for the integral passes and linear algebra "
-                        "(default: the cores this process may use); results do not depend on N")
+                        "(default: the cores this process may use); the energy does not depend on N beyond ~1e-13 Eh")
 
 
 def _add_stability_argument(parser: Any) -> None:
@@ -204,6 +206,17 @@ def build_parser() -> argparse.ArgumentParser:
         f"tensor too when there are at most {export.ERI_NPZ_MAX_FUNCTIONS} basis functions) as .npz",
     )
     energy.add_argument("--quiet", action="store_true", help="no live iteration table; the final report only")
+    post = energy.add_argument_group("after the SCF")
+    post.add_argument("--mp2", action="store_true", help="add the MP2 and SCS-MP2 correlation energies")
+    post.add_argument(
+        "--frozen-core", action="store_true",
+        help="with --mp2: leave the noble-gas core orbitals (1s of Li-Ne, 1s-2p of Na-Ar) uncorrelated "
+        "(default: all electrons correlated)",
+    )
+    post.add_argument(
+        "--origin", nargs=3, type=float, metavar=("X", "Y", "Z"),
+        help="origin of the dipole and quadrupole, in the units of --units (default: the centre of mass)",
+    )
     energy.set_defaults(handler=_run_energy)
 
     fit = sub.add_parser("fit-sto", help="least-squares Gaussian expansion of a Slater function")
@@ -365,7 +378,7 @@ def _scf_options(args: argparse.Namespace) -> Any:
     from .scf import SCFOptions
 
     names = (
-        "energy_tol", "gradient_tol", "max_iterations", "diis_space", "lindep_threshold", "direct", "threads",
+        "energy_tol", "gradient_tol", "max_iterations", "max_diis_size", "lindep_threshold", "direct", "threads",
         "stability",
     )
     given = {name: getattr(args, name) for name in names if getattr(args, name, None) is not None}
@@ -376,17 +389,45 @@ def _scf_options(args: argparse.Namespace) -> Any:
     return SCFOptions(**given)
 
 
-def _analysis(result: Any) -> dict[str, Any]:
-    """Mulliken charges and the dipole moment, in the units the JSON record states."""
-    from .analysis import DEBYE_PER_AU, dipole_moment, mulliken_charges
+def _analysis(result: Any, origin: np.ndarray | None = None) -> dict[str, Any]:
+    """Charges, orbital properties and multipoles, in the units the JSON record states."""
+    from .analysis import (
+        DEBYE_ANGSTROM_PER_AU,
+        DEBYE_PER_AU,
+        centre_of_mass,
+        dipole_moment,
+        lowdin_charges,
+        mulliken_charges,
+        orbital_properties,
+        quadrupole_moment,
+    )
 
-    dipole = dipole_moment(result)
+    o = centre_of_mass(result.molecule) if origin is None else np.asarray(origin, dtype=np.float64)
+    dipole = dipole_moment(result, o)
+    quadrupole = quadrupole_moment(result, o)
     return {
         "mulliken_charges": mulliken_charges(result),
+        "lowdin_charges": lowdin_charges(result),
+        **orbital_properties(result).to_dict(),
+        "origin_bohr": o,
+        "origin_is_centre_of_mass": origin is None,
         "dipole_au": dipole,
         "dipole_debye": dipole * DEBYE_PER_AU,
         "dipole_magnitude_debye": float(np.linalg.norm(dipole)) * DEBYE_PER_AU,
+        "quadrupole_au": quadrupole,
+        "quadrupole_debye_angstrom": quadrupole * DEBYE_ANGSTROM_PER_AU,
     }
+
+
+def _mp2(args: argparse.Namespace, result: Any, console: _Console, eri: Any = None) -> Any:
+    """The MP2 record when --mp2 was given, else None."""
+    if not args.mp2:
+        return None
+    from .analysis import core_orbital_count, mp2_energy
+
+    progress = None if console.json_to_stdout or console.quiet else _IntegralProgress(console.stderr, "MP2")
+    frozen = core_orbital_count(result.molecule) if args.frozen_core else 0
+    return mp2_energy(result, frozen_core=frozen, eri=eri, progress=progress)
 
 
 # ----------------------------------------------------------------------------
@@ -403,8 +444,9 @@ class _IntegralProgress:
 
     DELAY_S = 1.0
 
-    def __init__(self, stream: TextIO) -> None:
+    def __init__(self, stream: TextIO, label: str = "two-electron integrals") -> None:
         self.stream = stream
+        self.label = label
         self.tty = bool(getattr(stream, "isatty", lambda: False)())
         self.started = time.perf_counter()
         self.shown = 0.0
@@ -416,15 +458,15 @@ class _IntegralProgress:
             return  # nothing new, or a pass that ended before the first report needs none
         if self.tty:
             end = "\n" if fraction >= 1.0 else ""
-            print(f"\rhfcore: two-electron integrals {100 * fraction:5.1f} %", end=end, file=self.stream, flush=True)
+            print(f"\rhfcore: {self.label} {100 * fraction:5.1f} %", end=end, file=self.stream, flush=True)
             self.shown = fraction
         elif fraction - self.shown >= 0.25 or fraction >= 1.0:
-            print(f"hfcore: two-electron integrals {100 * fraction:5.1f} % done", file=self.stream, flush=True)
+            print(f"hfcore: {self.label} {100 * fraction:5.1f} % done", file=self.stream, flush=True)
             self.shown = fraction
 
 
 def _run_energy(args: argparse.Namespace, console: _Console) -> int:
-    from .scf import plan_jk, run_rhf
+    from .scf import plan_jk, prepare_integrals, run_rhf
 
     started = time.perf_counter()
     paths = _output_paths(args, "json", "npz")
@@ -438,6 +480,9 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
         fitting = fitting_basis(molecule, basis, options.fit_basis)
     # A forced store, or a fitting set, that cannot fit fails before any output.
     plan = plan_jk(basis, options, fitting=fitting, n_occupied=molecule.n_electrons // 2)
+    if args.frozen_core and not args.mp2:
+        raise InputError("--frozen-core applies to the MP2 energy only; add --mp2")
+    origin = None if args.origin is None else np.asarray(args.origin) / (BOHR_IN_ANGSTROM if args.units == "angstrom" else 1.0)
     console.report(f"hfcore {__version__} · restricted Hartree–Fock")
     console.report(report.format_molecule(molecule))
     console.report(report.format_basis(basis, plan))
@@ -455,9 +500,20 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
         console.live(report.format_iteration(rec))
         previous[0] = rec
 
-    result = run_rhf(molecule, basis, options, guess=args.guess, progress=show, integral_progress=integral_progress)
+    # MP2 reads the SCF's own stored integrals rather than computing them again.
+    shared = prepare_integrals(basis, options, integral_progress) if args.mp2 and plan.mode != "direct" else None
+    result = run_rhf(molecule, basis, options, guess=args.guess, progress=show, integral_progress=integral_progress,
+                     shared=shared)
     _warn_about_solution(console, result)
-    record = export.result_record(result, _analysis(result))
+    mp2_started = time.perf_counter()
+    mp2 = _mp2(args, result, console, None if shared is None else shared.engine)
+    record = export.result_record(result, _analysis(result, origin))
+    if shared is not None:
+        for stage in ("integrals", "total"):
+            record["timings"][stage] += shared.seconds
+    if mp2 is not None:
+        record["mp2"] = mp2.to_dict()
+        record["timings"]["mp2"] = time.perf_counter() - mp2_started
     files: dict[str, bytes] = {}
     if "json" in paths:
         files[paths["json"]] = export.to_json(record).encode("utf-8")
@@ -467,7 +523,7 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
     if args.json == "-":
         console.data(export.to_json(record))
     else:
-        _report_energy(console, result, record["analysis"], time.perf_counter() - started)
+        _report_energy(console, result, record, time.perf_counter() - started, mp2)
         _report_written(console, files)
     return 0
 
@@ -489,9 +545,10 @@ def _warn_about_solution(console: _Console, result: Any, label: str = "") -> Non
         )
 
 
-def _report_energy(console: _Console, result: Any, analysis: dict[str, Any], wall: float) -> None:
-    from .analysis import DEBYE_PER_AU
+def _report_energy(console: _Console, result: Any, record: dict[str, Any], wall: float, mp2: Any = None) -> None:
+    from .units import DEBYE_ANGSTROM_PER_AU, DEBYE_PER_AU
 
+    analysis = record["analysis"]
     molecule = result.molecule
     if console.quiet:
         console.report(report.heading("SCF"))
@@ -499,10 +556,16 @@ def _report_energy(console: _Console, result: Any, analysis: dict[str, Any], wal
     console.report(report.format_linear_dependence(result.n_dropped, result.options.lindep_threshold))
     console.report(report.format_stability(result))
     console.report(report.format_energies(result))
+    if mp2 is not None:
+        console.report(report.format_mp2(mp2))
     console.report(report.format_orbitals(result))
-    console.report(report.format_charges(molecule.symbols, analysis["mulliken_charges"], molecule.ghosts))
-    console.report(report.format_dipole(analysis["dipole_au"], DEBYE_PER_AU, molecule.charge != 0))
-    console.report(report.format_timings(result.timings, wall))
+    console.report(report.format_properties(analysis))
+    console.report(report.format_charges(molecule.symbols, analysis["mulliken_charges"], molecule.ghosts,
+                                         analysis["lowdin_charges"]))
+    console.report(report.format_dipole(analysis["dipole_au"], DEBYE_PER_AU, molecule.charge != 0,
+                                        analysis["origin_is_centre_of_mass"]))
+    console.report(report.format_quadrupole(analysis["quadrupole_au"], DEBYE_ANGSTROM_PER_AU))
+    console.report(report.format_timings(record["timings"], wall))
 
 
 def energy_record(args: argparse.Namespace) -> dict[str, Any]:

@@ -13,6 +13,7 @@ import math
 import os
 import tempfile
 from collections.abc import Mapping
+from dataclasses import dataclass, fields
 from typing import Any
 
 import numpy as np
@@ -225,7 +226,8 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
                 "energy_tol": opts.energy_tol,
                 "gradient_tol": opts.gradient_tol,
                 "max_iterations": opts.max_iterations,
-                "diis_space": opts.diis_space,
+                "max_diis_size": opts.max_diis_size,
+                "diis_space": opts.max_diis_size,  # deprecated name, kept for one release
                 "lindep_threshold": opts.lindep_threshold,
                 "screening": opts.screening,
                 "stability_threshold": opts.stability_threshold,
@@ -385,6 +387,78 @@ def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS
     return {k: np.asarray(v, order="C") for k, v in arrays.items()}
 
 
+@dataclass(frozen=True)
+class SavedArrays:
+    """The arrays of an RHF run as :func:`result_arrays` saves them, read back by :func:`load_arrays`.
+
+    Attributes carry the names of the .npz entries; shapes as in
+    :func:`result_arrays` (nbf functions, nmo orbitals, natom atoms).
+    Energies in hartree, lengths in bohr.
+    """
+
+    overlap: np.ndarray
+    kinetic: np.ndarray
+    nuclear_attraction: np.ndarray
+    core_hamiltonian: np.ndarray
+    coefficients: np.ndarray
+    orbital_energies: np.ndarray
+    occupations: np.ndarray
+    density: np.ndarray
+    fock: np.ndarray
+    atomic_numbers: np.ndarray
+    coordinates: np.ndarray
+    function_atoms: np.ndarray
+    function_l: np.ndarray
+    energy_total: float
+    spherical: bool
+    eri: np.ndarray | None = None
+
+    @property
+    def n_functions(self) -> int:
+        """nbf, the number of basis functions."""
+        return int(self.overlap.shape[0])
+
+    def nuclear_repulsion(self) -> float:
+        """Nuclear repulsion energy of the saved geometry (hartree)."""
+        from .geometry import nuclear_repulsion
+
+        return nuclear_repulsion(self.atomic_numbers, self.coordinates)
+
+
+def load_arrays(path: str | os.PathLike) -> SavedArrays:
+    """Read an .npz file written by ``hfcore energy --npz`` or :func:`result_arrays`.
+
+    Parameters
+    ----------
+    path : str or path-like
+
+    Returns
+    -------
+    SavedArrays
+        ``eri`` is None when the file holds no dense tensor (more than
+        :data:`ERI_NPZ_MAX_FUNCTIONS` functions).
+
+    Raises
+    ------
+    InputError
+        If the file cannot be read or lacks an entry hfcore writes.
+    """
+    target = os.fspath(path)
+    try:
+        with np.load(target, allow_pickle=False) as data:
+            arrays = {name: data[name] for name in data.files}
+    except (OSError, ValueError) as exc:
+        raise InputError(f"{target}: cannot read as .npz ({exc})") from None
+    names = [f.name for f in fields(SavedArrays)]
+    missing = [n for n in names if n != "eri" and n not in arrays]
+    if missing:
+        raise InputError(f"{target}: not an hfcore array file (missing {', '.join(missing)})")
+    values = {n: arrays[n] for n in names if n in arrays}
+    values["energy_total"] = float(values["energy_total"])
+    values["spherical"] = bool(values["spherical"])
+    return SavedArrays(**values)
+
+
 def npz_bytes(arrays: Mapping[str, np.ndarray]) -> bytes:
     """The content of an uncompressed .npz file holding ``arrays`` (no pickled objects)."""
     buffer = io.BytesIO()
@@ -407,4 +481,6 @@ __all__ = [
     "reaction_record",
     "result_arrays",
     "npz_bytes",
+    "SavedArrays",
+    "load_arrays",
 ]

@@ -14,16 +14,11 @@ from collections.abc import Iterable
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-from scipy import constants
 from scipy.spatial import cKDTree
 
 from . import elements
 from .errors import InputError
-
-#: One bohr in ångström (CODATA value shipped with scipy).
-BOHR_IN_ANGSTROM: float = constants.physical_constants["Bohr radius"][0] / constants.angstrom
-#: One ångström in bohr.
-ANGSTROM_IN_BOHR: float = 1.0 / BOHR_IN_ANGSTROM
+from .units import ANGSTROM_IN_BOHR, BOHR_IN_ANGSTROM
 
 #: Two nuclei closer than this (in ångström) are taken as a typing error.
 MIN_DISTANCE_ANGSTROM: float = 0.1

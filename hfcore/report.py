@@ -11,16 +11,12 @@ from collections.abc import Iterable, Sequence
 from typing import Any
 
 import numpy as np
-from scipy import constants
 
 from .basis.components import L_LETTERS
-from .geometry import BOHR_IN_ANGSTROM
+from .units import BOHR_IN_ANGSTROM, EV_PER_HARTREE
 
 #: Virtual orbitals listed after the LUMO before the list is cut short.
 MAX_VIRTUALS_SHOWN: int = 10
-
-#: One hartree in electronvolts (CODATA, via scipy.constants).
-EV_PER_HARTREE: float = constants.physical_constants["Hartree energy in eV"][0]
 
 _RULE_WIDTH = 64
 
@@ -264,17 +260,27 @@ def format_orbitals(result: Any, max_virtuals: int = MAX_VIRTUALS_SHOWN) -> str:
     return "\n".join(lines)
 
 
-def format_charges(symbols: Sequence[str], charges: np.ndarray, ghosts: Sequence[bool] | None = None) -> str:
-    """Mulliken atomic charges, one line per atom, in elementary charges; ghost atoms marked."""
-    lines = [heading("Mulliken charges / e")]
+def format_charges(
+    symbols: Sequence[str], charges: np.ndarray, ghosts: Sequence[bool] | None = None, lowdin: np.ndarray | None = None
+) -> str:
+    """Mulliken (and, when given, Löwdin) atomic charges, one line per atom, in elementary charges; ghosts marked."""
     marks = ["  ghost" if g else "" for g in ghosts] if ghosts is not None else [""] * len(symbols)
-    for k, (sym, q, mark) in enumerate(zip(symbols, _no_negative_zero(charges, 6), marks), start=1):
-        lines.append(f"  {k:>4}  {sym:<7}  {q:+10.6f}{mark}")
-    lines.append(f"  {'sum':>13}  {float(_no_negative_zero(np.sum(charges), 6)):+10.6f}")
+    if lowdin is None:
+        lines = [heading("Mulliken charges / e")]
+        for k, (sym, q, mark) in enumerate(zip(symbols, _no_negative_zero(charges, 6), marks), start=1):
+            lines.append(f"  {k:>4}  {sym:<7}  {q:+10.6f}{mark}")
+        lines.append(f"  {'sum':>13}  {float(_no_negative_zero(np.sum(charges), 6)):+10.6f}")
+        return "\n".join(lines)
+    lines = [heading("Mulliken charges and Löwdin charges / e"), f"  {'':>4}  {'':<7}  {'Mulliken':>10}  {'Löwdin':>10}"]
+    rows = zip(symbols, _no_negative_zero(charges, 6), _no_negative_zero(np.asarray(lowdin), 6), marks)
+    for k, (sym, q, ql, mark) in enumerate(rows, start=1):
+        lines.append(f"  {k:>4}  {sym:<7}  {q:+10.6f}  {ql:+10.6f}{mark}")
+    sums = [float(_no_negative_zero(np.sum(x), 6)) for x in (charges, lowdin)]
+    lines.append(f"  {'sum':>13}  {sums[0]:+10.6f}  {sums[1]:+10.6f}")
     return "\n".join(lines)
 
 
-def format_dipole(dipole_au: np.ndarray, debye_per_au: float, charged: bool) -> str:
+def format_dipole(dipole_au: np.ndarray, debye_per_au: float, charged: bool, centre_of_mass: bool = False) -> str:
     """Dipole moment components and length in debye (and atomic units)."""
     d = np.asarray(dipole_au, dtype=np.float64)
     lines = [heading("Dipole moment"), f"  {'':<8}{'x':>12}{'y':>12}{'z':>12}{'|μ|':>12}"]
@@ -282,8 +288,53 @@ def format_dipole(dipole_au: np.ndarray, debye_per_au: float, charged: bool) -> 
         x, y, z = _no_negative_zero(d * scale, 6)
         lines.append(f"  {unit:<8}{x:12.6f}{y:12.6f}{z:12.6f}{np.linalg.norm(d) * scale:12.6f}")
     if charged:
-        lines.append("  (charged molecule: the dipole is taken about the centre of nuclear charge)")
+        where = "the centre of mass" if centre_of_mass else "the origin given with --origin"
+        lines.append(f"  (charged molecule: the dipole depends on the origin; it is taken about {where})")
     return "\n".join(lines)
+
+
+def format_quadrupole(quadrupole_au: np.ndarray, debye_angstrom_per_au: float) -> str:
+    """The traceless (Buckingham) quadrupole moment, six components, in debye·Å and e·bohr²."""
+    q = np.asarray(quadrupole_au, dtype=np.float64)
+    names = ("xx", "yy", "zz", "xy", "xz", "yz")
+    index = ((0, 0), (1, 1), (2, 2), (0, 1), (0, 2), (1, 2))
+    lines = [heading("Quadrupole moment (traceless, Θ = ½ Σ q (3 r r − r² 1))"),
+             f"  {'':<8}" + "".join(f"{n:>11}" for n in names)]
+    for unit, scale in (("D·Å", debye_angstrom_per_au), ("e·bohr²", 1.0)):
+        values = _no_negative_zero(np.array([q[i, j] for i, j in index]) * scale, 5)
+        lines.append(f"  {unit:<8}" + "".join(f"{v:11.5f}" for v in values))
+    lines.append("  (about the same origin as the dipole)")
+    return "\n".join(lines)
+
+
+def format_properties(analysis: dict[str, Any]) -> str:
+    """HOMO-LUMO gap, Koopmans ionisation energy and the virial ratio."""
+    rows = []
+    gap = analysis.get("homo_lumo_gap")
+    if gap is not None:
+        rows.append(("HOMO-LUMO gap", f"{gap:14.8f} Eh  {gap * EV_PER_HARTREE:10.4f} eV"))
+    ie = analysis["koopmans_ionisation"]
+    rows.append(("Koopmans ionisation energy", f"{ie:14.8f} Eh  {ie * EV_PER_HARTREE:10.4f} eV"))
+    rows.append(("virial ratio -V/T", f"{analysis['virial_ratio']:14.8f}"))
+    return heading("Properties") + "\n" + _pairs(rows)
+
+
+def format_mp2(mp2: Any) -> str:
+    """MP2 and SCS-MP2 correlation and total energies, in hartree."""
+    plural = "s" if mp2.frozen_core > 1 else ""
+    core = f"{mp2.frozen_core} frozen core orbital{plural}" if mp2.frozen_core else "all electrons correlated"
+    rows = [
+        ("same-spin", mp2.same_spin),
+        ("opposite-spin", mp2.opposite_spin),
+        ("MP2 correlation", mp2.correlation),
+        ("MP2 total", mp2.total),
+        ("SCS-MP2 correlation", mp2.scs_correlation),
+        ("SCS-MP2 total", mp2.scs_total),
+    ]
+    body = [f"  {name:<20}{value:22.12f}" for name, value in rows]
+    body.append(f"  ({core}; {mp2.n_active_occupied} occupied and {mp2.n_virtual} virtual orbitals;")
+    body.append("   SCS-MP2: 6/5 opposite-spin + 1/3 same-spin, S. Grimme, J. Chem. Phys. 118, 9095 (2003))")
+    return heading("MP2 / Eh") + "\n" + "\n".join(body)
 
 
 def format_timings(timings: dict[str, float], wall: float) -> str:

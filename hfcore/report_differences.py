@@ -58,6 +58,8 @@ def format_interaction(study: Any) -> str:
     runs = len(study.pieces)
     reused = sum(p.reused_integrals for p in study.pieces)
     cost = f"  {runs} SCF runs in {study.seconds:.2f} s"
+    if study.batch:
+        cost = f"  {runs} SCF runs as batch jobs, {sum(p.seconds for p in study.pieces):.2f} s of job time"
     if reused:
         cost += (
             f"; {reused} full-basis fragment runs reused the complex's integrals "

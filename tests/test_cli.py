@@ -296,9 +296,9 @@ def test_core_guess_reaches_the_same_energy(water_file):
 
 
 def test_scf_thresholds_are_passed_on(water_file):
-    record = energy_record(str(water_file), "--energy-tol", "1e-6", "--gradient-tol", "1e-4", "--diis-space", "4")
+    record = energy_record(str(water_file), "--energy-tol", "1e-6", "--gradient-tol", "1e-4", "--max-diis-size", "4")
     thresholds = record["scf"]["thresholds"]
-    assert (thresholds["energy_tol"], thresholds["gradient_tol"], thresholds["diis_space"]) == (1e-6, 1e-4, 4)
+    assert (thresholds["energy_tol"], thresholds["gradient_tol"], thresholds["max_diis_size"]) == (1e-6, 1e-4, 4)
     assert max(h["diis_size"] for h in record["scf"]["history"]) <= 4
 
 

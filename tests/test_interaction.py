@@ -155,3 +155,21 @@ def test_shared_integrals_must_belong_to_the_basis(dimer):
     alone = run_rhf(ghost, shared.basis)
     # source: exact property — the same integrals, whether computed for this run or shared
     assert run_rhf(ghost, shared.basis, shared=shared).energy_total == pytest.approx(alone.energy_total, abs=1e-11)
+
+
+def test_pieces_through_the_batch_machinery_match_and_resume(study, tmp_path):
+    results = tmp_path / "cp.jsonl"
+    args = ("interaction", str(DIMER), "--fragments", "1-3,4-6", "--basis", "sto-3g", "--results", str(results),
+            "--workers", "1", "--json", "-")
+    code, out, err = run_main(*args)
+    assert code == 0, err
+    row = json.loads(out)["interaction"]["rows"][0]
+    # source: exact property — the same pieces as `energy`, `energy --atoms` and `energy --ghost` jobs
+    assert row["counterpoise"] == pytest.approx(study.rows[0].counterpoise, abs=1e-10)
+    assert row["raw"] == pytest.approx(study.rows[0].raw, abs=1e-10)
+    lines = results.read_text().splitlines()
+    assert len(lines) == 6  # the header and five pieces
+    code, out, _ = run_main(*args)
+    assert code == 0 and results.read_text().splitlines() == lines  # resumed: nothing ran again
+    code, _, err = run_main("interaction", str(DIMER), "--fragments", "1-3,4-6", "--basis", "sto-3g", "--workers", "2")
+    assert code == 2 and "--workers goes with --results" in err

@@ -142,3 +142,19 @@ def test_unbalanced_equation_as_a_real_process():
     proc = cli_result("reaction", "formaldehyde.xyz -> methanol.xyz", "--basis", "sto-3g", cwd=INPUTS, via="process")
     # the exit code the shell sees, one line, no traceback
     assert_one_line_error(proc, 2, "not balanced: H 2 on the left, 4 on the right")
+
+
+def test_pieces_through_the_batch_machinery_match_and_resume(in_inputs, tmp_path):
+    results = tmp_path / "pieces.jsonl"
+    args = ("reaction", DIMERISATION, "--basis", "sto-3g", "--results", str(results), "--workers", "1", "--json", "-")
+    code, out, err = run_main(*args)
+    assert code == 0, err
+    batched = json.loads(out)["reaction"]["rows"][0]["reaction_energies"][0]
+    lines = results.read_text().splitlines()
+    assert len(lines) == 3  # the header and one line per species
+    code, out, err = run_main("reaction", DIMERISATION, "--basis", "sto-3g", "--json", "-")
+    # source: exact property — the same energy runs, in worker processes or in this one
+    assert batched == pytest.approx(json.loads(out)["reaction"]["rows"][0]["reaction_energies"][0], abs=1e-10)
+    code, out, err = run_main(*args)
+    assert code == 0 and results.read_text().splitlines() == lines  # resumed: nothing ran again
+    assert json.loads(out)["reaction"]["rows"][0]["reaction_energies"][0] == batched

@@ -210,7 +210,7 @@ def test_non_convergence_raises_with_the_last_state(water_dz):
         {"max_iterations": 0},
         {"max_iterations": 2.5},
         {"max_iterations": True},
-        {"diis_space": 1},
+        {"max_diis_size": 1},
         {"diis_start": 0},
         {"lindep_threshold": 1.5},
         {"screening": -1e-12},

@@ -10,15 +10,14 @@ rotation. The geometries are our own, written in this file.
 
 from __future__ import annotations
 
-import io
 import json
 
 import numpy as np
 import pytest
+from conftest import run_main
 from reference import family_shells, reference_mole
 
 from hfcore import ConvergenceError, InputError, build_basis, integrals, parse_xyz
-from hfcore.cli import main
 from hfcore.integrals import compute_eri
 from hfcore.scf import DIIS, Accelerator, SCFOptions, analyse_stability, rotate_orbitals, run_rhf, solve_rhf
 
@@ -109,10 +108,9 @@ def _energy_json(tmp_path, atoms: str, basis_name: str, *extra: str) -> tuple[di
     """Run the default command ``hfcore energy FILE --basis NAME --json -`` (plus extra flags)."""
     path = tmp_path / "molecule.xyz"
     path.write_text(_xyz(atoms))
-    out, err = io.StringIO(), io.StringIO()
-    code = main(["energy", str(path), "--basis", basis_name, *extra, "--json", "-"], stdout=out, stderr=err)
-    record = json.loads(out.getvalue()) if code == 0 else {}
-    return record, err.getvalue(), code
+    code, out, err = run_main("energy", path, "--basis", basis_name, *extra, "--json", "-")
+    record = json.loads(out) if code == 0 else {}
+    return record, err, code
 
 
 @pytest.mark.parametrize("name", list(HARD_CASES))
@@ -328,20 +326,18 @@ def test_bad_stability_options_are_refused(bad):
 def test_cli_refuses_an_unknown_stability_setting(tmp_path):
     path = tmp_path / "h2.xyz"
     path.write_text(_xyz("H 0 0 0\nH 0 0 0.74"))
-    err = io.StringIO()
-    code = main(["energy", str(path), "--stability", "sometimes"], stdout=io.StringIO(), stderr=err)
-    assert code == 2 and err.getvalue().startswith("hfcore: error: ")
+    code, _, err = run_main("energy", path, "--stability", "sometimes")
+    assert code == 2 and err.startswith("hfcore: error: ")
 
 
 def test_human_report_marks_the_new_solution_and_says_what_was_checked(tmp_path):
     # Common practice: the report states what was checked; the live table shows where a new solution starts.
     path = tmp_path / "n2.xyz"
     path.write_text(_xyz(HARD_CASES["N2 2.2 Å"][0]))
-    out, err = io.StringIO(), io.StringIO()
-    assert main(["energy", str(path), "--basis", "6-31g"], stdout=out, stderr=err) == 0
-    text = out.getvalue()
+    code, text, err = run_main("energy", path, "--basis", "6-31g")
+    assert code == 0
     assert "-- solution 2: started along the lowest unstable mode" in text
     section = text.split("Stability and occupation", 1)[1].split("Energy / Eh", 1)[0]
     assert "stable after following 1 instability" in section
     assert "aufbau occupation    yes" in section
-    assert err.getvalue() == ""
+    assert err == ""

@@ -1,6 +1,6 @@
-"""Post-SCF analysis: populations, multipoles, MP2, basis-limit extrapolation,
-and drivers over several RHF runs: basis comparison, interaction and
-reaction energies.
+"""Post-SCF analysis: populations, multipoles, orbital properties, MP2 and
+SCS-MP2, basis-limit extrapolation, and drivers over several RHF runs: basis
+comparison, interaction and reaction energies.
 
 Everything here except the drivers (:func:`compare_bases`,
 :func:`interaction_energies`, :func:`reaction_energies`) works on a
@@ -21,8 +21,17 @@ from .compare import (
 from .interaction import InteractionStudy, interaction_energies
 from .reactions import ReactionStudy, reaction_energies
 from .extrapolation import cardinal_number, correlation_consistent, feller_three_point, karton_martin_two_point
-from .mp2 import MP2Result, core_orbital_count, mp2_energy
-from .multipoles import DEBYE_PER_AU, dipole_moment, nuclear_charge_centre
+from .mp2 import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, MP2Result, core_orbital_count, mp2_energy
+from .multipoles import (
+    DEBYE_ANGSTROM_PER_AU,
+    DEBYE_PER_AU,
+    centre_of_mass,
+    dipole_moment,
+    nuclear_charge_centre,
+    quadrupole_moment,
+    second_moment,
+)
+from .properties import OrbitalProperties, orbital_properties
 from .populations import lowdin_charges, lowdin_populations, mulliken_charges, mulliken_populations
 
 __all__ = [
@@ -33,6 +42,14 @@ __all__ = [
     "DEBYE_PER_AU",
     "dipole_moment",
     "nuclear_charge_centre",
+    "centre_of_mass",
+    "DEBYE_ANGSTROM_PER_AU",
+    "second_moment",
+    "quadrupole_moment",
+    "OrbitalProperties",
+    "orbital_properties",
+    "SCS_OPPOSITE_SPIN",
+    "SCS_SAME_SPIN",
     "MP2Result",
     "mp2_energy",
     "core_orbital_count",

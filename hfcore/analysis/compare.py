@@ -17,9 +17,9 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 import scipy.linalg
-from scipy import constants
 
 from ..errors import ConvergenceError, InputError
+from ..units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
 from .extrapolation import (
     FELLER_CITATION,
     KARTON_MARTIN_CITATION,
@@ -34,12 +34,10 @@ if TYPE_CHECKING:
     from ..scf.options import SCFOptions
     from ..scf.result import RHFResult
 
-#: kcal/mol per hartree (CODATA hartree energy × Avogadro constant / 4184 J per kcal).
-KCAL_MOL_PER_HARTREE: float = constants.physical_constants["Hartree energy"][0] * constants.Avogadro / 4184.0
-#: kJ/mol per hartree (CODATA hartree energy × Avogadro constant / 1000 J per kJ).
-KJ_MOL_PER_HARTREE: float = constants.physical_constants["Hartree energy"][0] * constants.Avogadro / 1000.0
-
-GUESSES: tuple[str, ...] = ("auto", "projected", "sad")
+#: Starting guesses of a basis comparison (the SCF's own are :data:`hfcore.scf.GUESSES`).
+COMPARISON_GUESSES: tuple[str, ...] = ("auto", "projected", "sad")
+#: Deprecated name of :data:`COMPARISON_GUESSES`, kept for one release.
+GUESSES = COMPARISON_GUESSES
 
 
 @dataclass(frozen=True)
@@ -276,8 +274,10 @@ def compare_bases(
     from ..basis import build_basis
 
     labels = _check_names(names)
-    if guess not in GUESSES:
-        raise InputError(f"unknown guess {guess!r} for a basis comparison: use one of {', '.join(GUESSES)}")
+    if guess not in COMPARISON_GUESSES:
+        raise InputError(
+            f"unknown guess {guess!r} for a basis comparison: use one of {', '.join(COMPARISON_GUESSES)}"
+        )
     molecule.require_closed_shell()
     if guess == "auto":
         guess = "sad" if molecule.natom == 1 else "projected"
@@ -416,6 +416,7 @@ def _estimate(method, family, used, cardinals, energy, e_ref, citation) -> Basis
 
 
 __all__ = [
+    "COMPARISON_GUESSES",
     "KCAL_MOL_PER_HARTREE",
     "KJ_MOL_PER_HARTREE",
     "ComparisonRow",

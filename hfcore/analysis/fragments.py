@@ -181,6 +181,9 @@ class InteractionStudy:
         Wall-clock time of all runs.
     citation : str
         Source of the counterpoise correction.
+    batch : bool
+        True if the pieces ran as batch jobs (their times are the jobs'
+        own, possibly from an earlier run recorded in the results file).
     """
 
     source: str
@@ -191,6 +194,7 @@ class InteractionStudy:
     reuse_integrals: bool = True
     seconds: float = 0.0
     citation: str = BOYS_BERNARDI_CITATION
+    batch: bool = False
 
     @property
     def integral_seconds_saved(self) -> float:
@@ -223,6 +227,7 @@ class InteractionStudy:
             "integral_seconds_saved": self.integral_seconds_saved,
             "seconds": self.seconds,
             "citation": self.citation,
+            "batch": self.batch,
         }
 
 

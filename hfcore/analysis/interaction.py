@@ -26,7 +26,7 @@ runner; :func:`interaction_energies` runs them in this process.
 from __future__ import annotations
 
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import replace
 from typing import TYPE_CHECKING
 
@@ -144,6 +144,7 @@ def interaction_energies(
     options: SCFOptions | None = None,
     reuse_integrals: bool = True,
     progress: Callable[[str], None] | None = None,
+    runner: Callable[[Sequence[InteractionPiece]], Mapping[tuple, tuple[float, float]]] | None = None,
 ) -> InteractionStudy:
     """Raw and counterpoise-corrected interaction energies in several bases.
 
@@ -167,7 +168,12 @@ def interaction_energies(
         kinetic and two-electron integrals (default). False computes them
         again for every run, as separate runs would.
     progress : callable, optional
-        Called with a one-line message after each SCF run.
+        Called with a one-line message after each SCF run (in-process runs).
+    runner : callable, optional
+        Runs the pieces elsewhere instead (e.g. as batch jobs), each on its
+        own integrals: called as ``runner(pieces)`` after every check, it
+        returns the total energy (hartree) and wall time (seconds) of each
+        piece keyed by ``(basis, kind, fragment)``.
 
     Returns
     -------
@@ -201,8 +207,20 @@ def interaction_energies(
     started = time.perf_counter()
     done: list[PieceResult] = []
     rows = []
+    outside = runner(pieces) if runner is not None else None
+    if outside is not None:
+        reuse_integrals = False
     for name in names:
         t0 = time.perf_counter()
+        if outside is not None:
+            energies = {(kind, k): e for (b, kind, k), (e, _) in outside.items() if b == name}
+            for p in (p for p in pieces if p.basis == name):
+                n = (own_basis[(name, p.fragment)] if p.kind == "own basis" else basis_of[name]).n_functions
+                done.append(PieceResult(p, energies[(p.kind, p.fragment)], n, 0, outside[(name, p.kind, p.fragment)][1],
+                                        False))
+            rows.append(_row(name, basis_of[name], energies, len(parts), sum(s for (b, _, _), (_, s) in outside.items()
+                                                                            if b == name), 0.0))
+            continue
         shared = prepare_integrals(basis_of[name], options, molecule=complex_molecule) if reuse_integrals else None
         integral_seconds = shared.seconds if shared is not None else 0.0
         energies: dict[tuple[str, int | None], float] = {}
@@ -231,15 +249,7 @@ def interaction_energies(
                     f"[{len(done)}/{len(pieces)}] {name}, {piece.label} ({summary.n_functions} functions): "
                     f"E = {summary.energy_total:.10f} Eh after {summary.iterations} iterations in {summary.seconds:.2f} s"
                 )
-        e_ab = energies[("complex", None)]
-        own = tuple(energies[("own basis", k)] for k in range(len(parts)))
-        full = tuple(energies[("full basis", k)] for k in range(len(parts)))
-        raw = e_ab - sum(own)
-        cp = e_ab - sum(full)
-        rows.append(
-            InteractionRow(name, basis_of[name].n_functions, basis_of[name].spherical, e_ab, own, full, raw, cp,
-                           cp - raw, time.perf_counter() - t0, integral_seconds)
-        )
+        rows.append(_row(name, basis_of[name], energies, len(parts), time.perf_counter() - t0, integral_seconds))
     return InteractionStudy(
         source=molecule.source,
         fragments=parts,
@@ -248,7 +258,20 @@ def interaction_energies(
         pieces=tuple(done),
         reuse_integrals=reuse_integrals,
         seconds=time.perf_counter() - started,
+        batch=outside is not None,
     )
+
+
+def _row(name: str, basis: BasisSet, energies: Mapping[tuple, float], n_parts: int, seconds: float,
+         integral_seconds: float) -> InteractionRow:
+    """Assemble one basis' row from the energies of its pieces, keyed by (kind, fragment)."""
+    e_ab = energies[("complex", None)]
+    own = tuple(energies[("own basis", k)] for k in range(n_parts))
+    full = tuple(energies[("full basis", k)] for k in range(n_parts))
+    raw = e_ab - sum(own)
+    cp = e_ab - sum(full)
+    return InteractionRow(name, basis.n_functions, basis.spherical, e_ab, own, full, raw, cp, cp - raw, seconds,
+                          integral_seconds)
 
 
 __all__ = [

@@ -1,31 +1,53 @@
 """Closed-shell second-order Møller-Plesset (MP2) correlation energy.
 
-A small prototype of a method built on top of the RHF result: transform the
-dense AO two-electron integrals to (ia|jb) over occupied i, j and virtual
-a, b canonical orbitals and sum
+With canonical RHF orbitals, occupied i, j and virtual a, b,
 
-    E(2) = sum_{ijab} (ia|jb) [2 (ia|jb) - (ib|ja)] / (e_i + e_j - e_a - e_b).
+    E(2) = sum_{ijab} (ia|jb) [2 (ia|jb) - (ib|ja)] / (e_i + e_j - e_a - e_b),
 
-Dense integrals cost nbf⁴ doubles of memory, so this suits small systems.
+split into an opposite-spin part sum (ia|jb)² / Δ and a same-spin part
+sum (ia|jb) [(ia|jb) - (ib|ja)] / Δ. The spin-component-scaled energy
+weighs them 6/5 and 1/3 (S. Grimme, J. Chem. Phys. 118, 9095 (2003)).
+
+The (ia|jb) come from the packed 8-fold store of :class:`ERIStore` and
+never from the dense nbf⁴ tensor. One block of occupied orbitals at a
+time, the first index is transformed to the occupied orbitals,
+
+    (iν|κ) = sum_μ C_μi (μν|κ)     for every packed pair κ = (λσ), λ >= σ,
+
+one ν at a time from the ν-th column of (μν|κ) gathered out of the store
+(a matrix product with the full sum over μ); then, one i at a time, ν goes
+to the virtual orbitals and the pair κ is unpacked and transformed to
+(j, b). The work array of the block holds n_block · nbf · nbf(nbf+1)/2
+numbers, chosen to fit ``memory_bytes``; nothing of size nbf⁴ is formed.
 """
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ..errors import ConvergenceError, InputError
+from ..errors import ConvergenceError, InputError, ResourceError
 from ._checks import require_placed
 
 if TYPE_CHECKING:
     from ..geometry import Molecule
+    from ..integrals.two_electron import ERIStore
     from ..scf.result import RHFResult
 
 # Core orbitals per element by row of the periodic table (common practice:
 # the noble-gas core of the previous row): (highest Z of the row, core count).
 _CORE_BY_ROW = ((2, 0), (10, 1), (18, 5), (36, 9), (54, 18), (86, 27))
+
+#: Weights of the opposite-spin and same-spin parts in SCS-MP2
+#: (S. Grimme, J. Chem. Phys. 118, 9095 (2003)).
+SCS_OPPOSITE_SPIN: float = 6.0 / 5.0
+SCS_SAME_SPIN: float = 1.0 / 3.0
+
+#: Smallest work-array budget (bytes) when none is given.
+_MIN_WORK_BYTES = 32 << 20
 
 
 @dataclass(frozen=True)
@@ -50,6 +72,11 @@ class MP2Result:
         Correlated occupied orbitals.
     n_virtual : int
         Virtual orbitals.
+    scs_correlation : float
+        Spin-component-scaled correlation energy, 6/5 of the opposite-spin
+        plus 1/3 of the same-spin part (hartree).
+    scs_total : float
+        RHF total energy plus ``scs_correlation`` (hartree).
     """
 
     correlation: float
@@ -60,6 +87,23 @@ class MP2Result:
     frozen_core: int
     n_active_occupied: int
     n_virtual: int
+    scs_correlation: float = 0.0
+    scs_total: float = 0.0
+
+    def to_dict(self) -> dict[str, float | int]:
+        """The record as plain numbers (hartree), for JSON."""
+        return {
+            "correlation": self.correlation,
+            "total": self.total,
+            "reference": self.reference,
+            "same_spin": self.same_spin,
+            "opposite_spin": self.opposite_spin,
+            "scs_correlation": self.scs_correlation,
+            "scs_total": self.scs_total,
+            "frozen_core": self.frozen_core,
+            "n_active_occupied": self.n_active_occupied,
+            "n_virtual": self.n_virtual,
+        }
 
 
 def core_orbital_count(molecule: Molecule) -> int:
@@ -83,26 +127,119 @@ def core_orbital_count(molecule: Molecule) -> int:
     return total
 
 
-def _ovov_integrals(eri: np.ndarray, c_occ: np.ndarray, c_vir: np.ndarray) -> np.ndarray:
-    """(ia|jb) from AO (μν|λσ), one index at a time (nbf⁴·o flops at most)."""
-    half = np.tensordot(c_occ, eri, axes=([0], [0]))  # (i, ν, λ, σ)
-    half = np.tensordot(half, c_vir, axes=([1], [0]))  # (i, λ, σ, a)
-    half = np.tensordot(half, c_occ, axes=([1], [0]))  # (i, σ, a, j)
-    full = np.tensordot(half, c_vir, axes=([1], [0]))  # (i, a, j, b)
-    return np.ascontiguousarray(full)
+def _store_columns(packed: np.ndarray, tri: np.ndarray, pairs: np.ndarray, out: np.ndarray) -> None:
+    """Rows P of the full symmetric pair matrix (P|κ), for each P in ``pairs``, into ``out``.
+
+    The packed array holds (P|κ) at tri[P] + κ for κ <= P (one contiguous
+    stretch) and at tri[κ] + P for κ > P (a strided gather).
+    """
+    for row, p in zip(out, pairs):
+        p = int(p)
+        row[: p + 1] = packed[tri[p] : tri[p] + p + 1]
+        row[p + 1 :] = packed[tri[p + 1 :] + p]
 
 
-def mp2_energy(result: RHFResult, *, frozen_core: int = 0) -> MP2Result:
-    """Canonical closed-shell MP2 correlation energy from a converged RHF run.
+def _pair_map(nbf: int) -> np.ndarray:
+    """Packed pair index of every (λ, σ), shape (nbf, nbf)."""
+    i = np.arange(nbf)
+    hi, lo = np.maximum(i[:, None], i[None, :]), np.minimum(i[:, None], i[None, :])
+    return hi * (hi + 1) // 2 + lo
+
+
+def _first_quarter(packed: np.ndarray, c_block: np.ndarray) -> np.ndarray:
+    """(iν|κ) = Σ_μ C_μi (μν|κ) for the occupied orbitals of ``c_block`` (nbf, n_block).
+
+    Returns
+    -------
+    ndarray, shape (n_block, nbf, npair)
+    """
+    nbf = c_block.shape[0]
+    npair = nbf * (nbf + 1) // 2
+    tri = np.arange(npair, dtype=np.int64) * (np.arange(npair, dtype=np.int64) + 1) // 2
+    pairs = _pair_map(nbf)
+    column = np.empty((nbf, npair))
+    half = np.empty((c_block.shape[1], nbf, npair))
+    for nu in range(nbf):
+        _store_columns(packed, tri, pairs[:, nu], column)
+        np.matmul(c_block.T, column, out=half[:, nu, :])
+    return half
+
+
+def _ovov_row(half_i: np.ndarray, c_occ: np.ndarray, c_vir: np.ndarray, a_step: int) -> np.ndarray:
+    """(ia|jb) for one occupied i from its (iν|κ), shape (n_vir, n_occ, n_vir), ``a_step`` virtuals at a time."""
+    pairs = _pair_map(c_occ.shape[0])
+    ia_pair = c_vir.T @ half_i  # (a, κ)
+    out = np.empty((c_vir.shape[1], c_occ.shape[1], c_vir.shape[1]))
+    for a0 in range(0, c_vir.shape[1], a_step):
+        ia_ls = ia_pair[a0 : a0 + a_step][:, pairs]  # (a, λ, σ)
+        out[a0 : a0 + a_step] = np.matmul(np.matmul(c_occ.T, ia_ls), c_vir)
+    return out
+
+
+def _opposite_and_exchange(
+    packed: np.ndarray,
+    c_occ: np.ndarray,
+    c_vir: np.ndarray,
+    e_occ: np.ndarray,
+    e_vir: np.ndarray,
+    budget: int,
+    progress: Callable[[float], None] | None = None,
+) -> tuple[float, float]:
+    """Σ (ia|jb)² / Δ and Σ (ia|jb)(ib|ja) / Δ over active i, j and virtual a, b (hartree)."""
+    nbf, n_occ = c_occ.shape
+    npair = nbf * (nbf + 1) // 2
+    block = int(max(1, min(n_occ, budget // (8 * nbf * npair))))
+    # Virtual orbitals per unpacking step, so (a, λ, σ) stays within the budget too.
+    a_step = int(max(1, min(c_vir.shape[1], budget // (8 * nbf * nbf * 4))))
+    opposite = exchange = 0.0
+    for start in range(0, n_occ, block):
+        half = _first_quarter(packed, c_occ[:, start : start + block])
+        for k, i in enumerate(range(start, min(start + block, n_occ))):
+            iajb = _ovov_row(half[k], c_occ, c_vir, a_step)
+            denominator = e_occ[i] + e_occ[None, :, None] - e_vir[:, None, None] - e_vir[None, None, :]
+            amplitudes = iajb / denominator
+            opposite += float(np.einsum("ajb,ajb->", amplitudes, iajb))
+            exchange += float(np.einsum("ajb,bja->", amplitudes, iajb))
+            if progress is not None:
+                progress((i + 1) / n_occ)
+        del half
+    return opposite, exchange
+
+
+def mp2_energy(
+    result: RHFResult,
+    *,
+    frozen_core: int = 0,
+    eri: ERIStore | None = None,
+    memory_bytes: int | None = None,
+    progress: Callable[[float], None] | None = None,
+) -> MP2Result:
+    """Canonical closed-shell MP2 and SCS-MP2 energies from a converged RHF run.
 
     Parameters
     ----------
     result : RHFResult
         A converged RHF result (uses ``coefficients``, ``orbital_energies``,
-        ``occupations``, ``basis`` and ``energy_total``).
+        ``occupations``, ``basis``, ``options.screening`` and
+        ``energy_total``).
     frozen_core : int, optional
         Number of lowest occupied orbitals excluded from the correlation
         treatment (see :func:`core_orbital_count` for the usual choice).
+    eri : ERIStore, optional
+        The basis' stored integrals, if already at hand; otherwise they are
+        computed again (8 bytes per unique integral, screened as the SCF
+        was; the SCF's own store is gone by then, so the peak memory stays
+        near the SCF's).
+    memory_bytes : int, optional
+        Budget for the work array of one occupied block, in bytes
+        (default: half the packed store's size, at least 32 MiB, so the
+        peak stays within 1.5 times the SCF's, which held at least the
+        store). At least one occupied orbital is done at a time, whatever
+        the budget.
+    progress : callable, optional
+        Called with the fraction (0..1] of the work done: the integral pass
+        (when the store is computed here) as the first half, then each
+        occupied orbital.
 
     Returns
     -------
@@ -113,40 +250,69 @@ def mp2_energy(result: RHFResult, *, frozen_core: int = 0) -> MP2Result:
     ConvergenceError
         If the RHF run did not converge (MP2 needs canonical orbitals).
     InputError
-        If ``frozen_core`` is negative or leaves no occupied orbital, or the
-        basis has no virtual orbitals.
+        If ``frozen_core`` is negative or leaves no occupied orbital, the
+        basis has no virtual orbitals, or ``eri`` belongs to another basis.
+    ResourceError
+        If ``eri`` is not given and the store (8 bytes per unique
+        integral) would exceed ``result.options.memory_limit``.
     """
-    from ..integrals import eri_tensor
+    from ..integrals import compute_eri
 
     require_placed(result, "MP2")
     if not result.converged:
         raise ConvergenceError("MP2 needs a converged RHF result; this one did not converge", result)
-    occupied = np.flatnonzero(np.asarray(result.occupations) > 0.0)
-    virtual = np.flatnonzero(np.asarray(result.occupations) == 0.0)
+    occupations = np.asarray(result.occupations)
+    occupied = np.flatnonzero(occupations > 0.0)
+    virtual = np.flatnonzero(occupations == 0.0)
+    frozen_core = int(frozen_core)
     if not 0 <= frozen_core < occupied.size:
         raise InputError(f"frozen_core = {frozen_core} must be between 0 and {occupied.size - 1} (occupied orbitals - 1)")
     if virtual.size == 0:
         raise InputError("the basis has no virtual orbitals, so MP2 has nothing to correlate into")
+    nbf = result.basis.n_functions
+    if eri is None:
+        need = 8 * (nbf * (nbf + 1) // 2) * (nbf * (nbf + 1) // 2 + 1) // 2
+        limit = result.options.memory_limit_bytes
+        if need > limit:
+            raise ResourceError(
+                f"MP2 reads the stored integrals, {need / 2**20:.3g} MiB for {nbf} functions, but "
+                f"{limit / 2**20:.3g} MiB are allowed (--memory MIB, memory_limit)"
+            )
+        report = None if progress is None else (lambda fraction: progress(0.5 * fraction))
+        eri = compute_eri(
+            result.basis, threshold=result.options.screening, progress=report, threads=result.options.n_threads, lean=True
+        )
+        start = 0.5
+    else:
+        start = 0.0
+    if eri.n_functions != nbf:
+        raise InputError(f"the integral store has {eri.n_functions} functions but the basis has {nbf}")
     active = occupied[frozen_core:]
     coefficients = np.asarray(result.coefficients, dtype=np.float64)
+    c_occ = np.ascontiguousarray(coefficients[:, active])
+    c_vir = np.ascontiguousarray(coefficients[:, virtual])
     energies = np.asarray(result.orbital_energies, dtype=np.float64)
-    ovov = _ovov_integrals(eri_tensor(result.basis), coefficients[:, active], coefficients[:, virtual])
-    e_o, e_v = energies[active], energies[virtual]
-    denominator = e_o[:, None, None, None] - e_v[None, :, None, None] + e_o[None, None, :, None] - e_v[None, None, None, :]
-    amplitudes = ovov / denominator
-    opposite = float(np.einsum("iajb,iajb->", amplitudes, ovov))
-    same = opposite - float(np.einsum("iajb,ibja->", amplitudes, ovov))
+    e_occ, e_vir = energies[active], energies[virtual]
+
+    budget = max(_MIN_WORK_BYTES, eri.packed.nbytes // 2) if memory_bytes is None else int(memory_bytes)
+    done = None if progress is None else (lambda fraction: progress(start + (1.0 - start) * fraction))
+    opposite, exchange = _opposite_and_exchange(eri.packed, c_occ, c_vir, e_occ, e_vir, budget, done)
+    same = opposite - exchange
     correlation = opposite + same
+    scs = SCS_OPPOSITE_SPIN * opposite + SCS_SAME_SPIN * same
+    reference = float(result.energy_total)
     return MP2Result(
         correlation=correlation,
-        total=float(result.energy_total) + correlation,
-        reference=float(result.energy_total),
+        total=reference + correlation,
+        reference=reference,
         same_spin=same,
         opposite_spin=opposite,
-        frozen_core=int(frozen_core),
+        frozen_core=frozen_core,
         n_active_occupied=int(active.size),
         n_virtual=int(virtual.size),
+        scs_correlation=scs,
+        scs_total=reference + scs,
     )
 
 
-__all__ = ["MP2Result", "mp2_energy", "core_orbital_count"]
+__all__ = ["MP2Result", "mp2_energy", "core_orbital_count", "SCS_OPPOSITE_SPIN", "SCS_SAME_SPIN"]

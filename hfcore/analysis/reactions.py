@@ -16,7 +16,7 @@ species × basis), so that they could be handed to another runner;
 from __future__ import annotations
 
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
@@ -206,6 +206,10 @@ class ReactionStudy:
         }
 
 
+#: Runs reaction pieces elsewhere: (pieces, species) -> {(species index, basis): (energy / Eh, seconds)}.
+PieceRunner = Callable[[Sequence["ReactionPiece"], Sequence[Species]], Mapping[tuple[int, str], tuple[float, float]]]
+
+
 def reaction_energies(
     reactions: Sequence[str] | str,
     bases: Sequence[str],
@@ -214,6 +218,7 @@ def reaction_energies(
     spherical: bool | None = None,
     options: SCFOptions | None = None,
     progress: Callable[[str], None] | None = None,
+    runner: PieceRunner | None = None,
 ) -> ReactionStudy:
     """RHF reaction energies of one or more equations in several basis sets.
 
@@ -230,7 +235,12 @@ def reaction_energies(
     options : SCFOptions, optional
         Settings of every SCF run.
     progress : callable, optional
-        Called with a one-line message after each SCF run.
+        Called with a one-line message after each SCF run (in-process runs).
+    runner : callable, optional
+        Runs the pieces elsewhere instead of in this process: called as
+        ``runner(pieces, species)`` after every check, it returns the total
+        energy (hartree) and wall time (seconds) of each piece, keyed by
+        ``(species index, basis)`` (e.g. through the batch machinery).
 
     Returns
     -------
@@ -258,6 +268,11 @@ def reaction_energies(
     started = time.perf_counter()
     energies: dict[tuple[int, str], float] = {}
     seconds: dict[str, float] = dict.fromkeys(names, 0.0)
+    if runner is not None:
+        for (k, name), (energy, wall) in runner(pieces, species).items():
+            energies[(k, name)] = float(energy)
+            seconds[name] += float(wall)
+        pieces = []
     for step, piece in enumerate(pieces, start=1):
         t0 = time.perf_counter()
         basis = basis_of[(piece.species, piece.basis)]
@@ -324,4 +339,5 @@ __all__ = [
     "load_reactions",
     "reaction_pieces",
     "reaction_energies",
+    "PieceRunner",
 ]

@@ -77,8 +77,8 @@ class ERIStore:
     integral, reported by :attr:`nbytes`); every call is then two BLAS
     packed symmetric matrix-vector products over npair(npair+1)/2 elements.
     A lean store reads each row of the packed integrals twice per K build
-    instead (:meth:`_lean_exchange`): the same memory traffic, in about
-    npair BLAS calls rather than one.
+    instead (:meth:`_lean_jk`, J and K in one read of the store), in
+    about 3 npair BLAS calls rather than two.
     """
 
     n_functions: int
@@ -165,16 +165,19 @@ class ERIStore:
         n = self.n_functions
         first, second = np.tril_indices(n)
         dp = d[first, second] * np.where(first == second, 1.0, 2.0)
-        jp = blas.dspmv(self.n_pairs, 1.0, self.packed, dp)
         if self.lean:
-            return _unpack_symmetric(jp, n), self._lean_exchange(d)
+            jp, k = self._lean_jk(d, dp)
+            return _unpack_symmetric(jp, n), k
+        jp = blas.dspmv(self.n_pairs, 1.0, self.packed, dp)
         kp = blas.dspmv(self.n_pairs, 1.0, self._exchange_kernel(), dp)
         return _unpack_symmetric(jp, n), _unpack_symmetric(kp, n)
 
-    def _lean_exchange(self, d: np.ndarray) -> np.ndarray:
-        """K of a symmetric density straight from the packed integrals, shape (nbf, nbf).
+    def _lean_jk(self, d: np.ndarray, dp: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """J over packed pairs, shape (npair,), and K, shape (nbf, nbf), in one read of the store.
 
-        K_ab = Σ_cd (ac|bd) D_cd. The stored row of pair IJ = (i, j) holds
+        ``dp`` is the density over packed pairs with off-diagonal elements
+        doubled. J: row IJ adds row . dp[:IJ+1] to J[IJ] and row[:IJ] dp[IJ]
+        to J[:IJ] (the upper triangle by symmetry). K_ab = Σ_cd (ac|bd) D_cd. The stored row of pair IJ = (i, j) holds
         (ij|bd) for every pair BD <= IJ: as a packed symmetric matrix V
         (zero past the row's end, its last element (ij|ij) halved) it gives
         H[i] += V D[j] and, for i != j, H[j] += V D[i]; the pairs BD > IJ
@@ -192,16 +195,19 @@ class ERIStore:
         bounds = np.unique(np.concatenate([[0], cuts, [n]])).astype(int)
         units = list(zip(bounds[:-1], bounds[1:]))
         h = np.zeros((n, n))
-        for part in ordered_map(lambda unit: self._lean_rows(unit[0], unit[1], d), units, self.threads):
-            h += part
-        return h + h.T
+        jp = np.zeros(self.n_pairs)
+        for part_j, part_h in ordered_map(lambda unit: self._lean_rows(unit[0], unit[1], d, dp), units, self.threads):
+            jp += part_j
+            h += part_h
+        return jp, h + h.T
 
-    def _lean_rows(self, first: int, stop: int, d: np.ndarray) -> np.ndarray:
-        """The share of H in :meth:`_lean_exchange` of the rows with first index in [first, stop)."""
+    def _lean_rows(self, first: int, stop: int, d: np.ndarray, dp: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """The shares of J and H in :meth:`_lean_jk` of the rows with first index in [first, stop)."""
         n = self.n_functions
         h = np.zeros((n, n))
+        jp = np.zeros(self.n_pairs)
         packed = self.packed
-        spmv = blas.dspmv
+        spmv, axpy = blas.dspmv, blas.daxpy
         for i in range(first, stop):
             ti = i * (i + 1) // 2
             js = np.arange(i + 1)
@@ -216,15 +222,20 @@ class ERIStore:
             # (a, c) = (j, i), j < i: H[j, i] += R[j] · D[i], H[j, d] += R[j, d] D[i, i].
             h[:i, i] += r[:i] @ d[i, : i + 1]
             h[:i, :i] += r[:i, :i] * d[i, i]
-            if i == 0:
-                continue
             for j in range(i + 1):
+                pair = ti + j
                 start = int(starts[j]) - ti
-                full = packed[start : start + ti]
+                row = packed[start : start + pair + 1]
+                jp[pair] += row @ dp[: pair + 1]
+                if pair:
+                    axpy(row[:pair], jp[:pair], a=dp[pair])
+                if i == 0:
+                    continue
+                full = row[:ti]
                 spmv(i, 1.0, full, d[j, :i], beta=1.0, y=h[i, :i], overwrite_y=1)
                 if j < i:
                     spmv(i, 1.0, full, d[i, :i], beta=1.0, y=h[j, :i], overwrite_y=1)
-        return h
+        return jp, h
 
 
 def _unpack_symmetric(vec: np.ndarray, n: int) -> np.ndarray:

@@ -232,7 +232,7 @@ def build_accelerator(options: SCFOptions) -> Accelerator:
     """
     stages: list[Accelerator] = []
     if options.accelerator == "diis":
-        stages.append(DIIS(options.diis_space, options.diis_start))
+        stages.append(DIIS(options.max_diis_size, options.diis_start))
         if options.damping > 0.0:
             stages.append(Damping(options.damping, stop=options.diis_start))
     elif options.accelerator == "damping":

@@ -35,6 +35,7 @@ def run_rhf(
     progress: Progress | None = None,
     integral_progress: Callable[[float], None] | None = None,
     shared: "SharedIntegrals | None" = None,
+    raise_on_failure: bool = True,
 ) -> RHFResult:
     """Restricted Hartree-Fock energy and orbitals of a closed-shell molecule.
 
@@ -62,6 +63,11 @@ def run_rhf(
         the nuclear attraction of ``molecule`` is computed. Several
         molecules that differ only in their ghost atoms and charge share
         one basis and so one set (a counterpoise calculation).
+    raise_on_failure : bool, optional
+        True (default): an SCF that does not converge raises
+        :class:`ConvergenceError`. False: the unconverged record is returned
+        instead, with ``converged=False`` and ``message`` saying why, so a
+        prototyping loop can inspect it.
 
     Returns
     -------
@@ -80,12 +86,13 @@ def run_rhf(
         Stored integrals forced (``options.direct=False``) beyond
         ``options.memory_limit``, raised before any is computed.
     ConvergenceError
-        No convergence within ``options.max_iterations``; ``.result`` holds
-        the unconverged record (with molecule and basis filled in).
+        No convergence within ``options.max_iterations`` (unless
+        ``raise_on_failure`` is False); ``.result`` holds the unconverged
+        record (with molecule and basis filled in).
     """
     options = options or SCFOptions()
     with blas_threads(options.n_threads):
-        return _run_rhf(molecule, basis, options, guess, progress, integral_progress, shared)
+        return _run_rhf(molecule, basis, options, guess, progress, integral_progress, shared, raise_on_failure)
 
 
 def _run_rhf(
@@ -96,6 +103,7 @@ def _run_rhf(
     progress: Progress | None,
     integral_progress: Callable[[float], None] | None,
     shared: "SharedIntegrals | None",
+    raise_on_failure: bool = True,
 ) -> RHFResult:
     t0 = time.perf_counter()
     molecule.require_closed_shell()
@@ -145,6 +153,10 @@ def _run_rhf(
             progress=progress,
         )
     except ConvergenceError as exc:
+        if exc.result is None:
+            raise
+        if not raise_on_failure:
+            return finish(exc.result)
         raise ConvergenceError(str(exc), finish(exc.result)) from None
     return finish(result)
 

@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import functools
 import math
+import warnings
 from dataclasses import dataclass
 from typing import Any
 
@@ -65,8 +67,9 @@ class SCFOptions:
         commutator F D S - S D F in the orthonormal basis, is below this.
     max_iterations : int
         Give up (``ConvergenceError``) after this many iterations.
-    diis_space : int
-        Number of Fock/error pairs DIIS keeps (at least 2).
+    max_diis_size : int
+        Most Fock/error pairs DIIS keeps (at least 2); the number it holds
+        in each iteration is ``SCFIteration.diis_size``.
     diis_start : int
         First iteration (1-based) at which DIIS extrapolates; it stores
         pairs from the first iteration on.
@@ -124,13 +127,17 @@ class SCFOptions:
     threads : int or None
         Threads of the integral passes (stored and direct) and of BLAS
         (when ``threadpoolctl`` is installed); None means the cores this
-        process may use. The energy is the same to the last digit for any
-        number.
+        process may use. The integral passes give the same bits for any
+        number; threaded BLAS may move the energy's last digits (~1e-13 Eh).
     fit_basis : str, BasisFamily, BasisSet or None
         Density-fitted J and K with this fitting set: ``"auto"`` (see
         :func:`hfcore.basis.fitting.fitting_basis`), a set's name such as
         ``"cc-pvtz-jkfit"``, a family or a placed set. None (default) uses
         the exact integrals. Excludes ``direct``.
+
+    ``diis_space`` is the deprecated name of ``max_diis_size``, kept for
+    one release: ``SCFOptions(diis_space=N)`` still works (with a
+    DeprecationWarning) and ``options.diis_space`` reads ``max_diis_size``.
 
     Raises
     ------
@@ -141,7 +148,7 @@ class SCFOptions:
     energy_tol: float = 1e-10
     gradient_tol: float = 1e-7
     max_iterations: int = 100
-    diis_space: int = 8
+    max_diis_size: int = 8
     diis_start: int = 1
     lindep_threshold: float = 1e-7
     screening: float = 1e-12
@@ -162,7 +169,7 @@ class SCFOptions:
         for name in ("energy_tol", "gradient_tol", "lindep_threshold"):
             object.__setattr__(self, name, _positive(name, getattr(self, name)))
         object.__setattr__(self, "max_iterations", _count("max_iterations", self.max_iterations, 1))
-        object.__setattr__(self, "diis_space", _count("diis_space", self.diis_space, 2))
+        object.__setattr__(self, "max_diis_size", _count("max_diis_size", self.max_diis_size, 2))
         object.__setattr__(self, "diis_start", _count("diis_start", self.diis_start, 1))
         self._check_ranges()
         self._check_accelerator()
@@ -194,6 +201,11 @@ class SCFOptions:
             raise InputError(f"SCF option fit_basis must be a name, a BasisFamily or a BasisSet, got {value!r}")
         if self.direct is not None:
             raise InputError("SCF options fit_basis and direct exclude each other: fitted J and K need no stored or direct integrals")
+
+    @property
+    def diis_space(self) -> int:
+        """Deprecated name of :attr:`max_diis_size`."""
+        return self.max_diis_size
 
     @property
     def memory_limit_bytes(self) -> int:
@@ -229,5 +241,20 @@ class SCFOptions:
         if name == "second_order" and self.level_shift > 0.0:
             raise InputError("a level shift applies to Fock-matrix accelerators, not to 'second_order'")
 
+
+_dataclass_init = SCFOptions.__init__
+
+
+@functools.wraps(_dataclass_init)
+def _init_accepting_old_names(self: SCFOptions, *args: Any, diis_space: int | None = None, **kwargs: Any) -> None:
+    if diis_space is not None:
+        warnings.warn("SCFOptions(diis_space=...) is deprecated; use max_diis_size", DeprecationWarning, stacklevel=2)
+        if "max_diis_size" in kwargs:
+            raise InputError("give max_diis_size or its deprecated name diis_space, not both")
+        kwargs["max_diis_size"] = diis_space
+    _dataclass_init(self, *args, **kwargs)
+
+
+SCFOptions.__init__ = _init_accepting_old_names  # type: ignore[method-assign]
 
 __all__ = ["SCFOptions", "ACCELERATOR_NAMES", "default_memory_limit", "MEMORY_FRACTION", "FALLBACK_MEMORY_MIB"]

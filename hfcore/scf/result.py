@@ -199,5 +199,20 @@ class RHFResult:
         lumo = self.lumo
         return None if lumo is None else float(self.orbital_energies[lumo])
 
+    def to_dict(self) -> dict:
+        """The record as the JSON export writes it (:func:`hfcore.export.result_record`).
+
+        Raises
+        ------
+        InputError
+            For a result of the SCF on bare matrices (no molecule or basis).
+        """
+        from ..errors import InputError
+        from ..export import result_record
+
+        if self.molecule is None or self.basis is None:
+            raise InputError("to_dict needs an RHF result that carries its molecule and basis (from run_rhf)")
+        return result_record(self)
+
 
 __all__ = ["SCFIteration", "RHFResult"]

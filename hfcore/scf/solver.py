@@ -254,7 +254,7 @@ class _AidSchedule:
         opts = self.options
         self.second_order = None
         if name == "diis+level_shift":
-            self.accelerator = Chain([DIIS(opts.diis_space, 1), LevelShift(AID_LEVEL_SHIFT)])
+            self.accelerator = Chain([DIIS(opts.max_diis_size, 1), LevelShift(AID_LEVEL_SHIFT)])
         elif name == "second_order":
             self.accelerator = Chain([])
             self.second_order = SecondOrderStep()

@@ -1,0 +1,83 @@
+"""One-number properties of an RHF state: orbital gap, Koopmans ionisation energy, virial ratio."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from ._checks import require_placed
+
+if TYPE_CHECKING:
+    from ..scf.result import RHFResult
+
+
+@dataclass(frozen=True)
+class OrbitalProperties:
+    """Properties read off the canonical orbitals and the energy parts.
+
+    Attributes
+    ----------
+    homo_lumo_gap : float or None
+        ε(LUMO) - ε(HOMO) in hartree; None without virtual orbitals.
+    koopmans_ionisation : float
+        -ε(HOMO) in hartree, the Koopmans estimate of the first vertical
+        ionisation energy.
+    kinetic : float
+        Electronic kinetic energy T = tr(D T) in hartree.
+    potential : float
+        Potential energy V = E_total - T in hartree (nuclear attraction,
+        electron repulsion and nuclear repulsion).
+    virial_ratio : float
+        -V / T; 2 for an exact or fully variational state at equilibrium
+        (virial theorem), close to 2 in a good basis.
+    """
+
+    homo_lumo_gap: float | None
+    koopmans_ionisation: float
+    kinetic: float
+    potential: float
+    virial_ratio: float
+
+    def to_dict(self) -> dict[str, float | None]:
+        """The record as plain numbers (hartree), for JSON."""
+        return {
+            "homo_lumo_gap": self.homo_lumo_gap,
+            "koopmans_ionisation": self.koopmans_ionisation,
+            "kinetic": self.kinetic,
+            "potential": self.potential,
+            "virial_ratio": self.virial_ratio,
+        }
+
+
+def orbital_properties(result: RHFResult) -> OrbitalProperties:
+    """HOMO-LUMO gap, Koopmans ionisation energy and virial ratio of an RHF run.
+
+    Parameters
+    ----------
+    result : RHFResult
+        A finished run that carries its basis (the kinetic energy matrix is
+        needed for the virial ratio).
+
+    Returns
+    -------
+    OrbitalProperties
+    """
+    from ..integrals import kinetic
+
+    require_placed(result, "the virial ratio")
+    lumo = result.lumo_energy
+    gap = None if lumo is None else lumo - result.homo_energy
+    t = float(np.sum(np.asarray(result.density) * kinetic(result.basis)))
+    v = float(result.energy_total) - t
+    return OrbitalProperties(
+        homo_lumo_gap=gap,
+        koopmans_ionisation=-result.homo_energy,
+        kinetic=t,
+        potential=v,
+        virial_ratio=-v / t,
+    )
+
+
+__all__ = ["OrbitalProperties", "orbital_properties"]

@@ -1,0 +1,59 @@
+"""One vocabulary: old names keep working for one release, records become dicts one way."""
+
+from __future__ import annotations
+
+import dataclasses
+import io
+import json
+from pathlib import Path
+
+import pytest
+
+from hfcore.cli import main
+from hfcore.errors import InputError
+from hfcore.scf import SCFOptions
+
+INPUTS = Path(__file__).resolve().parent.parent / "inputs"
+
+
+def test_diis_space_keyword_sets_max_diis_size_with_a_warning():
+    with pytest.warns(DeprecationWarning, match="max_diis_size"):
+        options = SCFOptions(diis_space=5)
+    assert options.max_diis_size == 5 and options.diis_space == 5
+
+
+def test_both_names_at_once_are_refused():
+    with pytest.raises(InputError, match="not both"), pytest.warns(DeprecationWarning):
+        SCFOptions(diis_space=5, max_diis_size=6)
+
+
+def test_replace_changes_the_new_name():
+    assert dataclasses.replace(SCFOptions(max_diis_size=4), max_diis_size=6).diis_space == 6
+
+
+@pytest.mark.parametrize("flag", ["--max-diis-size", "--diis-space"])
+def test_both_spellings_of_the_flag_reach_the_json(flag):
+    out = io.StringIO()
+    code = main(["energy", str(INPUTS / "water.xyz"), flag, "3", "--json", "-"], stdout=out, stderr=io.StringIO())
+    assert code == 0
+    thresholds = json.loads(out.getvalue())["scf"]["thresholds"]
+    assert thresholds["max_diis_size"] == 3 and thresholds["diis_space"] == 3
+
+
+def test_rhf_result_becomes_a_dict_the_way_the_json_export_writes_it():
+    import hfcore
+
+    out = io.StringIO()
+    assert main(["energy", str(INPUTS / "water.xyz"), "--json", "-"], stdout=out, stderr=io.StringIO()) == 0
+    from_cli = json.loads(out.getvalue())
+    record = hfcore.run_rhf(hfcore.read_xyz(INPUTS / "water.xyz")).to_dict()
+    assert set(from_cli) - {"analysis"} == set(record)
+    # source: exact property — determinism: the same input gives the same digits
+    assert record["energy"]["total"] == from_cli["energy"]["total"]
+
+
+def test_the_two_guess_lists_have_their_own_names():
+    from hfcore.analysis.compare import COMPARISON_GUESSES, GUESSES
+    from hfcore.scf import GUESSES as SCF_GUESSES
+
+    assert GUESSES is COMPARISON_GUESSES and "projected" in COMPARISON_GUESSES and "projected" not in SCF_GUESSES
