@@ -52,6 +52,8 @@ CC = "correlation-consistent"
 KARLSRUHE = "karlsruhe"
 #: Auxiliary sets for density-fitted Coulomb and exchange, not orbital sets.
 JK_FITTING = "jk-fitting"
+#: Auxiliary sets for density-fitted MP2 (same shell limits as JK_FITTING).
+MP2_FITTING = "mp2-fitting"
 
 SETS = (
     SetSpec("3-21G", "3-21g.json", (), POPLE, False, "Split-valence set: inner shells of 3 Gaussians, valence split 2+1."),
@@ -71,6 +73,11 @@ SETS = (
     SetSpec("cc-pVTZ-JKFIT", "cc-pvtz-jkfit.json", (), JK_FITTING, True, "Fitting set for density-fitted Coulomb and exchange with cc-pVTZ (and cc-pVDZ)."),
     SetSpec("cc-pVQZ-JKFIT", "cc-pvqz-jkfit.json", (), JK_FITTING, True, "Fitting set for density-fitted Coulomb and exchange with cc-pVQZ."),
     SetSpec("cc-pV5Z-JKFIT", "cc-pv5z-jkfit.json", (), JK_FITTING, True, "Fitting set for density-fitted Coulomb and exchange with cc-pV5Z."),
+    SetSpec("cc-pVDZ-RIFIT", "cc-pvdz-rifit.json", ("cc-pVDZ-RI",), MP2_FITTING, True, "Fitting set for density-fitted MP2 with cc-pVDZ."),
+    SetSpec("cc-pVTZ-RIFIT", "cc-pvtz-rifit.json", ("cc-pVTZ-RI",), MP2_FITTING, True, "Fitting set for density-fitted MP2 with cc-pVTZ."),
+    SetSpec("cc-pVQZ-RIFIT", "cc-pvqz-rifit.json", ("cc-pVQZ-RI",), MP2_FITTING, True, "Fitting set for density-fitted MP2 with cc-pVQZ."),
+    SetSpec("def2-SVP-RIFIT", "def2-svp-rifit.json", ("def2-SVP-RI",), MP2_FITTING, True, "Fitting set for density-fitted MP2 with def2-SVP."),
+    SetSpec("def2-TZVP-RIFIT", "def2-tzvp-rifit.json", ("def2-TZVP-RI",), MP2_FITTING, True, "Fitting set for density-fitted MP2 with def2-TZVP."),
 )
 
 

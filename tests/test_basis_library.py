@@ -30,6 +30,7 @@ SHIPPED = [
     "3-21G", "6-31G", "6-31G*", "6-31G**", "6-31+G*", "6-311G**",
     "cc-pVDZ", "cc-pVTZ", "cc-pVQZ", "aug-cc-pVDZ", "aug-cc-pVTZ", "def2-SVP", "def2-TZVP",
     "def2-universal-JKFIT", "cc-pVTZ-JKFIT", "cc-pVQZ-JKFIT", "cc-pV5Z-JKFIT",
+    "cc-pVDZ-RIFIT", "cc-pVTZ-RIFIT", "cc-pVQZ-RIFIT", "def2-SVP-RIFIT", "def2-TZVP-RIFIT",
 ]  # fmt: skip
 
 

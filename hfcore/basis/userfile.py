@@ -38,6 +38,10 @@ from .shells import MAX_FIT_L, MAX_L, ElementShell
 FORMAT_TAG = "hfcore-basis/1"
 #: The ``family`` value of a fitting set (for density-fitted J and K), whose shells may reach MAX_FIT_L.
 FITTING_FAMILY = "jk-fitting"
+#: The ``family`` value of a fitting set for density-fitted MP2 (same shell limits as FITTING_FAMILY).
+MP2_FITTING_FAMILY = "mp2-fitting"
+#: Every family value whose shells may reach MAX_FIT_L.
+FITTING_FAMILIES = (FITTING_FAMILY, MP2_FITTING_FAMILY)
 
 #: A basis file larger than this (bytes) is refused unread; the largest
 #: shipped set is about 40 kB.
@@ -209,7 +213,7 @@ class DocumentFamily(CachedFamily):
         self._document = document
         self._keys = element_keys(document, source)
         # Fitting sets reach higher angular momentum than orbital sets.
-        self.max_l = MAX_FIT_L if document.get("family") == FITTING_FAMILY else MAX_L
+        self.max_l = MAX_FIT_L if document.get("family") in FITTING_FAMILIES else MAX_L
 
     def elements(self) -> frozenset[int]:
         return frozenset(self._keys)
@@ -274,4 +278,4 @@ def load_basis_file(path: str | Path) -> BasisFamily:
     return family
 
 
-__all__ = ["FORMAT_TAG", "FITTING_FAMILY", "DocumentFamily", "load_basis_file", "parse_shell", "parse_element_shells", "read_document", "citation_text"]
+__all__ = ["FORMAT_TAG", "FITTING_FAMILY", "MP2_FITTING_FAMILY", "FITTING_FAMILIES", "DocumentFamily", "load_basis_file", "parse_shell", "parse_element_shells", "read_document", "citation_text"]
