@@ -33,6 +33,8 @@ from ..errors import ConvergenceError, InputError, ResourceError
 from ._checks import require_placed
 
 if TYPE_CHECKING:
+    from ..basis.family import BasisFamily
+    from ..basis.shells import BasisSet
     from ..geometry import Molecule
     from ..integrals.two_electron import ERIStore
     from ..scf.result import RHFResult
@@ -77,6 +79,10 @@ class MP2Result:
         plus 1/3 of the same-spin part (hartree).
     scs_total : float
         RHF total energy plus ``scs_correlation`` (hartree).
+    fit_name : str or None
+        The fitting set of density-fitted MP2 (None: exact integrals).
+    fit_n_functions : int or None
+        Functions of that fitting set on the molecule (None: exact integrals).
     """
 
     correlation: float
@@ -89,6 +95,8 @@ class MP2Result:
     n_virtual: int
     scs_correlation: float = 0.0
     scs_total: float = 0.0
+    fit_name: str | None = None
+    fit_n_functions: int | None = None
 
     def to_dict(self) -> dict[str, float | int]:
         """The record as plain numbers (hartree), for JSON."""
@@ -103,6 +111,8 @@ class MP2Result:
             "frozen_core": self.frozen_core,
             "n_active_occupied": self.n_active_occupied,
             "n_virtual": self.n_virtual,
+            "fit_name": self.fit_name,
+            "fit_n_functions": self.fit_n_functions,
         }
 
 
@@ -176,6 +186,90 @@ def _ovov_row(half_i: np.ndarray, c_occ: np.ndarray, c_vir: np.ndarray, a_step: 
     return out
 
 
+def pair_sums(iajb: np.ndarray, e_i: float, e_occ: np.ndarray, e_vir: np.ndarray) -> tuple[float, float]:
+    """One occupied orbital's share of Σ (ia|jb)² / Δ and Σ (ia|jb)(ib|ja) / Δ (hartree).
+
+    Parameters
+    ----------
+    iajb : ndarray, shape (n_vir, n_occ, n_vir)
+        (ia|jb) for this i, indexed [a, j, b].
+    e_i : float
+        Orbital energy of i (hartree).
+    e_occ, e_vir : ndarray, shape (n_occ,) and (n_vir,)
+        Active occupied and virtual orbital energies (hartree).
+    """
+    denominator = e_i + e_occ[None, :, None] - e_vir[:, None, None] - e_vir[None, None, :]
+    amplitudes = iajb / denominator
+    return float(np.einsum("ajb,ajb->", amplitudes, iajb)), float(np.einsum("ajb,bja->", amplitudes, iajb))
+
+
+def orbital_spaces(result: RHFResult, frozen_core: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Active occupied and virtual coefficients and energies, after the checks every MP2 needs.
+
+    Returns
+    -------
+    c_occ : ndarray, shape (nbf, n_active)
+    c_vir : ndarray, shape (nbf, n_vir)
+    e_occ : ndarray, shape (n_active,)
+    e_vir : ndarray, shape (n_vir,)
+
+    Raises
+    ------
+    ConvergenceError, InputError
+        As :func:`mp2_energy`.
+    """
+    require_placed(result, "MP2")
+    if not result.converged:
+        raise ConvergenceError("MP2 needs a converged RHF result; this one did not converge", result)
+    occupations = np.asarray(result.occupations)
+    occupied = np.flatnonzero(occupations > 0.0)
+    virtual = np.flatnonzero(occupations == 0.0)
+    if not 0 <= frozen_core < occupied.size:
+        raise InputError(f"frozen_core = {frozen_core} must be between 0 and {occupied.size - 1} (occupied orbitals - 1)")
+    if virtual.size == 0:
+        raise InputError("the basis has no virtual orbitals, so MP2 has nothing to correlate into")
+    active = occupied[frozen_core:]
+    coefficients = np.asarray(result.coefficients, dtype=np.float64)
+    energies = np.asarray(result.orbital_energies, dtype=np.float64)
+    return (
+        np.ascontiguousarray(coefficients[:, active]),
+        np.ascontiguousarray(coefficients[:, virtual]),
+        energies[active],
+        energies[virtual],
+    )
+
+
+def assemble(
+    result: RHFResult,
+    frozen_core: int,
+    n_active: int,
+    n_virtual: int,
+    opposite: float,
+    exchange: float,
+    fit_name: str | None = None,
+    fit_n_functions: int | None = None,
+) -> MP2Result:
+    """The MP2 record from Σ (ia|jb)² / Δ (``opposite``) and Σ (ia|jb)(ib|ja) / Δ (``exchange``), hartree."""
+    same = opposite - exchange
+    correlation = opposite + same
+    scs = SCS_OPPOSITE_SPIN * opposite + SCS_SAME_SPIN * same
+    reference = float(result.energy_total)
+    return MP2Result(
+        correlation=correlation,
+        total=reference + correlation,
+        reference=reference,
+        same_spin=same,
+        opposite_spin=opposite,
+        frozen_core=frozen_core,
+        n_active_occupied=int(n_active),
+        n_virtual=int(n_virtual),
+        scs_correlation=scs,
+        scs_total=reference + scs,
+        fit_name=fit_name,
+        fit_n_functions=fit_n_functions,
+    )
+
+
 def _opposite_and_exchange(
     packed: np.ndarray,
     c_occ: np.ndarray,
@@ -196,10 +290,9 @@ def _opposite_and_exchange(
         half = _first_quarter(packed, c_occ[:, start : start + block])
         for k, i in enumerate(range(start, min(start + block, n_occ))):
             iajb = _ovov_row(half[k], c_occ, c_vir, a_step)
-            denominator = e_occ[i] + e_occ[None, :, None] - e_vir[:, None, None] - e_vir[None, None, :]
-            amplitudes = iajb / denominator
-            opposite += float(np.einsum("ajb,ajb->", amplitudes, iajb))
-            exchange += float(np.einsum("ajb,bja->", amplitudes, iajb))
+            os_part, x_part = pair_sums(iajb, e_occ[i], e_occ, e_vir)
+            opposite += os_part
+            exchange += x_part
             if progress is not None:
                 progress((i + 1) / n_occ)
         del half
@@ -213,6 +306,7 @@ def mp2_energy(
     eri: ERIStore | None = None,
     memory_bytes: int | None = None,
     progress: Callable[[float], None] | None = None,
+    fit_basis: str | BasisFamily | BasisSet | None = None,
 ) -> MP2Result:
     """Canonical closed-shell MP2 and SCS-MP2 energies from a converged RHF run.
 
@@ -240,6 +334,11 @@ def mp2_energy(
         Called with the fraction (0..1] of the work done: the integral pass
         (when the store is computed here) as the first half, then each
         occupied orbital.
+    fit_basis : str, BasisFamily or BasisSet, optional
+        Density-fitted MP2 with this fitting set (a name such as
+        ``"cc-pvtz-ri"``, or ``"auto"``; see
+        :func:`hfcore.analysis.ri_mp2.ri_mp2_energy`); ``eri`` is then not
+        used and ``memory_bytes`` is the budget of the fitted factors.
 
     Returns
     -------
@@ -258,17 +357,12 @@ def mp2_energy(
     """
     from ..integrals import compute_eri
 
-    require_placed(result, "MP2")
-    if not result.converged:
-        raise ConvergenceError("MP2 needs a converged RHF result; this one did not converge", result)
-    occupations = np.asarray(result.occupations)
-    occupied = np.flatnonzero(occupations > 0.0)
-    virtual = np.flatnonzero(occupations == 0.0)
     frozen_core = int(frozen_core)
-    if not 0 <= frozen_core < occupied.size:
-        raise InputError(f"frozen_core = {frozen_core} must be between 0 and {occupied.size - 1} (occupied orbitals - 1)")
-    if virtual.size == 0:
-        raise InputError("the basis has no virtual orbitals, so MP2 has nothing to correlate into")
+    if fit_basis is not None:
+        from .ri_mp2 import ri_mp2_energy
+
+        return ri_mp2_energy(result, fit_basis, frozen_core=frozen_core, memory_bytes=memory_bytes, progress=progress)
+    c_occ, c_vir, e_occ, e_vir = orbital_spaces(result, frozen_core)
     nbf = result.basis.n_functions
     if eri is None:
         need = 8 * (nbf * (nbf + 1) // 2) * (nbf * (nbf + 1) // 2 + 1) // 2
@@ -287,32 +381,10 @@ def mp2_energy(
         start = 0.0
     if eri.n_functions != nbf:
         raise InputError(f"the integral store has {eri.n_functions} functions but the basis has {nbf}")
-    active = occupied[frozen_core:]
-    coefficients = np.asarray(result.coefficients, dtype=np.float64)
-    c_occ = np.ascontiguousarray(coefficients[:, active])
-    c_vir = np.ascontiguousarray(coefficients[:, virtual])
-    energies = np.asarray(result.orbital_energies, dtype=np.float64)
-    e_occ, e_vir = energies[active], energies[virtual]
-
     budget = max(_MIN_WORK_BYTES, eri.packed.nbytes // 2) if memory_bytes is None else int(memory_bytes)
     done = None if progress is None else (lambda fraction: progress(start + (1.0 - start) * fraction))
     opposite, exchange = _opposite_and_exchange(eri.packed, c_occ, c_vir, e_occ, e_vir, budget, done)
-    same = opposite - exchange
-    correlation = opposite + same
-    scs = SCS_OPPOSITE_SPIN * opposite + SCS_SAME_SPIN * same
-    reference = float(result.energy_total)
-    return MP2Result(
-        correlation=correlation,
-        total=reference + correlation,
-        reference=reference,
-        same_spin=same,
-        opposite_spin=opposite,
-        frozen_core=frozen_core,
-        n_active_occupied=int(active.size),
-        n_virtual=int(virtual.size),
-        scs_correlation=scs,
-        scs_total=reference + scs,
-    )
+    return assemble(result, frozen_core, c_occ.shape[1], c_vir.shape[1], opposite, exchange)
 
 
 __all__ = ["MP2Result", "mp2_energy", "core_orbital_count", "SCS_OPPOSITE_SPIN", "SCS_SAME_SPIN"]
