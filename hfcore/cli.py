@@ -214,6 +214,11 @@ def build_parser() -> argparse.ArgumentParser:
         "(default: all electrons correlated)",
     )
     post.add_argument(
+        "--mp2-fit-basis", metavar="NAME",
+        help="with --mp2: density-fitted MP2 with this RI fitting set (e.g. cc-pvtz-ri, def2-svp-ri), or auto: "
+        "cc-pVXZ-RI for (aug-)cc-pVXZ, def2-SVP-RI for def2-SVP, def2-TZVP-RI otherwise (default: exact integrals)",
+    )
+    post.add_argument(
         "--origin", nargs=3, type=float, metavar=("X", "Y", "Z"),
         help="origin of the dipole and quadrupole, in the units of --units (default: the centre of mass)",
     )
@@ -419,14 +424,16 @@ def _analysis(result: Any, origin: np.ndarray | None = None) -> dict[str, Any]:
     }
 
 
-def _mp2(args: argparse.Namespace, result: Any, console: _Console, eri: Any = None) -> Any:
-    """The MP2 record when --mp2 was given, else None."""
+def _mp2(args: argparse.Namespace, result: Any, console: _Console, eri: Any = None, fit: Any = None) -> Any:
+    """The MP2 record when --mp2 was given, else None (density-fitted with the placed set ``fit``, if any)."""
     if not args.mp2:
         return None
     from .analysis import core_orbital_count, mp2_energy
 
     progress = None if console.json_to_stdout or console.quiet else _IntegralProgress(console.stderr, "MP2")
     frozen = core_orbital_count(result.molecule) if args.frozen_core else 0
+    if fit is not None:
+        return mp2_energy(result, frozen_core=frozen, fit_basis=fit.basis, progress=progress)
     return mp2_energy(result, frozen_core=frozen, eri=eri, progress=progress)
 
 
@@ -482,6 +489,14 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
     plan = plan_jk(basis, options, fitting=fitting, n_occupied=molecule.n_electrons // 2)
     if args.frozen_core and not args.mp2:
         raise InputError("--frozen-core applies to the MP2 energy only; add --mp2")
+    if args.mp2_fit_basis is not None and not args.mp2:
+        raise InputError("--mp2-fit-basis applies to the MP2 energy only; add --mp2")
+    mp2_fit = None
+    if args.mp2_fit_basis is not None:
+        from .analysis.ri_mp2 import mp2_fitting_basis
+
+        # An unknown set or a missing element fails here, before the SCF.
+        mp2_fit = mp2_fitting_basis(molecule, basis, args.mp2_fit_basis)
     origin = None if args.origin is None else np.asarray(args.origin) / (BOHR_IN_ANGSTROM if args.units == "angstrom" else 1.0)
     console.report(f"hfcore {__version__} · restricted Hartree–Fock")
     console.report(report.format_molecule(molecule))
@@ -501,12 +516,13 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
         previous[0] = rec
 
     # MP2 reads the SCF's own stored integrals rather than computing them again.
-    shared = prepare_integrals(basis, options, integral_progress) if args.mp2 and plan.mode != "direct" else None
+    exact_mp2 = args.mp2 and mp2_fit is None
+    shared = prepare_integrals(basis, options, integral_progress) if exact_mp2 and plan.mode != "direct" else None
     result = run_rhf(molecule, basis, options, guess=args.guess, progress=show, integral_progress=integral_progress,
                      shared=shared)
     _warn_about_solution(console, result)
     mp2_started = time.perf_counter()
-    mp2 = _mp2(args, result, console, None if shared is None else shared.engine)
+    mp2 = _mp2(args, result, console, None if shared is None else shared.engine, mp2_fit)
     record = export.result_record(result, _analysis(result, origin))
     if shared is not None:
         for stage in ("integrals", "total"):

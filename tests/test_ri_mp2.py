@@ -59,3 +59,44 @@ def _run(argv):
     out, err = io.StringIO(), io.StringIO()
     code = main(argv, stdout=out, stderr=err)
     return code, out.getvalue(), err.getvalue()
+
+
+def test_cli_fitted_mp2_json_keys(tmp_path):
+    mol = hfcore.read_xyz(INPUTS / "water.xyz")
+    result = hfcore.run_rhf(mol, hfcore.build_basis(mol, "cc-pvdz"))
+    api = mp2_energy(result, frozen_core=1, fit_basis="cc-pvdz-ri")
+    out = tmp_path / "water.json"
+    code, _, err = _run(["energy", str(INPUTS / "water.xyz"), "--basis", "cc-pvdz", "--mp2", "--frozen-core",
+                         "--mp2-fit-basis", "auto", "--json", str(out), "--quiet"])
+    assert code == 0, err
+    record = json.loads(out.read_text())["mp2"]
+    assert record["fit_name"] == "cc-pVDZ-RIFIT"
+    # source: exact property (the command line and the API run the same SCF and fitted MP2)
+    assert record["fit_n_functions"] == api.fit_n_functions
+    assert record["correlation"] == pytest.approx(api.correlation, abs=1e-8)
+    assert record["frozen_core"] == 1
+
+
+@pytest.mark.parametrize(
+    ("xyz", "extra", "needle"),
+    [
+        ("water", ["--mp2-fit-basis", "no-such-ri"], "no-such-ri"),
+        ("helium_hydride", ["--charge", "1", "--mp2-fit-basis", "cc-pvtz-jkfit"], "He"),  # the JKFIT set lacks He
+    ],
+)
+def test_cli_bad_fitting_set_is_one_line_exit_3(tmp_path, xyz, extra, needle):
+    path = INPUTS / f"{xyz}.xyz"
+    if not path.exists():
+        path = tmp_path / "heh.xyz"
+        path.write_text("2\nHeH+\nHe 0 0 0\nH 0 0 0.77\n")
+    code, out, err = _run(["energy", str(path), "--basis", "cc-pvdz", "--mp2", *extra])
+    # source: the documented exit code of a basis error (README, exit codes)
+    assert code == 3
+    assert err.count("\n") == 1 and err.startswith("hfcore: error:") and needle in err
+    assert out == ""  # failed before any report, so before the SCF
+
+
+def test_cli_mp2_fit_basis_needs_mp2():
+    code, _, err = _run(["energy", str(INPUTS / "water.xyz"), "--basis", "cc-pvdz", "--mp2-fit-basis", "auto"])
+    # source: the documented exit code of an input error (README, exit codes)
+    assert code == 2 and "--mp2" in err
