@@ -149,13 +149,15 @@ def stabilise(
 #: of the lowest root is an upper bound whose error is about residual² / gap, so a
 #: residual of 1e-3 leaves it good to ~1e-6 hartree and can never make a stable
 #: solution look unstable. A check is the diagnostic a user asked for: it reports the
-#: lowest three, each to ~1e-8.
+#: lowest three, each to ~1e-8, unless each J/K build is a full integral pass (direct
+#: mode), where it too seeks only the lowest.
 FOLLOW_ANALYSIS: tuple[int, float] = (1, 1e-3)
 CHECK_ANALYSIS: tuple[int, float] = (3, 1e-4)
 
 
 def _analyse(result: RHFResult, jk: JKBuilder) -> StabilityAnalysis:
-    n_roots, tol = CHECK_ANALYSIS if result.options.stability == "check" else FOLLOW_ANALYSIS
+    check = result.options.stability == "check" and not isinstance(jk, IncrementalJK)
+    n_roots, tol = CHECK_ANALYSIS if check else FOLLOW_ANALYSIS
     return analyse_stability(
         result.coefficients, result.fock, result.n_occupied, jk,
         threshold=result.options.stability_threshold, n_roots=n_roots, tol=tol,
