@@ -32,6 +32,7 @@ def add_difference_commands(sub: Any) -> None:
         "--basis", required=True, metavar="NAMES", help="comma-separated basis names, e.g. sto-3g,6-31g,cc-pvdz"
     )
     cli._add_scf_arguments(interaction)
+    cli._add_fit_argument(interaction)
     cli._add_json_argument(interaction)
     interaction.add_argument("--plot", metavar="PNG", help="plot the interaction energies against basis size")
     _add_batch_arguments(interaction, "each piece (complex, fragment alone, fragment with ghosts) in each basis "
@@ -50,6 +51,7 @@ def add_difference_commands(sub: Any) -> None:
     )
     cli._add_geometry_arguments(reaction, geometry=False, charge=False)
     cli._add_scf_arguments(reaction)
+    cli._add_fit_argument(reaction)
     cli._add_json_argument(reaction)
     reaction.add_argument("--plot", metavar="PNG", help="plot the reaction energies against basis size")
     _add_batch_arguments(reaction, "each species in each basis as a batch job")

@@ -173,3 +173,32 @@ def test_pieces_through_the_batch_machinery_match_and_resume(study, tmp_path):
     assert code == 0 and results.read_text().splitlines() == lines  # resumed: nothing ran again
     code, _, err = run_main("interaction", str(DIMER), "--fragments", "1-3,4-6", "--basis", "sto-3g", "--workers", "2")
     assert code == 2 and "--workers goes with --results" in err
+
+
+def test_fitted_interaction_equals_the_separate_fitted_energy_runs(study):
+    # Exact property: the command's pieces are the same fitted calculations as
+    # `energy --fit-basis` runs of the complex, of each fragment alone
+    # (--atoms) and of each fragment with ghosts (--ghost), each computing its
+    # own integrals and fitted factors.
+    fit = ("--basis", "6-31g", "--fit-basis", "def2-universal-jkfit")
+    code, out, err = run_main("interaction", DIMER, "--fragments", "1-3,4-6", *fit, "--json", "-")
+    assert code == 0, err
+    row = json.loads(out)["interaction"]["rows"][0]
+
+    def energy(*extra: str) -> float:
+        code, out, err = run_main("energy", DIMER, *fit, *extra, "--json", "-")
+        assert code == 0, err
+        assert json.loads(out)["scf"]["jk_mode"] == "fitted"
+        return json.loads(out)["energy"]["total"]
+
+    e_ab = energy()
+    own = [energy("--atoms", "1-3"), energy("--atoms", "4-6")]
+    full = [energy("--ghost", "4-6"), energy("--ghost", "1-3")]
+    assert row["energy_complex"] == pytest.approx(e_ab, abs=1e-8)
+    assert row["raw"] == pytest.approx(e_ab - sum(own), abs=1e-8)
+    assert row["counterpoise"] == pytest.approx(e_ab - sum(full), abs=1e-8)
+    # The fitting was applied: the fitted interaction is near the exact one
+    # (common practice: fitting errors of these sets are ~1e-5 Eh per atom)
+    # but not equal to it.
+    exact = study.rows[BASES.index("6-31g")]
+    assert 0 < abs(row["counterpoise"] - exact.counterpoise) < 1e-4
