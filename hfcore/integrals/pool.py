@@ -82,6 +82,11 @@ def _controller():
         except ImportError:
             _CONTROLLER.append(None)
         else:
+            # The controller sees only the BLAS libraries loaded when it is
+            # built: load those of numpy and scipy first.
+            import numpy.linalg  # noqa: F401
+            import scipy.linalg  # noqa: F401
+
             _CONTROLLER.append(ThreadpoolController())
     return _CONTROLLER[0]
 
