@@ -90,3 +90,38 @@ def test_lean_exchange_is_bitwise_the_same_on_two_threads(basis):
     two = compute_eri(basis, lean=True, threads=2)
     for x, y in zip(one.jk(density), two.jk(density)):
         assert np.array_equal(x, y)
+
+
+@pytest.fixture(scope="module")
+def water_fit():
+    mol = read_input("water")
+    return mol, hfcore.build_basis(mol, "def2-svp"), hfcore.build_basis(mol, "def2-universal-jkfit")
+
+
+def test_three_centre_integrals_are_bitwise_the_same_on_two_threads(water_fit, monkeypatch):
+    from hfcore.integrals import three_center
+
+    _, orbital, aux = water_fit
+    # Many small work units, so the pool really splits this small basis.
+    monkeypatch.setattr(three_center, "_UNITS", 1 << 12)
+    monkeypatch.setattr(three_center, "_MIN_UNIT_WORK", 1)
+    one = three_center.ThreeCenterEngine(orbital, aux, threads=1)
+    two = three_center.ThreeCenterEngine(orbital, aux, threads=2)
+    for x, y in zip(one.compute_pair_major(), two.compute_pair_major()):
+        assert np.array_equal(x, y)
+    for (i1, v1), (i2, v2) in zip(one.blocks(40), two.blocks(40)):
+        assert np.array_equal(i1, i2) and np.array_equal(v1, v2)
+
+
+@pytest.mark.parametrize(("memory_limit", "storage"), [(None, "stored"), (0.7, "blocked")])
+def test_fitted_energy_on_two_threads_is_that_of_one(water_fit, memory_limit, storage):
+    # 0.7 MiB is below what the stored factors of water def2-SVP need (0.71 MiB),
+    # so the blocked path (three-centre blocks recomputed every build) runs too.
+    mol, orbital, aux = water_fit
+    extra = {} if memory_limit is None else {"memory_limit": memory_limit}
+    one = hfcore.run_rhf(mol, orbital, SCFOptions(fit_basis=aux, threads=1, **extra))
+    two = hfcore.run_rhf(mol, orbital, SCFOptions(fit_basis=aux, threads=2, **extra))
+    assert one.fit_storage == two.fit_storage == storage
+    # The three-centre passes give the same bits (test above); threaded BLAS
+    # in the SCF may move the last digits. 1e-10 Eh is the tolerance.
+    assert two.energy_total == pytest.approx(one.energy_total, abs=1e-10)

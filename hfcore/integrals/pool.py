@@ -59,13 +59,36 @@ def blas_threads(n: int) -> Iterator[None]:
     Without ``threadpoolctl`` this does nothing (BLAS keeps the thread count
     its environment variables gave it).
     """
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:
+    controller = _controller()
+    if controller is None:
         yield
         return
-    with threadpool_limits(limits=int(n), user_api="blas"):
+    with controller.limit(limits=int(n), user_api="blas"):
         yield
+
+
+_CONTROLLER: list = []
+
+
+def _controller():
+    """One ``threadpoolctl.ThreadpoolController`` per process (None without the package).
+
+    Building one scans the loaded libraries (a few ms); a pass that opens a
+    pool per block of integrals would pay that every block.
+    """
+    if not _CONTROLLER:
+        try:
+            from threadpoolctl import ThreadpoolController
+        except ImportError:
+            _CONTROLLER.append(None)
+        else:
+            # The controller sees only the BLAS libraries loaded when it is
+            # built: load those of numpy and scipy first.
+            import numpy.linalg  # noqa: F401
+            import scipy.linalg  # noqa: F401
+
+            _CONTROLLER.append(ThreadpoolController())
+    return _CONTROLLER[0]
 
 
 def work_units(weights: Sequence[int], target: int) -> list[slice]:
@@ -102,12 +125,21 @@ def ordered_map(work: Callable[[T], R], items: Iterable[T], threads: int) -> Ite
     """``work(item)`` for every item, run on ``threads`` threads, yielded in item order.
 
     At most ``2 * threads`` items are in flight, so results waiting to be
-    consumed stay few. With one thread everything runs in the caller's
-    thread. BLAS is held to one thread per pool thread meanwhile.
+    consumed stay few. With one thread, or a single item, everything runs in
+    the caller's thread. BLAS is held to one thread per pool thread meanwhile
+    (and for a single item on several threads, so the item sees the BLAS the
+    pool's workers would).
     """
     if threads <= 1:
         for item in items:
             yield work(item)
+        return
+    items = list(items)
+    if len(items) <= 1:
+        # Nothing to share: no pool, but the same one BLAS thread the pool's workers get.
+        with blas_threads(1):
+            for item in items:
+                yield work(item)
         return
     with blas_threads(1), ThreadPoolExecutor(max_workers=threads, thread_name_prefix="hfcore-tiles") as pool:
         pending: deque = deque()

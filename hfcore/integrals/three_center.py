@@ -25,7 +25,7 @@ the threshold.
 
 from __future__ import annotations
 
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 
 import numpy as np
@@ -33,7 +33,17 @@ import numpy as np
 from ..basis.shells import BasisSet
 from ..errors import InputError
 from .eri_pairs import prepare_pairs, shell_batches
-from .tiles import PairBatch, batch_pairs, chunks, iter_tiles, tile_cost, tile_integrals, tile_sizes
+from .hermite import n_hermite
+from .pool import ordered_map, resolve_threads, work_units
+from .tiles import PairBatch, Tile, batch_pairs, chunks, iter_tiles, tile_cost, tile_integrals, tile_sizes
+
+#: A pass is cut into about this many work units for the thread pool (fixed,
+#: so the units, and every integral, are the same for any thread count).
+_UNITS = 64
+#: ... each of at least this much work (primitive quartets times Hermite
+#: integrals), so that small blocks are not cut into units whose Python
+#: overhead, serialised by the interpreter lock, outweighs their numpy work.
+_MIN_UNIT_WORK = 1 << 20
 
 #: Fitting functions per block handed out by :meth:`ThreeCenterEngine.blocks`
 #: when no smaller size is asked for.
@@ -46,6 +56,22 @@ class _Piece:
 
     group: int
     rows: slice
+
+
+def _run_tiles(tasks: list[Callable[[], None]], weights: list[int], threads: int) -> None:
+    """Run tile tasks (each writes its own disjoint part of an output) on the pool.
+
+    The units depend only on the weights, and every integral is computed by
+    one tile alone, so the output holds the same bits for any thread count.
+    """
+    total = sum(weights)
+
+    def run(unit: slice) -> None:
+        for task in tasks[unit]:
+            task()
+
+    for _ in ordered_map(run, work_units(weights, max(total // _UNITS, _MIN_UNIT_WORK, 1)), threads):
+        pass
 
 
 def two_center_integrals(aux: BasisSet) -> np.ndarray:
@@ -86,6 +112,10 @@ class ThreeCenterEngine:
         Screening threshold (hartree): tiles with Q_μν (P|P)^{1/2} below it
         are skipped, and orbital primitive pairs are dropped as in the
         four-centre passes. 0 disables screening.
+    threads : int
+        Threads the tiles are spread over (:mod:`hfcore.integrals.pool`);
+        every integral is computed by one tile alone, so the arrays hold
+        the same bits for any number.
 
     Attributes
     ----------
@@ -97,13 +127,14 @@ class ThreeCenterEngine:
         nbf(nbf+1)/2, the columns of every block.
     """
 
-    def __init__(self, basis: BasisSet, aux: BasisSet, *, threshold: float = 1e-12) -> None:
+    def __init__(self, basis: BasisSet, aux: BasisSet, *, threshold: float = 1e-12, threads: int = 1) -> None:
         if threshold < 0:
             raise InputError(f"the screening threshold must be >= 0, not {threshold}")
         self.n_functions = basis.n_functions
         self.n_aux = aux.n_functions
         self.n_pairs = self.n_functions * (self.n_functions + 1) // 2
         self.threshold = float(threshold)
+        self.threads = resolve_threads(threads)
         self._pairs = prepare_pairs(basis, threshold)
         self._aux = shell_batches(aux.shells, aux.spherical)
 
@@ -149,12 +180,15 @@ class ThreeCenterEngine:
         for pieces in self._pieces(block_functions):
             index = np.concatenate([self._aux[p.group].pidx[p.rows].ravel() for p in pieces])
             out = np.zeros((index.size, self.n_pairs))
+            tasks: list[Callable[[], None]] = []
+            weights: list[int] = []
             start = 0
             for piece in pieces:
                 group = self._aux[piece.group]
                 nrow = (piece.rows.stop - piece.rows.start) * group.nf
-                self._fill(group, piece.rows, out[start : start + nrow])
+                self._fill(group, piece.rows, out[start : start + nrow], tasks, weights)
                 start += nrow
+            _run_tiles(tasks, weights, self.threads)
             yield index, out
 
     def compute(self) -> np.ndarray:
@@ -185,9 +219,9 @@ class ThreeCenterEngine:
             start[id(aux)] = column
             column += aux.n * aux.nf
         order = np.concatenate([aux.pidx.reshape(-1) for aux in self._aux])
-        for aux, orb in batch_pairs(self._aux, self._pairs):
-            base = start[id(aux)]
-            for tile in iter_tiles(aux, orb, self.threshold):
+
+        def task(tile: Tile, aux: PairBatch) -> Callable[[], None]:
+            def fill() -> None:
                 block = tile.integrals()
                 if tile.bra is aux:
                     rows, o_idx = tile.brows, tile.ket.pidx[tile.krows].reshape(-1)
@@ -195,14 +229,28 @@ class ThreeCenterEngine:
                 else:
                     rows, o_idx = tile.krows, tile.bra.pidx[tile.brows].reshape(-1)
                     block = block.reshape(o_idx.size, -1)
+                base = start[id(aux)]
                 out[o_idx, base + rows.start * aux.nf : base + rows.stop * aux.nf] = block
+
+            return fill
+
+        tasks, weights = [], []
+        for aux, orb in batch_pairs(self._aux, self._pairs):
+            for tile in iter_tiles(aux, orb, self.threshold):
+                tasks.append(task(tile, aux))
+                weights.append(tile.quartets * n_hermite(tile.bra.L + tile.ket.L))
+        _run_tiles(tasks, weights, self.threads)
         return out, order
 
-    def _fill(self, aux: PairBatch, rows: slice, out: np.ndarray) -> None:
-        """(P|μν) of fitting rows ``rows`` of one group into ``out`` (nrows * nf, npair), rows in block order.
+    def _fill(
+        self, aux: PairBatch, rows: slice, out: np.ndarray, tasks: list[Callable[[], None]], weights: list[int]
+    ) -> None:
+        """Tasks filling (P|μν) of fitting rows ``rows`` of one group into ``out`` (nrows * nf, npair).
 
         The tile generator's loop (:func:`hfcore.integrals.tiles.iter_tiles`)
-        restricted to a range of fitting rows.
+        restricted to a range of fitting rows; one task (and its work, in
+        primitive quartets times Hermite integrals) per tile is appended to
+        ``tasks`` and ``weights``, rows in block order.
         """
         local = np.arange(out.shape[0]).reshape(rows.stop - rows.start, aux.nf)
         for orb in self._pairs:
@@ -220,12 +268,25 @@ class ThreeCenterEngine:
                     count = int(np.sum(qa * orb.q[orows] >= self.threshold))
                     orows = slice(orows.start, orows.start + max(count, 1))
                     a_local = local[arows.start - rows.start : arows.stop - rows.start].reshape(-1)
-                    o_cols = orb.pidx[orows].reshape(-1)
-                    if aux_bra:
-                        block = tile_integrals(aux, arows, orb, orows).reshape(a_local.size, o_cols.size)
-                    else:
-                        block = tile_integrals(orb, orows, aux, arows).reshape(o_cols.size, a_local.size).T
-                    out[a_local[:, None], o_cols[None, :]] = block
+                    tasks.append(self._tile_task(aux, arows, orb, orows, aux_bra, a_local, out))
+                    nq = (arows.stop - arows.start) * (orows.stop - orows.start) * aux.nprim * orb.nprim
+                    weights.append(nq * n_hermite(aux.L + orb.L))
+
+    @staticmethod
+    def _tile_task(
+        aux: PairBatch, arows: slice, orb: PairBatch, orows: slice, aux_bra: bool, a_local: np.ndarray, out: np.ndarray
+    ) -> Callable[[], None]:
+        """One tile of :meth:`_fill`: its integrals written at rows ``a_local`` of ``out``."""
+
+        def fill() -> None:
+            o_cols = orb.pidx[orows].reshape(-1)
+            if aux_bra:
+                block = tile_integrals(aux, arows, orb, orows).reshape(a_local.size, o_cols.size)
+            else:
+                block = tile_integrals(orb, orows, aux, arows).reshape(o_cols.size, a_local.size).T
+            out[a_local[:, None], o_cols[None, :]] = block
+
+        return fill
 
 
 def three_center_integrals(basis: BasisSet, aux: BasisSet, *, threshold: float = 0.0) -> np.ndarray:

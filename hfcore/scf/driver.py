@@ -355,7 +355,7 @@ def _jk_builder(
     basis: BasisSet, options: SCFOptions, plan: JKPlan, integral_progress: Callable[[float], None] | None
 ) -> JKBuilder:
     if plan.mode == "fitted":
-        return FittedJK(basis, plan.fit_basis, plan.fitting, threshold=options.screening)
+        return FittedJK(basis, plan.fit_basis, plan.fitting, threshold=options.screening, threads=options.n_threads)
     if plan.mode == "direct":
         engine = integrals.DirectERI(basis, threshold=options.screening, threads=options.n_threads)
         return IncrementalJK(engine, options.rebuild_interval)

@@ -259,6 +259,9 @@ class FittedJK:
         Screening threshold of the three-centre integrals (hartree).
     metric_threshold : float
         See :class:`MetricFactor`.
+    threads : int
+        Threads the three-centre pass is spread over (the same integrals
+        for any number, see :class:`ThreeCenterEngine`).
 
     Attributes
     ----------
@@ -269,13 +272,13 @@ class FittedJK:
 
     def __init__(
         self, basis: BasisSet, aux: BasisSet, plan: FittingPlan, *, threshold: float = 1e-12,
-        metric_threshold: float = METRIC_THRESHOLD,
+        metric_threshold: float = METRIC_THRESHOLD, threads: int = 1,
     ) -> None:
         self.n_functions = basis.n_functions
         self.n_aux = aux.n_functions
         self.storage = plan.storage
         self._plan = plan
-        self._engine = ThreeCenterEngine(basis, aux, threshold=threshold)
+        self._engine = ThreeCenterEngine(basis, aux, threshold=threshold, threads=threads)
         metric = two_center_integrals(aux)
         factors = order = None
         if self.storage == "stored":

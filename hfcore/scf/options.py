@@ -106,10 +106,11 @@ class SCFOptions:
         an unstable solution along its lowest Hessian mode and converges
         again, up to ``stability_rounds`` times; ``"check"`` only reports;
         ``"off"`` skips the analysis. The default is the same in every J/K
-        mode, since a wrong state costs more than the check: with stored
-        integrals the lowest three eigenvalues are found (30-60 cheap J/K
-        builds); in direct mode, where each build is a full integral pass,
-        only the lowest, to a looser residual (1e-4; about 15-20 passes).
+        mode, since a wrong state costs more than the check. ``"follow"``
+        seeks only the lowest eigenvalue, to a residual of 1e-3 (about 10
+        J/K builds on a stable molecule); ``"check"`` reports the lowest
+        three, to 1e-4 (20-30 builds), except in direct mode, where each
+        build is a full integral pass and only the lowest is sought.
     stability_threshold : float
         A solution is stable when the lowest eigenvalue of the energy
         Hessian d²E/dκ² is at least ``-stability_threshold`` (hartree).

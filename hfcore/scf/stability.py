@@ -200,6 +200,7 @@ def lowest_eigenpairs(
     tol: float = 1e-6,
     max_iterations: int = 60,
     max_space: int = 40,
+    n_start: int | None = None,
 ) -> tuple[np.ndarray, np.ndarray, bool]:
     """Davidson's method for the lowest eigenpairs of a symmetric operator.
 
@@ -220,6 +221,10 @@ def lowest_eigenpairs(
     max_space : int
         Subspace size at which the search restarts from the current
         best vectors.
+    n_start : int, optional
+        Unit start vectors on the smallest diagonal elements (default
+        ``n_roots + 3``), plus one preconditioned vector reaching every
+        component.
 
     Returns
     -------
@@ -234,13 +239,18 @@ def lowest_eigenpairs(
     n_roots = max(1, min(n_roots, dim))
     # Unit vectors on the smallest diagonal elements reach modes of several
     # symmetries; one vector with every component nonzero (from a fixed seed,
-    # so runs repeat digit for digit) reaches any symmetry they miss.
+    # so runs repeat digit for digit) reaches any symmetry they miss. It is
+    # preconditioned (weighted by 1 / (d - min d + 0.5 Eh)) so that its Rayleigh
+    # quotient is low and the low modes it carries are resolved instead of
+    # hidden behind its high-energy part: a stretched-N2 solution has a zero
+    # mode that plain random and unit vectors only reach with many more roots.
     order = np.argsort(d, kind="stable")
-    n_start = min(dim, max(2 * n_roots, 8))
+    n_start = min(dim, n_start if n_start is not None else n_roots + 3)
     basis = np.zeros((dim, n_start))
     basis[order[:n_start], np.arange(n_start)] = 1.0
     if n_start < dim:
-        basis = np.column_stack([basis, np.random.default_rng(20260).standard_normal(dim)])
+        spread = np.random.default_rng(20260).standard_normal(dim) / (d - d.min() + 0.5)
+        basis = np.column_stack([basis, spread])
     basis = _orthonormal_columns(basis)
     products = np.column_stack([hessian(v.reshape(shape)).ravel() for v in basis.T])
     converged = False
