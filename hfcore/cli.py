@@ -493,7 +493,7 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
         raise InputError("--mp2-fit-basis applies to the MP2 energy only; add --mp2")
     mp2_fit = None
     if args.mp2_fit_basis is not None:
-        from .analysis.ri_mp2 import mp2_fitting_basis
+        from .basis.fitting import mp2_fitting_basis
 
         # An unknown set or a missing element fails here, before the SCF.
         mp2_fit = mp2_fitting_basis(molecule, basis, args.mp2_fit_basis)

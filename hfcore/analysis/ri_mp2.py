@@ -29,59 +29,17 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ..basis.fitting import AUTO, FittingChoice, fitting_basis
+from ..basis.fitting import DEFAULT_RI, MATCHING_RI, FittingChoice, mp2_fitting_basis
 from ..errors import ResourceError
 from .mp2 import MP2Result, _pair_map, assemble, orbital_spaces, pair_sums
 
 if TYPE_CHECKING:
     from ..basis.family import BasisFamily
     from ..basis.shells import BasisSet
-    from ..geometry import Molecule
     from ..scf.result import RHFResult
 
-#: The RI set ``auto`` takes for orbital sets not in :data:`MATCHING_RI`.
-DEFAULT_RI: str = "def2-TZVP-RIFIT"
-#: The RI set ``auto`` takes for each orbital set (keys compared case-blind).
-MATCHING_RI: dict[str, str] = {
-    "cc-pvdz": "cc-pVDZ-RIFIT",
-    "cc-pvtz": "cc-pVTZ-RIFIT",
-    "cc-pvqz": "cc-pVQZ-RIFIT",
-    "aug-cc-pvdz": "cc-pVDZ-RIFIT",
-    "aug-cc-pvtz": "cc-pVTZ-RIFIT",
-    "def2-svp": "def2-SVP-RIFIT",
-    "def2-tzvp": "def2-TZVP-RIFIT",
-}
 #: Bytes of one block of unpacked three-centre integrals (P|μν).
 _BLOCK_BYTES = 32 << 20
-
-
-def mp2_fitting_basis(molecule: Molecule, orbital: BasisSet, choice: str | BasisFamily | BasisSet) -> FittingChoice:
-    """Place the fitting set of a density-fitted MP2.
-
-    Parameters
-    ----------
-    molecule : Molecule
-    orbital : BasisSet
-        The orbital basis (its name decides ``auto``).
-    choice : str, BasisFamily or BasisSet
-        ``"auto"``, a set's name (e.g. ``"cc-pvtz-ri"``), a family or a
-        placed set.
-
-    Returns
-    -------
-    FittingChoice
-
-    Raises
-    ------
-    BasisError
-        An unknown set, or one lacking an element of the molecule.
-    """
-    if isinstance(choice, str) and choice.strip().lower() == AUTO:
-        main = orbital.name.split(" (")[0]
-        name = MATCHING_RI.get(main.strip().lower(), DEFAULT_RI)
-        placed = fitting_basis(molecule, orbital, name)
-        return FittingChoice(placed.basis, (f"auto: {name} for {main}",))
-    return fitting_basis(molecule, orbital, choice)
 
 
 def ri_mp2_energy(
