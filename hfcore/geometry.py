@@ -14,7 +14,6 @@ from collections.abc import Iterable
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-from scipy.spatial import cKDTree
 
 from . import elements
 from .errors import InputError
@@ -429,7 +428,14 @@ def _closest_close_pair(r: np.ndarray, cutoff: float) -> tuple[int, int, float] 
     A k-d tree finds the near pairs in O(n log n), so a file with very many
     atoms is checked without an n² distance table.
     """
-    pairs = cKDTree(r).query_pairs(cutoff, output_type="ndarray")
+    if len(r) < 64:  # a distance table is quicker than building a tree
+        a, b = np.triu_indices(len(r), 1)
+        near = np.linalg.norm(r[a] - r[b], axis=1) < cutoff
+        pairs = np.stack([a[near], b[near]], axis=1)
+    else:
+        from scipy.spatial import cKDTree  # imported here: it costs a tenth of a second at start-up
+
+        pairs = cKDTree(r).query_pairs(cutoff, output_type="ndarray")
     # query_pairs includes pairs at exactly the cutoff; keep the strict ones.
     if pairs.shape[0] == 0:
         return None

@@ -58,6 +58,54 @@ def test_direct_jk_is_bitwise_the_same_on_two_threads(basis, monkeypatch):
         assert np.array_equal(x, y)
 
 
+@pytest.mark.parametrize("lean", [False, True])
+def test_thread_pool_and_worker_processes_give_the_same_bits(basis, monkeypatch, lean):
+    # Where fork exists, several threads run the stored pass and lean K on
+    # worker processes; HFCORE_NO_FORK keeps them on threads. Same bits either way.
+    rng = np.random.default_rng(5)
+    a = rng.standard_normal((basis.n_functions, basis.n_functions))
+    density = a + a.T
+    one = compute_eri(basis, threads=1, lean=lean)
+    monkeypatch.setenv("HFCORE_NO_FORK", "1")
+    threaded = compute_eri(basis, threads=2, lean=lean)
+    assert np.array_equal(one.packed, threaded.packed)
+    expected = threaded.jk(density)
+    monkeypatch.delenv("HFCORE_NO_FORK")
+    forked = compute_eri(basis, threads=2, lean=lean)
+    assert np.array_equal(one.packed, forked.packed)
+    for x, y in zip(expected, forked.jk(density)):
+        assert np.array_equal(x, y)
+
+
+@pytest.mark.skipif(not pool.can_fork(), reason="no fork on this platform: passes use threads only")
+def test_worker_processes_run_every_unit_once():
+    seen = pool.shared_zeros(40, np.int64)
+
+    def work(unit: int) -> None:
+        seen[unit] += unit + 1
+
+    reports = []
+    pool.forked_units(work, 40, 3, progress=lambda finished: reports.append(int(finished.sum())))
+    assert seen.tolist() == list(range(1, 41))
+    assert reports[-1] == 40
+
+
+@pytest.mark.skipif(not pool.can_fork(), reason="no fork on this platform: passes use threads only")
+def test_a_failing_worker_process_is_reported_not_ignored():
+    import os
+    import time
+
+    parent = os.getpid()
+
+    def work(unit: int) -> None:
+        if os.getpid() != parent:
+            raise ValueError("tile 7 went wrong")
+        time.sleep(0.01)  # leave units for the worker
+
+    with pytest.raises(ValueError, match="tile 7 went wrong"):
+        pool.forked_units(work, 200, 2)
+
+
 def test_work_units_depend_only_on_the_weights():
     units = pool.work_units([3, 1, 4, 1, 5, 9, 2, 6], 6)
     assert units == [slice(0, 3), slice(3, 5), slice(5, 6), slice(6, 8)]

@@ -7,6 +7,13 @@ and consumes the results strictly in unit order. Each unit accumulates its
 own partial result, and partial results are added in unit order, so a pass
 gives the same bits with 1 thread or 16.
 
+Passes made of many small numpy kernels hold the interpreter lock most of
+the time, so threads barely overlap there. Where ``os.fork`` exists
+(Linux), :func:`forked_units` runs such a pass on worker processes instead:
+they share the parent's memory copy-on-write, take units from a shared
+counter and write their results into :func:`shared_zeros` arrays, each
+unit to its own place, so the bits again do not depend on the count.
+
 BLAS keeps its own threads. When the optional package ``threadpoolctl`` is
 installed, :func:`blas_threads` sets them for the duration of a block (the
 SCF driver gives BLAS the run's thread count, a threaded pass gives it one
@@ -17,11 +24,16 @@ its own environment variables (``OPENBLAS_NUM_THREADS`` and the like).
 from __future__ import annotations
 
 import contextlib
+import mmap
 import os
+import signal
+import sys
 from collections import deque
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from typing import TypeVar
+
+import numpy as np
 
 from ..errors import InputError
 
@@ -155,4 +167,163 @@ def ordered_map(work: Callable[[T], R], items: Iterable[T], threads: int) -> Ite
                 future.cancel()
 
 
-__all__ = ["available_cores", "resolve_threads", "blas_threads", "work_units", "ordered_map"]
+def can_fork() -> bool:
+    """Whether passes may run on forked worker processes (Linux, with ``os.fork``).
+
+    Forked workers share the parent's memory copy-on-write and run free of
+    the interpreter lock, which a pass of many small numpy kernels needs to
+    use more than one core. Setting the environment variable
+    ``HFCORE_NO_FORK`` to a non-empty value keeps every pass on threads.
+    """
+    return hasattr(os, "fork") and sys.platform.startswith("linux") and not os.environ.get("HFCORE_NO_FORK")
+
+
+def shared_zeros(shape: int | tuple[int, ...], dtype=np.float64) -> np.ndarray:
+    """A zero-filled array in anonymous shared memory, writable by forked workers.
+
+    Pages are only committed when written, as for ``numpy.zeros``.
+    """
+    shape = (shape,) if isinstance(shape, int) else tuple(shape)
+    dtype = np.dtype(dtype)
+    count = int(np.prod(shape, dtype=np.int64))
+    buffer = mmap.mmap(-1, max(count * dtype.itemsize, 1))
+    return np.frombuffer(buffer, dtype=dtype, count=count).reshape(shape)
+
+
+#: Room for a worker's pickled exception.
+_ERROR_BYTES = 8192
+
+
+def _pickled_error(exc: BaseException) -> bytes:
+    """``exc`` pickled behind a length prefix, or a RuntimeError with its text if that does not fit."""
+    import pickle
+
+    for error in (exc, RuntimeError(f"an integral worker process failed: {type(exc).__name__}: {exc}"[:1000])):
+        try:
+            data = pickle.dumps(error)
+        except Exception:
+            continue
+        if len(data) + 8 < _ERROR_BYTES:
+            return len(data).to_bytes(8, "little") + data
+    return (0).to_bytes(8, "little")
+
+
+def _unpickled_error(raw: bytes, status: int) -> BaseException:
+    import pickle
+
+    size = int.from_bytes(raw[:8], "little")
+    if 0 < size <= len(raw) - 8:
+        with contextlib.suppress(Exception):
+            return pickle.loads(raw[8 : 8 + size])
+    return RuntimeError(f"an integral worker process ended with status {status}")
+
+
+def forked_units(
+    work: Callable[[int], None],
+    n_units: int,
+    processes: int,
+    progress: Callable[[np.ndarray], None] | None = None,
+) -> None:
+    """``work(u)`` for every unit u in ``range(n_units)``, on this process and ``processes - 1`` forked ones.
+
+    ``work`` returns nothing: it writes its result into arrays made with
+    :func:`shared_zeros` before the call (each unit to its own place, so the
+    result does not depend on which process ran which unit). Units are
+    handed out in order from a shared counter, so the processes stay busy
+    to the end. BLAS runs one thread per process meanwhile.
+
+    Parameters
+    ----------
+    work : callable
+        Called with a unit index.
+    n_units : int
+    processes : int
+        Processes in all, this one included; 1 runs everything here.
+    progress : callable, optional
+        Called in this process after each unit it finished, with the array
+        of finished flags (shape (n_units,), 1 where a unit is done, in any
+        process).
+
+    Raises
+    ------
+    Exception
+        The exception of a worker process that failed (a RuntimeError
+        naming it when it cannot be passed back whole), once every worker
+        has ended. An exception in this process stops the workers
+        and propagates.
+    """
+    import multiprocessing
+
+    finished = shared_zeros(max(n_units, 1), np.int8)
+    if processes <= 1 or n_units <= 1:
+        for unit in range(n_units):
+            work(unit)
+            finished[unit] = 1
+            if progress is not None:
+                progress(finished[:n_units])
+        return
+    counter = shared_zeros(1, np.int64)
+    errors = shared_zeros((processes, _ERROR_BYTES), np.uint8)
+    lock = multiprocessing.get_context("fork").Lock()
+
+    def take() -> int:
+        with lock:
+            unit = int(counter[0])
+            counter[0] = unit + 1
+        return unit
+
+    children: list[int] = []
+    with blas_threads(1):
+        try:
+            for slot in range(1, processes):
+                pid = os.fork()
+                if pid == 0:  # a worker: units until none is left, then leave at once
+                    code = 0
+                    try:
+                        signal.signal(signal.SIGTERM, signal.SIG_DFL)
+                        while (unit := take()) < n_units:
+                            work(unit)
+                            finished[unit] = 1
+                    except BaseException as exc:  # handed to the parent, which raises it
+                        data = _pickled_error(exc)
+                        errors[slot, : len(data)] = np.frombuffer(data, np.uint8)
+                        code = 1
+                    finally:
+                        os._exit(code)
+                children.append(pid)
+            while (unit := take()) < n_units:
+                work(unit)
+                finished[unit] = 1
+                if progress is not None:
+                    progress(finished[:n_units])
+        except BaseException:
+            with lock:
+                counter[0] = n_units
+            for pid in children:
+                with contextlib.suppress(OSError):
+                    os.kill(pid, signal.SIGKILL)
+            for pid in children:
+                with contextlib.suppress(OSError):
+                    os.waitpid(pid, 0)
+            raise
+        failed = []
+        for slot, pid in enumerate(children, start=1):
+            _, status = os.waitpid(pid, 0)
+            if status != 0:
+                failed.append(_unpickled_error(bytes(errors[slot]), status))
+    if failed:
+        raise failed[0]
+    if progress is not None:
+        progress(finished[:n_units])
+
+
+__all__ = [
+    "available_cores",
+    "resolve_threads",
+    "blas_threads",
+    "work_units",
+    "ordered_map",
+    "can_fork",
+    "shared_zeros",
+    "forked_units",
+]

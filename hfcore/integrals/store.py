@@ -25,7 +25,7 @@ from ..basis.shells import BasisSet
 from ..errors import InputError, ResourceError
 from .eri_pairs import pair_index, prepare_pairs
 from .hermite import n_hermite
-from .pool import ordered_map, resolve_threads, work_units
+from .pool import can_fork, forked_units, ordered_map, resolve_threads, shared_zeros, work_units
 from .tiles import Tile, batch_pairs, iter_tiles
 
 #: Largest dense (nbf,)*4 array ``to_dense`` will build, in bytes.
@@ -196,7 +196,21 @@ class ERIStore:
         units = list(zip(bounds[:-1], bounds[1:]))
         h = np.zeros((n, n))
         jp = np.zeros(self.n_pairs)
-        for part_j, part_h in ordered_map(lambda unit: self._lean_rows(unit[0], unit[1], d, dp), units, self.threads):
+        if self.threads > 1 and can_fork():
+            # Worker processes: the rows are many small BLAS calls, held back
+            # by the interpreter lock on threads. Each unit's share has its
+            # own slot, added here in unit order as below.
+            parts_j = shared_zeros((len(units), self.n_pairs))
+            parts_h = shared_zeros((len(units), n, n))
+
+            def run(u: int) -> None:
+                parts_j[u], parts_h[u] = self._lean_rows(units[u][0], units[u][1], d, dp)
+
+            forked_units(run, len(units), self.threads)
+            parts = zip(parts_j, parts_h)
+        else:
+            parts = ordered_map(lambda unit: self._lean_rows(unit[0], unit[1], d, dp), units, self.threads)
+        for part_j, part_h in parts:
             jp += part_j
             h += part_h
         return jp, h + h.T
@@ -307,21 +321,33 @@ def compute_eri(
             f"(limit {STORE_LIMIT_BYTES / 2**30:.0f} GiB)"
         )
     threads = resolve_threads(threads)
-    packed = np.zeros(size)
+    forked = threads > 1 and can_fork()
+    # Forked workers write into shared pages; every integral is written by one tile.
+    packed = shared_zeros(size) if forked else np.zeros(size)
     tiles = [tile for g1, g2 in batch_pairs(prepare_pairs(basis, threshold)) for tile in iter_tiles(g1, g2, threshold)]
     weights = [tile.quartets * n_hermite(tile.bra.L + tile.ket.L) for tile in tiles]
     total = sum(weights)
+    units = work_units(weights, max(total // _UNITS, 1))
 
     def run(unit: slice) -> int:
         for tile in tiles[unit]:
             _store(tile, tile.integrals(), packed)
         return sum(weights[unit])
 
-    done = 0
-    for work in ordered_map(run, work_units(weights, max(total // _UNITS, 1)), threads):
-        done += work
-        if progress is not None:
-            progress(done / total)
+    if forked:
+        unit_work = np.array([sum(weights[unit]) for unit in units], dtype=np.float64)
+
+        def report(finished: np.ndarray) -> None:
+            if progress is not None and total:
+                progress(float(unit_work @ finished) / total)
+
+        forked_units(lambda u: run(units[u]), len(units), threads, report)
+    else:
+        done = 0
+        for work in ordered_map(run, units, threads):
+            done += work
+            if progress is not None:
+                progress(done / total)
     if progress is not None and total == 0:
         progress(1.0)
     return ERIStore(n, packed, float(threshold), lean=bool(lean), threads=threads)
