@@ -34,7 +34,7 @@ from ..basis.shells import BasisSet
 from ..errors import InputError
 from .eri_pairs import prepare_pairs, shell_batches
 from .hermite import n_hermite
-from .pool import ordered_map, resolve_threads, work_units
+from .pool import can_fork, forked_units, ordered_map, resolve_threads, shared_zeros, work_units
 from .tiles import PairBatch, Tile, batch_pairs, chunks, iter_tiles, tile_cost, tile_integrals, tile_sizes
 
 #: A pass is cut into about this many work units for the thread pool (fixed,
@@ -65,13 +65,26 @@ def _run_tiles(tasks: list[Callable[[], None]], weights: list[int], threads: int
     one tile alone, so the output holds the same bits for any thread count.
     """
     total = sum(weights)
+    units = work_units(weights, max(total // _UNITS, _MIN_UNIT_WORK, 1))
 
     def run(unit: slice) -> None:
         for task in tasks[unit]:
             task()
 
-    for _ in ordered_map(run, work_units(weights, max(total // _UNITS, _MIN_UNIT_WORK, 1)), threads):
+    if _forked(threads):  # the outputs are in shared memory (_zeros)
+        forked_units(lambda u: run(units[u]), len(units), threads)
+        return
+    for _ in ordered_map(run, units, threads):
         pass
+
+
+def _forked(threads: int) -> bool:
+    return threads > 1 and can_fork()
+
+
+def _zeros(shape: tuple[int, ...], threads: int) -> np.ndarray:
+    """An output of :func:`_run_tiles`: in shared memory when the tiles run on worker processes."""
+    return shared_zeros(shape) if _forked(threads) else np.zeros(shape)
 
 
 def two_center_integrals(aux: BasisSet) -> np.ndarray:
@@ -179,7 +192,7 @@ class ThreeCenterEngine:
         """
         for pieces in self._pieces(block_functions):
             index = np.concatenate([self._aux[p.group].pidx[p.rows].ravel() for p in pieces])
-            out = np.zeros((index.size, self.n_pairs))
+            out = _zeros((index.size, self.n_pairs), self.threads)
             tasks: list[Callable[[], None]] = []
             weights: list[int] = []
             start = 0
@@ -212,7 +225,7 @@ class ThreeCenterEngine:
         order : ndarray of int, shape (naux,)
             Fitting-function index of every column.
         """
-        out = np.zeros((self.n_pairs, self.n_aux))
+        out = _zeros((self.n_pairs, self.n_aux), self.threads)
         start = {}
         column = 0
         for aux in self._aux:
