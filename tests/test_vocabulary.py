@@ -19,7 +19,12 @@ INPUTS = Path(__file__).resolve().parent.parent / "inputs"
 def test_diis_space_keyword_sets_max_diis_size_with_a_warning():
     with pytest.warns(DeprecationWarning, match="max_diis_size"):
         options = SCFOptions(diis_space=5)
-    assert options.max_diis_size == 5 and options.diis_space == 5
+    assert options.max_diis_size == 5
+
+
+def test_the_old_attribute_reads_the_new_one_with_a_warning():
+    with pytest.warns(DeprecationWarning, match="SCFOptions.diis_space is deprecated; use max_diis_size"):
+        assert SCFOptions(max_diis_size=5).diis_space == 5
 
 
 def test_both_names_at_once_are_refused():
@@ -28,16 +33,28 @@ def test_both_names_at_once_are_refused():
 
 
 def test_replace_changes_the_new_name():
-    assert dataclasses.replace(SCFOptions(max_diis_size=4), max_diis_size=6).diis_space == 6
+    with pytest.warns(DeprecationWarning):
+        assert dataclasses.replace(SCFOptions(max_diis_size=4), max_diis_size=6).diis_space == 6
 
 
 @pytest.mark.parametrize("flag", ["--max-diis-size", "--diis-space"])
 def test_both_spellings_of_the_flag_reach_the_json(flag):
-    out = io.StringIO()
-    code = main(["energy", str(INPUTS / "water.xyz"), flag, "3", "--json", "-"], stdout=out, stderr=io.StringIO())
+    out, err = io.StringIO(), io.StringIO()
+    code = main(["energy", str(INPUTS / "water.xyz"), flag, "3", "--json", "-"], stdout=out, stderr=err)
     assert code == 0
     thresholds = json.loads(out.getvalue())["scf"]["thresholds"]
     assert thresholds["max_diis_size"] == 3 and thresholds["diis_space"] == 3
+    warned = [line for line in err.getvalue().splitlines() if "deprecated" in line]
+    if flag == "--diis-space":
+        assert warned == ["hfcore: warning: --diis-space is deprecated; use --max-diis-size"]
+    else:
+        assert warned == []
+
+
+def test_the_old_flag_is_hidden_from_help():
+    out = io.StringIO()
+    assert main(["energy", "--help"], stdout=out, stderr=io.StringIO()) == 0
+    assert "--max-diis-size" in out.getvalue() and "--diis-space" not in out.getvalue()
 
 
 def test_rhf_result_becomes_a_dict_the_way_the_json_export_writes_it():
@@ -53,7 +70,10 @@ def test_rhf_result_becomes_a_dict_the_way_the_json_export_writes_it():
 
 
 def test_the_two_guess_lists_have_their_own_names():
-    from hfcore.analysis.compare import COMPARISON_GUESSES, GUESSES
+    from hfcore.analysis import compare
+    from hfcore.analysis.compare import COMPARISON_GUESSES
     from hfcore.scf import GUESSES as SCF_GUESSES
 
-    assert GUESSES is COMPARISON_GUESSES and "projected" in COMPARISON_GUESSES and "projected" not in SCF_GUESSES
+    with pytest.warns(DeprecationWarning, match="compare.GUESSES is deprecated; use COMPARISON_GUESSES"):
+        assert compare.GUESSES is COMPARISON_GUESSES
+    assert "projected" in COMPARISON_GUESSES and "projected" not in SCF_GUESSES

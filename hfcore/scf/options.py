@@ -205,7 +205,8 @@ class SCFOptions:
 
     @property
     def diis_space(self) -> int:
-        """Deprecated name of :attr:`max_diis_size`."""
+        """Deprecated name of :attr:`max_diis_size` (warns)."""
+        warnings.warn("SCFOptions.diis_space is deprecated; use max_diis_size", DeprecationWarning, stacklevel=2)
         return self.max_diis_size
 
     @property
