@@ -218,7 +218,7 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
             "converged": result.converged,
             "iterations": result.iterations,
             "jk_mode": result.jk_mode,
-            "eri_memory_bytes": result.eri_bytes,
+            "eri_memory_bytes": result.eri_memory_bytes,
             "fit_storage": result.fit_storage or None,
             "fit_notes": list(result.fit_notes),
             "fit_metric_dropped": result.fit_dropped,

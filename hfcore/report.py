@@ -110,7 +110,7 @@ def _jk_rows(plan: Any) -> list[tuple[str, str]]:
             ("two-electron", how),
             ("fitting set", f"{fit.name}, {fit.n_functions} functions ({fit.n_shells} shells, highest l "
                             f"{'spdfghi'[fit.max_l]})"),
-            ("fitted size", f"{_mib(plan.eri_bytes)} predicted (limit {_mib(plan.limit_bytes)}; "
+            ("fitted size", f"{_mib(plan.eri_memory_bytes)} predicted (limit {_mib(plan.limit_bytes)}; "
                             f"all factors {_mib(plan.fitting.stored_bytes)})"),
         ]
         return rows + [("fitting note", note) for note in plan.fit_notes]
@@ -122,7 +122,7 @@ def _jk_rows(plan: Any) -> list[tuple[str, str]]:
         how = "direct: recomputed every iteration from density changes"
     return [
         ("two-electron", how),
-        ("stored size", f"{_mib(plan.eri_bytes)} predicted (limit {_mib(plan.limit_bytes)})"),
+        ("stored size", f"{_mib(plan.eri_memory_bytes)} predicted (limit {_mib(plan.limit_bytes)})"),
     ]
 
 

@@ -57,6 +57,31 @@ def test_the_old_flag_is_hidden_from_help():
     assert "--max-diis-size" in out.getvalue() and "--diis-space" not in out.getvalue()
 
 
+def test_eri_bytes_is_the_old_name_of_eri_memory_bytes():
+    import hfcore
+    from hfcore import integrals
+    from hfcore.scf import plan_jk
+
+    water = hfcore.read_xyz(INPUTS / "water.xyz")
+    basis = hfcore.build_basis(water, "sto-3g")
+    result = hfcore.run_rhf(water, basis)
+    plan = plan_jk(basis)
+    # source: exact property — the predicted store size is the documented estimate
+    assert result.eri_memory_bytes == plan.eri_memory_bytes == integrals.estimate_eri_memory(basis)
+    with pytest.warns(DeprecationWarning, match="RHFResult.eri_bytes is deprecated; use eri_memory_bytes"):
+        assert result.eri_bytes == result.eri_memory_bytes
+    with pytest.warns(DeprecationWarning, match="JKPlan.eri_bytes is deprecated; use eri_memory_bytes"):
+        assert plan.eri_bytes == plan.eri_memory_bytes
+    with pytest.warns(DeprecationWarning, match=r"RHFResult\(eri_bytes=...\) is deprecated"):
+        old = type(result)(
+            **{**{f.name: getattr(result, f.name) for f in dataclasses.fields(result) if f.name != "eri_memory_bytes"},
+               "eri_bytes": 123}
+        )
+    assert old.eri_memory_bytes == 123
+    with pytest.raises(InputError, match="not both"), pytest.warns(DeprecationWarning):
+        type(plan)(mode="stored", eri_bytes=1, eri_memory_bytes=1, limit_bytes=2)
+
+
 def test_rhf_result_becomes_a_dict_the_way_the_json_export_writes_it():
     import hfcore
 
