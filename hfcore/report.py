@@ -327,9 +327,9 @@ def format_mp2(mp2: Any) -> str:
         ("same-spin", mp2.same_spin),
         ("opposite-spin", mp2.opposite_spin),
         ("MP2 correlation", mp2.correlation),
-        ("MP2 total", mp2.total),
+        ("MP2 total", mp2.energy_total),
         ("SCS-MP2 correlation", mp2.scs_correlation),
-        ("SCS-MP2 total", mp2.scs_total),
+        ("SCS-MP2 total", mp2.scs_energy_total),
     ]
     body = [f"  {name:<20}{value:22.12f}" for name, value in rows]
     body.append(f"  ({core}; {mp2.n_active_occupied} occupied and {mp2.n_virtual} virtual orbitals;")

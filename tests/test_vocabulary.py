@@ -102,3 +102,19 @@ def test_the_two_guess_lists_have_their_own_names():
     with pytest.warns(DeprecationWarning, match="compare.GUESSES is deprecated; use COMPARISON_GUESSES"):
         assert compare.GUESSES is COMPARISON_GUESSES
     assert "projected" in COMPARISON_GUESSES and "projected" not in SCF_GUESSES
+
+
+def test_mp2_totals_are_energy_totals_and_the_old_names_warn():
+    import hfcore
+
+    result = hfcore.run_rhf(hfcore.read_xyz(INPUTS / "water.xyz"), "sto-3g")
+    mp2 = hfcore.mp2_energy(result)
+    # source: exact property — a total is the RHF energy plus the correlation energy
+    assert mp2.energy_total == result.energy_total + mp2.correlation
+    assert mp2.scs_energy_total == result.energy_total + mp2.scs_correlation
+    with pytest.warns(DeprecationWarning, match="MP2Result.total is deprecated; use energy_total"):
+        assert mp2.total == mp2.energy_total
+    with pytest.warns(DeprecationWarning, match="MP2Result.scs_total is deprecated; use scs_energy_total"):
+        assert mp2.scs_total == mp2.scs_energy_total
+    record = mp2.to_dict()
+    assert (record["total"], record["scs_total"]) == (mp2.energy_total, mp2.scs_energy_total)
