@@ -118,3 +118,23 @@ def test_mp2_totals_are_energy_totals_and_the_old_names_warn():
         assert mp2.scs_total == mp2.scs_energy_total
     record = mp2.to_dict()
     assert (record["total"], record["scs_total"]) == (mp2.energy_total, mp2.scs_energy_total)
+
+
+def test_diis_space_keyword_and_attribute_are_the_old_max_size():
+    from hfcore.scf import DIIS
+
+    with pytest.warns(DeprecationWarning, match=r"DIIS\(space=...\) is deprecated; use max_size"):
+        diis = DIIS(space=3)
+    assert diis.max_size == 3
+    with pytest.warns(DeprecationWarning, match="DIIS.space is deprecated; use max_size"):
+        assert diis.space == 3
+
+
+def test_every_accelerator_name_is_in_the_one_table():
+    from hfcore.scf import SCFOptions, accelerators, options, solver
+
+    assert options.ACCELERATOR_NAMES is accelerators.ACCELERATOR_NAMES
+    assert solver.AID_STAGES is accelerators.AID_STAGES
+    assert set(accelerators.ACCELERATOR_NAMES) | set(accelerators.AID_STAGES) == set(accelerators.ACCELERATORS)
+    for name in accelerators.ACCELERATORS:
+        assert isinstance(accelerators.build_accelerator(SCFOptions(), name), accelerators.Chain)
