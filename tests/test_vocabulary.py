@@ -138,3 +138,12 @@ def test_every_accelerator_name_is_in_the_one_table():
     assert set(accelerators.ACCELERATOR_NAMES) | set(accelerators.AID_STAGES) == set(accelerators.ACCELERATORS)
     for name in accelerators.ACCELERATORS:
         assert isinstance(accelerators.build_accelerator(SCFOptions(), name), accelerators.Chain)
+
+
+@pytest.mark.parametrize("count, closed", [(2, True), (10, True), (2.0, True), (0, False), (-2, False), (3, False),
+                                           (2.5, False), (True, False), ("2", False)])
+def test_the_closed_shell_rule(count, closed):
+    from hfcore.geometry import is_closed_shell
+
+    # source: common practice — RHF doubly occupies every orbital, so it needs a positive even count
+    assert is_closed_shell(count) is closed

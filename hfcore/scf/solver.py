@@ -9,6 +9,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..errors import BasisError, ConvergenceError, InputError
+from ..geometry import is_closed_shell
 from .accelerators import AID_DAMPING, AID_LEVEL_SHIFT, AID_STAGES, Accelerator, FockStep, build_accelerator
 from .jk import JKBuilder
 from .options import SCFOptions
@@ -148,7 +149,7 @@ def solve_rhf(
     options = options or SCFOptions()
     s = _checked_square("overlap", overlap)
     h = _checked_square("core_hamiltonian", core_hamiltonian, s.shape[0])
-    if isinstance(n_electrons, bool) or int(n_electrons) != n_electrons or n_electrons <= 0 or n_electrons % 2:
+    if not is_closed_shell(n_electrons):
         raise InputError(f"RHF needs an even, positive number of electrons, got {n_electrons}")
     ortho = Orthogonaliser.from_overlap(s, options.lindep_threshold)
     n_occ = int(n_electrons) // 2
