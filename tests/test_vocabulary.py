@@ -147,3 +147,15 @@ def test_the_closed_shell_rule(count, closed):
 
     # source: common practice — RHF doubly occupies every orbital, so it needs a positive even count
     assert is_closed_shell(count) is closed
+
+
+@pytest.mark.parametrize("value", [-1e-12, 1.0, float("nan"), True, "1e-12"])
+def test_one_screening_rule_for_the_options_and_the_integral_engines(value):
+    import hfcore
+    from hfcore.integrals.direct import DirectERI
+
+    basis = hfcore.build_basis(hfcore.read_xyz(INPUTS / "water.xyz"), "sto-3g")
+    with pytest.raises(InputError, match=r"SCF option screening must be a number in \[0.0, 1.0\)"):
+        SCFOptions(screening=value)
+    with pytest.raises(InputError, match=r"the screening threshold must be a number in \[0.0, 1.0\)"):
+        DirectERI(basis, threshold=value)

@@ -216,7 +216,10 @@ class SCFOptions:
     def _check_ranges(self) -> None:
         if self.lindep_threshold >= 1.0:
             raise InputError(f"SCF option lindep_threshold must be below 1, got {self.lindep_threshold!r}")
-        for name, low, high in (("screening", 0.0, 1.0), ("damping", 0.0, 1.0), ("level_shift", 0.0, math.inf)):
+        from ..integrals.eri_pairs import screening_threshold
+
+        object.__setattr__(self, "screening", screening_threshold(self.screening, "SCF option screening"))
+        for name, low, high in (("damping", 0.0, 1.0), ("level_shift", 0.0, math.inf)):
             value = getattr(self, name)
             if isinstance(value, bool) or not isinstance(value, (int, float)) or not (low <= value < high):
                 raise InputError(f"SCF option {name} must be a number in [{low}, {high}), got {value!r}")
