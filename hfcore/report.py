@@ -209,7 +209,7 @@ def format_stability(result: Any) -> str:
         else:
             rows.append(("lowest eigenvalue", "none (no occupied-virtual rotation in this basis)"))
         rows.append(("solutions / Eh", " → ".join(f"{e:.10f}" for e in st.solutions)))
-        rows.append(("Hessian products", str(st.products)))
+        rows.append(("Hessian products", str(st.hessian_products)))
     gap = "none" if not np.isfinite(result.aufbau_gap) else f"{result.aufbau_gap:.6f} Eh"
     verdict = "yes" if result.aufbau else "NO"
     rows.append(("aufbau occupation", f"{verdict} (lowest virtual − highest occupied: {gap})"))

@@ -159,3 +159,27 @@ def test_one_screening_rule_for_the_options_and_the_integral_engines(value):
         SCFOptions(screening=value)
     with pytest.raises(InputError, match=r"the screening threshold must be a number in \[0.0, 1.0\)"):
         DirectERI(basis, threshold=value)
+
+
+def test_stability_report_to_dict_is_the_json_object_and_products_is_an_old_name():
+    import hfcore
+    from hfcore import export
+
+    result = hfcore.run_rhf(hfcore.read_xyz(INPUTS / "water.xyz"), "sto-3g")
+    st = result.stability
+    record = json.loads(export.to_json(result.to_dict()))["scf"]["stability"]
+    assert set(record) == set(st.to_dict()) and record["mode"] == "follow" and record["stable"] is True
+    assert record["hessian_products"] == st.hessian_products > 0
+    with pytest.warns(DeprecationWarning, match="StabilityReport.products is deprecated; use hessian_products"):
+        assert st.products == st.hessian_products
+
+
+def test_sto_fit_to_dict_is_the_fit_object_of_its_json_record():
+    from hfcore import export
+    from hfcore.basis.sto import fit_sto
+
+    fit = fit_sto("1s", 3)
+    written = json.loads(export.to_json(export.sto_fit_record(fit)))["fit"]
+    assert set(written) == {"shell", "n_gaussians", "zeta", "exponents", "coefficients", "overlaps"}
+    assert written["exponents"] == fit.exponents.tolist() and written["n_gaussians"] == 3
+    assert written["coefficients"] == {"s": fit.coefficients[0].tolist()} and written["overlaps"] == {"s": fit.overlaps[0]}
