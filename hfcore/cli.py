@@ -91,6 +91,19 @@ def _add_geometry_arguments(parser: argparse.ArgumentParser, *, geometry: bool =
     form.add_argument("--spherical", dest="spherical", action="store_true", help="real spherical d, f, ... functions")
 
 
+class _DeprecatedOption(argparse.Action):
+    """Store like the option's new name, with a one-line warning on stderr (hidden from ``--help``)."""
+
+    def __init__(self, option_strings: Sequence[str], dest: str, new_name: str, **kwargs: Any) -> None:
+        super().__init__(option_strings, dest, **kwargs)
+        self.new_name = new_name
+
+    def __call__(self, parser: argparse.ArgumentParser, namespace: argparse.Namespace, values: Any,
+                 option_string: str | None = None) -> None:
+        print(f"hfcore: warning: {option_string} is deprecated; use {self.new_name}", file=sys.stderr, flush=True)
+        setattr(namespace, self.dest, values)
+
+
 def _add_scf_arguments(parser: argparse.ArgumentParser) -> None:
     group = parser.add_argument_group("SCF convergence (defaults: see hfcore.scf.SCFOptions)")
     group.add_argument("--energy-tol", type=_positive_float, metavar="X", help="energy change threshold in Eh (1e-10)")
@@ -98,8 +111,11 @@ def _add_scf_arguments(parser: argparse.ArgumentParser) -> None:
         "--gradient-tol", type=_positive_float, metavar="X", help="largest orbital-gradient element threshold (1e-7)"
     )
     group.add_argument("--max-iterations", type=_positive_int, metavar="N", help="iteration limit (100)")
-    group.add_argument("--max-diis-size", "--diis-space", dest="max_diis_size", type=_positive_int, metavar="N",
-                       help="most Fock matrices DIIS keeps (8); --diis-space is the deprecated old name")
+    group.add_argument("--max-diis-size", type=_positive_int, metavar="N", help="most Fock matrices DIIS keeps (8)")
+    group.add_argument(
+        "--diis-space", dest="max_diis_size", type=_positive_int, metavar="N", help=argparse.SUPPRESS,
+        action=_DeprecatedOption, new_name="--max-diis-size",
+    )
     group.add_argument(
         "--lindep-threshold",
         type=_positive_float,

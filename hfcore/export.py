@@ -218,7 +218,7 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
             "converged": result.converged,
             "iterations": result.iterations,
             "jk_mode": result.jk_mode,
-            "eri_memory_bytes": result.eri_bytes,
+            "eri_memory_bytes": result.eri_memory_bytes,
             "fit_storage": result.fit_storage or None,
             "fit_notes": list(result.fit_notes),
             "fit_metric_dropped": result.fit_dropped,
@@ -272,18 +272,7 @@ def stability_record(result: Any) -> dict[str, Any]:
         keys = ("stable", "lowest_eigenvalue", "eigenvalues", "threshold", "solutions", "lowest_eigenvalues",
                 "rounds", "hessian_products", "message")
         return {"mode": result.options.stability, **dict.fromkeys(keys)}
-    return {
-        "mode": st.mode,
-        "stable": st.stable,
-        "lowest_eigenvalue": st.lowest_eigenvalue,
-        "eigenvalues": st.eigenvalues,
-        "threshold": st.threshold,
-        "solutions": list(st.solutions),
-        "lowest_eigenvalues": list(st.lowest_eigenvalues),
-        "rounds": st.rounds,
-        "hessian_products": st.products,
-        "message": st.message,
-    }
+    return st.to_dict()
 
 
 def sto_fit_record(fit: Any) -> dict[str, Any]:
@@ -302,18 +291,10 @@ def sto_fit_record(fit: Any) -> dict[str, Any]:
     """
     from . import __version__
 
-    from .basis.components import L_LETTERS as letters
     return {
         "hfcore": {"version": __version__},
         "units": {"exponents": "bohr^-2", "zeta": "bohr^-1", "coefficients": "of normalised primitive Gaussians"},
-        "fit": {
-            "shell": fit.shell,
-            "n_gaussians": fit.n_gaussians,
-            "zeta": fit.zeta,
-            "exponents": fit.exponents,
-            "coefficients": {letters[l]: c for l, c in sorted(fit.coefficients.items())},
-            "overlaps": {letters[l]: v for l, v in sorted(fit.overlaps.items())},
-        },
+        "fit": fit.to_dict(),
     }
 
 

@@ -170,10 +170,12 @@ class Molecule:
     def require_closed_shell(self) -> None:
         """Raise ``InputError`` unless the electron count is even and positive.
 
-        RHF describes closed shells only; the message suggests the nearest
-        charges that would give one.
+        RHF describes closed shells only (:func:`is_closed_shell`); the
+        message suggests the nearest charges that would give one.
         """
         n = self.n_electrons
+        if is_closed_shell(n):
+            return
         if n <= 0:
             raise InputError(f"{self.source}: charge {self.charge} leaves {n} electrons; nothing to compute")
         if n % 2:
@@ -181,6 +183,24 @@ class Molecule:
                 f"{self.source}: {n} electrons with charge {self.charge:+d}; RHF needs an even number "
                 f"(a closed shell): try --charge {self.charge + 1} or --charge {self.charge - 1}"
             )
+
+
+def is_closed_shell(n_electrons: object) -> bool:
+    """The closed-shell rule of RHF, the one place it is stated.
+
+    Parameters
+    ----------
+    n_electrons : object
+        An electron count.
+
+    Returns
+    -------
+    bool
+        True for a whole, positive, even number (not a bool).
+    """
+    if isinstance(n_electrons, bool) or not isinstance(n_electrons, (int, float, np.integer, np.floating)):
+        return False
+    return bool(n_electrons > 0 and n_electrons == int(n_electrons) and int(n_electrons) % 2 == 0)
 
 
 def _checked_arrays(atomic_numbers: object, coordinates: object, source: str) -> tuple[np.ndarray, np.ndarray]:
@@ -497,6 +517,7 @@ __all__ = [
     "parse_xyz",
     "nuclear_repulsion",
     "parse_atom_ranges",
+    "is_closed_shell",
     "BOHR_IN_ANGSTROM",
     "ANGSTROM_IN_BOHR",
     "MAX_COORDINATE_ANGSTROM",

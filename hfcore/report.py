@@ -110,7 +110,7 @@ def _jk_rows(plan: Any) -> list[tuple[str, str]]:
             ("two-electron", how),
             ("fitting set", f"{fit.name}, {fit.n_functions} functions ({fit.n_shells} shells, highest l "
                             f"{'spdfghi'[fit.max_l]})"),
-            ("fitted size", f"{_mib(plan.eri_bytes)} predicted (limit {_mib(plan.limit_bytes)}; "
+            ("fitted size", f"{_mib(plan.eri_memory_bytes)} predicted (limit {_mib(plan.limit_bytes)}; "
                             f"all factors {_mib(plan.fitting.stored_bytes)})"),
         ]
         return rows + [("fitting note", note) for note in plan.fit_notes]
@@ -122,7 +122,7 @@ def _jk_rows(plan: Any) -> list[tuple[str, str]]:
         how = "direct: recomputed every iteration from density changes"
     return [
         ("two-electron", how),
-        ("stored size", f"{_mib(plan.eri_bytes)} predicted (limit {_mib(plan.limit_bytes)})"),
+        ("stored size", f"{_mib(plan.eri_memory_bytes)} predicted (limit {_mib(plan.limit_bytes)})"),
     ]
 
 
@@ -209,7 +209,7 @@ def format_stability(result: Any) -> str:
         else:
             rows.append(("lowest eigenvalue", "none (no occupied-virtual rotation in this basis)"))
         rows.append(("solutions / Eh", " → ".join(f"{e:.10f}" for e in st.solutions)))
-        rows.append(("Hessian products", str(st.products)))
+        rows.append(("Hessian products", str(st.hessian_products)))
     gap = "none" if not np.isfinite(result.aufbau_gap) else f"{result.aufbau_gap:.6f} Eh"
     verdict = "yes" if result.aufbau else "NO"
     rows.append(("aufbau occupation", f"{verdict} (lowest virtual − highest occupied: {gap})"))
@@ -327,9 +327,9 @@ def format_mp2(mp2: Any) -> str:
         ("same-spin", mp2.same_spin),
         ("opposite-spin", mp2.opposite_spin),
         ("MP2 correlation", mp2.correlation),
-        ("MP2 total", mp2.total),
+        ("MP2 total", mp2.energy_total),
         ("SCS-MP2 correlation", mp2.scs_correlation),
-        ("SCS-MP2 total", mp2.scs_total),
+        ("SCS-MP2 total", mp2.scs_energy_total),
     ]
     body = [f"  {name:<20}{value:22.12f}" for name, value in rows]
     body.append(f"  ({core}; {mp2.n_active_occupied} occupied and {mp2.n_virtual} virtual orbitals;")

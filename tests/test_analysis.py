@@ -94,7 +94,7 @@ def test_mp2_correlation_matches_reference(water):
     assert mine.same_spin == pytest.approx(theirs.e_corr_ss, abs=1e-9)
     assert mine.opposite_spin == pytest.approx(theirs.e_corr_os, abs=1e-9)
     # source: reference library run (PySCF MP2 total energy)
-    assert mine.total == pytest.approx(theirs.e_tot, abs=1e-8)
+    assert mine.energy_total == pytest.approx(theirs.e_tot, abs=1e-8)
 
 
 def test_mp2_frozen_core_matches_reference(water):

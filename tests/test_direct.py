@@ -45,7 +45,7 @@ def test_direct_energy_equals_stored_energy(name, basis):
     assert (stored.jk_mode, direct.jk_mode) == ("stored", "direct")
     # exact property: same integrals, so the same energy within the SCF tolerance
     assert abs(direct.energy_total - stored.energy_total) < 1e-9
-    assert direct.eri_bytes == stored.eri_bytes == integrals.estimate_eri_memory(b)
+    assert direct.eri_memory_bytes == stored.eri_memory_bytes == integrals.estimate_eri_memory(b)
 
 
 def _direct_solve(mol, b, interval: int) -> tuple[float, IncrementalJK]:
@@ -127,7 +127,7 @@ def test_a_store_past_the_kernel_limit_goes_lean_even_with_memory_to_spare(monke
     b = hfcore.build_basis(read_input("water"), "sto-3g")
     monkeypatch.setattr(driver, "EXCHANGE_KERNEL_LIMIT_BYTES", integrals.estimate_eri_memory(b) - 1)
     plan = plan_jk(b, SCFOptions(memory_limit=1000.0))
-    assert (plan.mode, plan.eri_bytes) == ("stored-lean", integrals.estimate_eri_memory(b, lean=True))
+    assert (plan.mode, plan.eri_memory_bytes) == ("stored-lean", integrals.estimate_eri_memory(b, lean=True))
 
 
 def test_lean_store_is_half_the_size_and_gives_the_same_energy():
@@ -139,7 +139,7 @@ def test_lean_store_is_half_the_size_and_gives_the_same_energy():
     assert lean_bytes == 8 * (19 * 20 // 2) * (19 * 20 // 2 + 1) // 2
     lean = run_rhf(mol, b, SCFOptions(direct=False, memory_limit=lean_bytes / 2**20))
     assert (full.jk_mode, lean.jk_mode) == ("stored", "stored-lean")
-    assert lean.eri_bytes == lean_bytes
+    assert lean.eri_memory_bytes == lean_bytes
     # exact property: the same integrals contracted in another order
     assert lean.energy_total == pytest.approx(full.energy_total, abs=1e-10)
 

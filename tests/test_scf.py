@@ -244,7 +244,7 @@ def test_guess_of_wrong_shape_is_refused(water_dz):
 
 def test_diis_extrapolates_to_zero_error():
     # exact property: errors e and -e combine with weights ½, ½ to zero error
-    diis = DIIS(space=4)
+    diis = DIIS(max_size=4)
     e = np.array([[0.0, 1.0], [-1.0, 0.0]])
     f1, f2 = np.diag([1.0, 2.0]), np.diag([3.0, 4.0])
     diis.next_fock(FockStep(1, f1, e, np.zeros((2, 2))))
@@ -404,7 +404,7 @@ def test_sad_from_the_molecular_integrals_equals_sad_from_atomic_ones(monkeypatc
 def test_a_ready_accelerator_can_be_plugged_in(water_dz, water_dz_result):
     from hfcore.scf import Chain, LevelShift
 
-    result = water_dz.solve(accelerator=Chain([DIIS(space=4), LevelShift(0.3)]))
+    result = water_dz.solve(accelerator=Chain([DIIS(max_size=4), LevelShift(0.3)]))
     # exact property: acceleration changes the path, not the fixed point
     assert result.energy_total == pytest.approx(water_dz_result.energy_total, abs=1e-9)
     assert max(h.diis_size for h in result.history) == 4

@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 import scipy.linalg
 
+from .._deprecation import module_aliases
 from ..errors import ConvergenceError, InputError
 from ..units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
 from .extrapolation import (
@@ -36,8 +37,8 @@ if TYPE_CHECKING:
 
 #: Starting guesses of a basis comparison (the SCF's own are :data:`hfcore.scf.GUESSES`).
 COMPARISON_GUESSES: tuple[str, ...] = ("auto", "projected", "sad")
-#: Deprecated name of :data:`COMPARISON_GUESSES`, kept for one release.
-GUESSES = COMPARISON_GUESSES
+# ``GUESSES``, the deprecated name of COMPARISON_GUESSES, warns when read (kept for one release).
+__getattr__ = module_aliases(__name__, {"GUESSES": ("COMPARISON_GUESSES", COMPARISON_GUESSES)})
 
 
 @dataclass(frozen=True)

@@ -27,6 +27,7 @@ from typing import TYPE_CHECKING
 
 from .. import elements
 from ..errors import InputError
+from ..geometry import is_closed_shell
 
 if TYPE_CHECKING:
     from ..geometry import Molecule
@@ -234,7 +235,7 @@ def load_reactions(specs: Sequence[str], *, units: str = "angstrom") -> tuple[tu
             sides.append(resolved)
         _check_balance(spec, sides)
         for _, s in (term for side in sides for term in side):
-            if s.molecule.n_electrons % 2 or s.molecule.n_electrons <= 0:
+            if not is_closed_shell(s.molecule.n_electrons):
                 raise InputError(
                     f"reaction {spec!r}: {s.label} has {s.molecule.n_electrons} electrons; RHF needs an even, positive "
                     f"number: write its charge beside the file, e.g. {s.path}[{s.charge + 1:+d}] or {s.path}[{s.charge - 1:+d}]"

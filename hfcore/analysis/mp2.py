@@ -29,6 +29,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from .._deprecation import rename_fields
 from ..errors import ConvergenceError, InputError, ResourceError
 from ._checks import require_placed
 
@@ -60,8 +61,9 @@ class MP2Result:
     ----------
     correlation : float
         E(2), the second-order correlation energy in hartree (negative).
-    total : float
-        RHF total energy plus E(2), in hartree.
+    energy_total : float
+        RHF total energy plus E(2), in hartree (``total`` is its deprecated
+        name).
     reference : float
         The RHF total energy the correction was added to, in hartree.
     same_spin : float
@@ -77,8 +79,9 @@ class MP2Result:
     scs_correlation : float
         Spin-component-scaled correlation energy, 6/5 of the opposite-spin
         plus 1/3 of the same-spin part (hartree).
-    scs_total : float
-        RHF total energy plus ``scs_correlation`` (hartree).
+    scs_energy_total : float
+        RHF total energy plus ``scs_correlation`` (hartree; ``scs_total`` is
+        its deprecated name).
     fit_name : str or None
         The fitting set of density-fitted MP2 (None: exact integrals).
     fit_n_functions : int or None
@@ -86,7 +89,7 @@ class MP2Result:
     """
 
     correlation: float
-    total: float
+    energy_total: float
     reference: float
     same_spin: float
     opposite_spin: float
@@ -94,26 +97,33 @@ class MP2Result:
     n_active_occupied: int
     n_virtual: int
     scs_correlation: float = 0.0
-    scs_total: float = 0.0
+    scs_energy_total: float = 0.0
     fit_name: str | None = None
     fit_n_functions: int | None = None
 
     def to_dict(self) -> dict[str, float | int]:
-        """The record as plain numbers (hartree), for JSON."""
+        """The record as plain numbers (hartree), for JSON.
+
+        Inside the ``mp2`` object the totals keep their short keys
+        ``total`` and ``scs_total``, as ``energy.total`` does.
+        """
         return {
             "correlation": self.correlation,
-            "total": self.total,
+            "total": self.energy_total,
             "reference": self.reference,
             "same_spin": self.same_spin,
             "opposite_spin": self.opposite_spin,
             "scs_correlation": self.scs_correlation,
-            "scs_total": self.scs_total,
+            "scs_total": self.scs_energy_total,
             "frozen_core": self.frozen_core,
             "n_active_occupied": self.n_active_occupied,
             "n_virtual": self.n_virtual,
             "fit_name": self.fit_name,
             "fit_n_functions": self.fit_n_functions,
         }
+
+
+rename_fields(MP2Result, {"total": "energy_total", "scs_total": "scs_energy_total"})
 
 
 def core_orbital_count(molecule: Molecule) -> int:
@@ -256,7 +266,7 @@ def assemble(
     reference = float(result.energy_total)
     return MP2Result(
         correlation=correlation,
-        total=reference + correlation,
+        energy_total=reference + correlation,
         reference=reference,
         same_spin=same,
         opposite_spin=opposite,
@@ -264,7 +274,7 @@ def assemble(
         n_active_occupied=int(n_active),
         n_virtual=int(n_virtual),
         scs_correlation=scs,
-        scs_total=reference + scs,
+        scs_energy_total=reference + scs,
         fit_name=fit_name,
         fit_n_functions=fit_n_functions,
     )

@@ -281,6 +281,23 @@ class STOFit:
     coefficients: dict[int, np.ndarray]
     overlaps: dict[int, float]
 
+    def to_dict(self) -> dict:
+        """The ``fit`` object of the JSON record.
+
+        Shell, n_gaussians, zeta, exponents, and the coefficients and
+        overlaps keyed by angular momentum letter.
+        """
+        from .components import L_LETTERS
+
+        return {
+            "shell": self.shell,
+            "n_gaussians": self.n_gaussians,
+            "zeta": self.zeta,
+            "exponents": self.exponents,
+            "coefficients": {L_LETTERS[l]: c for l, c in sorted(self.coefficients.items())},
+            "overlaps": {L_LETTERS[l]: v for l, v in sorted(self.overlaps.items())},
+        }
+
     @property
     def angular_momenta(self) -> tuple[int, ...]:
         """The l values fitted, increasing."""

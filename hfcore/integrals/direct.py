@@ -14,8 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..basis.shells import BasisSet
-from ..errors import InputError
-from .eri_pairs import function_families, prepare_pairs
+from .eri_pairs import function_families, prepare_pairs, screening_threshold
 from .pool import ordered_map, resolve_threads, work_units
 from .tiles import PairBatch, Tile, batch_pairs, iter_tiles, tile_integrals
 
@@ -159,8 +158,7 @@ class DirectERI:
     """
 
     def __init__(self, basis: BasisSet, *, threshold: float = 1e-12, threads: int = 1) -> None:
-        if threshold < 0:
-            raise InputError(f"the screening threshold must be >= 0, not {threshold}")
+        threshold = screening_threshold(threshold)
         self.n_functions = basis.n_functions
         self.threshold = float(threshold)
         self.threads = resolve_threads(threads)

@@ -33,6 +33,7 @@ import numpy as np
 
 from ..basis.components import component_transform, n_cartesian
 from ..basis.shells import BasisSet, Shell
+from ..errors import InputError
 from .hermite import hermite_e, hermite_signs, n_hermite, sum_index
 from .pairs import PairGroup, build_group, contract_einsum, group_pairs
 from .tiles import PairBatch, hermite_block
@@ -261,6 +262,31 @@ def _batched_family_pairs(basis: BasisSet) -> list[PairBatch]:
     return out
 
 
+def screening_threshold(value: object, name: str = "the screening threshold") -> float:
+    """The rule of a Schwarz screening threshold, checked in this one place.
+
+    Parameters
+    ----------
+    value : object
+        The threshold (hartree).
+    name : str
+        What to call it in the message.
+
+    Returns
+    -------
+    float
+        ``value`` as a float.
+
+    Raises
+    ------
+    InputError
+        Unless it is a number in [0, 1) (0: no screening).
+    """
+    if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)) or not 0.0 <= value < 1.0:
+        raise InputError(f"{name} must be a number in [0.0, 1.0), got {value!r}")
+    return float(value)
+
+
 def prepare_pairs(basis: BasisSet, threshold: float) -> list[PairBatch]:
     """Every function pair of a basis in screened, sorted, finished batches for the tile generator.
 
@@ -377,4 +403,4 @@ def shell_batches(shells: Sequence[Shell], spherical: bool) -> list[PairBatch]:
     return out
 
 
-__all__ = ["pair_index", "prepare_pairs", "shell_batches", "schwarz_bounds", "function_families", "diagonal_integrals"]
+__all__ = ["pair_index", "prepare_pairs", "screening_threshold", "shell_batches", "schwarz_bounds", "function_families", "diagonal_integrals"]

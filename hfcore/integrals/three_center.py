@@ -31,8 +31,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..basis.shells import BasisSet
-from ..errors import InputError
-from .eri_pairs import prepare_pairs, shell_batches
+from .eri_pairs import prepare_pairs, screening_threshold, shell_batches
 from .hermite import n_hermite
 from .pool import can_fork, forked_units, ordered_map, resolve_threads, shared_zeros, work_units
 from .tiles import PairBatch, Tile, batch_pairs, chunks, iter_tiles, tile_cost, tile_integrals, tile_sizes
@@ -141,8 +140,7 @@ class ThreeCenterEngine:
     """
 
     def __init__(self, basis: BasisSet, aux: BasisSet, *, threshold: float = 1e-12, threads: int = 1) -> None:
-        if threshold < 0:
-            raise InputError(f"the screening threshold must be >= 0, not {threshold}")
+        threshold = screening_threshold(threshold)
         self.n_functions = basis.n_functions
         self.n_aux = aux.n_functions
         self.n_pairs = self.n_functions * (self.n_functions + 1) // 2

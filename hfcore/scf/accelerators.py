@@ -6,13 +6,17 @@ driver treats them alike and runs them in a chain.
 
 from __future__ import annotations
 
+import warnings
 from abc import ABC, abstractmethod
 from collections import deque
+from collections.abc import Callable
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-from .options import SCFOptions
+if TYPE_CHECKING:
+    from .options import SCFOptions
 
 
 @dataclass(frozen=True)
@@ -51,8 +55,8 @@ class Accelerator(ABC):
 
     An instance goes to :func:`hfcore.scf.solve_rhf` as ``accelerator=``;
     to make one selectable by name, add the name to
-    ``hfcore.scf.options.ACCELERATOR_NAMES`` and a branch to
-    :func:`build_accelerator`.
+    :data:`ACCELERATORS` with the stages it builds, and to
+    :data:`ACCELERATOR_NAMES`.
     """
 
     @abstractmethod
@@ -89,18 +93,30 @@ class DIIS(Accelerator):
 
     Parameters
     ----------
-    space : int
-        Maximum number of stored pairs; the oldest is dropped first.
+    max_size : int
+        Maximum number of stored pairs (the most the iteration history's
+        ``diis_size`` can reach); the oldest is dropped first.
     start : int
         First iteration at which to extrapolate; before it the current Fock
         matrix is returned unchanged (but stored).
+    space : int, optional
+        Deprecated name of ``max_size``, kept for one release (warns).
     """
 
-    def __init__(self, space: int = 8, start: int = 1) -> None:
-        self.space = space
+    def __init__(self, max_size: int = 8, start: int = 1, *, space: int | None = None) -> None:
+        if space is not None:
+            warnings.warn("DIIS(space=...) is deprecated; use max_size", DeprecationWarning, stacklevel=2)
+            max_size = space
+        self.max_size = max_size
         self.start = start
-        self._focks: deque[np.ndarray] = deque(maxlen=space)
-        self._errors: deque[np.ndarray] = deque(maxlen=space)
+        self._focks: deque[np.ndarray] = deque(maxlen=max_size)
+        self._errors: deque[np.ndarray] = deque(maxlen=max_size)
+
+    @property
+    def space(self) -> int:
+        """Deprecated name of :attr:`max_size` (warns)."""
+        warnings.warn("DIIS.space is deprecated; use max_size", DeprecationWarning, stacklevel=2)
+        return self.max_size
 
     def reset(self) -> None:
         self._focks.clear()
@@ -221,25 +237,67 @@ class Chain(Accelerator):
         return fock
 
 
-def build_accelerator(options: SCFOptions) -> Accelerator:
-    """The accelerator chain the options ask for.
+#: Level shift (hartree) and damping factor the automatic aids use.
+AID_LEVEL_SHIFT: float = 0.5
+AID_DAMPING: float = 0.5
+
+
+def _diis_stages(options: SCFOptions) -> list[Accelerator]:
+    stages: list[Accelerator] = [DIIS(options.max_diis_size, options.diis_start)]
+    if options.damping > 0.0:
+        stages.append(Damping(options.damping, stop=options.diis_start))
+    return stages
+
+
+#: Every accelerator name, chosen (:data:`ACCELERATOR_NAMES`) or switched on
+#: automatically (:data:`AID_STAGES`), and the stages it builds from the
+#: options. ``"second_order"`` builds none: the solver takes trust-region
+#: orbital steps itself.
+ACCELERATORS: dict[str, Callable[[SCFOptions], list[Accelerator]]] = {
+    "diis": _diis_stages,
+    "damping": lambda options: [Damping(options.damping)],
+    "second_order": lambda options: [],
+    "none": lambda options: [],
+    "diis+level_shift": lambda options: [DIIS(options.max_diis_size, 1), LevelShift(AID_LEVEL_SHIFT)],
+    "damping+level_shift": lambda options: [Damping(AID_DAMPING), LevelShift(AID_LEVEL_SHIFT)],
+}
+#: Names accepted for :attr:`SCFOptions.accelerator`.
+ACCELERATOR_NAMES: tuple[str, ...] = ("diis", "damping", "second_order", "none")
+#: Automatic aids in the order they are switched on.
+AID_STAGES: tuple[str, ...] = ("diis+level_shift", "damping+level_shift", "second_order")
+
+
+def build_accelerator(options: SCFOptions, name: str | None = None) -> Accelerator:
+    """The accelerator chain of a name in :data:`ACCELERATORS`.
 
     ``"diis"`` gives DIIS (with damping before ``diis_start`` if
     ``damping > 0``), ``"damping"`` gives damping alone, ``"none"`` plain
-    Roothaan iterations; a positive ``level_shift`` adds a level shift last.
-    ``"second_order"`` needs no Fock matrix to diagonalise (the solver
-    takes orbital steps itself) and gives an empty chain.
+    Roothaan iterations; for these a positive ``level_shift`` adds a level
+    shift last. ``"second_order"`` needs no Fock matrix to diagonalise (the
+    solver takes orbital steps itself) and gives an empty chain. The
+    automatic aids (:data:`AID_STAGES`) bring their own level shift.
+
+    Parameters
+    ----------
+    options : SCFOptions
+    name : str, optional
+        An accelerator or aid name (default: ``options.accelerator``).
+
+    Returns
+    -------
+    Chain
     """
-    stages: list[Accelerator] = []
-    if options.accelerator == "diis":
-        stages.append(DIIS(options.max_diis_size, options.diis_start))
-        if options.damping > 0.0:
-            stages.append(Damping(options.damping, stop=options.diis_start))
-    elif options.accelerator == "damping":
-        stages.append(Damping(options.damping))
-    if options.level_shift > 0.0:
+    chosen = options.accelerator if name is None else name
+    stages = ACCELERATORS[chosen](options)
+    if chosen in ACCELERATOR_NAMES and options.level_shift > 0.0:
         stages.append(LevelShift(options.level_shift))
     return Chain(stages)
 
 
-__all__ = ["Accelerator", "FockStep", "DIIS", "Damping", "LevelShift", "Chain", "build_accelerator"]
+__all__ = [
+    "ACCELERATORS",
+    "ACCELERATOR_NAMES",
+    "AID_STAGES",
+    "AID_LEVEL_SHIFT",
+    "AID_DAMPING",
+    "Accelerator", "FockStep", "DIIS", "Damping", "LevelShift", "Chain", "build_accelerator"]

@@ -9,6 +9,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from .. import integrals
+from .._deprecation import rename_fields
 from ..basis import build_basis, require_room_for
 from ..basis.fitting import FittingChoice, fitting_basis
 from ..basis.shells import BasisSet
@@ -75,7 +76,7 @@ def run_rhf(
         Timings hold "integrals", "guess", "scf", "stability" and "total"
         seconds; ``stability`` and ``aufbau`` say what was checked after
         convergence (see ``options.stability``);
-        ``jk_mode`` and ``eri_bytes`` say how J and K were built
+        ``jk_mode`` and ``eri_memory_bytes`` say how J and K were built
         (see :func:`plan_jk`).
 
     Raises
@@ -143,7 +144,8 @@ def _run_rhf(
                 "fit_dropped": getattr(jk, "n_dropped", 0),
             }
         return replace(
-            result, molecule=molecule, basis=basis, timings=timings, jk_mode=plan.mode, eri_bytes=plan.eri_bytes,
+            result, molecule=molecule, basis=basis, timings=timings, jk_mode=plan.mode,
+            eri_memory_bytes=plan.eri_memory_bytes,
             **fitted,
         )
 
@@ -185,7 +187,7 @@ class JKPlan:
         (16 bytes per unique integral, the fastest builds), store them alone
         and build K from them directly (8 bytes), recompute them every
         iteration, or fit them (``options.fit_basis``).
-    eri_bytes : int
+    eri_memory_bytes : int
         Memory the stored integrals need (bytes), from
         :func:`hfcore.integrals.estimate_eri_memory`: the lean size for
         "stored-lean", the size with the exchange kernel otherwise; in
@@ -202,11 +204,14 @@ class JKPlan:
     """
 
     mode: str
-    eri_bytes: int
+    eri_memory_bytes: int
     limit_bytes: int
     fitting: FittingPlan | None = None
     fit_basis: BasisSet | None = None
     fit_notes: tuple[str, ...] = ()
+
+
+rename_fields(JKPlan, {"eri_bytes": "eri_memory_bytes"})
 
 
 def plan_jk(

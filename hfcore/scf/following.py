@@ -131,7 +131,7 @@ def stabilise(
         solutions=energies,
         lowest_eigenvalues=lowest,
         rounds=rounds,
-        products=products,
+        hessian_products=products,
         message=message,
     )
     timings = {**result.timings, "scf": scf_time + later_scf, "stability": time.perf_counter() - t0 - later_scf}

@@ -169,7 +169,7 @@ def fractional_scf(
         (a guess needs no more).
     """
     ortho = Orthogonaliser.from_overlap(overlap, ATOM_LINDEP)
-    diis = DIIS(space=6)
+    diis = DIIS(max_size=6)
     density = _fill(ortho, ortho.to_orthonormal(hcore), n_electrons, n_core)
     energy = 0.0
     for iteration in range(1, ATOM_MAX_ITERATIONS + 1):

@@ -2,18 +2,15 @@
 
 from __future__ import annotations
 
-import functools
 import math
-import warnings
 from dataclasses import dataclass
 from typing import Any
 
+from .._deprecation import rename_fields
 from ..errors import InputError
+from .accelerators import ACCELERATOR_NAMES
 from .stability import check_stability_mode
 
-#: Names accepted for :attr:`SCFOptions.accelerator`; the classes live in
-#: :mod:`hfcore.scf.accelerators`.
-ACCELERATOR_NAMES: tuple[str, ...] = ("diis", "damping", "second_order", "none")
 
 
 def _positive(name: str, value: object) -> float:
@@ -204,11 +201,6 @@ class SCFOptions:
             raise InputError("SCF options fit_basis and direct exclude each other: fitted J and K need no stored or direct integrals")
 
     @property
-    def diis_space(self) -> int:
-        """Deprecated name of :attr:`max_diis_size`."""
-        return self.max_diis_size
-
-    @property
     def memory_limit_bytes(self) -> int:
         """The memory budget of the stored integrals in bytes (``memory_limit`` or the default)."""
         mib = default_memory_limit() if self.memory_limit is None else self.memory_limit
@@ -224,7 +216,10 @@ class SCFOptions:
     def _check_ranges(self) -> None:
         if self.lindep_threshold >= 1.0:
             raise InputError(f"SCF option lindep_threshold must be below 1, got {self.lindep_threshold!r}")
-        for name, low, high in (("screening", 0.0, 1.0), ("damping", 0.0, 1.0), ("level_shift", 0.0, math.inf)):
+        from ..integrals.eri_pairs import screening_threshold
+
+        object.__setattr__(self, "screening", screening_threshold(self.screening, "SCF option screening"))
+        for name, low, high in (("damping", 0.0, 1.0), ("level_shift", 0.0, math.inf)):
             value = getattr(self, name)
             if isinstance(value, bool) or not isinstance(value, (int, float)) or not (low <= value < high):
                 raise InputError(f"SCF option {name} must be a number in [{low}, {high}), got {value!r}")
@@ -243,19 +238,6 @@ class SCFOptions:
             raise InputError("a level shift applies to Fock-matrix accelerators, not to 'second_order'")
 
 
-_dataclass_init = SCFOptions.__init__
-
-
-@functools.wraps(_dataclass_init)
-def _init_accepting_old_names(self: SCFOptions, *args: Any, diis_space: int | None = None, **kwargs: Any) -> None:
-    if diis_space is not None:
-        warnings.warn("SCFOptions(diis_space=...) is deprecated; use max_diis_size", DeprecationWarning, stacklevel=2)
-        if "max_diis_size" in kwargs:
-            raise InputError("give max_diis_size or its deprecated name diis_space, not both")
-        kwargs["max_diis_size"] = diis_space
-    _dataclass_init(self, *args, **kwargs)
-
-
-SCFOptions.__init__ = _init_accepting_old_names  # type: ignore[method-assign]
+rename_fields(SCFOptions, {"diis_space": "max_diis_size"})
 
 __all__ = ["SCFOptions", "ACCELERATOR_NAMES", "default_memory_limit", "MEMORY_FRACTION", "FALLBACK_MEMORY_MIB"]

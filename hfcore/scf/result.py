@@ -7,6 +7,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from .._deprecation import rename_fields
 from .options import SCFOptions
 
 if TYPE_CHECKING:
@@ -113,7 +114,7 @@ class RHFResult:
         kernel, or lean: K from the integrals themselves), by recomputing
         them every iteration, by density fitting, or by a builder handed to
         :func:`solve_rhf`.
-    eri_bytes : int
+    eri_memory_bytes : int
         Predicted memory of the stored integrals (bytes), whichever mode
         ran; 0 when unknown (bare matrices). In fitted mode, the predicted
         peak of the fitted factors.
@@ -163,7 +164,7 @@ class RHFResult:
     molecule: "Molecule | None" = None
     basis: "BasisSet | None" = None
     jk_mode: str = "given"
-    eri_bytes: int = 0
+    eri_memory_bytes: int = 0
     aufbau: bool = True
     aufbau_gap: float = float("inf")
     aids: tuple[str, ...] = ()
@@ -214,5 +215,7 @@ class RHFResult:
             raise InputError("to_dict needs an RHF result that carries its molecule and basis (from run_rhf)")
         return result_record(self)
 
+
+rename_fields(RHFResult, {"eri_bytes": "eri_memory_bytes"})
 
 __all__ = ["SCFIteration", "RHFResult"]

@@ -9,7 +9,8 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..errors import BasisError, ConvergenceError, InputError
-from .accelerators import DIIS, Accelerator, Chain, Damping, FockStep, LevelShift, build_accelerator
+from ..geometry import is_closed_shell
+from .accelerators import AID_DAMPING, AID_LEVEL_SHIFT, AID_STAGES, Accelerator, FockStep, build_accelerator
 from .jk import JKBuilder
 from .options import SCFOptions
 from .orthogonalise import Orthogonaliser
@@ -19,11 +20,6 @@ from .stability import plain_builder
 
 Progress = Callable[[SCFIteration], None]
 
-#: Automatic aids in the order they are switched on (see :class:`_AidSchedule`).
-AID_STAGES: tuple[str, ...] = ("diis+level_shift", "damping+level_shift", "second_order")
-#: Level shift (hartree) and damping factor the automatic aids use.
-AID_LEVEL_SHIFT: float = 0.5
-AID_DAMPING: float = 0.5
 #: Iterations over which progress is judged.
 AID_WINDOW: int = 8
 
@@ -153,7 +149,7 @@ def solve_rhf(
     options = options or SCFOptions()
     s = _checked_square("overlap", overlap)
     h = _checked_square("core_hamiltonian", core_hamiltonian, s.shape[0])
-    if isinstance(n_electrons, bool) or int(n_electrons) != n_electrons or n_electrons <= 0 or n_electrons % 2:
+    if not is_closed_shell(n_electrons):
         raise InputError(f"RHF needs an even, positive number of electrons, got {n_electrons}")
     ortho = Orthogonaliser.from_overlap(s, options.lindep_threshold)
     n_occ = int(n_electrons) // 2
@@ -253,13 +249,9 @@ class _AidSchedule:
     def _switch(self, name: str) -> None:
         opts = self.options
         self.second_order = None
-        if name == "diis+level_shift":
-            self.accelerator = Chain([DIIS(opts.max_diis_size, 1), LevelShift(AID_LEVEL_SHIFT)])
-        elif name == "second_order":
-            self.accelerator = Chain([])
+        self.accelerator = build_accelerator(opts, name)
+        if name == "second_order":
             self.second_order = SecondOrderStep()
-        else:
-            self.accelerator = Chain([Damping(AID_DAMPING), LevelShift(AID_LEVEL_SHIFT)])
         self.name = name
         self.used.append(name)
         self._gradients.clear()

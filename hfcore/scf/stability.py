@@ -33,6 +33,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.linalg import expm
 
+from .._deprecation import rename_fields
 from ..errors import InputError
 from .jk import IncrementalJK, JKBuilder
 
@@ -112,8 +113,9 @@ class StabilityReport:
         The lowest eigenvalue of each analysed solution, same order.
     rounds : int
         Rotations along an unstable mode that were followed.
-    products : int
-        Hessian-vector products (J/K builds) spent in all analyses.
+    hessian_products : int
+        Hessian-vector products (J/K builds) spent in all analyses
+        (``products`` is its deprecated name).
     message : str
         The outcome in words.
     """
@@ -127,8 +129,26 @@ class StabilityReport:
     solutions: list[float] = field(default_factory=list)
     lowest_eigenvalues: list[float] = field(default_factory=list)
     rounds: int = 0
-    products: int = 0
+    hessian_products: int = 0
     message: str = ""
+
+    def to_dict(self) -> dict:
+        """The ``scf.stability`` object of the JSON record (eigenvalues in hartree; no ``vector``)."""
+        return {
+            "mode": self.mode,
+            "stable": self.stable,
+            "lowest_eigenvalue": self.lowest_eigenvalue,
+            "eigenvalues": self.eigenvalues,
+            "threshold": self.threshold,
+            "solutions": list(self.solutions),
+            "lowest_eigenvalues": list(self.lowest_eigenvalues),
+            "rounds": self.rounds,
+            "hessian_products": self.hessian_products,
+            "message": self.message,
+        }
+
+
+rename_fields(StabilityReport, {"products": "hessian_products"})
 
 
 def check_stability_mode(mode: object) -> str:
