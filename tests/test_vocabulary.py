@@ -152,6 +152,7 @@ def test_the_closed_shell_rule(count, closed):
 @pytest.mark.parametrize("value", [-1e-12, 1.0, float("nan"), True, "1e-12"])
 def test_one_screening_rule_for_the_options_and_the_integral_engines(value):
     import hfcore
+    from hfcore.integrals import compute_eri
     from hfcore.integrals.direct import DirectERI
 
     basis = hfcore.build_basis(hfcore.read_xyz(INPUTS / "water.xyz"), "sto-3g")
@@ -159,6 +160,8 @@ def test_one_screening_rule_for_the_options_and_the_integral_engines(value):
         SCFOptions(screening=value)
     with pytest.raises(InputError, match=r"the screening threshold must be a number in \[0.0, 1.0\)"):
         DirectERI(basis, threshold=value)
+    with pytest.raises(InputError, match=r"the screening threshold must be a number in \[0.0, 1.0\)"):
+        compute_eri(basis, threshold=value)
 
 
 def test_stability_report_to_dict_is_the_json_object_and_products_is_an_old_name():

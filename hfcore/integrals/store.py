@@ -22,8 +22,8 @@ import numpy as np
 from scipy.linalg import blas
 
 from ..basis.shells import BasisSet
-from ..errors import InputError, ResourceError
-from .eri_pairs import pair_index, prepare_pairs
+from ..errors import ResourceError
+from .eri_pairs import pair_index, prepare_pairs, screening_threshold
 from .hermite import n_hermite
 from .pool import can_fork, forked_units, ordered_map, resolve_threads, shared_zeros, work_units
 from .tiles import Tile, batch_pairs, iter_tiles
@@ -304,13 +304,12 @@ def compute_eri(
     Raises
     ------
     InputError
-        If ``threshold`` is negative.
+        If ``threshold`` is not a number in [0, 1).
     ResourceError
         If the store and its exchange kernel (16 bytes per unique integral,
         8 if ``lean``) would exceed :data:`STORE_LIMIT_BYTES`.
     """
-    if threshold < 0:
-        raise InputError(f"the screening threshold must be >= 0, not {threshold}")
+    threshold = screening_threshold(threshold)
     n = basis.n_functions
     npair = n * (n + 1) // 2
     size = npair * (npair + 1) // 2
