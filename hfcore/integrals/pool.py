@@ -317,7 +317,154 @@ def forked_units(
         progress(finished[:n_units])
 
 
+#: Parent-side pipe ends of every live :class:`WorkerTeam`; a new worker closes them all.
+_TEAM_FDS: set[int] = set()
+
+
+class WorkerTeam:
+    """``processes - 1`` forked workers kept between calls, each call running ``work(unit)`` for all units.
+
+    For a step repeated many times over the same large read-only data (the
+    K builds of one SCF from one store), forking once saves the fork and the
+    copy-on-write faults of every call. ``work`` is fixed when the team is
+    made; it reads its inputs from, and writes its results into,
+    :func:`shared_zeros` arrays made before, each unit to its own place.
+    :meth:`close` ends the workers (so does the end of this process: a
+    worker leaves when its command pipe closes).
+
+    Parameters
+    ----------
+    work : callable
+        Called with a unit index, in any process of the team.
+    processes : int
+        Processes in all, this one included (at least 2).
+    """
+
+    def __init__(self, work: Callable[[int], None], processes: int):
+        import multiprocessing
+
+        self._work = work
+        self._counter = shared_zeros(1, np.int64)
+        self._errors = shared_zeros((processes, _ERROR_BYTES), np.uint8)
+        self._lock = multiprocessing.get_context("fork").Lock()
+        self._pids: list[int] = []
+        self._commands: list[int] = []
+        self._replies: list[int] = []
+        try:
+            for slot in range(1, processes):
+                command_r, command_w = os.pipe()
+                reply_r, reply_w = os.pipe()
+                pid = os.fork()
+                if pid == 0:
+                    os.close(command_w)
+                    os.close(reply_r)
+                    self._serve(slot, command_r, reply_w)  # never returns
+                os.close(command_r)
+                os.close(reply_w)
+                self._pids.append(pid)
+                self._commands.append(command_w)
+                self._replies.append(reply_r)
+                _TEAM_FDS.update((command_w, reply_r))
+        except BaseException:
+            self.close()
+            raise
+
+    def _take(self) -> int:
+        with self._lock:
+            unit = int(self._counter[0])
+            self._counter[0] = unit + 1
+        return unit
+
+    def _serve(self, slot: int, commands: int, replies: int) -> None:
+        code = 0
+        try:
+            for fd in _TEAM_FDS:
+                with contextlib.suppress(OSError):
+                    os.close(fd)
+            signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent handles it and closes the team
+            signal.signal(signal.SIGTERM, signal.SIG_DFL)
+            with blas_threads(1):
+                self._loop(slot, commands, replies)
+        except BaseException:
+            code = 1
+        finally:
+            os._exit(code)
+
+    def _loop(self, slot: int, commands: int, replies: int) -> None:
+        """Serve commands until told to stop: run units, then reply ``k`` (done) or ``e`` (failed)."""
+        while True:
+            message = os.read(commands, 8)
+            if len(message) < 8:
+                break  # closed, or the parent is gone
+            n_units = int.from_bytes(message, "little", signed=True)
+            if n_units < 0:
+                break
+            reply = b"k"
+            try:
+                while (unit := self._take()) < n_units:
+                    self._work(unit)
+            except BaseException as exc:  # handed to the parent, which raises it
+                data = _pickled_error(exc)
+                self._errors[slot, : len(data)] = np.frombuffer(data, np.uint8)
+                reply = b"e"
+                with self._lock:
+                    self._counter[0] = n_units
+            os.write(replies, reply)
+
+    def run(self, n_units: int) -> None:
+        """``work(u)`` for every u in ``range(n_units)``, spread over the team; returns when all are done.
+
+        Raises
+        ------
+        Exception
+            The exception of a unit that failed in a worker (the team is
+            closed then), or one raised here (the workers finish the call
+            first).
+        """
+        if not self._pids:
+            raise RuntimeError("the worker team is closed")
+        self._counter[0] = 0
+        command = int(n_units).to_bytes(8, "little", signed=True)
+        for fd in self._commands:
+            os.write(fd, command)
+        error: BaseException | None = None
+        with blas_threads(1):
+            try:
+                while (unit := self._take()) < n_units:
+                    self._work(unit)
+            except BaseException as exc:
+                with self._lock:
+                    self._counter[0] = n_units
+                error = exc
+            for slot, fd in enumerate(self._replies, start=1):
+                reply = os.read(fd, 1)
+                if reply != b"k" and error is None:
+                    error = (
+                        _unpickled_error(bytes(self._errors[slot]), 0)
+                        if reply == b"e"
+                        else RuntimeError("an integral worker process ended unexpectedly")
+                    )
+        if error is not None:
+            self.close()
+            raise error
+
+    def close(self) -> None:
+        """End the workers and wait for them (idempotent)."""
+        for fd in self._commands:
+            with contextlib.suppress(OSError):
+                os.write(fd, (-1).to_bytes(8, "little", signed=True))
+        for fd in self._commands + self._replies:
+            _TEAM_FDS.discard(fd)
+            with contextlib.suppress(OSError):
+                os.close(fd)
+        for pid in self._pids:
+            with contextlib.suppress(OSError):
+                os.waitpid(pid, 0)
+        self._pids, self._commands, self._replies = [], [], []
+
+
 __all__ = [
+    "WorkerTeam",
     "available_cores",
     "resolve_threads",
     "blas_threads",

@@ -16,6 +16,7 @@ packed symmetric matrix-vector products (BLAS ``spmv``).
 from __future__ import annotations
 
 from collections.abc import Callable
+import weakref
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -25,7 +26,7 @@ from ..basis.shells import BasisSet
 from ..errors import ResourceError
 from .eri_pairs import pair_index, prepare_pairs, screening_threshold
 from .hermite import n_hermite
-from .pool import can_fork, forked_units, ordered_map, resolve_threads, shared_zeros, work_units
+from .pool import WorkerTeam, can_fork, forked_units, ordered_map, resolve_threads, shared_zeros, work_units
 from .tiles import Tile, batch_pairs, iter_tiles
 
 #: Largest dense (nbf,)*4 array ``to_dense`` will build, in bytes.
@@ -87,6 +88,7 @@ class ERIStore:
     lean: bool = False
     threads: int = 1
     _exchange: np.ndarray | None = field(default=None, repr=False)
+    _team: _LeanTeam | None = field(default=None, repr=False, compare=False)
 
     @property
     def n_pairs(self) -> int:
@@ -200,14 +202,11 @@ class ERIStore:
             # Worker processes: the rows are many small BLAS calls, held back
             # by the interpreter lock on threads. Each unit's share has its
             # own slot, added here in unit order as below.
-            parts_j = shared_zeros((len(units), self.n_pairs))
-            parts_h = shared_zeros((len(units), n, n))
-
-            def run(u: int) -> None:
-                parts_j[u], parts_h[u] = self._lean_rows(units[u][0], units[u][1], d, dp)
-
-            forked_units(run, len(units), self.threads)
-            parts = zip(parts_j, parts_h)
+            team = self._lean_team(units)
+            team.density[...] = d
+            team.packed_density[...] = dp
+            team.run(len(units))
+            parts = zip(team.parts_j, team.parts_h)
         else:
             parts = ordered_map(lambda unit: self._lean_rows(unit[0], unit[1], d, dp), units, self.threads)
         for part_j, part_h in parts:
@@ -215,41 +214,87 @@ class ERIStore:
             h += part_h
         return jp, h + h.T
 
+    def _lean_team(self, units: list[tuple[int, int]]) -> _LeanTeam:
+        """The store's worker processes for lean K builds, made on first use, kept until the store goes."""
+        team = self._team
+        if team is None or team.size != self.threads:
+            if team is not None:
+                team.close()
+            team = self._team = _LeanTeam(self.packed, self.n_functions, units, self.threads)
+            weakref.finalize(self, team.close)
+        return team
+
     def _lean_rows(self, first: int, stop: int, d: np.ndarray, dp: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """The shares of J and H in :meth:`_lean_jk` of the rows with first index in [first, stop)."""
-        n = self.n_functions
-        h = np.zeros((n, n))
-        jp = np.zeros(self.n_pairs)
-        packed = self.packed
-        spmv, axpy = blas.dspmv, blas.daxpy
-        for i in range(first, stop):
-            ti = i * (i + 1) // 2
-            js = np.arange(i + 1)
-            starts = (ti + js) * (ti + js + 1) // 2 + ti  # where (ij|i0) sits in row IJ
-            lower = js[None, :] <= js[:, None]
-            r = np.where(lower, packed[np.where(lower, starts[:, None] + js[None, :], 0)], 0.0)
-            r[js, js] *= 0.5
-            dd = d[: i + 1, : i + 1]
-            # (a, c) = (i, j): H[i, i] += Σ_j R[j] · D[j], H[i, d] += Σ_j R[j, d] D[j, i] for d != i.
-            h[i, i] += np.einsum("jd,jd->", r, dd) - r[i, i] * d[i, i]
-            h[i, : i + 1] += r.T @ d[: i + 1, i]
-            # (a, c) = (j, i), j < i: H[j, i] += R[j] · D[i], H[j, d] += R[j, d] D[i, i].
-            h[:i, i] += r[:i] @ d[i, : i + 1]
-            h[:i, :i] += r[:i, :i] * d[i, i]
-            for j in range(i + 1):
-                pair = ti + j
-                start = int(starts[j]) - ti
-                row = packed[start : start + pair + 1]
-                jp[pair] += row @ dp[: pair + 1]
-                if pair:
-                    axpy(row[:pair], jp[:pair], a=dp[pair])
-                if i == 0:
-                    continue
-                full = row[:ti]
-                spmv(i, 1.0, full, d[j, :i], beta=1.0, y=h[i, :i], overwrite_y=1)
-                if j < i:
-                    spmv(i, 1.0, full, d[i, :i], beta=1.0, y=h[j, :i], overwrite_y=1)
-        return jp, h
+        return _lean_rows(self.packed, self.n_functions, first, stop, d, dp)
+
+
+class _LeanTeam:
+    """Worker processes of lean J/K builds over one store, with the shared arrays they read and fill.
+
+    It holds the packed integrals, not the store, so the store can be
+    collected (and the team closed) as usual.
+    """
+
+    def __init__(self, packed: np.ndarray, n: int, units: list[tuple[int, int]], size: int):
+        npair = n * (n + 1) // 2
+        self.size = size
+        self.density = shared_zeros((n, n))
+        self.packed_density = shared_zeros(npair)
+        self.parts_j = shared_zeros((len(units), npair))
+        self.parts_h = shared_zeros((len(units), n, n))
+        density, packed_density, parts_j, parts_h = self.density, self.packed_density, self.parts_j, self.parts_h
+
+        def work(u: int) -> None:
+            parts_j[u], parts_h[u] = _lean_rows(packed, n, units[u][0], units[u][1], density, packed_density)
+
+        self._team = WorkerTeam(work, size)
+
+    def run(self, n_units: int) -> None:
+        self._team.run(n_units)
+
+    def close(self) -> None:
+        self._team.close()
+
+
+def _lean_rows(
+    packed: np.ndarray, n: int, first: int, stop: int, d: np.ndarray, dp: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """The shares of J (packed, shape (npair,)) and H (shape (n, n)) of the rows with first index in [first, stop).
+
+    See :meth:`ERIStore._lean_jk`.
+    """
+    h = np.zeros((n, n))
+    jp = np.zeros(n * (n + 1) // 2)
+    spmv, axpy = blas.dspmv, blas.daxpy
+    for i in range(first, stop):
+        ti = i * (i + 1) // 2
+        js = np.arange(i + 1)
+        starts = (ti + js) * (ti + js + 1) // 2 + ti  # where (ij|i0) sits in row IJ
+        lower = js[None, :] <= js[:, None]
+        r = np.where(lower, packed[np.where(lower, starts[:, None] + js[None, :], 0)], 0.0)
+        r[js, js] *= 0.5
+        dd = d[: i + 1, : i + 1]
+        # (a, c) = (i, j): H[i, i] += Σ_j R[j] · D[j], H[i, d] += Σ_j R[j, d] D[j, i] for d != i.
+        h[i, i] += np.einsum("jd,jd->", r, dd) - r[i, i] * d[i, i]
+        h[i, : i + 1] += r.T @ d[: i + 1, i]
+        # (a, c) = (j, i), j < i: H[j, i] += R[j] · D[i], H[j, d] += R[j, d] D[i, i].
+        h[:i, i] += r[:i] @ d[i, : i + 1]
+        h[:i, :i] += r[:i, :i] * d[i, i]
+        for j in range(i + 1):
+            pair = ti + j
+            start = int(starts[j]) - ti
+            row = packed[start : start + pair + 1]
+            jp[pair] += row @ dp[: pair + 1]
+            if pair:
+                axpy(row[:pair], jp[:pair], a=dp[pair])
+            if i == 0:
+                continue
+            full = row[:ti]
+            spmv(i, 1.0, full, d[j, :i], beta=1.0, y=h[i, :i], overwrite_y=1)
+            if j < i:
+                spmv(i, 1.0, full, d[i, :i], beta=1.0, y=h[j, :i], overwrite_y=1)
+    return jp, h
 
 
 def _unpack_symmetric(vec: np.ndarray, n: int) -> np.ndarray:
