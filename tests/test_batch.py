@@ -451,3 +451,31 @@ def single_energy_file(path: Path, basis_file: str) -> float:
     code, out, err = run_main("energy", path, "--basis-file", basis_file, "--json", "-")
     assert code == 0, err
     return json.loads(out)["energy"]["total"]
+
+
+def test_local_workers_leave_signals_to_the_parent_and_get_the_thread_limit():
+    # Whether spawned or forked from the preloading fork server, a worker must
+    # not run the batch parent's signal handlers: Ctrl-C is the parent's to
+    # handle, SIGTERM (sent by the parent to abandon a job) ends the worker.
+    import importlib.util
+
+    from hfcore.batch.pool import LocalPool
+
+    def parent_handler(signum, frame):  # what 'hfcore batch' installs while it runs
+        raise AssertionError("a worker ran the parent's handler")
+
+    previous = {s: signal.signal(s, parent_handler) for s in (signal.SIGINT, signal.SIGTERM)}
+    try:
+        pool = LocalPool(1, 3)
+        try:
+            assert pool.executor.submit(signal.getsignal, signal.SIGINT).result() == signal.SIG_IGN
+            assert pool.executor.submit(signal.getsignal, signal.SIGTERM).result() == signal.SIG_DFL
+            assert pool.executor.submit(os.getenv, "OPENBLAS_NUM_THREADS").result() == "3"
+        finally:
+            pool.close(abandon=False)
+    finally:
+        for s, h in previous.items():
+            signal.signal(s, h)
+    # Linux with threadpoolctl (as in the test environment) forks; elsewhere spawn as before.
+    fork_expected = sys.platform.startswith("linux") and importlib.util.find_spec("threadpoolctl") is not None
+    assert pool.start_method == ("forkserver" if fork_expected else "spawn")
