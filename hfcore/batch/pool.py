@@ -1,9 +1,9 @@
 """The local back end: a pool of worker processes on this machine.
 
 Where the platform can fork (Linux) and ``threadpoolctl`` is installed, the
-workers are forked from a fork server that has already imported numpy,
-scipy and hfcore, so a worker starts in milliseconds instead of paying the
-interpreter and import start-up again; each job then gets its BLAS thread
+workers are forked from a fork server that has imported numpy, scipy and
+hfcore once, so the interpreter and import start-up is paid once per batch
+process instead of once per worker; each job then gets its BLAS thread
 limit from ``threadpoolctl``. Elsewhere the workers are spawned fresh with
 the BLAS thread variables in their environment before numpy loads.
 """
@@ -86,8 +86,8 @@ def _init_local_worker(threads: int | None = None, batch_pid: int | None = None)
 def _die_with_parent() -> None:
     """Ask Linux to kill this worker when its parent dies (e.g. by SIGKILL).
 
-    A forked worker's parent is the fork server, which ends when the batch
-    process does.
+    A forked worker's parent is the fork server, which outlives the batch
+    process while workers remain: :func:`_watch_batch_process` covers that.
     """
     with contextlib.suppress(Exception):
         import ctypes
