@@ -427,3 +427,55 @@ def test_new_energy_options_flow_into_batch_even_when_a_batch_option_shadows_the
     assert args.new_flag == 2.0 and "new_flag" in args.batch_job_dests
     assert args.batch_extra_dests == ["threads"] and args.threads == 3
     assert "plot" not in args.batch_job_dests  # shadowed by batch's own --plot; the job keeps energy's default
+
+
+def test_with_a_basis_file_the_job_names_the_file_it_used(tmp_path):
+    # STO-3G hydrogen 1s (Hehre, Stewart & Pople 1969), the same shell as in test_bad_inputs.
+    shell = {"l": 0, "exponents": ["3.42525091", "0.62391373", "0.16885540"],
+             "coefficients": [["0.15432897", "0.53532814", "0.44463454"]]}
+    (tmp_path / "mine.json").write_text(json.dumps({"format": "hfcore-basis/1", "name": "mine",
+                                                    "elements": {"H": [shell]}}))
+    (tmp_path / "a.xyz").write_text(h2(0.74))
+    results = tmp_path / "r.jsonl"
+    basis_file = str(tmp_path / "mine.json")
+    code, _, err = run_main("batch", tmp_path / "a.xyz", "--basis", "6-31g,sto-3g", "--basis-file", basis_file,
+                            "--results", results, "--workers", "1")
+    assert code == 0, err
+    (record,) = job_lines(results)  # the file replaces --basis: one job, not one per name
+    assert record["job"]["basis"] == basis_file
+    assert record["job"]["options"]["basis_file"] == basis_file
+    assert record["energy"]["total"] == pytest.approx(single_energy_file(tmp_path / "a.xyz", basis_file), abs=1e-9)
+
+
+def single_energy_file(path: Path, basis_file: str) -> float:
+    code, out, err = run_main("energy", path, "--basis-file", basis_file, "--json", "-")
+    assert code == 0, err
+    return json.loads(out)["energy"]["total"]
+
+
+def test_local_workers_leave_signals_to_the_parent_and_get_the_thread_limit():
+    # Whether spawned or forked from the preloading fork server, a worker must
+    # not run the batch parent's signal handlers: Ctrl-C is the parent's to
+    # handle, SIGTERM (sent by the parent to abandon a job) ends the worker.
+    import importlib.util
+
+    from hfcore.batch.pool import LocalPool
+
+    def parent_handler(signum, frame):  # what 'hfcore batch' installs while it runs
+        raise AssertionError("a worker ran the parent's handler")
+
+    previous = {s: signal.signal(s, parent_handler) for s in (signal.SIGINT, signal.SIGTERM)}
+    try:
+        pool = LocalPool(1, 3)
+        try:
+            assert pool.executor.submit(signal.getsignal, signal.SIGINT).result() == signal.SIG_IGN
+            assert pool.executor.submit(signal.getsignal, signal.SIGTERM).result() == signal.SIG_DFL
+            assert pool.executor.submit(os.getenv, "OPENBLAS_NUM_THREADS").result() == "3"
+        finally:
+            pool.close(abandon=False)
+    finally:
+        for s, h in previous.items():
+            signal.signal(s, h)
+    # Linux with threadpoolctl (as in the test environment) forks; elsewhere spawn as before.
+    fork_expected = sys.platform.startswith("linux") and importlib.util.find_spec("threadpoolctl") is not None
+    assert pool.start_method == ("forkserver" if fork_expected else "spawn")

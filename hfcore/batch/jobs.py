@@ -61,7 +61,7 @@ class Job:
     geometry : str
         The geometry path as given.
     basis : str
-        The basis-set name.
+        The basis-set name, or the path of the ``--basis-file`` used instead.
     charge : int
         The total charge of the molecule.
     options : dict
@@ -240,7 +240,9 @@ def make_jobs(
     ----------
     entries : sequence of GeometryEntry
     bases : sequence of str
-        Basis names.
+        Basis names. Ignored when ``options`` has a ``basis_file`` (which
+        replaces the basis, as in ``hfcore energy``): each geometry then
+        gets one job whose ``basis`` is that file's path.
     default_charge : int
         The charge of entries that give none.
     options : mapping
@@ -269,6 +271,9 @@ def make_jobs(
     # Options left out take their defaults, so a job is the same job whether
     # it was made from the command line or in Python.
     options = {**defaults, **options}
+    if options.get("basis_file"):
+        # The file is what the job uses, so the job and its results line say so.
+        bases = [str(options["basis_file"])]
     digests: dict[str, str | None] = {}
     jobs: list[Job] = []
     seen: set[str] = set()

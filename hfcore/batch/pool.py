@@ -1,8 +1,17 @@
-"""The local back end: a pool of worker processes on this machine."""
+"""The local back end: a pool of worker processes on this machine.
+
+Where the platform can fork (Linux) and ``threadpoolctl`` is installed, the
+workers are forked from a fork server that has imported numpy, scipy and
+hfcore once, so the interpreter and import start-up is paid once per batch
+process instead of once per worker; each job then gets its BLAS thread
+limit from ``threadpoolctl``. Elsewhere the workers are spawned fresh with
+the BLAS thread variables in their environment before numpy loads.
+"""
 
 from __future__ import annotations
 
 import contextlib
+import importlib.util
 import multiprocessing
 import os
 import signal
@@ -20,6 +29,13 @@ THREAD_VARIABLES: tuple[str, ...] = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", 
 #: Seconds between looks at the stop flag while jobs run.
 POLL_S: float = 0.2
 
+#: Modules the fork server imports once, before it forks any worker.
+PRELOAD: tuple[str, ...] = (
+    "numpy", "numpy.linalg", "scipy", "scipy.linalg", "threadpoolctl",
+    "hfcore.cli", "hfcore.scf", "hfcore.basis.sto", "hfcore.integrals.pool", "hfcore.batch.command",
+    "hfcore.batch.worker",
+)
+
 
 def usable_cores() -> int:
     """Cores this process may run on (its CPU affinity), at least 1."""
@@ -29,16 +45,50 @@ def usable_cores() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-def _init_local_worker() -> None:
+def preimported_context() -> multiprocessing.context.BaseContext | None:
+    """The fork-server context that preloads :data:`PRELOAD`, or None where it cannot be used.
+
+    It needs the "fork" and "forkserver" start methods (Linux) and
+    ``threadpoolctl`` (BLAS is already loaded when a worker starts, so its
+    thread count cannot come from environment variables any more).
+    """
+    methods = multiprocessing.get_all_start_methods()
+    if "fork" not in methods or "forkserver" not in methods or importlib.util.find_spec("threadpoolctl") is None:
+        return None
+    context = multiprocessing.get_context("forkserver")
+    # Takes effect when this process starts its fork server (once).
+    context.set_forkserver_preload(list(PRELOAD))
+    return context
+
+
+def _init_local_worker(threads: int | None = None, batch_pid: int | None = None) -> None:
+    """Set up a worker; ``threads`` and ``batch_pid`` are given for a worker forked by the fork server."""
     # Ctrl-C reaches the whole process group; only the parent decides what
-    # to do about it (it ends the workers itself).
+    # to do about it (it ends the workers itself). A forked worker starts
+    # with the fork server's handlers, not the batch parent's.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     signal.signal(signal.SIGTERM, signal.SIG_DFL)
     _die_with_parent()
+    if batch_pid is not None:
+        _watch_batch_process(batch_pid)
+    if threads is not None:
+        # For anything the job starts or loads later; the loaded BLAS gets
+        # its limit per job (see run_job).
+        os.environ.update({name: str(threads) for name in THREAD_VARIABLES})
+        from ..integrals.pool import _controller
+
+        from .command import energy_defaults
+
+        _controller()  # scan the loaded libraries now, not in the first job
+        energy_defaults()
 
 
 def _die_with_parent() -> None:
-    """Ask Linux to kill this worker when its parent dies (e.g. by SIGKILL)."""
+    """Ask Linux to kill this worker when its parent dies (e.g. by SIGKILL).
+
+    A forked worker's parent is the fork server, which outlives the batch
+    process while workers remain: :func:`_watch_batch_process` covers that.
+    """
     with contextlib.suppress(Exception):
         import ctypes
 
@@ -49,12 +99,45 @@ def _die_with_parent() -> None:
             os._exit(1)
 
 
+def _watch_batch_process(pid: int) -> None:
+    """End this worker at once when the batch process ``pid`` ends (e.g. by SIGKILL).
+
+    A forked worker's parent is the fork server, which itself lives as long
+    as any worker does, so the parent-death signal alone would never fire.
+    """
+    import select
+    import threading
+
+    try:
+        handle = os.pidfd_open(pid)
+    except (AttributeError, OSError):
+        handle = None
+
+    def watch() -> None:
+        if handle is not None:
+            select.select([handle], [], [])
+        else:  # no pidfd (old kernel): look twice a second
+            import time
+
+            while True:
+                try:
+                    os.kill(pid, 0)
+                except ProcessLookupError:
+                    break
+                except OSError:
+                    pass
+                time.sleep(0.5)
+        os._exit(1)
+
+    threading.Thread(target=watch, name="hfcore-batch-watch", daemon=True).start()
+
+
 @contextlib.contextmanager
 def _thread_environment(threads: int) -> Iterator[None]:
     """Set the BLAS thread variables for processes started inside the block.
 
-    The workers are spawned fresh, so they read these before numpy loads;
-    the parent's own, already loaded BLAS is not affected.
+    Spawned workers read these before numpy loads; the parent's own,
+    already loaded BLAS is not affected. (Forked workers set them themselves.)
     """
     saved = {name: os.environ.get(name) for name in THREAD_VARIABLES}
     os.environ.update({name: str(threads) for name in THREAD_VARIABLES})
@@ -82,11 +165,30 @@ class LocalPool:
     workers : int
         Number of processes.
     threads : int
-        BLAS threads per worker (set in their environment before numpy loads).
+        BLAS threads per worker: set per job with ``threadpoolctl`` in a
+        forked worker, in the environment before numpy loads in a spawned one.
+
+    Attributes
+    ----------
+    start_method : str
+        ``"forkserver"`` (workers forked with hfcore already imported) or
+        ``"spawn"``; see the module notes.
     """
 
     def __init__(self, workers: int, threads: int) -> None:
         self.threads = threads
+        context = preimported_context()
+        if context is not None:
+            self.start_method = "forkserver"
+            # Outside _thread_environment: the fork server (started here the
+            # first time) loads BLAS with its own defaults, and every job
+            # sets its limit, whatever the threads of this pool or a later one.
+            self.executor = ProcessPoolExecutor(max_workers=workers, mp_context=context,
+                                                initializer=_init_local_worker, initargs=(threads, os.getpid()))
+            for _ in range(workers):
+                self.executor.submit(_warm_up)
+            return
+        self.start_method = "spawn"
         with _thread_environment(threads):
             self.executor = ProcessPoolExecutor(
                 max_workers=workers, mp_context=multiprocessing.get_context("spawn"), initializer=_init_local_worker
@@ -111,8 +213,11 @@ class LocalPool:
         HfcoreError
             If a worker process died (the results so far are already yielded).
         """
-        with _thread_environment(self.threads):
-            pending = {self.executor.submit(run_job, p) for p in payloads}
+        if self.start_method == "forkserver":
+            pending = {self.executor.submit(run_job, {**p, "blas_threads": self.threads}) for p in payloads}
+        else:
+            with _thread_environment(self.threads):
+                pending = {self.executor.submit(run_job, p) for p in payloads}
         while pending and not should_stop():
             done, pending = wait(pending, timeout=POLL_S, return_when=FIRST_COMPLETED)
             for future in done:
@@ -135,4 +240,4 @@ class LocalPool:
                     process.terminate()
         self.executor.shutdown(wait=not abandon, cancel_futures=True)
 
-__all__ = ["THREAD_VARIABLES", "POLL_S", "usable_cores", "LocalPool"]
+__all__ = ["THREAD_VARIABLES", "POLL_S", "PRELOAD", "usable_cores", "preimported_context", "LocalPool"]

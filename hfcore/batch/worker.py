@@ -24,14 +24,15 @@ def _one_line(text: str) -> str:
 
 
 def _blas_limit(threads: int | None) -> contextlib.AbstractContextManager:
-    """Limit BLAS threads in an already running process (a Dask worker), if threadpoolctl is there."""
+    """Limit BLAS/OpenMP threads in an already running process (a Dask or forked worker), if threadpoolctl is there."""
     if threads is None:
         return contextlib.nullcontext()
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:
+    from ..integrals.pool import _controller
+
+    controller = _controller()  # built once per process
+    if controller is None:
         return contextlib.nullcontext()
-    return threadpool_limits(limits=threads)
+    return controller.limit(limits=threads)
 
 
 def run_job(payload: Mapping[str, Any]) -> dict[str, Any]:
