@@ -269,7 +269,10 @@ def run_batch_command(args: argparse.Namespace, console: Any) -> int:
     if args.plot:
         raise InputError("batch: --plot goes with --summary")
     from . import expand_geometries, make_jobs, parse_basis_list, run_batch
-    from .pool import usable_cores
+    from .pool import start_worker_server, usable_cores
+
+    if not args.scheduler:
+        start_worker_server()
 
     bases = parse_basis_list(args.basis)
     entries = expand_geometries(args.geometry)

@@ -61,6 +61,20 @@ def preimported_context() -> multiprocessing.context.BaseContext | None:
     return context
 
 
+def start_worker_server() -> None:
+    """Start the fork server of :func:`preimported_context` now, where it is used.
+
+    Its preloading (about 0.4 s of imports) then runs on another core while
+    the batch reads its geometries and results file, instead of after.
+    Does nothing where workers are spawned.
+    """
+    if preimported_context() is not None:
+        import multiprocessing.forkserver
+
+        with contextlib.suppress(Exception):  # the pool starts it later if this fails
+            multiprocessing.forkserver.ensure_running()
+
+
 def _init_local_worker(threads: int | None = None, batch_pid: int | None = None) -> None:
     """Set up a worker; ``threads`` and ``batch_pid`` are given for a worker forked by the fork server."""
     # Ctrl-C reaches the whole process group; only the parent decides what
