@@ -12,6 +12,7 @@ import os
 import signal
 import subprocess
 import sys
+import threading
 import time
 from pathlib import Path
 
@@ -453,7 +454,19 @@ def single_energy_file(path: Path, basis_file: str) -> float:
     return json.loads(out)["energy"]["total"]
 
 
-def test_local_workers_leave_signals_to_the_parent_and_get_the_thread_limit():
+@pytest.mark.parametrize("other_thread", [False, True])
+def test_local_workers_leave_signals_to_the_parent_and_get_the_thread_limit(other_thread):
+    # With another thread alive the pool must not fork from this process (fork server instead).
+    stop = threading.Event()
+    if other_thread:
+        threading.Thread(target=stop.wait, daemon=True).start()
+    try:
+        _check_local_worker_signals()
+    finally:
+        stop.set()
+
+
+def _check_local_worker_signals():
     # Whether spawned or forked from the preloading fork server, a worker must
     # not run the batch parent's signal handlers: Ctrl-C is the parent's to
     # handle, SIGTERM (sent by the parent to abandon a job) ends the worker.
@@ -466,6 +479,7 @@ def test_local_workers_leave_signals_to_the_parent_and_get_the_thread_limit():
 
     previous = {s: signal.signal(s, parent_handler) for s in (signal.SIGINT, signal.SIGTERM)}
     try:
+        threads_at_start = threading.active_count()
         pool = LocalPool(1, 3)
         try:
             assert pool.executor.submit(signal.getsignal, signal.SIGINT).result() == signal.SIG_IGN
@@ -478,4 +492,6 @@ def test_local_workers_leave_signals_to_the_parent_and_get_the_thread_limit():
             signal.signal(s, h)
     # Linux with threadpoolctl (as in the test environment) forks; elsewhere spawn as before.
     fork_expected = sys.platform.startswith("linux") and importlib.util.find_spec("threadpoolctl") is not None
-    assert pool.start_method == ("forkserver" if fork_expected else "spawn")
+    # A single-threaded parent forks its workers itself; one with other threads uses the fork server.
+    expected = ("fork" if threads_at_start == 1 else "forkserver") if fork_expected else "spawn"
+    assert pool.start_method == expected

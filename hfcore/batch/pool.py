@@ -1,9 +1,10 @@
 """The local back end: a pool of worker processes on this machine.
 
 Where the platform can fork (Linux) and ``threadpoolctl`` is installed, the
-workers are forked from a fork server that has imported numpy, scipy and
-hfcore once, so the interpreter and import start-up is paid once per batch
-process instead of once per worker; each job then gets its BLAS thread
+workers are forked from this process when it runs a single thread (the
+command line), or else from a fork server that has imported numpy, scipy
+and hfcore once, so the interpreter and import start-up is paid once per
+batch process instead of once per worker; each job then gets its BLAS thread
 limit from ``threadpoolctl``. Elsewhere the workers are spawned fresh with
 the BLAS thread variables in their environment before numpy loads.
 """
@@ -11,10 +12,13 @@ the BLAS thread variables in their environment before numpy loads.
 from __future__ import annotations
 
 import contextlib
+import importlib
 import importlib.util
 import multiprocessing
 import os
 import signal
+import sys
+import threading
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
@@ -66,9 +70,10 @@ def start_worker_server() -> None:
 
     Its preloading (about 0.4 s of imports) then runs on another core while
     the batch reads its geometries and results file, instead of after.
-    Does nothing where workers are spawned.
+    Does nothing where workers are spawned, or forked straight from this
+    process (a single thread: see :class:`LocalPool`).
     """
-    if preimported_context() is not None:
+    if preimported_context() is not None and threading.active_count() > 1:
         import multiprocessing.forkserver
 
         with contextlib.suppress(Exception):  # the pool starts it later if this fails
@@ -185,13 +190,30 @@ class LocalPool:
     Attributes
     ----------
     start_method : str
-        ``"forkserver"`` (workers forked with hfcore already imported) or
-        ``"spawn"``; see the module notes.
+        ``"fork"`` (workers forked from this process, when it runs a single
+        thread), ``"forkserver"`` (forked by a server with hfcore already
+        imported) or ``"spawn"``; see the module notes.
     """
 
     def __init__(self, workers: int, threads: int) -> None:
         self.threads = threads
         context = preimported_context()
+        if context is not None and threading.active_count() == 1:
+            # One thread (as in the command line): fork straight from this
+            # process, which has everything loaded; no thread can hold a lock
+            # across the fork. Workers reset their signal handlers first
+            # thing and die with this process (parent-death signal).
+            for name in PRELOAD:
+                importlib.import_module(name)
+            for stream in (sys.stdout, sys.stderr):
+                with contextlib.suppress(Exception):
+                    stream.flush()  # nothing buffered here is written twice by a worker
+            self.start_method = "fork"
+            self.executor = ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("fork"),
+                                                initializer=_init_local_worker, initargs=(threads, None))
+            for _ in range(workers):
+                self.executor.submit(_warm_up)
+            return
         if context is not None:
             self.start_method = "forkserver"
             # Outside _thread_environment: the fork server (started here the
@@ -227,7 +249,7 @@ class LocalPool:
         HfcoreError
             If a worker process died (the results so far are already yielded).
         """
-        if self.start_method == "forkserver":
+        if self.start_method in ("fork", "forkserver"):
             pending = {self.executor.submit(run_job, {**p, "blas_threads": self.threads}) for p in payloads}
         else:
             with _thread_environment(self.threads):
