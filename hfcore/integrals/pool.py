@@ -249,11 +249,9 @@ def forked_units(
     Exception
         The exception of a worker process that failed (a RuntimeError
         naming it when it cannot be passed back whole), once every worker
-        has ended. An exception in this process stops the workers
-        and propagates.
+        has ended. An exception in this process stops the workers after
+        their current unit and propagates.
     """
-    import multiprocessing
-
     finished = shared_zeros(max(n_units, 1), np.int8)
     if processes <= 1 or n_units <= 1:
         for unit in range(n_units):
@@ -262,57 +260,17 @@ def forked_units(
             if progress is not None:
                 progress(finished[:n_units])
         return
-    counter = shared_zeros(1, np.int64)
-    errors = shared_zeros((processes, _ERROR_BYTES), np.uint8)
-    lock = multiprocessing.get_context("fork").Lock()
 
-    def take() -> int:
-        with lock:
-            unit = int(counter[0])
-            counter[0] = unit + 1
-        return unit
+    def run(unit: int) -> None:
+        work(unit)
+        finished[unit] = 1
 
-    children: list[int] = []
-    with blas_threads(1):
-        try:
-            for slot in range(1, processes):
-                pid = os.fork()
-                if pid == 0:  # a worker: units until none is left, then leave at once
-                    code = 0
-                    try:
-                        signal.signal(signal.SIGTERM, signal.SIG_DFL)
-                        while (unit := take()) < n_units:
-                            work(unit)
-                            finished[unit] = 1
-                    except BaseException as exc:  # handed to the parent, which raises it
-                        data = _pickled_error(exc)
-                        errors[slot, : len(data)] = np.frombuffer(data, np.uint8)
-                        code = 1
-                    finally:
-                        os._exit(code)
-                children.append(pid)
-            while (unit := take()) < n_units:
-                work(unit)
-                finished[unit] = 1
-                if progress is not None:
-                    progress(finished[:n_units])
-        except BaseException:
-            with lock:
-                counter[0] = n_units
-            for pid in children:
-                with contextlib.suppress(OSError):
-                    os.kill(pid, signal.SIGKILL)
-            for pid in children:
-                with contextlib.suppress(OSError):
-                    os.waitpid(pid, 0)
-            raise
-        failed = []
-        for slot, pid in enumerate(children, start=1):
-            _, status = os.waitpid(pid, 0)
-            if status != 0:
-                failed.append(_unpickled_error(bytes(errors[slot]), status))
-    if failed:
-        raise failed[0]
+    report = None if progress is None else (lambda: progress(finished[:n_units]))
+    team = WorkerTeam(run, processes)
+    try:
+        team.run(n_units, after_unit=report)
+    finally:
+        team.close()
     if progress is not None:
         progress(finished[:n_units])
 
@@ -411,8 +369,10 @@ class WorkerTeam:
                     self._counter[0] = n_units
             os.write(replies, reply)
 
-    def run(self, n_units: int) -> None:
+    def run(self, n_units: int, after_unit: Callable[[], None] | None = None) -> None:
         """``work(u)`` for every u in ``range(n_units)``, spread over the team; returns when all are done.
+
+        ``after_unit``, if given, is called here after each unit this process ran.
 
         Raises
         ------
@@ -432,6 +392,8 @@ class WorkerTeam:
             try:
                 while (unit := self._take()) < n_units:
                     self._work(unit)
+                    if after_unit is not None:
+                        after_unit()
             except BaseException as exc:
                 with self._lock:
                     self._counter[0] = n_units
