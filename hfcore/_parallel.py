@@ -35,14 +35,18 @@ from typing import TypeVar
 
 import numpy as np
 
-from ..errors import InputError
+from .errors import InputError
 
 T = TypeVar("T")
 R = TypeVar("R")
 
 
-def available_cores() -> int:
-    """The number of cores this process may run on (its CPU affinity), at least 1."""
+def usable_cores() -> int:
+    """The number of cores this process may run on (its CPU affinity), at least 1.
+
+    The one count of cores in hfcore: thread counts, forked worker teams and
+    batch workers are all capped by it.
+    """
     try:
         return max(1, len(os.sched_getaffinity(0)))
     except (AttributeError, OSError):
@@ -50,7 +54,7 @@ def available_cores() -> int:
 
 
 def resolve_threads(threads: int | None) -> int:
-    """A thread count: ``threads`` itself, or :func:`available_cores` for None.
+    """A thread count: ``threads`` itself, or :func:`usable_cores` for None.
 
     Raises
     ------
@@ -58,7 +62,7 @@ def resolve_threads(threads: int | None) -> int:
         If ``threads`` is not a positive integer or None.
     """
     if threads is None:
-        return available_cores()
+        return usable_cores()
     if isinstance(threads, bool) or not isinstance(threads, int) or threads < 1:
         raise InputError(f"the thread count must be a positive integer, got {threads!r}")
     return int(threads)
@@ -427,7 +431,7 @@ class WorkerTeam:
 
 __all__ = [
     "WorkerTeam",
-    "available_cores",
+    "usable_cores",
     "resolve_threads",
     "blas_threads",
     "work_units",

@@ -24,6 +24,7 @@ from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 from typing import Any
 
+from .._parallel import usable_cores
 from ..errors import HfcoreError
 from .worker import run_job
 
@@ -36,17 +37,9 @@ POLL_S: float = 0.2
 #: Modules the fork server imports once, before it forks any worker.
 PRELOAD: tuple[str, ...] = (
     "numpy", "numpy.linalg", "scipy", "scipy.linalg", "threadpoolctl",
-    "hfcore.cli", "hfcore.scf", "hfcore.basis.sto", "hfcore.integrals.pool", "hfcore.batch.command",
+    "hfcore.cli", "hfcore.scf", "hfcore.basis.sto", "hfcore._parallel", "hfcore.batch.command",
     "hfcore.batch.worker",
 )
-
-
-def usable_cores() -> int:
-    """Cores this process may run on (its CPU affinity), at least 1."""
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except (AttributeError, OSError):
-        return max(1, os.cpu_count() or 1)
 
 
 def preimported_context() -> multiprocessing.context.BaseContext | None:
@@ -94,7 +87,7 @@ def _init_local_worker(threads: int | None = None, batch_pid: int | None = None)
         # For anything the job starts or loads later; the loaded BLAS gets
         # its limit per job (see run_job).
         os.environ.update({name: str(threads) for name in THREAD_VARIABLES})
-        from ..integrals.pool import _controller
+        from .._parallel import _controller
 
         from .command import energy_defaults
 

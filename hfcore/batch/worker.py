@@ -27,7 +27,7 @@ def _blas_limit(threads: int | None) -> contextlib.AbstractContextManager:
     """Limit BLAS/OpenMP threads in an already running process (a Dask or forked worker), if threadpoolctl is there."""
     if threads is None:
         return contextlib.nullcontext()
-    from ..integrals.pool import _controller
+    from .._parallel import _controller
 
     controller = _controller()  # built once per process
     if controller is None:

@@ -19,7 +19,7 @@ per ``basis.spherical``), in atomic units, functions ordered as
 Rooms of the two-electron layer: :mod:`.eri_pairs` prepares the screened
 pair batches, :mod:`.tiles` is the one tile generator every pass uses
 (stored, direct and three-centre), :mod:`.store` and :mod:`.direct` are
-the passes, :mod:`.pool` the thread pool they share.
+the passes, :mod:`hfcore._parallel` the thread pool and worker teams they share.
 * :func:`boys` (:mod:`.boys`), :func:`c2s` (:mod:`hfcore.basis.components`).
 """
 

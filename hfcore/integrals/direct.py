@@ -2,7 +2,7 @@
 
 The tiles (:mod:`hfcore.integrals.tiles`) are listed once; every build cuts
 them into fixed work units, runs the units on the thread pool
-(:mod:`hfcore.integrals.pool`), each into its own partial J and K, and
+(:mod:`hfcore._parallel`), each into its own partial J and K, and
 adds the partial sums in unit order.
 """
 
@@ -15,7 +15,7 @@ import numpy as np
 
 from ..basis.shells import BasisSet
 from .eri_pairs import function_families, prepare_pairs, screening_threshold
-from .pool import ordered_map, resolve_threads, work_units
+from .._parallel import ordered_map, resolve_threads, work_units
 from .tiles import PairBatch, Tile, batch_pairs, iter_tiles, tile_integrals
 
 #: Direct tiles are this many times larger: each carries a fixed cost of
@@ -148,7 +148,7 @@ class DirectERI:
         Screening threshold (hartree), as in :func:`compute_eri`.
     threads : int
         Threads the tiles of a build are spread over (see
-        :mod:`hfcore.integrals.pool`); J and K are the same bits for any
+        :mod:`hfcore._parallel`); J and K are the same bits for any
         number.
 
     Attributes

@@ -26,7 +26,7 @@ from ..basis.shells import BasisSet
 from ..errors import ResourceError
 from .eri_pairs import pair_index, prepare_pairs, screening_threshold
 from .hermite import n_hermite
-from .pool import WorkerTeam, can_fork, forked_units, ordered_map, resolve_threads, shared_zeros, work_units
+from .._parallel import WorkerTeam, can_fork, forked_units, ordered_map, resolve_threads, shared_zeros, work_units
 from .tiles import Tile, batch_pairs, iter_tiles
 
 #: Largest dense (nbf,)*4 array ``to_dense`` will build, in bytes.
@@ -335,7 +335,7 @@ def compute_eri(
     progress : callable, optional
         Called with the fraction of the work done (0..1] as the pass proceeds.
     threads : int
-        Threads the tiles are spread over (:mod:`hfcore.integrals.pool`);
+        Threads the tiles are spread over (:mod:`hfcore._parallel`);
         every integral is computed by one tile alone, so the store holds
         the same bits for any number.
     lean : bool

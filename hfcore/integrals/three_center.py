@@ -33,7 +33,7 @@ import numpy as np
 from ..basis.shells import BasisSet
 from .eri_pairs import prepare_pairs, screening_threshold, shell_batches
 from .hermite import n_hermite
-from .pool import can_fork, forked_units, ordered_map, resolve_threads, shared_zeros, work_units
+from .._parallel import can_fork, forked_units, ordered_map, resolve_threads, shared_zeros, work_units
 from .tiles import PairBatch, Tile, batch_pairs, chunks, iter_tiles, tile_cost, tile_integrals, tile_sizes
 
 #: A pass is cut into about this many work units for the thread pool (fixed,
@@ -125,7 +125,7 @@ class ThreeCenterEngine:
         are skipped, and orbital primitive pairs are dropped as in the
         four-centre passes. 0 disables screening.
     threads : int
-        Threads the tiles are spread over (:mod:`hfcore.integrals.pool`);
+        Threads the tiles are spread over (:mod:`hfcore._parallel`);
         every integral is computed by one tile alone, so the arrays hold
         the same bits for any number.
 

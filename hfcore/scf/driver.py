@@ -17,7 +17,7 @@ from ..basis.fitting import FittingChoice, fitting_basis
 from ..basis.shells import BasisSet
 from ..errors import ConvergenceError, InputError, ResourceError
 from ..geometry import Molecule
-from ..integrals.pool import blas_threads, can_fork
+from .._parallel import blas_threads, can_fork
 from ..integrals.store import EXCHANGE_KERNEL_LIMIT_BYTES, STORE_LIMIT_BYTES
 from .fitted_jk import FittedJK, FittingPlan, plan_fitting
 from .guess import sad_density
@@ -101,7 +101,7 @@ def run_rhf(
 def scf_blas_threads(plan: "JKPlan", options: SCFOptions) -> int:
     """BLAS threads for the SCF iterations of a plan.
 
-    With a lean store on worker processes (:class:`hfcore.integrals.pool.WorkerTeam`)
+    With a lean store on worker processes (:class:`hfcore._parallel.WorkerTeam`)
     the K builds already fill the cores; threaded BLAS on the SCF's small
     matrices then only adds idle threads spinning on them (measured on a
     2-core machine, benzene/cc-pVDZ: 67 ms per J/K build with two BLAS

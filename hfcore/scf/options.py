@@ -209,7 +209,7 @@ class SCFOptions:
     @property
     def n_threads(self) -> int:
         """The thread count to use: ``threads``, or the cores this process may use."""
-        from ..integrals.pool import resolve_threads
+        from .._parallel import resolve_threads
 
         return resolve_threads(self.threads)
 
