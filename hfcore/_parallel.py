@@ -24,7 +24,6 @@ its own environment variables (``OPENBLAS_NUM_THREADS`` and the like).
 from __future__ import annotations
 
 import contextlib
-import mmap
 import os
 import signal
 import sys
@@ -35,6 +34,7 @@ from typing import TypeVar
 
 import numpy as np
 
+from ._memory import allocate
 from .errors import InputError
 
 T = TypeVar("T")
@@ -54,18 +54,49 @@ def usable_cores() -> int:
 
 
 def resolve_threads(threads: int | None) -> int:
-    """A thread count: ``threads`` itself, or :func:`usable_cores` for None.
+    """A thread count: ``threads`` capped at :func:`usable_cores`, or the usable cores for None.
+
+    More threads (or forked workers) than cores only queue behind each
+    other, so a larger count is capped (:func:`thread_note` says so).
 
     Raises
     ------
     InputError
         If ``threads`` is not a positive integer or None.
     """
+    cores = usable_cores()
     if threads is None:
-        return usable_cores()
+        return cores
     if isinstance(threads, bool) or not isinstance(threads, int) or threads < 1:
         raise InputError(f"the thread count must be a positive integer, got {threads!r}")
-    return int(threads)
+    return min(int(threads), cores)
+
+
+def thread_note(threads: int | None) -> str:
+    """A note for the report when ``threads`` was capped at the usable cores ("" when not)."""
+    if threads is None or isinstance(threads, bool) or not isinstance(threads, int):
+        return ""
+    cores = usable_cores()
+    if threads <= cores:
+        return ""
+    return f"{threads} threads asked for, capped at the {cores} usable core{'s' if cores > 1 else ''}"
+
+
+def split_cores(workers: int, threads: int) -> tuple[int, int]:
+    """Worker processes and threads per worker that fit the usable cores together.
+
+    Workers are capped at the cores first, then each worker's threads at
+    ``cores // workers`` (at least 1), so ``workers * threads`` never
+    exceeds the cores.
+
+    Returns
+    -------
+    (int, int)
+        ``(workers, threads)``, each at least 1.
+    """
+    cores = usable_cores()
+    workers = max(1, min(int(workers), cores))
+    return workers, max(1, min(int(threads), cores // workers))
 
 
 @contextlib.contextmanager
@@ -182,16 +213,17 @@ def can_fork() -> bool:
     return hasattr(os, "fork") and sys.platform.startswith("linux") and not os.environ.get("HFCORE_NO_FORK")
 
 
-def shared_zeros(shape: int | tuple[int, ...], dtype=np.float64) -> np.ndarray:
+def shared_zeros(shape: int | tuple[int, ...], dtype=np.float64, what: str = "shared memory for the worker processes"
+                 ) -> np.ndarray:
     """A zero-filled array in anonymous shared memory, writable by forked workers.
 
-    Pages are only committed when written, as for ``numpy.zeros``.
+    Pages are only committed when written, as for ``numpy.zeros``. The
+    mapping has no name, so nothing is left in ``/dev/shm`` however the
+    process ends. A refused mapping (``ENOMEM``, e.g. under ``ulimit -v``)
+    raises :class:`~hfcore.errors.ResourceError` naming ``what``
+    (:func:`hfcore._memory.allocate`).
     """
-    shape = (shape,) if isinstance(shape, int) else tuple(shape)
-    dtype = np.dtype(dtype)
-    count = int(np.prod(shape, dtype=np.int64))
-    buffer = mmap.mmap(-1, max(count * dtype.itemsize, 1))
-    return np.frombuffer(buffer, dtype=dtype, count=count).reshape(shape)
+    return allocate(what, shape, dtype, shared=True)
 
 
 #: Room for a worker's pickled exception.
@@ -256,6 +288,7 @@ def forked_units(
         has ended. An exception in this process stops the workers after
         their current unit and propagates.
     """
+    processes = min(processes, usable_cores())
     finished = shared_zeros(max(n_units, 1), np.int8)
     if processes <= 1 or n_units <= 1:
         for unit in range(n_units):
@@ -299,12 +332,14 @@ class WorkerTeam:
     work : callable
         Called with a unit index, in any process of the team.
     processes : int
-        Processes in all, this one included (at least 2).
+        Processes in all, this one included (at least 2); never more
+        than :func:`usable_cores` are started.
     """
 
     def __init__(self, work: Callable[[int], None], processes: int):
         import multiprocessing
 
+        processes = min(processes, usable_cores())
         self._work = work
         self._counter = shared_zeros(1, np.int64)
         self._errors = shared_zeros((processes, _ERROR_BYTES), np.uint8)
@@ -433,6 +468,8 @@ __all__ = [
     "WorkerTeam",
     "usable_cores",
     "resolve_threads",
+    "thread_note",
+    "split_cores",
     "blas_threads",
     "work_units",
     "ordered_map",

@@ -533,9 +533,9 @@ def _run_energy(args: argparse.Namespace, console: _Console) -> int:
 
     # MP2 reads the SCF's own stored integrals rather than computing them again.
     exact_mp2 = args.mp2 and mp2_fit is None
-    shared = prepare_integrals(basis, options, integral_progress) if exact_mp2 and plan.mode != "direct" else None
+    shared = prepare_integrals(basis, options, integral_progress, plan=plan) if exact_mp2 and plan.mode != "direct" else None
     result = run_rhf(molecule, basis, options, guess=args.guess, progress=show, integral_progress=integral_progress,
-                     shared=shared)
+                     shared=shared, plan=plan)
     _warn_about_solution(console, result)
     mp2_started = time.perf_counter()
     mp2 = _mp2(args, result, console, None if shared is None else shared.engine, mp2_fit)
@@ -638,6 +638,34 @@ def basis_function_count(args: argparse.Namespace) -> int:
         If the geometry or basis cannot be used.
     """
     return int(_build_basis(args, _read_molecule(args)).n_functions)
+
+
+def planned_memory(args: argparse.Namespace, budget: Any) -> int:
+    """Predicted peak bytes (``JKPlan.peak_bytes``) of an ``energy`` run with these arguments.
+
+    ``budget`` (a :class:`hfcore._memory.MemoryBudget`, e.g. a batch's
+    shared one) applies unless the arguments give ``--memory``.
+
+    Raises
+    ------
+    HfcoreError
+        If the geometry or basis cannot be used, or the run cannot fit
+        (a forced mode beyond the budget: ResourceError).
+    """
+    from ._memory import budget_for
+    from .scf import plan_jk
+
+    molecule = _read_molecule(args)
+    basis = _build_basis(args, molecule)
+    options = _scf_options(args)
+    fitting = None
+    if options.fit_basis is not None:
+        from .basis.fitting import fitting_basis
+
+        fitting = fitting_basis(molecule, basis, options.fit_basis)
+    own = None if options.memory_limit is None else budget_for(options.memory_limit)
+    plan = plan_jk(basis, options, fitting=fitting, n_occupied=molecule.n_electrons // 2, budget=own or budget)
+    return int(plan.peak_bytes)
 
 
 def _run_fit_sto(args: argparse.Namespace, console: _Console) -> int:

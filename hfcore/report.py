@@ -96,7 +96,16 @@ def format_basis(basis: Any, plan: Any = None) -> str:
 
 
 def _mib(n_bytes: int) -> str:
-    return f"{n_bytes / 2**20:.3g} MiB"
+    from ._memory import format_bytes
+
+    return format_bytes(n_bytes)
+
+
+def _resource_rows(plan: Any) -> list[tuple[str, str]]:
+    """The memory budget with the bound that set it, and what was capped (the plan's own words)."""
+    budget = getattr(plan, "budget", None)
+    rows = [] if budget is None else [("memory", f"budget {budget.describe()}")]
+    return rows + [("capped", note) for note in getattr(plan, "notes", ())]
 
 
 def _jk_rows(plan: Any) -> list[tuple[str, str]]:
@@ -113,7 +122,7 @@ def _jk_rows(plan: Any) -> list[tuple[str, str]]:
             ("fitted size", f"{_mib(plan.eri_memory_bytes)} predicted (limit {_mib(plan.limit_bytes)}; "
                             f"all factors {_mib(plan.fitting.stored_bytes)})"),
         ]
-        return rows + [("fitting note", note) for note in plan.fit_notes]
+        return rows + [("fitting note", note) for note in plan.fit_notes] + _resource_rows(plan)
     if plan.mode == "stored":
         how = "stored once, reused every iteration"
     elif plan.mode == "stored-lean":
@@ -123,7 +132,7 @@ def _jk_rows(plan: Any) -> list[tuple[str, str]]:
     return [
         ("two-electron", how),
         ("stored size", f"{_mib(plan.eri_memory_bytes)} predicted (limit {_mib(plan.limit_bytes)})"),
-    ]
+    ] + _resource_rows(plan)
 
 
 def format_linear_dependence(n_dropped: int, threshold: float) -> str:

@@ -30,6 +30,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from .._deprecation import rename_fields
+from .._memory import allocate, run_budget
 from ..errors import ConvergenceError, InputError, ResourceError
 from ._checks import require_placed
 
@@ -178,7 +179,7 @@ def _first_quarter(packed: np.ndarray, c_block: np.ndarray) -> np.ndarray:
     tri = np.arange(npair, dtype=np.int64) * (np.arange(npair, dtype=np.int64) + 1) // 2
     pairs = _pair_map(nbf)
     column = np.empty((nbf, npair))
-    half = np.empty((c_block.shape[1], nbf, npair))
+    half = allocate("the MP2 half-transformed block", (c_block.shape[1], nbf, npair), zero=False)
     for nu in range(nbf):
         _store_columns(packed, tri, pairs[:, nu], column)
         np.matmul(c_block.T, column, out=half[:, nu, :])
@@ -363,7 +364,7 @@ def mp2_energy(
         basis has no virtual orbitals, or ``eri`` belongs to another basis.
     ResourceError
         If ``eri`` is not given and the store (8 bytes per unique
-        integral) would exceed ``result.options.memory_limit``.
+        integral) would exceed the run's memory budget (``result.memory_budget``).
     """
     from ..integrals import compute_eri
 
@@ -376,7 +377,7 @@ def mp2_energy(
     nbf = result.basis.n_functions
     if eri is None:
         need = 8 * (nbf * (nbf + 1) // 2) * (nbf * (nbf + 1) // 2 + 1) // 2
-        limit = result.options.memory_limit_bytes
+        limit = run_budget(result).bytes
         if need > limit:
             raise ResourceError(
                 f"MP2 reads the stored integrals, {need / 2**20:.3g} MiB for {nbf} functions, but "

@@ -29,6 +29,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from .._memory import allocate, run_budget
 from ..basis.fitting import DEFAULT_RI, MATCHING_RI, FittingChoice, mp2_fitting_basis
 from ..errors import ResourceError
 from .mp2 import MP2Result, _pair_map, assemble, orbital_spaces, pair_sums
@@ -62,7 +63,7 @@ def ri_mp2_energy(
         Lowest occupied orbitals left uncorrelated.
     memory_bytes : int, optional
         Budget for the fitted factors B (8 naux · o · v bytes) and one
-        integral block (default: ``result.options.memory_limit``).
+        integral block (default: the run's memory budget, ``result.memory_budget``).
     progress : callable, optional
         Called with the fraction (0..1] done: the three-centre pass as the
         first half, then each occupied orbital.
@@ -91,7 +92,7 @@ def ri_mp2_energy(
     nbf, n_occ, n_vir, naux = c_occ.shape[0], c_occ.shape[1], c_vir.shape[1], aux.n_functions
     block = int(max(1, min(naux, _BLOCK_BYTES // (16 * nbf * nbf))))
     need = 8 * naux * n_occ * n_vir + 16 * block * nbf * nbf + 24 * naux * naux + 8 * n_vir * n_occ * n_vir
-    limit = result.options.memory_limit_bytes if memory_bytes is None else int(memory_bytes)
+    limit = run_budget(result).bytes if memory_bytes is None else int(memory_bytes)
     if need > limit:
         raise ResourceError(
             f"density-fitted MP2 needs about {need / 2**20:.3g} MiB for {naux} fitting functions, but "
@@ -99,7 +100,7 @@ def ri_mp2_energy(
         )
     engine = ThreeCenterEngine(result.basis, aux, threshold=result.options.screening)
     pairs = _pair_map(nbf)
-    factors = np.empty((naux, n_occ, n_vir))
+    factors = allocate("the density-fitted MP2 factors", (naux, n_occ, n_vir), zero=False)
     done = 0
     for index, values in engine.blocks(block):
         full = values[:, pairs]  # (nblock, nbf, nbf)

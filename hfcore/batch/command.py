@@ -260,6 +260,25 @@ def _size_estimator(args: argparse.Namespace) -> Callable[[Any], int]:
     return size_of
 
 
+def _memory_estimator(args: argparse.Namespace) -> Callable[[Any, Any], int]:
+    """A job's predicted peak memory under the batch's budget (0 where the geometry or basis fails: the job will
+    say why); a job that cannot fit even alone raises its ResourceError, which becomes its failed line."""
+    from ..cli import planned_memory
+    from ..errors import HfcoreError, ResourceError
+
+    def memory_of(job: Any, budget: Any) -> int:
+        ns = argparse.Namespace(**{**vars(args), **job.options, "geometry": job.geometry, "basis": job.basis,
+                                   "charge": job.charge})
+        try:
+            return planned_memory(ns, budget)
+        except ResourceError:
+            raise
+        except (HfcoreError, MemoryError):
+            return 0
+
+    return memory_of
+
+
 def run_batch_command(args: argparse.Namespace, console: Any) -> int:
     """``hfcore batch``: run the jobs (or, with ``--summary``, look at a results file)."""
     if args.summary:
@@ -269,7 +288,8 @@ def run_batch_command(args: argparse.Namespace, console: Any) -> int:
     if args.plot:
         raise InputError("batch: --plot goes with --summary")
     from . import expand_geometries, make_jobs, parse_basis_list, run_batch
-    from .pool import start_worker_server, usable_cores
+    from .._parallel import split_cores, usable_cores
+    from .pool import start_worker_server
 
     if not args.scheduler:
         start_worker_server()
@@ -282,6 +302,8 @@ def run_batch_command(args: argparse.Namespace, console: Any) -> int:
         progress.say(f"batch: {duplicates} job(s) named twice, run once")
     extra = {d: getattr(args, d) for d in args.batch_extra_dests}
     workers = 0 if args.scheduler else min(args.workers or usable_cores(), len(jobs))
+    # What run_batch will start: within the usable cores (it says so in outcome.notes).
+    shown = split_cores(workers, args.threads)[0] if workers else 0
 
     def on_start(outcome: Any, n_todo: int) -> None:
         if outcome.truncated_bytes:
@@ -291,18 +313,22 @@ def run_batch_command(args: argparse.Namespace, console: Any) -> int:
             hint = " (--retry-failed reruns them)" if outcome.skipped_failed else ""
             progress.say(f"batch: skipping {outcome.skipped_ok + outcome.skipped_failed} job(s) already in "
                          f"{args.results}: {outcome.skipped_ok} ok, {outcome.skipped_failed} failed{hint}")
+        for note in outcome.notes:
+            progress.say(f"batch: {note}")
+        if outcome.memory_budget is not None and n_todo and not args.quiet:
+            progress.say(f"batch: the local workers share a memory budget of {outcome.memory_budget.describe()}")
         where = f"on the Dask scheduler {args.scheduler}" if args.scheduler else \
-            f"on {min(workers, n_todo) or 1} local worker(s)"
+            f"on {min(shown, n_todo) or 1} local worker(s)"
         if n_todo and not args.quiet:
             progress.say(f"batch: running {n_todo} job(s) {where}")
-        progress.start(n_todo, workers or max(1, n_todo))
+        progress.start(n_todo, shown or max(1, n_todo))
 
     with _stop_on_signals() as received:
         outcome = run_batch(
             jobs, args.results, retry_failed=args.retry_failed, workers=workers or None, threads=args.threads,
             scheduler=args.scheduler, scheduler_timeout=args.scheduler_timeout, extra=extra,
             should_stop=lambda: received() is not None, on_start=on_start, on_record=progress.record,
-            size_of=_size_estimator(args),
+            size_of=_size_estimator(args), memory_of=_memory_estimator(args),
         )
         signum = received()
     progress.close()

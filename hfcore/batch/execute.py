@@ -9,16 +9,21 @@ from __future__ import annotations
 
 import contextlib
 import dataclasses
+import itertools
 import time
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
+from .._memory import MemoryBudget, budget_for
+from .._parallel import split_cores, usable_cores
+from ..errors import HfcoreError
 from .cluster import connect_dask, dask_results
 from .command import energy_defaults
 from .jobs import Job, largest_first
-from .pool import LocalPool, usable_cores
+from .pool import LocalPool
 from .results import ResultsWriter
+from .worker import failed_record
 
 
 @dataclass
@@ -44,6 +49,11 @@ class BatchOutcome:
     stopped : bool
         True if ``should_stop`` ended the run early.
     wall_seconds : float
+    notes : list of str
+        What the batch capped to fit the machine (workers and threads
+        beyond the usable cores), for the faces to print.
+    memory_budget : MemoryBudget or None
+        The budget the local workers share (None on Dask).
     """
 
     jobs: list[Job]
@@ -55,6 +65,8 @@ class BatchOutcome:
     duplicates_written: int = 0
     stopped: bool = False
     wall_seconds: float = 0.0
+    notes: list[str] = field(default_factory=list)
+    memory_budget: MemoryBudget | None = None
 
     @property
     def failed(self) -> list[dict[str, Any]]:
@@ -81,6 +93,8 @@ def run_batch(
     on_start: Callable[[BatchOutcome, int], None] | None = None,
     on_record: Callable[[dict[str, Any]], None] | None = None,
     size_of: Callable[[Job], int] | None = None,
+    memory_of: Callable[[Job, MemoryBudget], int] | None = None,
+    memory_budget: MemoryBudget | None = None,
 ) -> BatchOutcome:
     """Run the jobs not yet in a results file, appending one line per finished job.
 
@@ -94,10 +108,12 @@ def run_batch(
     retry_failed : bool
         Also rerun jobs whose latest line says ``failed``.
     workers : int, optional
-        Local worker processes (default: the usable cores). Ignored with
-        ``scheduler``.
+        Local worker processes (default: the usable cores; never more).
+        Ignored with ``scheduler``.
     threads : int
         Threads per job: BLAS, and the ``threads`` option of ``energy``.
+        Locally, ``workers * threads`` is kept within the usable cores by
+        giving each worker fewer threads (at least 1); ``notes`` says so.
     scheduler : str, optional
         Address of a Dask scheduler to send the jobs to instead.
     scheduler_timeout : float
@@ -114,6 +130,17 @@ def run_batch(
     size_of : callable, optional
         An estimate of a job's cost (e.g. its number of basis functions);
         the largest jobs start first. Called only for the jobs to run.
+    memory_of : callable, optional
+        ``memory_of(job, budget)``: the predicted peak bytes of a job under
+        the batch's budget (e.g. :func:`hfcore.cli.planned_memory`). Local
+        workers then reserve it from one shared budget, so the running
+        jobs' predictions never exceed it together; a job that does not
+        fit waits (smaller ones may start meanwhile), and one whose plan
+        fails (a ``ResourceError``: it cannot fit even alone) is a failed
+        line at once. Each job without its own ``memory`` option gets the
+        batch's budget as its own, so it plans as predicted.
+    memory_budget : MemoryBudget, optional
+        The shared budget (default: measured once now, as for one run).
 
     Returns
     -------
@@ -145,24 +172,42 @@ def run_batch(
             else:
                 outcome.skipped_failed += 1
         client = connect_dask(scheduler, scheduler_timeout) if scheduler and todo else None
-        pool = LocalPool(min(workers or usable_cores(), len(todo)), threads) if todo and not scheduler else None
+        pool = None
+        if todo and not scheduler:
+            n_workers, threads = _fit_cores(workers, threads, len(todo), outcome.notes)
+            pool = LocalPool(n_workers, threads)
         completed = False
         try:
             # The pool warms up while the sizes are estimated (only for the jobs to run).
             if size_of is not None:
                 todo = [dataclasses.replace(j, size=size_of(j)) for j in todo]
+            budget = None
+            if pool is not None and memory_of is not None:
+                budget = outcome.memory_budget = memory_budget or budget_for(None)
             if on_start is not None:
                 on_start(outcome, len(todo))
             # Each job gets the batch's thread count for everything that takes
             # one (BLAS and, where 'energy' has --threads, the integral passes),
             # so N workers never oversubscribe the cores.
             job_extra = {**({"threads": threads} if "threads" in energy_defaults() else {}), **(extra or {})}
-            payloads = [{"job": j.record(), "extra": job_extra, "blas_threads": threads if scheduler else None}
-                        for j in largest_first(todo)]
+            payloads, refused = [], []
+            for j in largest_first(todo):
+                payload = {"job": j.record(), "extra": job_extra, "blas_threads": threads if scheduler else None,
+                           "on_dask": bool(scheduler)}
+                if budget is not None:
+                    try:
+                        payload["reserve_bytes"] = int(memory_of(j, budget))
+                    except HfcoreError as exc:  # cannot fit even alone: its line says why, the batch goes on
+                        refused.append(failed_record(j.record(), exc))
+                        continue
+                    if j.options.get("memory") is None and "memory" in energy_defaults():
+                        payload["extra"] = {**job_extra, "memory": budget.bytes / 2**20}
+                payloads.append(payload)
             if client is not None:
                 stream: Iterator[dict[str, Any]] = dask_results(payloads, client, should_stop)
             elif pool is not None:
-                stream = pool.results(payloads, should_stop)
+                stream = itertools.chain(refused, pool.results(
+                    payloads, should_stop, budget_bytes=None if budget is None else budget.bytes))
             else:
                 stream = iter(())
             try:
@@ -191,6 +236,18 @@ def run_batch(
     outcome.stopped = bool(should_stop())
     outcome.wall_seconds = time.perf_counter() - started
     return outcome
+
+
+def _fit_cores(workers: int | None, threads: int, n_jobs: int, notes: list[str]) -> tuple[int, int]:
+    """Local workers and threads per worker within the usable cores (and no more workers than jobs)."""
+    asked = workers or usable_cores()
+    n_workers, n_threads = split_cores(min(asked, n_jobs), threads)
+    if (n_workers, n_threads) != (min(asked, n_jobs), threads):
+        notes.append(
+            f"{asked} worker(s) x {threads} thread(s) exceed the {usable_cores()} usable core(s): running "
+            f"{n_workers} worker(s) x {n_threads} thread(s)"
+        )
+    return n_workers, n_threads
 
 
 __all__ = ["BatchOutcome", "run_batch"]

@@ -175,7 +175,8 @@ class LocalPool:
     Parameters
     ----------
     workers : int
-        Number of processes.
+        Number of processes (the caller keeps them within the usable
+        cores: :func:`hfcore._parallel.split_cores`).
     threads : int
         BLAS threads per worker: set per job with ``threadpoolctl`` in a
         forked worker, in the environment before numpy loads in a spawned one.
@@ -190,6 +191,7 @@ class LocalPool:
 
     def __init__(self, workers: int, threads: int) -> None:
         self.threads = threads
+        self.workers = workers
         context = preimported_context()
         if context is not None and threading.active_count() == 1:
             # One thread (as in the command line): fork straight from this
@@ -225,31 +227,37 @@ class LocalPool:
             for _ in range(workers):
                 self.executor.submit(_warm_up)
 
-    def results(self, payloads: Sequence[Mapping[str, Any]], should_stop: Callable[[], bool]
-                ) -> Iterator[dict[str, Any]]:
+    def results(self, payloads: Sequence[Mapping[str, Any]], should_stop: Callable[[], bool],
+                budget_bytes: int | None = None) -> Iterator[dict[str, Any]]:
         """Run the jobs; yield each results line as it finishes.
 
         Parameters
         ----------
         payloads : sequence of mapping
-            See :func:`run_job`; started in this order.
+            See :func:`run_job`; started in this order, except that a job
+            whose ``reserve_bytes`` do not fit the budget left waits while
+            later, smaller ones that fit start.
         should_stop : callable
             Polled a few times a second; when it returns true the iteration
             ends (and :meth:`close` abandons the running jobs).
+        budget_bytes : int, optional
+            The memory budget the running jobs share: a job starts only when
+            its ``reserve_bytes`` and those of the running jobs fit in it
+            together (a job larger than the whole budget runs alone). None:
+            no budget, every job goes to the workers at once.
 
         Raises
         ------
         HfcoreError
             If a worker process died (the results so far are already yielded).
         """
-        if self.start_method in ("fork", "forkserver"):
-            pending = {self.executor.submit(run_job, {**p, "blas_threads": self.threads}) for p in payloads}
-        else:
-            with _thread_environment(self.threads):
-                pending = {self.executor.submit(run_job, p) for p in payloads}
-        while pending and not should_stop():
-            done, pending = wait(pending, timeout=POLL_S, return_when=FIRST_COMPLETED)
+        waiting = list(payloads)
+        running: dict[Any, int] = {}
+        while (waiting or running) and not should_stop():
+            self._start_fitting(waiting, running, budget_bytes)
+            done, _ = wait(set(running), timeout=POLL_S, return_when=FIRST_COMPLETED)
             for future in done:
+                running.pop(future)
                 try:
                     record = future.result()
                 except BrokenProcessPool:
@@ -258,6 +266,32 @@ class LocalPool:
                         "file, run the batch again to go on"
                     ) from None
                 yield record
+
+    def _start_fitting(self, waiting: list[Mapping[str, Any]], running: dict[Any, int],
+                       budget_bytes: int | None) -> None:
+        """Hand the workers the waiting jobs that fit: all of them without a budget, else within it."""
+        if budget_bytes is None:
+            starting, waiting[:] = list(waiting), []
+        else:
+            starting, kept = [], []
+            reserved = sum(running.values())
+            for payload in waiting:
+                need = int(payload.get("reserve_bytes") or 0)
+                busy = len(running) + len(starting)
+                if busy < self.workers and (busy == 0 or reserved + need <= budget_bytes):
+                    starting.append(payload)
+                    reserved += need
+                else:
+                    kept.append(payload)
+            waiting[:] = kept
+        for payload in starting:
+            running[self._submit(payload)] = int(payload.get("reserve_bytes") or 0)
+
+    def _submit(self, payload: Mapping[str, Any]) -> Any:
+        if self.start_method in ("fork", "forkserver"):
+            return self.executor.submit(run_job, {**payload, "blas_threads": self.threads})
+        with _thread_environment(self.threads):
+            return self.executor.submit(run_job, payload)
 
     def close(self, abandon: bool) -> None:
         """Shut the pool down; with ``abandon``, end the running jobs at once."""
@@ -270,3 +304,4 @@ class LocalPool:
         self.executor.shutdown(wait=not abandon, cancel_futures=True)
 
 __all__ = ["THREAD_VARIABLES", "POLL_S", "PRELOAD", "usable_cores", "preimported_context", "LocalPool"]
+

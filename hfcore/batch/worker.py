@@ -35,6 +35,39 @@ def _blas_limit(threads: int | None) -> contextlib.AbstractContextManager:
     return controller.limit(limits=threads)
 
 
+def _error(exc: BaseException) -> dict[str, Any]:
+    """The ``error`` block of a failed line."""
+    if isinstance(exc, HfcoreError):
+        return {"message": _one_line(str(exc)), "exit_code": exc.exit_code, "kind": type(exc).__name__}
+    if isinstance(exc, MemoryError):
+        return {"message": "not enough memory for this run", "exit_code": ResourceError.exit_code,
+                "kind": "MemoryError"}
+    # A bug must not stop the other jobs; the line says what happened.
+    return {"message": _one_line(f"internal error: {type(exc).__name__}: {exc}"), "exit_code": 1,
+            "kind": type(exc).__name__}
+
+
+def failed_record(job: Mapping[str, Any], exc: BaseException) -> dict[str, Any]:
+    """The failed line of a job that never started (e.g. it cannot fit the memory budget even alone)."""
+    return {"job": dict(job), "status": "failed", "error": _error(exc),
+            "batch": {"wall_seconds": 0.0, "cpu_seconds": 0.0, "host": socket.gethostname(), "pid": os.getpid()}}
+
+
+def _dask_worker_memory() -> float | None:
+    """The job's budget on a Dask worker, in MiB: half of the worker's own memory limit (None without one)."""
+    from .._memory import MEMORY_FRACTION, budget_for
+
+    try:
+        from distributed import get_worker
+
+        limit = get_worker().memory_limit
+    except Exception:  # not on a worker after all
+        return None
+    if not limit:
+        return None
+    return min(MEMORY_FRACTION * float(limit), budget_for(None).bytes) / 2**20
+
+
 def run_job(payload: Mapping[str, Any]) -> dict[str, Any]:
     """Run one job as ``hfcore energy --json -`` would and return its results line.
 
@@ -44,7 +77,11 @@ def run_job(payload: Mapping[str, Any]) -> dict[str, Any]:
         ``job``: the job record (:meth:`Job.record`); ``extra``: further
         ``energy`` arguments that are not part of the job's identity (e.g.
         threads); ``blas_threads``: a BLAS thread limit to apply here, or
-        ``None``.
+        ``None``; ``on_dask``: true on a Dask worker, whose own memory
+        limit then sets the job's budget (half of it, as half of the
+        machine's headroom for a single run) unless the job gives
+        ``memory``; ``reserve_bytes``: the share of a local batch's budget
+        reserved for it (recorded in the line).
 
     Returns
     -------
@@ -53,34 +90,34 @@ def run_job(payload: Mapping[str, Any]) -> dict[str, Any]:
         ``energy --json`` record (success) or ``error`` with ``message``,
         ``exit_code`` and ``kind`` (failure), and ``batch`` with the job's
         ``wall_seconds``, ``cpu_seconds`` (this process's CPU time; less
-        than the wall time on a busy machine), ``host`` and ``pid``. Never raises for a job
+        than the wall time on a busy machine), ``host``, ``pid``,
+        ``start_epoch_seconds`` and ``end_epoch_seconds`` (Unix time) and
+        ``reserved_bytes`` (None outside a local batch's budget). Never raises for a job
         that fails: the failure is the record.
     """
     from .. import cli
     from .command import energy_defaults
 
     job = dict(payload["job"])
-    started, cpu_started = time.perf_counter(), time.process_time()
-    args = argparse.Namespace(**{
-        **energy_defaults(), **job["options"], **payload.get("extra", {}),
-        "geometry": job["geometry"], "basis": job["basis"], "charge": job["charge"],
-    })
+    started, cpu_started, epoch = time.perf_counter(), time.process_time(), time.time()
+    extra = dict(payload.get("extra", {}))
     outcome: dict[str, Any]
     try:
+        if payload.get("on_dask") and job["options"].get("memory") is None and "memory" not in extra:
+            extra["memory"] = _dask_worker_memory()
+        args = argparse.Namespace(**{
+            **energy_defaults(), **job["options"], **extra,
+            "geometry": job["geometry"], "basis": job["basis"], "charge": job["charge"],
+        })
         with _blas_limit(payload.get("blas_threads")):
             outcome = {"status": "ok", **cli.energy_record(args)}
-    except HfcoreError as exc:
-        outcome = {"status": "failed", "error": {"message": _one_line(str(exc)), "exit_code": exc.exit_code,
-                                                 "kind": type(exc).__name__}}
-    except MemoryError:
-        outcome = {"status": "failed", "error": {"message": "not enough memory for this run",
-                                                 "exit_code": ResourceError.exit_code, "kind": "MemoryError"}}
-    except Exception as exc:  # a bug must not stop the other jobs; the line says what happened
-        outcome = {"status": "failed", "error": {"message": _one_line(f"internal error: {type(exc).__name__}: {exc}"),
-                                                 "exit_code": 1, "kind": type(exc).__name__}}
+    except Exception as exc:  # HfcoreError, MemoryError or a bug: the line says which
+        outcome = {"status": "failed", "error": _error(exc)}
     wall, cpu = time.perf_counter() - started, time.process_time() - cpu_started
     return {"job": job, **outcome,
-            "batch": {"wall_seconds": wall, "cpu_seconds": cpu, "host": socket.gethostname(), "pid": os.getpid()}}
+            "batch": {"wall_seconds": wall, "cpu_seconds": cpu, "host": socket.gethostname(), "pid": os.getpid(),
+                      "start_epoch_seconds": epoch, "end_epoch_seconds": time.time(),
+                      "reserved_bytes": payload.get("reserve_bytes")}}
 
 
 def lost_record(payload: Mapping[str, Any], message: str) -> dict[str, Any]:
@@ -89,4 +126,4 @@ def lost_record(payload: Mapping[str, Any], message: str) -> dict[str, Any]:
             "error": {"message": _one_line(message), "exit_code": 1, "kind": "WorkerLost"},
             "batch": {"wall_seconds": None, "cpu_seconds": None, "host": None, "pid": None}}
 
-__all__ = ["run_job", "lost_record"]
+__all__ = ["run_job", "lost_record", "failed_record"]

@@ -26,6 +26,7 @@ from ..basis.shells import BasisSet
 from ..errors import ResourceError
 from .eri_pairs import pair_index, prepare_pairs, screening_threshold
 from .hermite import n_hermite
+from .._memory import allocate
 from .._parallel import WorkerTeam, can_fork, forked_units, ordered_map, resolve_threads, shared_zeros, work_units
 from .tiles import Tile, batch_pairs, iter_tiles
 
@@ -136,7 +137,7 @@ class ERIStore:
             pm = self._pair_map().astype(itype)
             tri = (np.arange(self.n_pairs, dtype=np.int64) * (np.arange(self.n_pairs) + 1) // 2).astype(itype)
             first, second = (x.astype(itype) for x in np.tril_indices(n))
-            out = np.empty_like(self.packed)
+            out = allocate("the exchange kernel of the stored integrals", self.packed.shape, zero=False)
             for i in range(n):
                 row0 = i * (i + 1) // 2
                 ncol = row0 + i + 1
@@ -239,10 +240,11 @@ class _LeanTeam:
     def __init__(self, packed: np.ndarray, n: int, units: list[tuple[int, int]], size: int):
         npair = n * (n + 1) // 2
         self.size = size
-        self.density = shared_zeros((n, n))
-        self.packed_density = shared_zeros(npair)
-        self.parts_j = shared_zeros((len(units), npair))
-        self.parts_h = shared_zeros((len(units), n, n))
+        what = "the lean K build's shared arrays"
+        self.density = shared_zeros((n, n), what=what)
+        self.packed_density = shared_zeros(npair, what=what)
+        self.parts_j = shared_zeros((len(units), npair), what=what)
+        self.parts_h = shared_zeros((len(units), n, n), what=what)
         density, packed_density, parts_j, parts_h = self.density, self.packed_density, self.parts_j, self.parts_h
 
         def work(u: int) -> None:
@@ -367,7 +369,7 @@ def compute_eri(
     threads = resolve_threads(threads)
     forked = threads > 1 and can_fork()
     # Forked workers write into shared pages; every integral is written by one tile.
-    packed = shared_zeros(size) if forked else np.zeros(size)
+    packed = allocate("the stored integrals", size, shared=forked)
     tiles = [tile for g1, g2 in batch_pairs(prepare_pairs(basis, threshold)) for tile in iter_tiles(g1, g2, threshold)]
     weights = [tile.quartets * n_hermite(tile.bra.L + tile.ket.L) for tile in tiles]
     total = sum(weights)

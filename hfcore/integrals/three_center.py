@@ -33,7 +33,8 @@ import numpy as np
 from ..basis.shells import BasisSet
 from .eri_pairs import prepare_pairs, screening_threshold, shell_batches
 from .hermite import n_hermite
-from .._parallel import can_fork, forked_units, ordered_map, resolve_threads, shared_zeros, work_units
+from .._memory import allocate
+from .._parallel import can_fork, forked_units, ordered_map, resolve_threads, work_units
 from .tiles import PairBatch, Tile, batch_pairs, chunks, iter_tiles, tile_cost, tile_integrals, tile_sizes
 
 #: A pass is cut into about this many work units for the thread pool (fixed,
@@ -81,9 +82,9 @@ def _forked(threads: int) -> bool:
     return threads > 1 and can_fork()
 
 
-def _zeros(shape: tuple[int, ...], threads: int) -> np.ndarray:
+def _zeros(shape: tuple[int, ...], threads: int, what: str = "the three-centre integrals") -> np.ndarray:
     """An output of :func:`_run_tiles`: in shared memory when the tiles run on worker processes."""
-    return shared_zeros(shape) if _forked(threads) else np.zeros(shape)
+    return allocate(what, shape, shared=_forked(threads))
 
 
 def two_center_integrals(aux: BasisSet) -> np.ndarray:
@@ -204,7 +205,7 @@ class ThreeCenterEngine:
 
     def compute(self) -> np.ndarray:
         """All of (P|μν), shape (naux, npair), in fitting-function order."""
-        out = np.empty((self.n_aux, self.n_pairs))
+        out = allocate("the three-centre integrals", (self.n_aux, self.n_pairs), zero=False)
         for index, values in self.blocks(self.n_aux):
             out[index] = values
         return out
@@ -223,7 +224,7 @@ class ThreeCenterEngine:
         order : ndarray of int, shape (naux,)
             Fitting-function index of every column.
         """
-        out = _zeros((self.n_pairs, self.n_aux), self.threads)
+        out = _zeros((self.n_pairs, self.n_aux), self.threads, "the fitted factors")
         start = {}
         column = 0
         for aux in self._aux:

@@ -17,7 +17,8 @@ from ..basis.fitting import FittingChoice, fitting_basis
 from ..basis.shells import BasisSet
 from ..errors import ConvergenceError, InputError, ResourceError
 from ..geometry import Molecule
-from .._parallel import blas_threads, can_fork
+from .._memory import MemoryBudget, budget_for, budget_in_force
+from .._parallel import blas_threads, can_fork, thread_note
 from ..integrals.store import EXCHANGE_KERNEL_LIMIT_BYTES, STORE_LIMIT_BYTES
 from .fitted_jk import FittedJK, FittingPlan, plan_fitting
 from .guess import sad_density
@@ -39,6 +40,7 @@ def run_rhf(
     integral_progress: Callable[[float], None] | None = None,
     shared: "SharedIntegrals | None" = None,
     raise_on_failure: bool = True,
+    plan: "JKPlan | None" = None,
 ) -> RHFResult:
     """Restricted Hartree-Fock energy and orbitals of a closed-shell molecule.
 
@@ -71,6 +73,10 @@ def run_rhf(
         :class:`ConvergenceError`. False: the unconverged record is returned
         instead, with ``converged=False`` and ``message`` saying why, so a
         prototyping loop can inspect it.
+    plan : JKPlan, optional
+        The plan from :func:`plan_jk` for this basis and these options,
+        when the caller made one already (so the memory budget is measured
+        once per run); ignored with ``shared``.
 
     Returns
     -------
@@ -79,15 +85,18 @@ def run_rhf(
         seconds; ``stability`` and ``aufbau`` say what was checked after
         convergence (see ``options.stability``);
         ``jk_mode`` and ``eri_memory_bytes`` say how J and K were built
-        (see :func:`plan_jk`).
+        (see :func:`plan_jk`); ``memory_budget`` is the budget the run
+        measured once and ``resource_notes`` what was capped to fit.
 
     Raises
     ------
     InputError
         Open-shell molecule, unknown guess, malformed guess density.
     ResourceError
-        Stored integrals forced (``options.direct=False``) beyond
-        ``options.memory_limit``, raised before any is computed.
+        Stored integrals forced (``options.direct=False``) beyond the
+        memory budget, or a ``memory_limit`` above a hard bound, raised
+        before any is computed; an allocation the system refuses (one line
+        naming the array, its size and the budget).
     ConvergenceError
         No convergence within ``options.max_iterations`` (unless
         ``raise_on_failure`` is False); ``.result`` holds the unconverged
@@ -95,7 +104,8 @@ def run_rhf(
     """
     options = options or SCFOptions()
     with blas_threads(options.n_threads), contextlib.ExitStack() as blas:
-        return _run_rhf(molecule, basis, options, guess, progress, integral_progress, shared, raise_on_failure, blas)
+        return _run_rhf(molecule, basis, options, guess, progress, integral_progress, shared, raise_on_failure, blas,
+                        plan)
 
 
 def scf_blas_threads(plan: "JKPlan", options: SCFOptions) -> int:
@@ -122,6 +132,7 @@ def _run_rhf(
     shared: "SharedIntegrals | None",
     raise_on_failure: bool = True,
     blas: contextlib.ExitStack | None = None,
+    plan: "JKPlan | None" = None,
 ) -> RHFResult:
     t0 = time.perf_counter()
     molecule.require_closed_shell()
@@ -130,7 +141,7 @@ def _run_rhf(
     require_room_for(molecule, basis)
     guess_density = _checked_guess(guess, basis)
     if shared is None:
-        shared = prepare_integrals(basis, options, integral_progress, molecule=molecule)
+        shared = prepare_integrals(basis, options, integral_progress, molecule=molecule, plan=plan)
     elif shared.basis is not basis:
         raise InputError("shared integrals belong to another basis; build them with prepare_integrals(basis)")
     overlap = shared.overlap
@@ -164,15 +175,16 @@ def _run_rhf(
             }
         return replace(
             result, molecule=molecule, basis=basis, timings=timings, jk_mode=plan.mode,
-            eri_memory_bytes=plan.eri_memory_bytes,
+            eri_memory_bytes=plan.eri_memory_bytes, memory_budget=plan.budget, resource_notes=plan.notes,
             **fitted,
         )
 
     try:
-        result = solve_rhf(
-            overlap, hcore, jk, molecule.n_electrons, molecule.nuclear_repulsion(), options, guess_density,
-            progress=progress,
-        )
+        with _budget_context(plan):
+            result = solve_rhf(
+                overlap, hcore, jk, molecule.n_electrons, molecule.nuclear_repulsion(), options, guess_density,
+                progress=progress,
+            )
     except ConvergenceError as exc:
         if exc.result is None:
             raise
@@ -212,7 +224,7 @@ class JKPlan:
         "stored-lean", the size with the exchange kernel otherwise; in
         fitted mode the predicted peak of the fitted way chosen.
     limit_bytes : int
-        The budget they were measured against (bytes): ``memory_limit``,
+        The budget they were measured against (bytes): ``budget.bytes``,
         capped at :data:`hfcore.integrals.store.STORE_LIMIT_BYTES`.
     fitting : FittingPlan or None
         Stored or blocked fitted factors (fitted mode only).
@@ -220,6 +232,17 @@ class JKPlan:
         The fitting set (fitted mode only).
     fit_notes : tuple of str
         How it was chosen.
+    budget : MemoryBudget or None
+        The run's memory budget, measured once (:func:`hfcore._memory.resolve_budget`):
+        its size, the bound that set it and that rule in words.
+    notes : tuple of str
+        What was capped to fit the machine (e.g. threads beyond the usable
+        cores), for the faces to print as they are.
+    peak_bytes : int
+        Predicted peak of the run's large arrays (bytes): the stored
+        integrals or fitted factors of the mode chosen (none when direct)
+        and the SCF's own matrices. A batch reserves this much of its
+        shared budget while the run goes.
     """
 
     mode: str
@@ -228,13 +251,17 @@ class JKPlan:
     fitting: FittingPlan | None = None
     fit_basis: BasisSet | None = None
     fit_notes: tuple[str, ...] = ()
+    budget: MemoryBudget | None = None
+    notes: tuple[str, ...] = ()
+    peak_bytes: int = 0
 
 
 rename_fields(JKPlan, {"eri_bytes": "eri_memory_bytes"})
 
 
 def plan_jk(
-    basis: BasisSet, options: SCFOptions | None = None, *, fitting: FittingChoice | None = None, n_occupied: int = 1
+    basis: BasisSet, options: SCFOptions | None = None, *, fitting: FittingChoice | None = None, n_occupied: int = 1,
+    budget: MemoryBudget | None = None,
 ) -> JKPlan:
     """Choose stored, lean stored, direct or fitted J/K builds for a basis, per ``options``.
 
@@ -255,6 +282,10 @@ def plan_jk(
         "fitted", with stored or blocked factors per :func:`plan_fitting`.
     n_occupied : int
         Doubly occupied orbitals (sizes the blocked fitted way).
+    budget : MemoryBudget, optional
+        The memory budget; by default measured now from
+        ``options.memory_limit`` and the system's bounds (once: the plan
+        keeps it for the run).
 
     Returns
     -------
@@ -264,20 +295,23 @@ def plan_jk(
     ------
     ResourceError
         If stored integrals are forced (``direct=False``) and not even the
-        lean store fits, or fitted ones do not fit even in blocks.
+        lean store fits, fitted ones do not fit even in blocks, or
+        ``options.memory_limit`` exceeds a hard bound (cgroup, rlimit).
     InputError
         If ``options.fit_basis`` is set but no ``fitting`` is given.
     """
     options = options or SCFOptions()
+    if options.fit_basis is not None and fitting is None:
+        raise InputError("plan_jk: options.fit_basis is set; pass fitting=fitting_basis(molecule, basis, choice)")
+    budget = budget_for(options.memory_limit) if budget is None else budget
+    notes = tuple(note for note in (thread_note(options.threads),) if note)
+    limit = min(budget.bytes, STORE_LIMIT_BYTES)
     if options.fit_basis is not None:
-        if fitting is None:
-            raise InputError("plan_jk: options.fit_basis is set; pass fitting=fitting_basis(molecule, basis, choice)")
-        limit = min(options.memory_limit_bytes, STORE_LIMIT_BYTES)
         fplan = plan_fitting(basis, fitting.basis, n_occupied, limit)
-        return JKPlan("fitted", fplan.need_bytes, limit, fplan, fitting.basis, fitting.notes)
+        return JKPlan("fitted", fplan.need_bytes, limit, fplan, fitting.basis, fitting.notes, budget, notes,
+                      fplan.need_bytes + _scf_matrix_bytes(basis, options))
     need = integrals.estimate_eri_memory(basis)
     lean = integrals.estimate_eri_memory(basis, lean=True)
-    limit = min(options.memory_limit_bytes, STORE_LIMIT_BYTES)
     if options.direct:
         mode = "direct"
     elif need <= min(limit, EXCHANGE_KERNEL_LIMIT_BYTES):
@@ -292,7 +326,20 @@ def plan_jk(
             f"({need / 2**20:.3g} MiB with the exchange kernel) but {limit / 2**20:.3g} MiB are allowed; "
             f"use the direct mode (--direct, direct=True) or raise the limit (--memory MIB, memory_limit)"
         )
-    return JKPlan(mode, lean if mode == "stored-lean" else need, limit)
+    stored = {"stored": need, "stored-lean": lean}.get(mode, 0)
+    return JKPlan(mode, lean if mode == "stored-lean" else need, limit, budget=budget, notes=notes,
+                  peak_bytes=stored + _scf_matrix_bytes(basis, options))
+
+
+def _scf_matrix_bytes(basis: BasisSet, options: SCFOptions) -> int:
+    """The SCF's own (nbf, nbf) matrices: DIIS keeps a Fock and an error matrix per pair, plus about 16 more."""
+    n = basis.n_functions
+    return 8 * n * n * (2 * options.max_diis_size + 16)
+
+
+def _budget_context(plan: JKPlan) -> contextlib.AbstractContextManager:
+    """A refused allocation inside names the plan's budget (see :func:`hfcore._memory.allocate`)."""
+    return contextlib.nullcontext() if plan.budget is None else budget_in_force(plan.budget)
 
 
 @dataclass(frozen=True)
@@ -332,7 +379,7 @@ class SharedIntegrals:
 
 def prepare_integrals(
     basis: BasisSet, options: SCFOptions | None = None, integral_progress: Callable[[float], None] | None = None,
-    *, molecule: Molecule | None = None,
+    *, molecule: Molecule | None = None, plan: JKPlan | None = None,
 ) -> SharedIntegrals:
     """Overlap, kinetic and two-electron integrals of a basis, for one or more RHF runs.
 
@@ -347,6 +394,9 @@ def prepare_integrals(
     molecule : Molecule, optional
         Needed with ``options.fit_basis``, to place the fitting set on the
         same atoms (ghosts included) and size the blocked fitted way.
+    plan : JKPlan, optional
+        A plan already made by :func:`plan_jk` for this basis and options
+        (the budget is then not measured again).
 
     Returns
     -------
@@ -361,18 +411,23 @@ def prepare_integrals(
     """
     t0 = time.perf_counter()
     options = options or SCFOptions()
-    if options.fit_basis is not None:
-        if molecule is None:
-            raise InputError("prepare_integrals: options.fit_basis needs the molecule (molecule=...) to place the fitting set")
-        fitting = fitting_basis(molecule, basis, options.fit_basis)
-        plan = plan_jk(basis, options, fitting=fitting, n_occupied=molecule.n_electrons // 2)
-    else:
-        plan = plan_jk(basis, options)
-    with blas_threads(options.n_threads):
+    if plan is None:
+        plan = _plan_for(basis, options, molecule)
+    with blas_threads(options.n_threads), _budget_context(plan):
         overlap = integrals.overlap(basis)
         kinetic = integrals.kinetic(basis)
         engine = _jk_builder(basis, options, plan, integral_progress)
     return SharedIntegrals(basis, overlap, kinetic, plan, engine, time.perf_counter() - t0)
+
+
+def _plan_for(basis: BasisSet, options: SCFOptions, molecule: Molecule | None) -> JKPlan:
+    """:func:`plan_jk` for a basis, placing the fitting set on ``molecule`` when ``options.fit_basis`` asks."""
+    if options.fit_basis is None:
+        return plan_jk(basis, options)
+    if molecule is None:
+        raise InputError("prepare_integrals: options.fit_basis needs the molecule (molecule=...) to place the fitting set")
+    fitting = fitting_basis(molecule, basis, options.fit_basis)
+    return plan_jk(basis, options, fitting=fitting, n_occupied=molecule.n_electrons // 2)
 
 
 def _jk_builder(

@@ -38,6 +38,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.linalg
 
+from .._memory import allocate
 from ..basis.shells import BasisSet
 from ..errors import ResourceError
 from ..integrals.three_center import ThreeCenterEngine, estimate_three_center_memory, two_center_integrals
@@ -360,7 +361,7 @@ class FittedJK:
         first = True
         for r0 in range(0, max(rank, 1), max(chunk, 1)):
             cols = slice(r0, min(r0 + chunk, rank))
-            half = np.zeros((naux, cols.stop - cols.start, n)) if rank else None
+            half = allocate("the half-transformed fitted factors", (naux, cols.stop - cols.start, n)) if rank else None
             for index, values in self._engine.blocks(block):
                 if first:
                     gamma[index] = values @ dp

@@ -7,6 +7,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from .._deprecation import rename_fields
+from .._memory import FALLBACK_HEADROOM_BYTES, MEMORY_FRACTION, MemoryPaths, resolve_budget
 from ..errors import InputError
 from .accelerators import ACCELERATOR_NAMES
 from .stability import check_stability_mode
@@ -25,29 +26,25 @@ def _count(name: str, value: object, minimum: int) -> int:
     return int(value)
 
 
-#: Share of the available memory the stored integrals may take by default.
-MEMORY_FRACTION: float = 0.5
-#: Budget in MiB when the available memory cannot be read.
-FALLBACK_MEMORY_MIB: float = 4096.0
+#: Budget in MiB when no memory bound can be read (half of the assumed headroom).
+FALLBACK_MEMORY_MIB: float = MEMORY_FRACTION * FALLBACK_HEADROOM_BYTES / 2**20
 
 
 def default_memory_limit(meminfo: str = "/proc/meminfo") -> float:
-    """Default budget for stored integrals in MiB: half of ``MemAvailable``.
+    """The default budget in MiB, measured now: half of the least memory bound.
+
+    The SCF driver measures it once per run (:func:`hfcore._memory.resolve_budget`,
+    recorded as ``JKPlan.budget`` and ``RHFResult.memory_budget``); this is
+    the same measure for a caller who wants the figure.
 
     Parameters
     ----------
     meminfo : str
         The kernel's memory report; when it is missing or has no
-        ``MemAvailable`` line, :data:`FALLBACK_MEMORY_MIB` is used.
+        ``MemAvailable`` line (and no other bound applies),
+        :data:`FALLBACK_MEMORY_MIB` is used.
     """
-    try:
-        with open(meminfo, encoding="ascii") as handle:
-            for line in handle:
-                if line.startswith("MemAvailable:"):
-                    return MEMORY_FRACTION * float(line.split()[1]) / 1024.0
-    except (OSError, ValueError, IndexError):
-        pass
-    return FALLBACK_MEMORY_MIB
+    return resolve_budget(paths=MemoryPaths(meminfo=meminfo)).bytes / 2**20
 
 
 @dataclass(frozen=True)
@@ -94,9 +91,13 @@ class SCFOptions:
         when :func:`hfcore.integrals.estimate_eri_memory` fits within
         ``memory_limit``, direct otherwise.
     memory_limit : float or None
-        Memory the stored integrals may take, in MiB (2^20 bytes). None
-        means half of the memory the system reports available
-        (:func:`default_memory_limit`).
+        Memory the stored integrals (or fitted factors, MP2 blocks) may
+        take, in MiB (2^20 bytes). None means "measure at run time": the
+        driver resolves it once per run to half of the least of the
+        available memory, the cgroup limit and the address-space and data
+        rlimits (:mod:`hfcore._memory`); the plan and the result record
+        the budget and which bound set it. A value above the headroom of
+        a hard bound (cgroup, rlimit) is refused when the run starts.
     stability : {"follow", "check", "off"}
         After convergence, analyse the internal (real RHF→RHF) stability of
         the solution (:mod:`hfcore.scf.stability`). ``"follow"`` also leaves
@@ -125,7 +126,8 @@ class SCFOptions:
     threads : int or None
         Threads of the integral passes (stored and direct) and of BLAS
         (when ``threadpoolctl`` is installed); None means the cores this
-        process may use. The integral passes give the same bits for any
+        process may use, and a larger count is capped at them
+        (:func:`hfcore._parallel.resolve_threads`; the run's record notes it). The integral passes give the same bits for any
         number; threaded BLAS may move the energy's last digits (~1e-13 Eh).
     fit_basis : str, BasisFamily, BasisSet or None
         Density-fitted J and K with this fitting set: ``"auto"`` (see
@@ -202,9 +204,18 @@ class SCFOptions:
 
     @property
     def memory_limit_bytes(self) -> int:
-        """The memory budget of the stored integrals in bytes (``memory_limit`` or the default)."""
-        mib = default_memory_limit() if self.memory_limit is None else self.memory_limit
-        return int(mib * 2**20)
+        """Deprecated: the budget in bytes, measured anew on every access.
+
+        A run resolves its budget once (``JKPlan.budget``,
+        ``RHFResult.memory_budget``); read it there.
+        """
+        import warnings
+
+        warnings.warn("SCFOptions.memory_limit_bytes measures the system on every access; read the run's "
+                      "budget (plan.budget, result.memory_budget) instead", DeprecationWarning, stacklevel=2)
+        from .._memory import budget_for
+
+        return budget_for(self.memory_limit).bytes
 
     @property
     def n_threads(self) -> int:

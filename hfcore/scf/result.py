@@ -11,6 +11,7 @@ from .._deprecation import rename_fields
 from .options import SCFOptions
 
 if TYPE_CHECKING:
+    from .._memory import MemoryBudget
     from ..basis.shells import BasisSet
     from ..geometry import Molecule
     from .stability import StabilityReport
@@ -140,6 +141,12 @@ class RHFResult:
         Fitted factors kept, or recomputed in blocks every iteration.
     fit_dropped : int
         Metric eigenvectors dropped as near-singular.
+    memory_budget : MemoryBudget or None
+        The memory budget the run measured once, with the bound that set
+        it (None for bare matrices).
+    resource_notes : tuple of str
+        What was capped to fit the machine (threads beyond the usable
+        cores), as the faces print it.
     """
 
     energy_total: float
@@ -173,6 +180,8 @@ class RHFResult:
     fit_notes: tuple[str, ...] = ()
     fit_storage: str = ""
     fit_dropped: int = 0
+    memory_budget: "MemoryBudget | None" = None
+    resource_notes: tuple[str, ...] = ()
 
     @property
     def n_occupied(self) -> int:
