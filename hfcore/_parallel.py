@@ -27,6 +27,7 @@ import contextlib
 import os
 import signal
 import sys
+import threading
 from collections import deque
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import ThreadPoolExecutor
@@ -200,6 +201,35 @@ def ordered_map(work: Callable[[T], R], items: Iterable[T], threads: int) -> Ite
         finally:
             for future in pending:
                 future.cancel()
+
+
+#: Exit status after SIGTERM (128 + 15, the shell convention).
+EXIT_TERMINATED: int = 143
+
+
+@contextlib.contextmanager
+def terminate_cleanly() -> Iterator[None]:
+    """Inside the block, SIGTERM raises ``SystemExit(143)`` in the main thread instead of killing the process.
+
+    The default action ends the process on the spot, so ``finally``
+    clauses never run: a half-written temporary file would stay, and
+    worker processes would be left to notice the closed pipe on their own.
+    As an exception, the clean-up of every block it passes through runs
+    (temporary files removed, worker teams closed and waited for).
+    Outside the main thread this does nothing.
+    """
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+
+    def stop(signum: int, frame: object) -> None:
+        raise SystemExit(EXIT_TERMINATED)
+
+    previous = signal.signal(signal.SIGTERM, stop)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
 
 
 def can_fork() -> bool:
@@ -474,6 +504,8 @@ __all__ = [
     "work_units",
     "ordered_map",
     "can_fork",
+    "terminate_cleanly",
+    "EXIT_TERMINATED",
     "shared_zeros",
     "forked_units",
 ]

@@ -26,6 +26,7 @@ from typing import Any, TextIO
 import numpy as np
 
 from . import __version__, elements, export, report
+from ._parallel import terminate_cleanly
 from .errors import HfcoreError, InputError, NumericalError, ResourceError
 from .units import BOHR_IN_ANGSTROM
 
@@ -835,7 +836,7 @@ def main(argv: Sequence[str] | None = None, *, stdout: TextIO | None = None, std
     console = _Console(out, err, json_to_stdout, getattr(args, "quiet", False))
     try:
         try:
-            with _floating_point_errors_as_exceptions():
+            with _floating_point_errors_as_exceptions(), terminate_cleanly():
                 return args.handler(args, console)
         except (FloatingPointError, RuntimeWarning, np.linalg.LinAlgError) as exc:
             raise _numerical_failure(exc) from None

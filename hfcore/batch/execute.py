@@ -189,7 +189,8 @@ def run_batch(
             # Each job gets the batch's thread count for everything that takes
             # one (BLAS and, where 'energy' has --threads, the integral passes),
             # so N workers never oversubscribe the cores.
-            job_extra = {**({"threads": threads} if "threads" in energy_defaults() else {}), **(extra or {})}
+            # (after the cap above: a "threads" in ``extra`` is the batch's own, uncapped).
+            job_extra = {**(extra or {}), **({"threads": threads} if "threads" in energy_defaults() else {})}
             payloads, refused = [], []
             for j in largest_first(todo):
                 payload = {"job": j.record(), "extra": job_extra, "blas_threads": threads if scheduler else None,
