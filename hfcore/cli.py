@@ -131,14 +131,15 @@ def _add_scf_arguments(parser: argparse.ArgumentParser) -> None:
     mode.add_argument("--stored", dest="direct", action="store_const", const=False,
                       help="store the integrals; fail up front if they exceed --memory")
     memory.add_argument("--memory", type=_positive_float, metavar="MIB",
-                        help="memory the stored integrals may use, in MiB (default: half of the available memory)")
+                        help="memory the stored integrals may use, in MiB (default: half of the least of the available "
+                        "memory, the cgroup limit and the address-space and data limits)")
     _add_threads_argument(memory)
 
 
 def _add_threads_argument(parser: Any) -> None:
     parser.add_argument("--threads", type=_positive_int, metavar="N",
                         help="threads for the integral passes and linear algebra "
-                        "(default: the cores this process may use); the energy does not depend on N beyond ~1e-13 Eh")
+                        "(default and most: the cores this process may use); the energy does not depend on N beyond ~1e-13 Eh")
 
 
 def _add_stability_argument(parser: Any) -> None:
