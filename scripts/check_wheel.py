@@ -94,22 +94,33 @@ class _BlockExtras(importlib.abc.MetaPathFinder):
         return None
 
 
+def _import(name: str, problems: list[str]):
+    """The module, or None with a line added to ``problems``."""
+    try:
+        return importlib.import_module(name)
+    except ImportError as error:
+        if (error.name or "").split(".")[0] in EXTRA_MODULES:
+            problems.append(f"{name}: needs an optional extra at import time ({error})")
+        else:
+            problems.append(f"{name}: fails to import ({error})")
+    except Exception as error:  # any other failure is a broken distribution too
+        problems.append(f"{name}: fails to import ({type(error).__name__}: {error})")
+    return None
+
+
 def import_problems() -> list[str]:
     """Import every module of the installed hfcore with the extras blocked; one line per failure."""
     for name in list(sys.modules):
         if name.split(".")[0] in EXTRA_MODULES | {"hfcore"}:
             del sys.modules[name]
     sys.meta_path.insert(0, _BlockExtras())
-    import hfcore
-
-    problems = []
+    problems: list[str] = []
+    hfcore = _import("hfcore", problems)
+    if hfcore is None:
+        return problems
     for module in pkgutil.walk_packages(hfcore.__path__, "hfcore."):
-        if module.name.endswith("__main__"):
-            continue
-        try:
-            importlib.import_module(module.name)
-        except ImportError as error:
-            problems.append(f"{module.name}: needs an optional extra at import time ({error})")
+        if not module.name.endswith("__main__"):
+            _import(module.name, problems)
     print(f"imported hfcore {hfcore.__version__} from {Path(hfcore.__file__).parent}", file=sys.stderr)
     return problems
 
