@@ -15,9 +15,8 @@ from __future__ import annotations
 
 from .basis import BasisSet, Shell, build_basis, get_family
 from .errors import BasisError, ConvergenceError, HfcoreError, InputError, ResourceError
+from ._version import __version__
 from .geometry import Molecule, parse_xyz, read_xyz
-
-__version__ = "0.1.0"
 
 
 def __getattr__(name: str):

@@ -25,8 +25,9 @@ from typing import Any, TextIO
 
 import numpy as np
 
-from . import __version__, elements, export, report
+from . import elements, export, report
 from ._parallel import terminate_cleanly
+from ._version import __version__
 from .errors import HfcoreError, InputError, NumericalError, ResourceError
 from .units import BOHR_IN_ANGSTROM
 

@@ -180,7 +180,7 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
         ``scf``, ``orbitals``, ``timings`` (and ``analysis``); energies in
         hartree, coordinates in bohr.
     """
-    from . import __version__
+    from ._version import __version__
 
     mol = result.molecule
     basis = result.basis
@@ -292,7 +292,7 @@ def sto_fit_record(fit: Any) -> dict[str, Any]:
         exponents in bohr⁻², coefficients and overlaps per angular momentum
         letter, coefficients for normalised primitives).
     """
-    from . import __version__
+    from ._version import __version__
 
     return {
         "hfcore": {"version": __version__},
@@ -303,21 +303,21 @@ def sto_fit_record(fit: Any) -> dict[str, Any]:
 
 def comparison_record(comparison: Any) -> dict[str, Any]:
     """The JSON record of a basis comparison: ``hfcore``, ``units``, ``comparison``."""
-    from . import __version__
+    from ._version import __version__
 
     return {"hfcore": {"version": __version__}, "units": UNITS, "comparison": comparison.to_dict()}
 
 
 def interaction_record(study: Any) -> dict[str, Any]:
     """The JSON record of an interaction study: ``hfcore``, ``units``, ``interaction``."""
-    from . import __version__
+    from ._version import __version__
 
     return {"hfcore": {"version": __version__}, "units": UNITS, "interaction": study.to_dict()}
 
 
 def reaction_record(study: Any) -> dict[str, Any]:
     """The JSON record of a reaction study: ``hfcore``, ``units``, ``reaction``."""
-    from . import __version__
+    from ._version import __version__
 
     return {"hfcore": {"version": __version__}, "units": UNITS, "reaction": study.to_dict()}
 

@@ -40,7 +40,7 @@ _HEADER_KEY = "hfcore_batch_results"
 
 def header_record() -> dict[str, Any]:
     """The first line of a results file written by this hfcore."""
-    from .. import __version__
+    from .._version import __version__
 
     return {_HEADER_KEY: RESULTS_FORMAT, "hfcore_version": __version__}
 
