@@ -27,10 +27,14 @@ def __getattr__(name: str):
         from . import scf
 
         return getattr(scf, name)
-    if name in {"mp2_energy", "project_density"}:
+    if name == "mp2_energy":
         from . import analysis
 
         return getattr(analysis, name)
+    if name == "project_density":
+        from . import studies
+
+        return getattr(studies, name)
     if name in {"load_arrays", "SavedArrays"}:
         from . import export
 

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from .analysis.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from .studies.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
 from .report import atom_ranges, heading
 
 

@@ -10,14 +10,14 @@ import pytest
 from conftest import assert_valid_png
 
 import hfcore
-from hfcore.analysis import (
-    KCAL_MOL_PER_HARTREE,
+from hfcore.studies import (
     ComparisonRow,
     basis_limit_estimates,
     compare_bases,
     project_density,
 )
 from hfcore.errors import InputError
+from hfcore.units import KCAL_MOL_PER_HARTREE
 from hfcore.plots import plot_comparison
 
 NESTED = ["6-31g*", "6-31g"]

@@ -9,8 +9,8 @@ from conftest import INPUTS, assert_valid_png, run_main
 from reference import family_shells, reference_energy, reference_mole
 
 import hfcore
-from hfcore.analysis.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
-from hfcore.analysis.interaction import check_fragments, interaction_energies, interaction_pieces
+from hfcore.studies.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from hfcore.studies.interaction import check_fragments, interaction_energies, interaction_pieces
 from hfcore.cli_differences import parse_fragments
 from hfcore.errors import InputError
 
@@ -134,7 +134,7 @@ def test_interaction_command_errors_are_one_line_before_any_run(extra, fragment)
 
 
 def test_raw_interaction_energy_equals_the_dimerisation_energy(study, monkeypatch):
-    from hfcore.analysis.reactions import reaction_energies
+    from hfcore.studies.reaction import reaction_energies
 
     monkeypatch.chdir(INPUTS)
     dimerisation = reaction_energies("2 water.xyz -> water_dimer.xyz", BASES[:2])

@@ -11,9 +11,9 @@ import pytest
 from conftest import INPUTS, assert_one_line_error, assert_valid_png, cli_result, run_main
 
 import hfcore.scf
-from hfcore.analysis.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
-from hfcore.analysis.extrapolation import karton_martin_two_point
-from hfcore.analysis.reactions import load_reactions, parse_reaction, reaction_energies, reaction_pieces
+from hfcore.studies.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from hfcore.studies.extrapolation import karton_martin_two_point
+from hfcore.studies.reaction import load_reactions, parse_reaction, reaction_energies, reaction_pieces
 
 HYDROGENATION = "formaldehyde.xyz + hydrogen.xyz -> methanol.xyz"
 DIMERISATION = "2 water.xyz -> water_dimer.xyz"
@@ -114,7 +114,7 @@ def test_reaction_plot_and_report(in_inputs, tmp_path):
 
 
 def test_three_point_estimate_and_spread(tmp_path, monkeypatch):
-    from hfcore.analysis.extrapolation import feller_three_point
+    from hfcore.studies.extrapolation import feller_three_point
 
     monkeypatch.chdir(tmp_path)
     Path("h2_long.xyz").write_text("2\nstretched hydrogen\nH 0 0 0\nH 0 0 0.9\n")

@@ -95,8 +95,8 @@ def test_rhf_result_becomes_a_dict_the_way_the_json_export_writes_it():
 
 
 def test_the_two_guess_lists_have_their_own_names():
-    from hfcore.analysis import compare
-    from hfcore.analysis.compare import COMPARISON_GUESSES
+    from hfcore.studies import compare
+    from hfcore.studies.compare import COMPARISON_GUESSES
     from hfcore.scf import GUESSES as SCF_GUESSES
 
     with pytest.warns(DeprecationWarning, match="compare.GUESSES is deprecated; use COMPARISON_GUESSES"):

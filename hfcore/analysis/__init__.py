@@ -9,18 +9,6 @@ finished :class:`hfcore.scf.RHFResult` and never runs the SCF itself.
 
 from __future__ import annotations
 
-from .compare import (
-    KCAL_MOL_PER_HARTREE,
-    BasisComparison,
-    BasisLimitEstimate,
-    ComparisonRow,
-    basis_limit_estimates,
-    compare_bases,
-    project_density,
-)
-from .interaction import InteractionStudy, interaction_energies
-from .reactions import ReactionStudy, reaction_energies
-from .extrapolation import cardinal_number, correlation_consistent, feller_three_point, karton_martin_two_point
 from .mp2 import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, MP2Result, core_orbital_count, mp2_energy
 from .multipoles import (
     DEBYE_ANGSTROM_PER_AU,
@@ -53,19 +41,4 @@ __all__ = [
     "MP2Result",
     "mp2_energy",
     "core_orbital_count",
-    "cardinal_number",
-    "correlation_consistent",
-    "karton_martin_two_point",
-    "feller_three_point",
-    "KCAL_MOL_PER_HARTREE",
-    "ComparisonRow",
-    "BasisLimitEstimate",
-    "BasisComparison",
-    "compare_bases",
-    "project_density",
-    "basis_limit_estimates",
-    "InteractionStudy",
-    "interaction_energies",
-    "ReactionStudy",
-    "reaction_energies",
 ]
