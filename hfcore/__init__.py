@@ -17,7 +17,7 @@ from .basis import BasisSet, Shell, build_basis, get_family
 from .errors import BasisError, ConvergenceError, HfcoreError, InputError, ResourceError
 from .geometry import Molecule, parse_xyz, read_xyz
 
-__version__ = "0.1.0"
+from ._version import __version__
 
 
 def __getattr__(name: str):

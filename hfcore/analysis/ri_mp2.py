@@ -12,7 +12,7 @@ singular). The three-centre integrals (P|μν) are computed a block of
 fitting functions at a time and transformed to (P|ia) at once, so the
 largest arrays are B (8 naux · o · v bytes) and one block; then (ia|jb) is
 formed one occupied orbital i at a time (v · o · v numbers) and summed by
-the same pair sums and assembly as the exact MP2 (:mod:`.mp2`).
+the same pair sums and assembly as the exact MP2 (:mod:`.mp2_terms`).
 
 The fitting sets made for this are the cc-pVXZ-RI sets (F. Weigend,
 A. Köhn and C. Hättig, J. Chem. Phys. 116, 3175 (2002)) and the def2 RI
@@ -31,7 +31,7 @@ import numpy as np
 
 from ..basis.fitting import DEFAULT_RI, MATCHING_RI, FittingChoice, mp2_fitting_basis
 from ..errors import ResourceError
-from .mp2 import MP2Result, _pair_map, assemble, orbital_spaces, pair_sums
+from .mp2_terms import MP2Result, _pair_map, assemble, orbital_spaces, pair_sums
 
 if TYPE_CHECKING:
     from ..basis.family import BasisFamily
