@@ -31,7 +31,7 @@ def __getattr__(name: str):
         from . import analysis
 
         return getattr(analysis, name)
-    if name == "project_density":
+    if name in {"project_density", "compare_bases", "reaction_energies", "interaction_energies"}:
         from . import studies
 
         return getattr(studies, name)
@@ -56,6 +56,9 @@ __all__ = [
     "RHFResult",
     "mp2_energy",
     "project_density",
+    "compare_bases",
+    "reaction_energies",
+    "interaction_energies",
     "load_arrays",
     "SavedArrays",
     "HfcoreError",

@@ -60,7 +60,7 @@ def plot_comparison(comparison: BasisComparison, path: str | os.PathLike) -> Non
     Parameters
     ----------
     comparison : BasisComparison
-        From :func:`hfcore.analysis.compare_bases`.
+        From :func:`hfcore.studies.compare_bases`.
     path : str or path-like
         The PNG file to write (replaced atomically).
 
@@ -108,7 +108,7 @@ def plot_interaction(study: InteractionStudy, path: str | os.PathLike) -> None:
     Parameters
     ----------
     study : InteractionStudy
-        From :func:`hfcore.analysis.interaction.interaction_energies`.
+        From :func:`hfcore.studies.interaction_energies`.
     path : str or path-like
         The PNG file to write (replaced atomically).
 
@@ -150,7 +150,7 @@ def plot_reactions(study: ReactionStudy, path: str | os.PathLike) -> None:
     Parameters
     ----------
     study : ReactionStudy
-        From :func:`hfcore.analysis.reactions.reaction_energies`.
+        From :func:`hfcore.studies.reaction_energies`.
     path : str or path-like
         The PNG file to write (replaced atomically).
 

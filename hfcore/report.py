@@ -44,7 +44,7 @@ def format_molecule(molecule: Any) -> str:
     if molecule.comment:
         info.append(("comment", molecule.comment))
     info += [
-        ("atoms", str(molecule.natom)),
+        ("atoms", str(molecule.n_atoms)),
         ("charge", f"{molecule.charge:+d}" if molecule.charge else "0"),
         ("electrons", str(molecule.n_electrons)),
         ("nuclear repulsion", f"{molecule.nuclear_repulsion():.10f} Eh"),
@@ -383,7 +383,7 @@ def format_comparison(comparison: Any) -> str:
         flag = "" if row.converged else "  (not converged)"
         lines.append(
             f"  {row.basis:<16} {row.n_functions:>9}  {form:<9} {row.energy_total:18.10f} "
-            f"{row.delta_mEh:11.3f} {row.delta_kcal_mol:13.3f} {row.iterations:>4} {row.wall_time:9.2f}{flag}"
+            f"{row.delta_mEh:11.3f} {row.delta_kcal_mol:13.3f} {row.iterations:>4} {row.wall_seconds:9.2f}{flag}"
         )
     lines.append(f"  Δ: energy above {comparison.reference_basis}, the basis with the most functions")
     if comparison.estimates:

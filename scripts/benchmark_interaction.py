@@ -46,7 +46,7 @@ def main() -> None:
     parser.add_argument("--basis", default="6-31g,cc-pvdz,cc-pvtz")
     args = parser.parse_args()
     molecule = hfcore.read_xyz(args.geometry)
-    fragments = parse_fragments(args.fragments, molecule.natom)
+    fragments = parse_fragments(args.fragments, molecule.n_atoms)
     names = args.basis.split(",")
     print(f"{args.geometry}, fragments {args.fragments}, bases {args.basis}, one thread")
     print(f"{'basis':<10} {'functions':>9} {'shared / s':>11} {'separate / s':>13} {'reference / s':>14} "
@@ -80,7 +80,7 @@ def _reference(molecule, fragments, name):
     spherical = hfcore.build_basis(molecule, name).spherical
     start = time.perf_counter()
     e_ab = reference_energy(reference_mole(molecule, shells, spherical=spherical))
-    everything = set(range(molecule.natom))
+    everything = set(range(molecule.n_atoms))
     full = []
     for part in fragments:
         full.append(reference_energy(reference_mole(molecule.with_ghosts(sorted(everything - set(part))), shells,

@@ -105,7 +105,8 @@ def test_to_dict_has_stable_keys_and_is_json(nested):
         "delta_mEh",
         "delta_kcal_mol",
         "iterations",
-        "wall_time",
+        "wall_seconds",
+        "wall_time",  # the deprecated key, kept for one release
         "converged",
         "guess",
         "stable",

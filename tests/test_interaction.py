@@ -73,12 +73,12 @@ def test_reusing_the_complex_integrals_changes_no_energy(dimer, study):
 
 
 def test_pieces_are_explicit_data(dimer):
-    pieces = interaction_pieces(dimer.natom, FRAGMENTS, ["sto-3g"], [0, 0])
+    pieces = interaction_pieces(dimer.n_atoms, FRAGMENTS, ["sto-3g"], [0, 0])
     assert [(p.kind, p.fragment) for p in pieces] == [
         ("complex", None), ("own basis", 0), ("own basis", 1), ("full basis", 0), ("full basis", 1)
     ]
     assert pieces[3].ghosts == (3, 4, 5) and pieces[3].atoms == (0, 1, 2)
-    assert pieces[2].molecule(dimer).natom == 3 and pieces[2].molecule(dimer).source == dimer.source
+    assert pieces[2].molecule(dimer).n_atoms == 3 and pieces[2].molecule(dimer).source == dimer.source
 
 
 @pytest.mark.parametrize(

@@ -1,10 +1,10 @@
-"""Post-SCF analysis: populations, multipoles, orbital properties, MP2 and
-SCS-MP2, basis-limit extrapolation, and drivers over several RHF runs: basis
-comparison, interaction and reaction energies.
+"""Post-SCF analysis of one finished RHF run: populations, multipoles, orbital properties, MP2 and SCS-MP2.
 
-Everything here except the drivers (:func:`compare_bases`,
-:func:`interaction_energies`, :func:`reaction_energies`) works on a
-finished :class:`hfcore.scf.RHFResult` and never runs the SCF itself.
+Everything here works on a finished :class:`hfcore.scf.RHFResult` and never
+runs the SCF itself. The studies over several runs (basis comparison,
+reaction and interaction energies) and basis-limit extrapolation are in
+:mod:`hfcore.studies`; their old names here still work for one release,
+with a DeprecationWarning.
 """
 
 from __future__ import annotations
@@ -21,6 +21,32 @@ from .multipoles import (
 )
 from .properties import OrbitalProperties, orbital_properties
 from .populations import lowdin_charges, lowdin_populations, mulliken_charges, mulliken_populations
+
+#: Names that moved to :mod:`hfcore.studies` (served from there with a warning, for one release).
+_MOVED_TO_STUDIES = frozenset({
+    "compare_bases", "BasisComparison", "BasisLimitEstimate", "ComparisonRow", "basis_limit_estimates",
+    "project_density", "interaction_energies", "InteractionStudy", "reaction_energies", "ReactionStudy",
+    "cardinal_number", "correlation_consistent", "feller_three_point", "karton_martin_two_point",
+})
+
+
+def __getattr__(name: str):
+    if name in _MOVED_TO_STUDIES:
+        import importlib
+        import warnings
+
+        # Looked up by name at run time: the engine does not import the studies above it.
+        studies = importlib.import_module("hfcore.studies")
+        warnings.warn(f"hfcore.analysis.{name} is deprecated; use hfcore.studies.{name}", DeprecationWarning,
+                      stacklevel=2)
+        return getattr(studies, name)
+    if name == "KCAL_MOL_PER_HARTREE":
+        from .._deprecation import module_aliases
+        from ..units import KCAL_MOL_PER_HARTREE
+
+        return module_aliases(__name__, {name: ("hfcore.units.KCAL_MOL_PER_HARTREE", KCAL_MOL_PER_HARTREE)})(name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
 
 __all__ = [
     "mulliken_populations",

@@ -34,7 +34,7 @@ def _density_and_overlap(result: RHFResult) -> tuple[np.ndarray, np.ndarray]:
 def _atom_charges(result: RHFResult, populations: np.ndarray) -> np.ndarray:
     """Nuclear charge minus the electron population gathered on each atom."""
     atoms = result.basis.function_atoms()
-    natom = result.molecule.natom
+    natom = result.molecule.n_atoms
     electrons = np.bincount(atoms, weights=populations, minlength=natom)
     return result.molecule.nuclear_charges - electrons
 

@@ -12,17 +12,49 @@ from .compare import (
     COMPARISON_GUESSES,
     BasisComparison,
     BasisLimitEstimate,
+    ComparisonPiece,
     ComparisonRow,
+    SeriesEstimate,
+    assemble_comparison,
     basis_limit_estimates,
     compare_bases,
+    comparison_pieces,
     project_density,
+    run_comparison_pieces,
+    series_estimates,
 )
 from .extrapolation import cardinal_number, correlation_consistent, feller_three_point, karton_martin_two_point
-from .interaction import InteractionStudy, interaction_energies
-from .reaction import ReactionStudy, load_reactions, parse_reaction, reaction_energies
+from .fragments import InteractionPiece, InteractionRow, PieceResult, check_fragments, interaction_pieces
+from .interaction import (
+    InteractionStudy,
+    assemble_interaction,
+    interaction_energies,
+    run_interaction_pieces,
+)
+from .pieces import MessageProgress, PieceOutcome
+from .reaction import (
+    ReactionEstimate,
+    ReactionPiece,
+    ReactionRow,
+    ReactionStudy,
+    assemble_reactions,
+    load_reactions,
+    parse_reaction,
+    reaction_energies,
+    reaction_pieces,
+    run_reaction_pieces,
+)
 
 __all__ = [
+    "MessageProgress",
+    "PieceOutcome",
     "COMPARISON_GUESSES",
+    "ComparisonPiece",
+    "comparison_pieces",
+    "run_comparison_pieces",
+    "assemble_comparison",
+    "SeriesEstimate",
+    "series_estimates",
     "ComparisonRow",
     "BasisLimitEstimate",
     "BasisComparison",
@@ -33,10 +65,23 @@ __all__ = [
     "correlation_consistent",
     "karton_martin_two_point",
     "feller_three_point",
+    "InteractionPiece",
+    "InteractionRow",
+    "PieceResult",
     "InteractionStudy",
+    "check_fragments",
+    "interaction_pieces",
+    "run_interaction_pieces",
+    "assemble_interaction",
     "interaction_energies",
+    "ReactionPiece",
+    "ReactionRow",
+    "ReactionEstimate",
     "ReactionStudy",
     "parse_reaction",
     "load_reactions",
+    "reaction_pieces",
+    "run_reaction_pieces",
+    "assemble_reactions",
     "reaction_energies",
 ]

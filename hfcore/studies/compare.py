@@ -1,26 +1,33 @@
 """Run one molecule in several basis sets and tabulate the energies.
 
-:func:`compare_bases` is the one place in :mod:`hfcore.analysis` that runs
-the SCF: it is a driver over several RHF runs. Bases run from the smallest
-to the largest, and each run may start from the previous converged density
-projected into the new basis. When the list holds correlation-consistent
-sets with consecutive cardinal numbers, basis-limit estimates are added
-(:mod:`hfcore.analysis.extrapolation`).
+The study's contract (:mod:`hfcore.studies.pieces`): :func:`comparison_pieces`
+lists one run per basis; :func:`run_comparison_pieces` runs them in this
+process from the smallest basis to the largest, each possibly starting from
+the previous converged density projected into the new basis (or a runner
+passed to :func:`compare_bases` runs them elsewhere);
+:func:`assemble_comparison` makes the record. When the list holds
+correlation-consistent sets with consecutive cardinal numbers, basis-limit
+estimates are added (:func:`series_estimates`, on plain energies by
+cardinal number; :mod:`hfcore.studies.extrapolation`).
 """
 
 from __future__ import annotations
 
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import asdict, dataclass, field
 from typing import TYPE_CHECKING
 
 import numpy as np
 import scipy.linalg
 
-from .._deprecation import module_aliases
+from .._deprecation import module_aliases, rename_fields
+from ..basis import build_basis
 from ..errors import ConvergenceError, InputError
+from ..integrals import overlap
+from ..scf.driver import run_rhf
 from ..units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from .pieces import MessageProgress, PieceOutcome, PieceRunner, check_basis_names, collect
 from .extrapolation import (
     FELLER_CITATION,
     KARTON_MARTIN_CITATION,
@@ -61,8 +68,8 @@ class ComparisonRow:
         The same difference in kcal/mol.
     iterations : int
         SCF iterations.
-    wall_time : float
-        Seconds for building the basis and running the SCF.
+    wall_seconds : float
+        Wall-clock seconds of the SCF run (integrals included).
     converged : bool
         Whether the SCF converged.
     guess : str
@@ -80,7 +87,7 @@ class ComparisonRow:
     delta_mEh: float
     delta_kcal_mol: float
     iterations: int
-    wall_time: float
+    wall_seconds: float
     converged: bool
     guess: str
     stable: bool | None = None
@@ -93,9 +100,9 @@ class BasisLimitEstimate:
     Attributes
     ----------
     method : {"two-point", "three-point"}
-        The model form (see :mod:`hfcore.analysis.extrapolation`).
-    family : str
-        ``"cc-pVXZ"`` or ``"aug-cc-pVXZ"``.
+        The model form (see :mod:`hfcore.studies.extrapolation`).
+    series : str
+        The correlation-consistent series, ``"cc-pVXZ"`` or ``"aug-cc-pVXZ"``.
     bases : tuple of str
         The bases used, by increasing cardinal number.
     cardinal_numbers : tuple of int
@@ -109,7 +116,7 @@ class BasisLimitEstimate:
     """
 
     method: str
-    family: str
+    series: str
     bases: tuple[str, ...]
     cardinal_numbers: tuple[int, ...]
     energy_total: float
@@ -149,18 +156,25 @@ class BasisComparison:
         dict
             ``{"reference_basis": str, "rows": [row, ...],
             "estimates": [estimate, ...], "notes": [str, ...]}`` where each
-            row and estimate is a dict of its attributes (tuples as lists).
+            row and estimate is a dict of its attributes (tuples as lists);
+            rows also carry ``wall_time`` and estimates ``family``, the
+            deprecated keys of ``wall_seconds`` and ``series`` (kept for one release).
         """
         return {
             "reference_basis": self.reference_basis,
-            "rows": [asdict(row) for row in self.rows],
+            "rows": [{**asdict(row), "wall_time": row.wall_seconds} for row in self.rows],
             "estimates": [_estimate_dict(e) for e in self.estimates],
             "notes": list(self.notes),
         }
 
 
+rename_fields(ComparisonRow, {"wall_time": "wall_seconds"})
+rename_fields(BasisLimitEstimate, {"family": "series"})
+
+
 def _estimate_dict(estimate: BasisLimitEstimate) -> dict:
     out = asdict(estimate)
+    out["family"] = estimate.series  # deprecated key, kept for one release
     out["bases"] = list(estimate.bases)
     out["cardinal_numbers"] = list(estimate.cardinal_numbers)
     return out
@@ -188,8 +202,6 @@ def project_density(density: np.ndarray, basis_old: BasisSet, basis_new: BasisSe
     ndarray, shape (nbf_new, nbf_new)
         Symmetric density in the new basis.
     """
-    from ..integrals import overlap
-
     s_new = overlap(basis_new)
     cross = overlap(basis_new, basis_old)
     w, v = scipy.linalg.eigh(s_new)
@@ -200,23 +212,63 @@ def project_density(density: np.ndarray, basis_old: BasisSet, basis_new: BasisSe
     return np.ascontiguousarray(0.5 * (projected + projected.T))
 
 
-def _check_names(names: Sequence[str]) -> list[str]:
-    if isinstance(names, str):
-        raise InputError("compare_bases needs a list of basis names, not one string")
-    out = [str(n) for n in names]
-    if not out:
-        raise InputError("compare_bases needs at least one basis name")
-    lowered = [n.strip().lower() for n in out]
-    repeated = sorted({n for n in out if lowered.count(n.strip().lower()) > 1})
-    if repeated:
-        raise InputError(f"basis {repeated[0]!r} is listed more than once")
-    return out
+@dataclass(frozen=True)
+class ComparisonPiece:
+    """One SCF run of a basis comparison, as plain data.
+
+    Attributes
+    ----------
+    basis : str
+        The basis name as given (the piece's ``key``).
+    n_functions : int
+        Basis functions.
+    spherical : bool
+    step : int
+        1-based place in the run order (smallest basis first).
+    projected : bool
+        Start from the density of the last converged earlier run, projected
+        into this basis (False: from the superposition of atomic densities).
+    """
+
+    basis: str
+    n_functions: int
+    spherical: bool
+    step: int
+    projected: bool
+
+    @property
+    def key(self) -> str:
+        """The piece's key in a runner's outcomes: the basis name."""
+        return self.basis
+
+
+def comparison_pieces(bases: Sequence[BasisSet], names: Sequence[str], guess: str) -> list[ComparisonPiece]:
+    """Every SCF run a basis comparison needs, in the order of ``names``.
+
+    Parameters
+    ----------
+    bases : sequence of BasisSet
+        Each name's basis, placed on the molecule.
+    names : sequence of str
+    guess : {"projected", "sad"}
+        A resolved comparison guess (not ``"auto"``).
+
+    Returns
+    -------
+    list of ComparisonPiece
+        Steps run from the smallest basis to the largest, so that each
+        projected guess comes from a smaller space.
+    """
+    order = sorted(range(len(bases)), key=lambda k: bases[k].n_functions)
+    step = {k: n for n, k in enumerate(order, start=1)}
+    return [
+        ComparisonPiece(names[k], bases[k].n_functions, bases[k].spherical, step[k], guess == "projected" and step[k] > 1)
+        for k in range(len(names))
+    ]
 
 
 def _run_one(molecule: Molecule, basis: BasisSet, options: SCFOptions | None, guess: str | np.ndarray) -> tuple[RHFResult, bool]:
     """(result, converged); an unconverged run keeps its last result."""
-    from ..scf import run_rhf
-
     try:
         result = run_rhf(molecule, basis, options, guess=guess)
     except ConvergenceError as exc:
@@ -226,6 +278,63 @@ def _run_one(molecule: Molecule, basis: BasisSet, options: SCFOptions | None, gu
     return result, bool(result.converged)
 
 
+def run_comparison_pieces(
+    molecule: Molecule,
+    pieces: Sequence[ComparisonPiece],
+    bases: Mapping[str, BasisSet],
+    *,
+    options: SCFOptions | None = None,
+    progress: MessageProgress | None = None,
+) -> tuple[dict[str, PieceOutcome], dict[str, RHFResult]]:
+    """The in-process runner of a basis comparison: each piece in step order, projected guesses from earlier runs.
+
+    Parameters
+    ----------
+    molecule : Molecule
+    pieces : sequence of ComparisonPiece
+    bases : mapping of str to BasisSet
+        The basis of each piece, by key.
+    options : SCFOptions, optional
+    progress : callable, optional
+        Called with a one-line message after each run.
+
+    Returns
+    -------
+    (dict of str to PieceOutcome, dict of str to RHFResult)
+        Outcomes and full results by piece key; an unconverged run keeps its
+        last result and ``converged=False``.
+    """
+    outcomes: dict[str, PieceOutcome] = {}
+    results: dict[str, RHFResult] = {}
+    previous = None
+    ordered = sorted(pieces, key=lambda p: p.step)
+    for piece in ordered:
+        start = time.perf_counter()
+        basis = bases[piece.key]
+        if piece.projected and previous is not None:
+            density = project_density(previous[0].density, previous[0].basis, basis, lindep_threshold=_lindep(options))
+            used = f"projected from {previous[1]}"
+            result, converged = _run_one(molecule, basis, options, density)
+        else:
+            used = "sad"
+            result, converged = _run_one(molecule, basis, options, "sad")
+        outcomes[piece.key] = PieceOutcome(
+            energy_total=float(result.energy_total),
+            wall_seconds=time.perf_counter() - start,
+            n_functions=basis.n_functions,
+            iterations=int(result.iterations),
+            converged=converged,
+            stable=None if result.stability is None else bool(result.stability.stable),
+            guess=used,
+        )
+        results[piece.key] = result
+        if converged:
+            previous = (result, piece.basis)
+        if progress is not None:
+            progress(_progress_line(piece.step, len(ordered), piece, outcomes[piece.key]))
+    return outcomes, results
+
+
 def compare_bases(
     molecule: Molecule,
     names: Sequence[str],
@@ -233,7 +342,8 @@ def compare_bases(
     spherical: bool | None = None,
     options: SCFOptions | None = None,
     guess: str = "auto",
-    progress: Callable[[str], None] | None = None,
+    progress: MessageProgress | None = None,
+    runner: PieceRunner | None = None,
 ) -> BasisComparison:
     """RHF energies of one molecule in several basis sets.
 
@@ -258,7 +368,13 @@ def compare_bases(
         after cc-pVDZ 3 iterations with SAD, 6 projected; water, HF,
         ammonia and methanol one iteration fewer projected than SAD).
     progress : callable, optional
-        Called with a one-line message after each basis.
+        Called with a one-line message after each basis (in-process runs).
+    runner : callable, optional
+        Runs the pieces elsewhere instead of in this process: called as
+        ``runner(pieces)`` after every check, it returns a
+        :class:`~hfcore.studies.pieces.PieceOutcome` (or a pair energy /
+        Eh, seconds) per piece key (the basis name). Such runs are
+        independent, so no guess is projected and ``results`` stays empty.
 
     Returns
     -------
@@ -272,80 +388,85 @@ def compare_bases(
     BasisError
         If a name is unknown or does not cover the molecule's elements.
     """
-    from ..basis import build_basis
-
-    labels = _check_names(names)
+    labels = check_basis_names(names)
     if guess not in COMPARISON_GUESSES:
         raise InputError(
             f"unknown guess {guess!r} for a basis comparison: use one of {', '.join(COMPARISON_GUESSES)}"
         )
     molecule.require_closed_shell()
     if guess == "auto":
-        guess = "sad" if molecule.natom == 1 else "projected"
+        guess = "sad" if molecule.n_atoms == 1 else "projected"
     bases = [build_basis(molecule, name, spherical=spherical) for name in labels]
-    # Small to large, so that each projected guess comes from a smaller space.
-    order = sorted(range(len(bases)), key=lambda k: bases[k].n_functions)
-    runs: dict[int, tuple] = {}
-    previous = None
-    for step, k in enumerate(order, start=1):
-        start = time.perf_counter()
-        if guess == "projected" and previous is not None:
-            density = project_density(previous[0].density, previous[0].basis, bases[k], lindep_threshold=_lindep(options))
-            used = f"projected from {labels[previous[1]]}"
-            result, converged = _run_one(molecule, bases[k], options, density)
-        else:
-            used = "sad"
-            result, converged = _run_one(molecule, bases[k], options, "sad")
-        runs[k] = (result, converged, time.perf_counter() - start, used)
-        if converged:
-            previous = (result, k)
-        if progress is not None:
-            progress(_progress_line(step, len(order), labels[k], bases[k].n_functions, runs[k]))
-    return _assemble(labels, bases, runs)
+    if runner is not None:
+        pieces = comparison_pieces(bases, labels, "sad")
+        return assemble_comparison(pieces, collect(pieces, runner(pieces)))
+    pieces = comparison_pieces(bases, labels, guess)
+    outcomes, results = run_comparison_pieces(
+        molecule, pieces, dict(zip(labels, bases)), options=options, progress=progress
+    )
+    return assemble_comparison(pieces, outcomes, tuple(results[p.key] for p in pieces))
 
 
 def _lindep(options: SCFOptions | None) -> float:
     return 1e-7 if options is None else float(options.lindep_threshold)
 
 
-def _progress_line(step: int, total: int, name: str, nbf: int, run: tuple) -> str:
-    result, converged, seconds, used = run
-    state = "" if converged else " NOT CONVERGED"
+def _progress_line(step: int, total: int, piece: ComparisonPiece, outcome: PieceOutcome) -> str:
+    state = "" if outcome.converged else " NOT CONVERGED"
     return (
-        f"[{step}/{total}] {name} ({nbf} functions, guess {used}): E = {result.energy_total:.10f} Eh "
-        f"after {result.iterations} iterations in {seconds:.2f} s{state}"
+        f"[{step}/{total}] {piece.basis} ({piece.n_functions} functions, guess {outcome.guess}): "
+        f"E = {outcome.energy_total:.10f} Eh after {outcome.iterations} iterations in {outcome.wall_seconds:.2f} s{state}"
     )
 
 
-def _assemble(labels: list[str], bases: list, runs: dict[int, tuple]) -> BasisComparison:
-    reference = max(range(len(bases)), key=lambda k: bases[k].n_functions)
-    e_ref = float(runs[reference][0].energy_total)
+def assemble_comparison(
+    pieces: Sequence[ComparisonPiece], outcomes: Mapping[str, PieceOutcome], results: tuple = ()
+) -> BasisComparison:
+    """The comparison's record from its pieces and their outcomes.
+
+    Parameters
+    ----------
+    pieces : sequence of ComparisonPiece
+        In the order the rows should have.
+    outcomes : mapping of str to PieceOutcome
+        By piece key.
+    results : tuple of RHFResult
+        The full results in the order of ``pieces``, if the runner kept them.
+
+    Returns
+    -------
+    BasisComparison
+        Deltas relative to the basis with the most functions (the first of
+        them on a tie).
+    """
+    reference = max(range(len(pieces)), key=lambda k: pieces[k].n_functions)
+    e_ref = float(outcomes[pieces[reference].key].energy_total)
     rows = []
-    for k, (name, basis) in enumerate(zip(labels, bases)):
-        result, converged, seconds, used = runs[k]
-        delta = float(result.energy_total) - e_ref
+    for piece in pieces:
+        outcome = outcomes[piece.key]
+        delta = float(outcome.energy_total) - e_ref
         rows.append(
             ComparisonRow(
-                basis=name,
-                n_functions=basis.n_functions,
-                spherical=basis.spherical,
-                energy_total=float(result.energy_total),
+                basis=piece.basis,
+                n_functions=piece.n_functions,
+                spherical=piece.spherical,
+                energy_total=float(outcome.energy_total),
                 delta_mEh=1e3 * delta,
                 delta_kcal_mol=delta * KCAL_MOL_PER_HARTREE,
-                iterations=int(result.iterations),
-                wall_time=float(seconds),
-                converged=converged,
-                guess=used,
-                stable=None if result.stability is None else bool(result.stability.stable),
+                iterations=int(outcome.iterations),
+                wall_seconds=float(outcome.wall_seconds),
+                converged=bool(outcome.converged),
+                guess=outcome.guess or "sad",
+                stable=outcome.stable,
             )
         )
     estimates, notes = basis_limit_estimates(rows, e_ref)
     return BasisComparison(
         rows=tuple(rows),
-        reference_basis=labels[reference],
+        reference_basis=pieces[reference].basis,
         estimates=tuple(estimates),
         notes=tuple(notes),
-        results=tuple(runs[k][0] for k in range(len(labels))),
+        results=tuple(results),
     )
 
 
@@ -359,13 +480,89 @@ def _consecutive_tail(cardinals: list[int], length: int) -> list[int] | None:
     return None
 
 
+@dataclass(frozen=True)
+class SeriesEstimate:
+    """A basis-limit estimate from one correlation-consistent series, on plain data.
+
+    Attributes
+    ----------
+    method : {"two-point", "three-point"}
+    cardinal_numbers : tuple of int
+        The cardinal numbers X used, increasing.
+    energy_total : float
+        Estimated basis-limit energy (hartree).
+    citation : str
+        Published source of the model form.
+    """
+
+    method: str
+    cardinal_numbers: tuple[int, ...]
+    energy_total: float
+    citation: str
+
+
+def series_estimates(energies: Mapping[int, float], series: str = "") -> tuple[list[SeriesEstimate], list[str]]:
+    """Two- and three-point basis-limit estimates from the energies of one series, by cardinal number.
+
+    The two-point form uses the two highest consecutive cardinal numbers,
+    the three-point form the three highest consecutive ones.
+
+    Parameters
+    ----------
+    energies : mapping of int to float
+        Total energy (hartree) by cardinal number X of one series (e.g. cc-pVXZ).
+    series : str
+        The series' name, for the notes.
+
+    Returns
+    -------
+    (list of SeriesEstimate, list of str)
+        The estimates and a note for each estimate that could not be made.
+    """
+    cardinals = sorted(energies)
+    estimates: list[SeriesEstimate] = []
+    notes: list[str] = []
+    pair = _consecutive_tail(cardinals, 2)
+    if pair is not None:
+        energy = karton_martin_two_point(energies[pair[0]], energies[pair[1]], pair[0], pair[1])
+        estimates.append(SeriesEstimate("two-point", tuple(pair), float(energy), KARTON_MARTIN_CITATION))
+    triple = _consecutive_tail(cardinals, 3)
+    if triple is not None:
+        try:
+            energy = feller_three_point(*(energies[x] for x in triple), *triple)
+        except InputError as exc:
+            notes.append(f"three-point {series} estimate skipped: {exc}")
+        else:
+            estimates.append(SeriesEstimate("three-point", tuple(triple), float(energy), FELLER_CITATION))
+    return estimates, notes
+
+
+def correlation_consistent_series(
+    energies: Sequence[tuple[str, bool, float]],
+) -> dict[tuple[str, bool], dict[int, tuple[str, float]]]:
+    """Group (basis name, spherical, energy) triples by series and spherical choice.
+
+    Returns
+    -------
+    dict
+        ``(series, spherical) -> {cardinal number: (basis name, energy)}``
+        over the correlation-consistent names (cc-pVXZ, aug-cc-pVXZ); other
+        names are left out.
+    """
+    groups: dict[tuple[str, bool], dict[int, tuple[str, float]]] = {}
+    for name, spherical, energy in energies:
+        found = correlation_consistent(name)
+        if found is not None:
+            groups.setdefault((found[0], spherical), {})[found[1]] = (name, float(energy))
+    return groups
+
+
 def basis_limit_estimates(rows: Sequence[ComparisonRow], e_ref: float) -> tuple[list[BasisLimitEstimate], list[str]]:
     """Two- and three-point estimates from correlation-consistent rows.
 
-    Per family (cc-pVXZ, aug-cc-pVXZ) and per spherical/Cartesian choice,
-    the two-point form uses the two highest consecutive cardinal numbers
-    and the three-point form the three highest consecutive ones. Rows that
-    did not converge are left out.
+    Per series (cc-pVXZ, aug-cc-pVXZ) and per spherical/Cartesian choice,
+    :func:`series_estimates` on the rows' energies. Rows that did not
+    converge are left out.
 
     Parameters
     ----------
@@ -378,37 +575,24 @@ def basis_limit_estimates(rows: Sequence[ComparisonRow], e_ref: float) -> tuple[
     (list of BasisLimitEstimate, list of str)
         The estimates and a note for each estimate that could not be made.
     """
-    groups: dict[tuple[str, bool], dict[int, ComparisonRow]] = {}
-    for row in rows:
-        found = correlation_consistent(row.basis)
-        if found is not None and row.converged:
-            groups.setdefault((found[0], row.spherical), {})[found[1]] = row
+    groups = correlation_consistent_series([(r.basis, r.spherical, r.energy_total) for r in rows if r.converged])
     estimates: list[BasisLimitEstimate] = []
     notes: list[str] = []
-    for (family, _), members in groups.items():
-        cardinals = sorted(members)
-        pair = _consecutive_tail(cardinals, 2)
-        if pair is not None:
-            used = [members[x] for x in pair]
-            energy = karton_martin_two_point(used[0].energy_total, used[1].energy_total, pair[0], pair[1])
-            estimates.append(_estimate("two-point", family, used, pair, energy, e_ref, KARTON_MARTIN_CITATION))
-        triple = _consecutive_tail(cardinals, 3)
-        if triple is not None:
-            used = [members[x] for x in triple]
-            try:
-                energy = feller_three_point(*(r.energy_total for r in used), *triple)
-            except InputError as exc:
-                notes.append(f"three-point {family} estimate skipped: {exc}")
-            else:
-                estimates.append(_estimate("three-point", family, used, triple, energy, e_ref, FELLER_CITATION))
+    for (series, _), members in groups.items():
+        found, why = series_estimates({x: e for x, (_, e) in members.items()}, series)
+        notes += why
+        for est in found:
+            names = tuple(members[x][0] for x in est.cardinal_numbers)
+            estimates.append(_estimate(est.method, series, names, est.cardinal_numbers, est.energy_total, e_ref,
+                                       est.citation))
     return estimates, notes
 
 
-def _estimate(method, family, used, cardinals, energy, e_ref, citation) -> BasisLimitEstimate:
+def _estimate(method, series, names, cardinals, energy, e_ref, citation) -> BasisLimitEstimate:
     return BasisLimitEstimate(
         method=method,
-        family=family,
-        bases=tuple(r.basis for r in used),
+        series=series,
+        bases=tuple(names),
         cardinal_numbers=tuple(int(x) for x in cardinals),
         energy_total=float(energy),
         delta_mEh=1e3 * (float(energy) - e_ref),
@@ -418,6 +602,13 @@ def _estimate(method, family, used, cardinals, energy, e_ref, citation) -> Basis
 
 __all__ = [
     "COMPARISON_GUESSES",
+    "ComparisonPiece",
+    "comparison_pieces",
+    "run_comparison_pieces",
+    "assemble_comparison",
+    "SeriesEstimate",
+    "series_estimates",
+    "correlation_consistent_series",
     "KCAL_MOL_PER_HARTREE",
     "KJ_MOL_PER_HARTREE",
     "ComparisonRow",

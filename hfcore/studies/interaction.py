@@ -18,22 +18,24 @@ only the nuclear attraction differs. Those runs therefore reuse the
 complex's integrals (:func:`hfcore.scf.prepare_integrals`) unless told not
 to.
 
-The SCF runs are listed as plain data first (:func:`interaction_pieces`, in
-:mod:`hfcore.analysis.fragments`), so that they could be handed to another
-runner; :func:`interaction_energies` runs them in this process.
+The study's contract (:mod:`hfcore.studies.pieces`): :func:`interaction_pieces`
+(in :mod:`hfcore.studies.fragments`) lists the SCF runs as plain data;
+:func:`run_interaction_pieces` runs them in this process with shared
+integrals, or a runner passed to :func:`interaction_energies` runs them
+elsewhere; :func:`assemble_interaction` makes the record.
 """
 
 from __future__ import annotations
 
 import time
 from collections.abc import Callable, Mapping, Sequence
-from dataclasses import replace
 from typing import TYPE_CHECKING
 
 import numpy as np
 
+from ..basis import build_basis
 from ..errors import ConvergenceError, InputError
-from .compare import _check_names
+from ..scf.driver import prepare_integrals, run_rhf
 from .fragments import (  # noqa: F401  (re-exported: the records belong to this module's API)
     BOYS_BERNARDI_CITATION,
     KINDS,
@@ -44,6 +46,7 @@ from .fragments import (  # noqa: F401  (re-exported: the records belong to this
     check_fragments,
     interaction_pieces,
 )
+from .pieces import MessageProgress, PieceOutcome, check_basis_names, collect
 
 if TYPE_CHECKING:
     from ..basis.shells import BasisSet
@@ -88,9 +91,6 @@ def run_piece(
     ConvergenceError
         If the SCF does not converge.
     """
-    from ..basis import build_basis
-    from ..scf import run_rhf
-
     start = time.perf_counter()
     molecule = piece.molecule(complex_molecule)
     if basis is None:
@@ -134,6 +134,92 @@ def embedded_density(density: np.ndarray, basis: BasisSet, atoms: Sequence[int])
     return full
 
 
+def run_interaction_pieces(
+    molecule: Molecule,
+    pieces: Sequence[InteractionPiece],
+    bases: Mapping[str, BasisSet],
+    own_bases: Mapping[tuple[str, int], BasisSet],
+    *,
+    options: SCFOptions | None = None,
+    reuse_integrals: bool = True,
+    progress: MessageProgress | None = None,
+) -> tuple[dict[tuple, PieceOutcome], dict[str, tuple[float, float]]]:
+    """The in-process runner of an interaction study, basis by basis.
+
+    In each basis the complex runs first; with ``reuse_integrals`` its
+    overlap, kinetic and two-electron integrals serve the fragments in the
+    full basis too, and each of those starts from its own-basis density
+    placed in the full basis (:func:`embedded_density`).
+
+    Parameters
+    ----------
+    molecule : Molecule
+        The complex.
+    pieces : sequence of InteractionPiece
+        Per basis: the complex, then the fragments in their own bases, then
+        in the full basis (the order of :func:`interaction_pieces`).
+    bases : mapping of str to BasisSet
+        The complex's basis by name.
+    own_bases : mapping of (str, int) to BasisSet
+        Each fragment's own basis by (name, fragment).
+    options : SCFOptions, optional
+    reuse_integrals : bool
+    progress : callable, optional
+        Called with a one-line message after each run.
+
+    Returns
+    -------
+    (dict, dict)
+        The outcome of each piece by key (the complex's time includes the
+        shared integrals it paid for), and per basis name (wall-clock
+        seconds of its runs, seconds of the complex's integrals).
+
+    Raises
+    ------
+    ConvergenceError
+        If a run does not converge.
+    """
+    outcomes: dict[tuple, PieceOutcome] = {}
+    times: dict[str, tuple[float, float]] = {}
+    for name in dict.fromkeys(p.basis for p in pieces):
+        t0 = time.perf_counter()
+        shared = prepare_integrals(bases[name], options, molecule=molecule.with_charge(_complex_charge(pieces, name))) \
+            if reuse_integrals else None
+        integral_seconds = shared.seconds if shared is not None else 0.0
+        densities: dict[int, np.ndarray] = {}
+        for piece in (p for p in pieces if p.basis == name):
+            if piece.kind == "own basis":
+                basis, use = own_bases[(name, piece.fragment)], None
+            else:
+                basis, use = bases[name], shared
+            guess = "sad"
+            if piece.kind == "full basis":
+                guess = embedded_density(densities[piece.fragment], basis, piece.atoms)
+            summary, result = run_piece(molecule, piece, basis, options=options, shared=use, guess=guess)
+            if piece.kind == "own basis":
+                densities[piece.fragment] = result.density
+            seconds = summary.wall_seconds
+            if piece.kind == "complex" and shared is not None:
+                seconds += shared.seconds  # it paid for them
+            if piece.kind == "complex" and shared is None:
+                integral_seconds = result.timings["integrals"]
+            outcomes[piece.key] = PieceOutcome(
+                summary.energy_total, seconds, summary.n_functions, summary.iterations, True,
+                None if result.stability is None else bool(result.stability.stable), summary.reused_integrals,
+            )
+            if progress is not None:
+                progress(
+                    f"[{len(outcomes)}/{len(pieces)}] {name}, {piece.label} ({summary.n_functions} functions): "
+                    f"E = {summary.energy_total:.10f} Eh after {summary.iterations} iterations in {seconds:.2f} s"
+                )
+        times[name] = (time.perf_counter() - t0, integral_seconds)
+    return outcomes, times
+
+
+def _complex_charge(pieces: Sequence[InteractionPiece], name: str) -> int:
+    return next(p.charge for p in pieces if p.basis == name and p.kind == "complex")
+
+
 def interaction_energies(
     molecule: Molecule,
     fragments: Sequence[Sequence[int]],
@@ -143,8 +229,8 @@ def interaction_energies(
     spherical: bool | None = None,
     options: SCFOptions | None = None,
     reuse_integrals: bool = True,
-    progress: Callable[[str], None] | None = None,
-    runner: Callable[[Sequence[InteractionPiece]], Mapping[tuple, tuple[float, float]]] | None = None,
+    progress: MessageProgress | None = None,
+    runner: Callable[[Sequence[InteractionPiece]], Mapping[tuple, object]] | None = None,
 ) -> InteractionStudy:
     """Raw and counterpoise-corrected interaction energies in several bases.
 
@@ -172,8 +258,9 @@ def interaction_energies(
     runner : callable, optional
         Runs the pieces elsewhere instead (e.g. as batch jobs), each on its
         own integrals: called as ``runner(pieces)`` after every check, it
-        returns the total energy (hartree) and wall time (seconds) of each
-        piece keyed by ``(basis, kind, fragment)``.
+        returns the outcome of each piece keyed by ``(basis, kind,
+        fragment)``: a :class:`~hfcore.studies.pieces.PieceOutcome` or a
+        pair (total energy / hartree, wall time / seconds).
 
     Returns
     -------
@@ -189,12 +276,9 @@ def interaction_energies(
     ConvergenceError
         If a run does not converge.
     """
-    from ..basis import build_basis
-    from ..scf import prepare_integrals
-
-    names = _check_names(bases)
-    pieces = interaction_pieces(molecule.natom, fragments, names, fragment_charges)
-    parts, charges = check_fragments(molecule.natom, fragments, fragment_charges)
+    names = check_basis_names(bases)
+    pieces = interaction_pieces(molecule.n_atoms, fragments, names, fragment_charges)
+    parts, charges = check_fragments(molecule.n_atoms, fragments, fragment_charges)
     for piece in pieces[: 1 + 2 * len(parts)]:
         piece.molecule(molecule).require_closed_shell()
     complex_molecule = molecule.with_charge(sum(charges))
@@ -205,60 +289,86 @@ def interaction_energies(
         if p.kind == "own basis"
     }
     started = time.perf_counter()
-    done: list[PieceResult] = []
-    rows = []
-    outside = runner(pieces) if runner is not None else None
-    if outside is not None:
+    if runner is not None:
+        outcomes = collect(pieces, runner(pieces))
+        times = None
         reuse_integrals = False
-    for name in names:
-        t0 = time.perf_counter()
-        if outside is not None:
-            energies = {(kind, k): e for (b, kind, k), (e, _) in outside.items() if b == name}
-            for p in (p for p in pieces if p.basis == name):
-                n = (own_basis[(name, p.fragment)] if p.kind == "own basis" else basis_of[name]).n_functions
-                done.append(PieceResult(p, energies[(p.kind, p.fragment)], n, 0, outside[(name, p.kind, p.fragment)][1],
-                                        False))
-            rows.append(_row(name, basis_of[name], energies, len(parts), sum(s for (b, _, _), (_, s) in outside.items()
-                                                                            if b == name), 0.0))
-            continue
-        shared = prepare_integrals(basis_of[name], options, molecule=complex_molecule) if reuse_integrals else None
-        integral_seconds = shared.seconds if shared is not None else 0.0
-        energies: dict[tuple[str, int | None], float] = {}
-        densities: dict[int, np.ndarray] = {}
-        for piece in (p for p in pieces if p.basis == name):
-            if piece.kind == "own basis":
-                basis = own_basis[(name, piece.fragment)]
-                use = None
-            else:
-                basis = basis_of[name]
-                use = shared
-            guess = "sad"
-            if piece.kind == "full basis":
-                guess = embedded_density(densities[piece.fragment], basis, piece.atoms)
-            summary, result = run_piece(molecule, piece, basis, options=options, shared=use, guess=guess)
-            if piece.kind == "own basis":
-                densities[piece.fragment] = result.density
-            if piece.kind == "complex" and shared is not None:
-                summary = replace(summary, seconds=summary.seconds + shared.seconds)  # it paid for them
-            if piece.kind == "complex" and shared is None:
-                integral_seconds = result.timings["integrals"]
-            done.append(summary)
-            energies[(piece.kind, piece.fragment)] = summary.energy_total
-            if progress is not None:
-                progress(
-                    f"[{len(done)}/{len(pieces)}] {name}, {piece.label} ({summary.n_functions} functions): "
-                    f"E = {summary.energy_total:.10f} Eh after {summary.iterations} iterations in {summary.seconds:.2f} s"
-                )
-        rows.append(_row(name, basis_of[name], energies, len(parts), time.perf_counter() - t0, integral_seconds))
+    else:
+        outcomes, times = run_interaction_pieces(
+            molecule, pieces, basis_of, own_basis, options=options, reuse_integrals=reuse_integrals, progress=progress
+        )
+    return assemble_interaction(
+        molecule.source, parts, charges, pieces, basis_of, own_basis, outcomes, times,
+        reuse_integrals=reuse_integrals, wall_seconds=time.perf_counter() - started,
+    )
+
+
+def assemble_interaction(
+    source: str,
+    fragments: Sequence[tuple[int, ...]],
+    fragment_charges: Sequence[int],
+    pieces: Sequence[InteractionPiece],
+    bases: Mapping[str, BasisSet],
+    own_bases: Mapping[tuple[str, int], BasisSet],
+    outcomes: Mapping[tuple, PieceOutcome],
+    basis_times: Mapping[str, tuple[float, float]] | None = None,
+    *,
+    reuse_integrals: bool = True,
+    wall_seconds: float = 0.0,
+) -> InteractionStudy:
+    """The interaction study's record from the outcomes of its pieces.
+
+    Parameters
+    ----------
+    source : str
+        Where the complex's geometry came from.
+    fragments, fragment_charges : sequences
+        As checked by :func:`check_fragments`.
+    pieces : sequence of InteractionPiece
+    bases, own_bases : mappings
+        The complex's basis by name, each fragment's own by (name, fragment).
+    outcomes : mapping
+        The outcome of each piece by key.
+    basis_times : mapping, optional
+        Per basis (wall-clock seconds, seconds of the complex's integrals)
+        from the in-process runner; without it (pieces run elsewhere) a
+        row's time is the sum of its pieces' and ``batch`` is True.
+    reuse_integrals : bool
+        Whether the full-basis runs reused the complex's integrals.
+    wall_seconds : float
+        Wall-clock time of all runs.
+
+    Returns
+    -------
+    InteractionStudy
+    """
+    done = []
+    for p in pieces:
+        outcome = outcomes[p.key]
+        n = (own_bases[(p.basis, p.fragment)] if p.kind == "own basis" else bases[p.basis]).n_functions
+        done.append(PieceResult(p, outcome.energy_total, n, outcome.iterations, outcome.wall_seconds,
+                                outcome.reused_integrals))
+    rows = []
+    for name in dict.fromkeys(p.basis for p in pieces):
+        energies = {(p.kind, p.fragment): outcomes[p.key].energy_total for p in pieces if p.basis == name}
+        if basis_times is None:
+            seconds = 0.0
+            for p in pieces:
+                if p.basis == name:
+                    seconds += outcomes[p.key].wall_seconds
+            times = (seconds, 0.0)
+        else:
+            times = basis_times[name]
+        rows.append(_row(name, bases[name], energies, len(fragments), *times))
     return InteractionStudy(
-        source=molecule.source,
-        fragments=parts,
-        fragment_charges=charges,
+        source=source,
+        fragments=tuple(fragments),
+        fragment_charges=tuple(fragment_charges),
         rows=tuple(rows),
         pieces=tuple(done),
         reuse_integrals=reuse_integrals,
-        seconds=time.perf_counter() - started,
-        batch=outside is not None,
+        wall_seconds=wall_seconds,
+        batch=basis_times is None,
     )
 
 
@@ -285,5 +395,7 @@ __all__ = [
     "interaction_pieces",
     "run_piece",
     "embedded_density",
+    "run_interaction_pieces",
+    "assemble_interaction",
     "interaction_energies",
 ]
