@@ -334,8 +334,8 @@ def format_mp2(mp2: Any) -> str:
     body = [f"  {name:<20}{value:22.12f}" for name, value in rows]
     body.append(f"  ({core}; {mp2.n_active_occupied} occupied and {mp2.n_virtual} virtual orbitals;")
     body.append("   SCS-MP2: 6/5 opposite-spin + 1/3 same-spin, S. Grimme, J. Chem. Phys. 118, 9095 (2003))")
-    if getattr(mp2, "fit_name", None):
-        body.append(f"  (density-fitted with {mp2.fit_name}, {mp2.fit_n_functions} fitting functions)")
+    if getattr(mp2, "fit_basis_name", None):
+        body.append(f"  (density-fitted with {mp2.fit_basis_name}, {mp2.fit_basis_n_functions} fitting functions)")
     return heading("MP2 / Eh") + "\n" + "\n".join(body)
 
 

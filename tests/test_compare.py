@@ -26,7 +26,7 @@ NESTED = ["6-31g*", "6-31g"]
 @pytest.fixture(scope="module")
 def nested(hydrogen_fluoride_molecule):
     messages: list[str] = []
-    comparison = compare_bases(hydrogen_fluoride_molecule, NESTED, progress=messages.append)
+    comparison = compare_bases(hydrogen_fluoride_molecule, NESTED, message_progress=messages.append)
     return comparison, messages
 
 

@@ -19,6 +19,7 @@ from .multipoles import (
     quadrupole_moment,
     second_moment,
 )
+from ..units import KCAL_MOL_PER_HARTREE  # noqa: F401  (exported here before hfcore.units held it)
 from .properties import OrbitalProperties, orbital_properties
 from .populations import lowdin_charges, lowdin_populations, mulliken_charges, mulliken_populations
 
@@ -40,11 +41,6 @@ def __getattr__(name: str):
         warnings.warn(f"hfcore.analysis.{name} is deprecated; use hfcore.studies.{name}", DeprecationWarning,
                       stacklevel=2)
         return getattr(studies, name)
-    if name == "KCAL_MOL_PER_HARTREE":
-        from .._deprecation import module_aliases
-        from ..units import KCAL_MOL_PER_HARTREE
-
-        return module_aliases(__name__, {name: ("hfcore.units.KCAL_MOL_PER_HARTREE", KCAL_MOL_PER_HARTREE)})(name)
     raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 

@@ -28,6 +28,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from .._deprecation import rename_keywords
 from ..errors import InputError, ResourceError
 from .mp2_terms import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, MP2Result, _pair_map, assemble, orbital_spaces, pair_sums
 from .ri_mp2 import ri_mp2_energy
@@ -139,13 +140,14 @@ def _opposite_and_exchange(
     return opposite, exchange
 
 
+@rename_keywords({"progress": "fraction_progress"})
 def mp2_energy(
     result: RHFResult,
     *,
     frozen_core: int = 0,
     eri: ERIStore | None = None,
     memory_bytes: int | None = None,
-    progress: Callable[[float], None] | None = None,
+    fraction_progress: Callable[[float], None] | None = None,
     fit_basis: str | BasisFamily | BasisSet | None = None,
 ) -> MP2Result:
     """Canonical closed-shell MP2 and SCS-MP2 energies from a converged RHF run.
@@ -170,7 +172,7 @@ def mp2_energy(
         peak stays within 1.5 times the SCF's, which held at least the
         store). At least one occupied orbital is done at a time, whatever
         the budget.
-    progress : callable, optional
+    fraction_progress : callable, optional
         Called with the fraction (0..1] of the work done: the integral pass
         (when the store is computed here) as the first half, then each
         occupied orbital.
@@ -199,7 +201,8 @@ def mp2_energy(
 
     frozen_core = int(frozen_core)
     if fit_basis is not None:
-        return ri_mp2_energy(result, fit_basis, frozen_core=frozen_core, memory_bytes=memory_bytes, progress=progress)
+        return ri_mp2_energy(result, fit_basis, frozen_core=frozen_core, memory_bytes=memory_bytes,
+                             fraction_progress=fraction_progress)
     c_occ, c_vir, e_occ, e_vir = orbital_spaces(result, frozen_core)
     nbf = result.basis.n_functions
     if eri is None:
@@ -210,7 +213,7 @@ def mp2_energy(
                 f"MP2 reads the stored integrals, {need / 2**20:.3g} MiB for {nbf} functions, but "
                 f"{limit / 2**20:.3g} MiB are allowed (--memory MIB, memory_limit)"
             )
-        report = None if progress is None else (lambda fraction: progress(0.5 * fraction))
+        report = None if fraction_progress is None else (lambda fraction: fraction_progress(0.5 * fraction))
         eri = compute_eri(
             result.basis, threshold=result.options.screening, progress=report, threads=result.options.n_threads, lean=True
         )
@@ -220,7 +223,7 @@ def mp2_energy(
     if eri.n_functions != nbf:
         raise InputError(f"the integral store has {eri.n_functions} functions but the basis has {nbf}")
     budget = max(_MIN_WORK_BYTES, eri.packed.nbytes // 2) if memory_bytes is None else int(memory_bytes)
-    done = None if progress is None else (lambda fraction: progress(start + (1.0 - start) * fraction))
+    done = None if fraction_progress is None else (lambda fraction: fraction_progress(start + (1.0 - start) * fraction))
     opposite, exchange = _opposite_and_exchange(eri.packed, c_occ, c_vir, e_occ, e_vir, budget, done)
     return assemble(result, frozen_core, c_occ.shape[1], c_vir.shape[1], opposite, exchange)
 

@@ -54,10 +54,12 @@ class MP2Result:
     scs_energy_total : float
         RHF total energy plus ``scs_correlation`` (hartree; ``scs_total`` is
         its deprecated name).
-    fit_name : str or None
-        The fitting set of density-fitted MP2 (None: exact integrals).
-    fit_n_functions : int or None
-        Functions of that fitting set on the molecule (None: exact integrals).
+    fit_basis_name : str or None
+        Name of the fitting set (``fit_basis``) of density-fitted MP2 (None:
+        exact integrals); ``fit_name`` is its deprecated name.
+    fit_basis_n_functions : int or None
+        Functions of that fitting set on the molecule (None: exact
+        integrals); ``fit_n_functions`` is its deprecated name.
     """
 
     correlation: float
@@ -70,14 +72,16 @@ class MP2Result:
     n_virtual: int
     scs_correlation: float = 0.0
     scs_energy_total: float = 0.0
-    fit_name: str | None = None
-    fit_n_functions: int | None = None
+    fit_basis_name: str | None = None
+    fit_basis_n_functions: int | None = None
 
     def to_dict(self) -> dict[str, float | int]:
         """The record as plain numbers (hartree), for JSON.
 
         Inside the ``mp2`` object the totals keep their short keys
-        ``total`` and ``scs_total``, as ``energy.total`` does.
+        ``total`` and ``scs_total``, as ``energy.total`` does; ``fit_name``
+        and ``fit_n_functions`` repeat ``fit_basis_name`` and
+        ``fit_basis_n_functions`` under their deprecated keys (kept for one release).
         """
         return {
             "correlation": self.correlation,
@@ -90,12 +94,15 @@ class MP2Result:
             "frozen_core": self.frozen_core,
             "n_active_occupied": self.n_active_occupied,
             "n_virtual": self.n_virtual,
-            "fit_name": self.fit_name,
-            "fit_n_functions": self.fit_n_functions,
+            "fit_basis_name": self.fit_basis_name,
+            "fit_basis_n_functions": self.fit_basis_n_functions,
+            "fit_name": self.fit_basis_name,
+            "fit_n_functions": self.fit_basis_n_functions,
         }
 
 
-rename_fields(MP2Result, {"total": "energy_total", "scs_total": "scs_energy_total"})
+rename_fields(MP2Result, {"total": "energy_total", "scs_total": "scs_energy_total", "fit_name": "fit_basis_name",
+                          "fit_n_functions": "fit_basis_n_functions"})
 
 
 def _pair_map(nbf: int) -> np.ndarray:
@@ -165,8 +172,8 @@ def assemble(
     n_virtual: int,
     opposite: float,
     exchange: float,
-    fit_name: str | None = None,
-    fit_n_functions: int | None = None,
+    fit_basis_name: str | None = None,
+    fit_basis_n_functions: int | None = None,
 ) -> MP2Result:
     """The MP2 record from Σ (ia|jb)² / Δ (``opposite``) and Σ (ia|jb)(ib|ja) / Δ (``exchange``), hartree."""
     same = opposite - exchange
@@ -184,8 +191,8 @@ def assemble(
         n_virtual=int(n_virtual),
         scs_correlation=scs,
         scs_energy_total=reference + scs,
-        fit_name=fit_name,
-        fit_n_functions=fit_n_functions,
+        fit_basis_name=fit_basis_name,
+        fit_basis_n_functions=fit_basis_n_functions,
     )
 
 

@@ -247,6 +247,9 @@ class RHFResult:
                 "n_functions": self.basis.n_functions,
                 "n_shells": self.basis.n_shells,
                 "n_dropped": self.n_dropped,
+                "fit_basis_name": None if self.fit_basis is None else self.fit_basis.name,
+                "fit_basis_n_functions": None if self.fit_basis is None else self.fit_basis.n_functions,
+                # the deprecated keys of the two above, kept for one release
                 "fit_name": None if self.fit_basis is None else self.fit_basis.name,
                 "fit_n_functions": None if self.fit_basis is None else self.fit_basis.n_functions,
             },

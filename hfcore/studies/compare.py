@@ -21,7 +21,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 import scipy.linalg
 
-from .._deprecation import module_aliases, rename_fields
+from .._deprecation import module_aliases, rename_fields, rename_keywords
 from ..basis import build_basis
 from ..errors import ConvergenceError, InputError
 from ..integrals import overlap
@@ -284,7 +284,7 @@ def run_comparison_pieces(
     bases: Mapping[str, BasisSet],
     *,
     options: SCFOptions | None = None,
-    progress: MessageProgress | None = None,
+    message_progress: MessageProgress | None = None,
 ) -> tuple[dict[str, PieceOutcome], dict[str, RHFResult]]:
     """The in-process runner of a basis comparison: each piece in step order, projected guesses from earlier runs.
 
@@ -295,7 +295,7 @@ def run_comparison_pieces(
     bases : mapping of str to BasisSet
         The basis of each piece, by key.
     options : SCFOptions, optional
-    progress : callable, optional
+    message_progress : callable, optional
         Called with a one-line message after each run.
 
     Returns
@@ -330,11 +330,12 @@ def run_comparison_pieces(
         results[piece.key] = result
         if converged:
             previous = (result, piece.basis)
-        if progress is not None:
-            progress(_progress_line(piece.step, len(ordered), piece, outcomes[piece.key]))
+        if message_progress is not None:
+            message_progress(_progress_line(piece.step, len(ordered), piece, outcomes[piece.key]))
     return outcomes, results
 
 
+@rename_keywords({"progress": "message_progress"})
 def compare_bases(
     molecule: Molecule,
     names: Sequence[str],
@@ -342,7 +343,7 @@ def compare_bases(
     spherical: bool | None = None,
     options: SCFOptions | None = None,
     guess: str = "auto",
-    progress: MessageProgress | None = None,
+    message_progress: MessageProgress | None = None,
     runner: PieceRunner | None = None,
 ) -> BasisComparison:
     """RHF energies of one molecule in several basis sets.
@@ -367,7 +368,7 @@ def compare_bases(
         the answer, and ``"projected"`` otherwise (measured: Ne cc-pVTZ
         after cc-pVDZ 3 iterations with SAD, 6 projected; water, HF,
         ammonia and methanol one iteration fewer projected than SAD).
-    progress : callable, optional
+    message_progress : callable, optional
         Called with a one-line message after each basis (in-process runs).
     runner : callable, optional
         Runs the pieces elsewhere instead of in this process: called as
@@ -402,7 +403,7 @@ def compare_bases(
         return assemble_comparison(pieces, collect(pieces, runner(pieces)))
     pieces = comparison_pieces(bases, labels, guess)
     outcomes, results = run_comparison_pieces(
-        molecule, pieces, dict(zip(labels, bases)), options=options, progress=progress
+        molecule, pieces, dict(zip(labels, bases)), options=options, message_progress=message_progress
     )
     return assemble_comparison(pieces, outcomes, tuple(results[p.key] for p in pieces))
 

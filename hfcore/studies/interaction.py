@@ -33,6 +33,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from .._deprecation import rename_keywords
 from ..basis import build_basis
 from ..errors import ConvergenceError, InputError
 from ..scf.driver import prepare_integrals, run_rhf
@@ -142,7 +143,7 @@ def run_interaction_pieces(
     *,
     options: SCFOptions | None = None,
     reuse_integrals: bool = True,
-    progress: MessageProgress | None = None,
+    message_progress: MessageProgress | None = None,
 ) -> tuple[dict[tuple, PieceOutcome], dict[str, tuple[float, float]]]:
     """The in-process runner of an interaction study, basis by basis.
 
@@ -164,7 +165,7 @@ def run_interaction_pieces(
         Each fragment's own basis by (name, fragment).
     options : SCFOptions, optional
     reuse_integrals : bool
-    progress : callable, optional
+    message_progress : callable, optional
         Called with a one-line message after each run.
 
     Returns
@@ -207,8 +208,8 @@ def run_interaction_pieces(
                 summary.energy_total, seconds, summary.n_functions, summary.iterations, True,
                 None if result.stability is None else bool(result.stability.stable), summary.reused_integrals,
             )
-            if progress is not None:
-                progress(
+            if message_progress is not None:
+                message_progress(
                     f"[{len(outcomes)}/{len(pieces)}] {name}, {piece.label} ({summary.n_functions} functions): "
                     f"E = {summary.energy_total:.10f} Eh after {summary.iterations} iterations in {seconds:.2f} s"
                 )
@@ -220,6 +221,7 @@ def _complex_charge(pieces: Sequence[InteractionPiece], name: str) -> int:
     return next(p.charge for p in pieces if p.basis == name and p.kind == "complex")
 
 
+@rename_keywords({"progress": "message_progress"})
 def interaction_energies(
     molecule: Molecule,
     fragments: Sequence[Sequence[int]],
@@ -229,7 +231,7 @@ def interaction_energies(
     spherical: bool | None = None,
     options: SCFOptions | None = None,
     reuse_integrals: bool = True,
-    progress: MessageProgress | None = None,
+    message_progress: MessageProgress | None = None,
     runner: Callable[[Sequence[InteractionPiece]], Mapping[tuple, object]] | None = None,
 ) -> InteractionStudy:
     """Raw and counterpoise-corrected interaction energies in several bases.
@@ -253,7 +255,7 @@ def interaction_energies(
         Let the fragments in the full basis reuse the complex's overlap,
         kinetic and two-electron integrals (default). False computes them
         again for every run, as separate runs would.
-    progress : callable, optional
+    message_progress : callable, optional
         Called with a one-line message after each SCF run (in-process runs).
     runner : callable, optional
         Runs the pieces elsewhere instead (e.g. as batch jobs), each on its
@@ -295,7 +297,7 @@ def interaction_energies(
         reuse_integrals = False
     else:
         outcomes, times = run_interaction_pieces(
-            molecule, pieces, basis_of, own_basis, options=options, reuse_integrals=reuse_integrals, progress=progress
+            molecule, pieces, basis_of, own_basis, options=options, reuse_integrals=reuse_integrals, message_progress=message_progress
         )
     return assemble_interaction(
         molecule.source, parts, charges, pieces, basis_of, own_basis, outcomes, times,

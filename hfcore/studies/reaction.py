@@ -21,7 +21,7 @@ from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
-from .._deprecation import rename_fields
+from .._deprecation import rename_fields, rename_keywords
 from ..basis import build_basis
 from ..errors import ConvergenceError
 from ..scf.driver import run_rhf
@@ -242,7 +242,7 @@ def run_reaction_pieces(
     bases: Mapping[tuple[int, str], BasisSet],
     *,
     options: SCFOptions | None = None,
-    progress: MessageProgress | None = None,
+    message_progress: MessageProgress | None = None,
 ) -> dict[tuple[int, str], PieceOutcome]:
     """The in-process runner of a reaction study: each piece in turn.
 
@@ -253,7 +253,7 @@ def run_reaction_pieces(
     bases : mapping
         The basis of each piece, by piece key.
     options : SCFOptions, optional
-    progress : callable, optional
+    message_progress : callable, optional
         Called with a one-line message after each run.
 
     Returns
@@ -278,14 +278,15 @@ def run_reaction_pieces(
             float(result.energy_total), seconds, basis.n_functions, int(result.iterations), True,
             None if result.stability is None else bool(result.stability.stable),
         )
-        if progress is not None:
-            progress(
+        if message_progress is not None:
+            message_progress(
                 f"[{step}/{len(pieces)}] {piece.basis}, {species[piece.species].label} ({basis.n_functions} functions): "
                 f"E = {result.energy_total:.10f} Eh after {result.iterations} iterations in {time.perf_counter() - t0:.2f} s"
             )
     return out
 
 
+@rename_keywords({"progress": "message_progress"})
 def reaction_energies(
     reactions: Sequence[str] | str,
     bases: Sequence[str],
@@ -293,7 +294,7 @@ def reaction_energies(
     units: str = "angstrom",
     spherical: bool | None = None,
     options: SCFOptions | None = None,
-    progress: MessageProgress | None = None,
+    message_progress: MessageProgress | None = None,
     runner: PieceRunner | None = None,
 ) -> ReactionStudy:
     """RHF reaction energies of one or more equations in several basis sets.
@@ -310,7 +311,7 @@ def reaction_energies(
         Real spherical or Cartesian functions; each family's own by default.
     options : SCFOptions, optional
         Settings of every SCF run.
-    progress : callable, optional
+    message_progress : callable, optional
         Called with a one-line message after each SCF run (in-process runs).
     runner : callable, optional
         Runs the pieces elsewhere instead of in this process: called as
@@ -343,7 +344,7 @@ def reaction_energies(
     if runner is not None:
         outcomes = collect(pieces, runner(pieces, species))
     else:
-        outcomes = run_reaction_pieces(pieces, species, basis_of, options=options, progress=progress)
+        outcomes = run_reaction_pieces(pieces, species, basis_of, options=options, message_progress=message_progress)
     return assemble_reactions(species, parsed, names, basis_of, outcomes, time.perf_counter() - started)
 
 
