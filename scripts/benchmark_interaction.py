@@ -57,13 +57,13 @@ def main() -> None:
         separate = interaction_energies(molecule, fragments, [name], reuse_integrals=False)
         ref_seconds, ref_cp = _reference(molecule, fragments, name)
         row = shared.rows[0]
-        totals[0] += shared.seconds
-        totals[1] += separate.seconds
+        totals[0] += shared.wall_seconds
+        totals[1] += separate.wall_seconds
         totals[2] += ref_seconds
-        ratio_ref = f"{shared.seconds / ref_seconds:17.2f}" if ref_seconds else f"{'—':>17}"
+        ratio_ref = f"{shared.wall_seconds / ref_seconds:17.2f}" if ref_seconds else f"{'—':>17}"
         diff = f"{row.counterpoise - ref_cp:13.1e}" if ref_cp is not None else f"{'—':>13}"
-        print(f"{name:<10} {row.n_functions:>9} {shared.seconds:11.2f} {separate.seconds:13.2f} {ref_seconds:14.2f} "
-              f"{shared.seconds / separate.seconds:16.2f} {ratio_ref} {diff}")
+        print(f"{name:<10} {row.n_functions:>9} {shared.wall_seconds:11.2f} {separate.wall_seconds:13.2f} {ref_seconds:14.2f} "
+              f"{shared.wall_seconds / separate.wall_seconds:16.2f} {ratio_ref} {diff}")
     print(f"{'all':<10} {'':>9} {totals[0]:11.2f} {totals[1]:13.2f} {totals[2]:14.2f} "
           f"{totals[0] / totals[1]:16.2f} {(totals[0] / totals[2]) if totals[2] else float('nan'):17.2f}")
 

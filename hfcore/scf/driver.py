@@ -389,8 +389,8 @@ class SharedIntegrals:
     engine : JKBuilder
         The builder :func:`run_rhf` would make: the stored integrals, or the
         direct mode's incremental builder (copied fresh for every run).
-    seconds : float
-        Wall-clock time it took to compute them.
+    wall_seconds : float
+        Wall-clock time it took to compute them (``seconds`` is its deprecated name).
     """
 
     basis: BasisSet
@@ -398,13 +398,16 @@ class SharedIntegrals:
     kinetic: np.ndarray
     plan: JKPlan
     engine: JKBuilder
-    seconds: float
+    wall_seconds: float
 
     def jk_builder(self) -> JKBuilder:
         """A J/K builder for one SCF run: the store itself, or a fresh incremental builder on the same engine."""
         if isinstance(self.engine, IncrementalJK):
             return IncrementalJK(self.engine.engine, self.engine.rebuild_interval)
         return self.engine
+
+
+rename_fields(SharedIntegrals, {"seconds": "wall_seconds"})
 
 
 def prepare_integrals(

@@ -186,7 +186,7 @@ def run_interaction_pieces(
         t0 = time.perf_counter()
         shared = prepare_integrals(bases[name], options, molecule=molecule.with_charge(_complex_charge(pieces, name))) \
             if reuse_integrals else None
-        integral_seconds = shared.seconds if shared is not None else 0.0
+        integral_seconds = shared.wall_seconds if shared is not None else 0.0
         densities: dict[int, np.ndarray] = {}
         for piece in (p for p in pieces if p.basis == name):
             if piece.kind == "own basis":
@@ -201,7 +201,7 @@ def run_interaction_pieces(
                 densities[piece.fragment] = result.density
             seconds = summary.wall_seconds
             if piece.kind == "complex" and shared is not None:
-                seconds += shared.seconds  # it paid for them
+                seconds += shared.wall_seconds  # it paid for them
             if piece.kind == "complex" and shared is None:
                 integral_seconds = result.timings["integrals"]
             outcomes[piece.key] = PieceOutcome(
