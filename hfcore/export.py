@@ -237,7 +237,7 @@ def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS
         ``overlap``, ``kinetic``, ``nuclear_attraction``, ``core_hamiltonian``
         (nbf, nbf); ``coefficients`` (nbf, nmo); ``orbital_energies``,
         ``occupations`` (nmo,); ``density`` (total), ``fock`` (nbf, nbf);
-        ``atomic_numbers`` (natom,), ``ghosts`` (natom,) bool; ``coordinates`` (natom, 3) in bohr;
+        ``atomic_numbers`` (n_atoms,), ``ghosts`` (n_atoms,) bool; ``coordinates`` (n_atoms, 3) in bohr;
         ``function_atoms``, ``function_l`` (nbf,); ``energy_total`` ();
         ``spherical`` (); and ``eri`` (nbf, nbf, nbf, nbf) in chemists'
         notation (mu nu|lambda sigma) when nbf <= ``eri_max_functions``.
@@ -275,7 +275,7 @@ class SavedArrays:
     """The arrays of an RHF run as :func:`result_arrays` saves them, read back by :func:`load_arrays`.
 
     Attributes carry the names of the .npz entries; shapes as in
-    :func:`result_arrays` (nbf functions, nmo orbitals, natom atoms).
+    :func:`result_arrays` (nbf functions, nmo orbitals, n_atoms atoms).
     Energies in hartree, lengths in bohr.
     """
 

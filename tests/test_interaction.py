@@ -9,7 +9,7 @@ from conftest import INPUTS, assert_valid_png, run_main
 from reference import family_shells, reference_energy, reference_mole
 
 import hfcore
-from hfcore.studies.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from hfcore.units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
 from hfcore.studies.interaction import check_fragments, interaction_energies, interaction_pieces
 from hfcore.cli_differences import parse_fragments
 from hfcore.errors import InputError

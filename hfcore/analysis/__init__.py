@@ -19,7 +19,7 @@ from .multipoles import (
     quadrupole_moment,
     second_moment,
 )
-from ..units import KCAL_MOL_PER_HARTREE  # noqa: F401  (exported here before hfcore.units held it)
+from ..units import KCAL_MOL_PER_HARTREE
 from .properties import OrbitalProperties, orbital_properties
 from .populations import lowdin_charges, lowdin_populations, mulliken_charges, mulliken_populations
 
@@ -63,4 +63,5 @@ __all__ = [
     "MP2Result",
     "mp2_energy",
     "core_orbital_count",
+    "KCAL_MOL_PER_HARTREE",
 ]

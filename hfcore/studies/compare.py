@@ -27,7 +27,6 @@ from ..errors import ConvergenceError, InputError
 from ..integrals import overlap
 from ..scf.driver import run_rhf
 from ..units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
-from .pieces import MessageProgress, PieceOutcome, PieceRunner, check_basis_names, collect
 from .extrapolation import (
     FELLER_CITATION,
     KARTON_MARTIN_CITATION,
@@ -35,6 +34,7 @@ from .extrapolation import (
     feller_three_point,
     karton_martin_two_point,
 )
+from .pieces import MessageProgress, PieceOutcome, PieceRunner, check_basis_names, collect
 
 if TYPE_CHECKING:
     from ..basis.shells import BasisSet
