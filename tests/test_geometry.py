@@ -6,6 +6,7 @@ import re
 
 import numpy as np
 import pytest
+from conftest import INPUTS
 
 from hfcore.errors import InputError
 from hfcore.geometry import ANGSTROM_IN_BOHR, BOHR_IN_ANGSTROM, Molecule, parse_xyz, read_xyz
@@ -125,10 +126,7 @@ def test_molecule_arrays_are_read_only(tmp_path):
 
 
 def test_shipped_demo_inputs_parse(tmp_path):
-    from pathlib import Path
-
-    inputs = Path(__file__).resolve().parent.parent / "inputs"
-    files = sorted(inputs.glob("*.xyz"))
+    files = sorted(INPUTS.glob("*.xyz"))
     assert len(files) >= 20
     for path in files:
         charge = {"ammonium.xyz": 1, "hydroxide.xyz": -1}.get(path.name, 0)

@@ -81,16 +81,35 @@ def test_eri_bytes_is_the_old_name_of_eri_memory_bytes():
         type(plan)(mode="stored", eri_bytes=1, eri_memory_bytes=1, limit_bytes=2)
 
 
-def test_rhf_result_becomes_a_dict_the_way_the_json_export_writes_it():
+def test_rhf_result_becomes_a_dict_the_way_the_json_export_writes_it(water_molecule):
+    import numpy as np
+
     import hfcore
+    from hfcore import export, integrals
+    from hfcore.scf import solve_rhf
 
     out = io.StringIO()
     assert main(["energy", str(INPUTS / "water.xyz"), "--json", "-"], stdout=out, stderr=io.StringIO()) == 0
     from_cli = json.loads(out.getvalue())
-    record = hfcore.run_rhf(hfcore.read_xyz(INPUTS / "water.xyz")).to_dict()
-    assert set(from_cli) - {"analysis"} == set(record)
+    result = hfcore.run_rhf(water_molecule)
+    record = json.loads(export.to_json(result.to_dict({"note": "extra"})))
+    assert set(from_cli) == set(record) and record["analysis"] == {"note": "extra"}
+    assert "analysis" not in result.to_dict()
     # source: exact property — determinism: the same input gives the same digits
-    assert record["energy"]["total"] == from_cli["energy"]["total"]
+    assert record["energy"]["total"] == from_cli["energy"]["total"] == result.energy_total
+    # the record holds the result's own numbers, in bohr and hartree
+    np.testing.assert_array_equal(record["molecule"]["coordinates_bohr"], water_molecule.coordinates)
+    np.testing.assert_array_equal(record["orbitals"]["energies"], result.orbital_energies)
+    assert record["orbitals"]["homo"] == result.homo == 4 and record["molecule"]["n_electrons"] == 10
+    assert record["basis"]["n_functions"] == result.basis.n_functions == 7
+    assert [h["energy"] for h in record["scf"]["history"]] == [h.energy for h in result.history]
+    assert record["scf"]["stability"]["stable"] is True and record["hfcore"]["version"] == hfcore.__version__
+    # a run on bare matrices has no molecule or basis to describe
+    basis = result.basis
+    bare = solve_rhf(result.overlap, result.core_hamiltonian, integrals.compute_eri(basis), 10,
+                     result.energy_nuclear)
+    with pytest.raises(InputError, match="carries its molecule and basis"):
+        bare.to_dict()
 
 
 def test_the_two_guess_lists_have_their_own_names(water_molecule):
