@@ -24,8 +24,9 @@ from .result import RHFResult, SCFIteration
 
 #: The callback that watches the SCF: called with each :class:`SCFIteration` record as it is made.
 IterationProgress = Callable[[SCFIteration], None]
-# ``Progress``, the deprecated name of IterationProgress, warns when read (the other two kinds
-# of progress callback take a fraction done, FractionProgress, or a one-line message, MessageProgress).
+# ``Progress``, the deprecated name of IterationProgress, warns when read. The other two kinds of
+# progress callback take the fraction done (``integral_progress``, MP2's ``fraction_progress``) or a
+# study's one-line message (``message_progress``, hfcore.studies.MessageProgress).
 __getattr__ = module_aliases(__name__, {"Progress": ("IterationProgress", IterationProgress)})
 
 #: Iterations over which progress is judged.

@@ -20,8 +20,9 @@ from typing import Any
 
 from ..errors import InputError
 
-#: A callback of the studies: called with a one-line message after each SCF run (the SCF's
-#: own progress callback takes iteration records, the integrals' a fraction done).
+#: The studies' progress callback (``message_progress``): called with a one-line message after
+#: each SCF run. The SCF's (``progress``) takes iteration records; ``integral_progress`` and
+#: MP2's ``fraction_progress`` take the fraction done.
 MessageProgress = Callable[[str], None]
 
 
