@@ -26,10 +26,14 @@ def __getattr__(name: str):
         from . import scf
 
         return getattr(scf, name)
-    if name in {"mp2_energy", "project_density"}:
+    if name == "mp2_energy":
         from . import analysis
 
         return getattr(analysis, name)
+    if name in {"project_density", "compare_bases", "reaction_energies", "interaction_energies"}:
+        from . import studies
+
+        return getattr(studies, name)
     if name in {"load_arrays", "SavedArrays"}:
         from . import export
 
@@ -51,6 +55,9 @@ __all__ = [
     "RHFResult",
     "mp2_energy",
     "project_density",
+    "compare_bases",
+    "reaction_energies",
+    "interaction_energies",
     "load_arrays",
     "SavedArrays",
     "HfcoreError",

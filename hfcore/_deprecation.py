@@ -73,6 +73,41 @@ def rename_fields(cls: type, renames: Mapping[str, str]) -> type:
     return cls
 
 
+def rename_keywords(renames: Mapping[str, str]) -> Callable[[Callable[..., Any]], Callable[..., Any]]:
+    """Keep a function's old keyword names working, with a DeprecationWarning.
+
+    Parameters
+    ----------
+    renames : mapping of str to str
+        Old keyword to new keyword.
+
+    Returns
+    -------
+    callable
+        A decorator; the decorated function takes each old keyword as the
+        new one (DeprecationWarning naming both; InputError when both are given).
+    """
+    import functools
+
+    from .errors import InputError
+
+    def decorate(func: Callable[..., Any]) -> Callable[..., Any]:
+        @functools.wraps(func)
+        def wrapper(*args: Any, **kwargs: Any) -> Any:
+            for old, new in renames.items():
+                if old in kwargs:
+                    warnings.warn(f"{func.__name__}({old}=...) is deprecated; use {new}", DeprecationWarning,
+                                  stacklevel=2)
+                    if new in kwargs:
+                        raise InputError(f"give {new} or its deprecated name {old}, not both")
+                    kwargs[new] = kwargs.pop(old)
+            return func(*args, **kwargs)
+
+        return wrapper
+
+    return decorate
+
+
 def _old_attribute(owner: str, old: str, new: str) -> property:
     def read(self: Any) -> Any:
         warnings.warn(f"{owner}.{old} is deprecated; use {new}", DeprecationWarning, stacklevel=2)

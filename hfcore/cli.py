@@ -694,7 +694,7 @@ def _run_fit_sto(args: argparse.Namespace, console: _Console) -> int:
 
 
 def _run_compare(args: argparse.Namespace, console: _Console) -> int:
-    from .analysis import compare_bases
+    from .studies import compare_bases
     from .scf import SCFOptions
 
     paths = _output_paths(args, "json", "plot")

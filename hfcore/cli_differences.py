@@ -192,7 +192,7 @@ def _parse_charges(text: str | None, count: int) -> list[int] | None:
 
 
 def _run_interaction(args: argparse.Namespace, console: Any) -> int:
-    from .analysis.interaction import interaction_energies
+    from .studies.interaction import interaction_energies
     from .geometry import read_xyz
 
     paths = cli._output_paths(args, "json", "plot", "results")
@@ -226,7 +226,7 @@ def _run_interaction(args: argparse.Namespace, console: Any) -> int:
 
 
 def _run_reaction(args: argparse.Namespace, console: Any) -> int:
-    from .analysis.reactions import reaction_energies
+    from .studies.reaction import reaction_energies
 
     paths = cli._output_paths(args, "json", "plot", "results")
     names = cli._basis_names(args)

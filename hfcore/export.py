@@ -18,21 +18,16 @@ from typing import Any
 
 import numpy as np
 
+from ._version import __version__
 from .errors import InputError
+from .scf.result import UNITS as RESULT_UNITS
 
 #: Largest basis for which the dense ERI tensor goes into an .npz file: the
 #: tensor takes nbf**4 * 8 bytes, 0.8 GB at 100 functions.
 ERI_NPZ_MAX_FUNCTIONS: int = 100
 
-#: What the numbers in the exported records mean.
-UNITS: dict[str, str] = {
-    "energy": "hartree",
-    "length": "bohr (coordinates_angstrom: angstrom)",
-    "orbital_energies": "hartree",
-    "dipole": "e*bohr (atomic units); dipole_debye: debye",
-    "charges": "e (elementary charge)",
-    "time": "seconds",
-}
+#: What the numbers in the exported records mean (the RHF record's own, :data:`hfcore.scf.result.UNITS`).
+UNITS: dict[str, str] = RESULT_UNITS
 
 
 def check_output_path(path: str | os.PathLike) -> str:
@@ -163,7 +158,7 @@ def to_json(record: Mapping[str, Any]) -> str:
 
 
 def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dict[str, Any]:
-    """The JSON record of an RHF run.
+    """The JSON record of an RHF run: :meth:`hfcore.scf.RHFResult.to_dict`.
 
     Parameters
     ----------
@@ -180,102 +175,14 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
         ``scf``, ``orbitals``, ``timings`` (and ``analysis``); energies in
         hartree, coordinates in bohr.
     """
-    from ._version import __version__
-
-    mol = result.molecule
-    basis = result.basis
-    opts = result.options
-    record: dict[str, Any] = {
-        "hfcore": {"version": __version__, "method": "RHF"},
-        "units": UNITS,
-        "molecule": {
-            "source": mol.source,
-            "comment": mol.comment,
-            "charge": mol.charge,
-            "n_electrons": mol.n_electrons,
-            "symbols": mol.symbols,
-            "atomic_numbers": mol.atomic_numbers,
-            "ghost_atoms": [int(k) for k in np.flatnonzero(mol.ghosts)],
-            "coordinates_bohr": mol.coordinates,
-        },
-        "basis": {
-            "name": basis.name,
-            "spherical": basis.spherical,
-            "n_functions": basis.n_functions,
-            "n_shells": basis.n_shells,
-            "n_dropped": result.n_dropped,
-            "fit_name": None if result.fit_basis is None else result.fit_basis.name,
-            "fit_n_functions": None if result.fit_basis is None else result.fit_basis.n_functions,
-        },
-        "energy": {
-            "total": result.energy_total,
-            "nuclear_repulsion": result.energy_nuclear,
-            "one_electron": result.energy_one_electron,
-            "two_electron": result.energy_two_electron,
-            "electronic": result.energy_electronic,
-        },
-        "scf": {
-            "converged": result.converged,
-            "iterations": result.iterations,
-            "jk_mode": result.jk_mode,
-            "eri_memory_bytes": result.eri_memory_bytes,
-            "memory_budget": None if result.memory_budget is None else result.memory_budget.to_dict(),
-            "threads": opts.n_threads,
-            "resource_notes": list(result.resource_notes),
-            "fit_storage": result.fit_storage or None,
-            "fit_notes": list(result.fit_notes),
-            "fit_metric_dropped": result.fit_dropped,
-            "thresholds": {
-                "energy_tol": opts.energy_tol,
-                "gradient_tol": opts.gradient_tol,
-                "max_iterations": opts.max_iterations,
-                "max_diis_size": opts.max_diis_size,
-                "diis_space": opts.max_diis_size,  # deprecated name, kept for one release
-                "lindep_threshold": opts.lindep_threshold,
-                "screening": opts.screening,
-                "stability_threshold": opts.stability_threshold,
-            },
-            "stability": stability_record(result),
-            "aufbau": {"satisfied": result.aufbau, "gap": result.aufbau_gap},
-            "aids": list(result.aids),
-            "history": [
-                {
-                    "iteration": h.iteration,
-                    "energy": h.energy,
-                    "delta_e": h.delta_e,
-                    "gradient_norm": h.gradient_norm,
-                    "diis_size": h.diis_size,
-                    "aid": h.aid,
-                    "solution": h.solution,
-                }
-                for h in result.history
-            ],
-        },
-        "orbitals": {
-            "energies": result.orbital_energies,
-            "occupations": result.occupations,
-            "homo": result.homo,
-            "lumo": result.lumo,
-        },
-        "timings": dict(result.timings),
-    }
-    if analysis:
-        record["analysis"] = dict(analysis)
-    return record
+    return result.to_dict(analysis)
 
 
 def stability_record(result: Any) -> dict[str, Any]:
-    """The ``scf.stability`` object of an RHF run's JSON record.
+    """The ``scf.stability`` object of an RHF run's JSON record (:func:`hfcore.scf.result.stability_record`)."""
+    from .scf.result import stability_record as record
 
-    ``mode`` is always there; with the analysis off every other key is
-    null. Eigenvalues are those of the energy Hessian d²E/dκ² in hartree.
-    """
-    st = result.stability
-    if st is None:
-        keys = ("stable", "lowest_eigenvalue", "eigenvalues", "threshold", "solutions", "lowest_eigenvalues",
-                "rounds", "hessian_products", "message")
-        return {"mode": result.options.stability, **dict.fromkeys(keys)}
-    return st.to_dict()
+    return record(result)
 
 
 def sto_fit_record(fit: Any) -> dict[str, Any]:
@@ -292,8 +199,6 @@ def sto_fit_record(fit: Any) -> dict[str, Any]:
         exponents in bohr⁻², coefficients and overlaps per angular momentum
         letter, coefficients for normalised primitives).
     """
-    from ._version import __version__
-
     return {
         "hfcore": {"version": __version__},
         "units": {"exponents": "bohr^-2", "zeta": "bohr^-1", "coefficients": "of normalised primitive Gaussians"},
@@ -303,22 +208,16 @@ def sto_fit_record(fit: Any) -> dict[str, Any]:
 
 def comparison_record(comparison: Any) -> dict[str, Any]:
     """The JSON record of a basis comparison: ``hfcore``, ``units``, ``comparison``."""
-    from ._version import __version__
-
     return {"hfcore": {"version": __version__}, "units": UNITS, "comparison": comparison.to_dict()}
 
 
 def interaction_record(study: Any) -> dict[str, Any]:
     """The JSON record of an interaction study: ``hfcore``, ``units``, ``interaction``."""
-    from ._version import __version__
-
     return {"hfcore": {"version": __version__}, "units": UNITS, "interaction": study.to_dict()}
 
 
 def reaction_record(study: Any) -> dict[str, Any]:
     """The JSON record of a reaction study: ``hfcore``, ``units``, ``reaction``."""
-    from ._version import __version__
-
     return {"hfcore": {"version": __version__}, "units": UNITS, "reaction": study.to_dict()}
 
 
@@ -338,7 +237,7 @@ def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS
         ``overlap``, ``kinetic``, ``nuclear_attraction``, ``core_hamiltonian``
         (nbf, nbf); ``coefficients`` (nbf, nmo); ``orbital_energies``,
         ``occupations`` (nmo,); ``density`` (total), ``fock`` (nbf, nbf);
-        ``atomic_numbers`` (natom,), ``ghosts`` (natom,) bool; ``coordinates`` (natom, 3) in bohr;
+        ``atomic_numbers`` (n_atoms,), ``ghosts`` (n_atoms,) bool; ``coordinates`` (n_atoms, 3) in bohr;
         ``function_atoms``, ``function_l`` (nbf,); ``energy_total`` ();
         ``spherical`` (); and ``eri`` (nbf, nbf, nbf, nbf) in chemists'
         notation (mu nu|lambda sigma) when nbf <= ``eri_max_functions``.
@@ -376,7 +275,7 @@ class SavedArrays:
     """The arrays of an RHF run as :func:`result_arrays` saves them, read back by :func:`load_arrays`.
 
     Attributes carry the names of the .npz entries; shapes as in
-    :func:`result_arrays` (nbf functions, nmo orbitals, natom atoms).
+    :func:`result_arrays` (nbf functions, nmo orbitals, n_atoms atoms).
     Energies in hartree, lengths in bohr.
     """
 

@@ -16,6 +16,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from . import elements
+from ._deprecation import rename_fields
 from .errors import InputError
 from .units import ANGSTROM_IN_BOHR, BOHR_IN_ANGSTROM
 
@@ -87,8 +88,8 @@ class Molecule:
         object.__setattr__(self, "ghosts", ghosts)
 
     @property
-    def natom(self) -> int:
-        """Number of atoms."""
+    def n_atoms(self) -> int:
+        """Number of atoms (ghosts included); ``natom`` is its deprecated name."""
         return int(self.atomic_numbers.shape[0])
 
     @property
@@ -144,7 +145,7 @@ class Molecule:
         Molecule
         """
         mask = self.ghosts.copy()
-        mask[_checked_atoms(atoms, self.natom, self.source)] = True
+        mask[_checked_atoms(atoms, self.n_atoms, self.source)] = True
         return replace(self, ghosts=mask, charge=self.charge if charge is None else charge)
 
     def subset(self, atoms: Iterable[int], charge: int = 0) -> "Molecule":
@@ -161,8 +162,8 @@ class Molecule:
         -------
         Molecule
         """
-        keep = sorted(set(_checked_atoms(atoms, self.natom, self.source)))
-        lines = tuple(self._line_numbers[k] for k in keep) if len(self._line_numbers) == self.natom else ()
+        keep = sorted(set(_checked_atoms(atoms, self.n_atoms, self.source)))
+        lines = tuple(self._line_numbers[k] for k in keep) if len(self._line_numbers) == self.n_atoms else ()
         return Molecule(
             self.atomic_numbers[keep], self.coordinates[keep], charge, self.source, self.comment, lines, self.ghosts[keep]
         )
@@ -183,6 +184,10 @@ class Molecule:
                 f"{self.source}: {n} electrons with charge {self.charge:+d}; RHF needs an even number "
                 f"(a closed shell): try --charge {self.charge + 1} or --charge {self.charge - 1}"
             )
+
+
+# ``natom``, the old name of n_atoms, warns when read (kept for one release).
+rename_fields(Molecule, {"natom": "n_atoms"})
 
 
 def is_closed_shell(n_electrons: object) -> bool:

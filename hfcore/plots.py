@@ -15,9 +15,9 @@ from .errors import InputError
 from .export import write_file_atomically
 
 if TYPE_CHECKING:
-    from .analysis.compare import BasisComparison
-    from .analysis.interaction import InteractionStudy
-    from .analysis.reactions import ReactionStudy
+    from .studies.compare import BasisComparison
+    from .studies.interaction import InteractionStudy
+    from .studies.reaction import ReactionStudy
     from .basis.sto import STOFit
 
 
@@ -42,7 +42,7 @@ def _save_atomically(figure, path: str | os.PathLike) -> None:
 
 def _series(rows) -> dict[str, list]:
     """Rows grouped by correlation-consistent family ("" for all other bases), joined by lines per family."""
-    from .analysis.extrapolation import correlation_consistent
+    from .studies.extrapolation import correlation_consistent
 
     groups: dict[str, list] = {}
     for r in rows:
@@ -60,7 +60,7 @@ def plot_comparison(comparison: BasisComparison, path: str | os.PathLike) -> Non
     Parameters
     ----------
     comparison : BasisComparison
-        From :func:`hfcore.analysis.compare_bases`.
+        From :func:`hfcore.studies.compare_bases`.
     path : str or path-like
         The PNG file to write (replaced atomically).
 
@@ -108,7 +108,7 @@ def plot_interaction(study: InteractionStudy, path: str | os.PathLike) -> None:
     Parameters
     ----------
     study : InteractionStudy
-        From :func:`hfcore.analysis.interaction.interaction_energies`.
+        From :func:`hfcore.studies.interaction_energies`.
     path : str or path-like
         The PNG file to write (replaced atomically).
 
@@ -117,7 +117,7 @@ def plot_interaction(study: InteractionStudy, path: str | os.PathLike) -> None:
     InputError
         If matplotlib is missing or the directory of ``path`` does not exist.
     """
-    from .analysis.compare import KJ_MOL_PER_HARTREE
+    from .studies.compare import KJ_MOL_PER_HARTREE
 
     _check_directory(path)
     plt = _pyplot()
@@ -150,7 +150,7 @@ def plot_reactions(study: ReactionStudy, path: str | os.PathLike) -> None:
     Parameters
     ----------
     study : ReactionStudy
-        From :func:`hfcore.analysis.reactions.reaction_energies`.
+        From :func:`hfcore.studies.reaction_energies`.
     path : str or path-like
         The PNG file to write (replaced atomically).
 
@@ -159,7 +159,7 @@ def plot_reactions(study: ReactionStudy, path: str | os.PathLike) -> None:
     InputError
         If matplotlib is missing or the directory of ``path`` does not exist.
     """
-    from .analysis.compare import KJ_MOL_PER_HARTREE
+    from .studies.compare import KJ_MOL_PER_HARTREE
 
     _check_directory(path)
     plt = _pyplot()

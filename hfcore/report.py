@@ -44,7 +44,7 @@ def format_molecule(molecule: Any) -> str:
     if molecule.comment:
         info.append(("comment", molecule.comment))
     info += [
-        ("atoms", str(molecule.natom)),
+        ("atoms", str(molecule.n_atoms)),
         ("charge", f"{molecule.charge:+d}" if molecule.charge else "0"),
         ("electrons", str(molecule.n_electrons)),
         ("nuclear repulsion", f"{molecule.nuclear_repulsion():.10f} Eh"),
@@ -343,8 +343,8 @@ def format_mp2(mp2: Any) -> str:
     body = [f"  {name:<20}{value:22.12f}" for name, value in rows]
     body.append(f"  ({core}; {mp2.n_active_occupied} occupied and {mp2.n_virtual} virtual orbitals;")
     body.append("   SCS-MP2: 6/5 opposite-spin + 1/3 same-spin, S. Grimme, J. Chem. Phys. 118, 9095 (2003))")
-    if getattr(mp2, "fit_name", None):
-        body.append(f"  (density-fitted with {mp2.fit_name}, {mp2.fit_n_functions} fitting functions)")
+    if getattr(mp2, "fit_basis_name", None):
+        body.append(f"  (density-fitted with {mp2.fit_basis_name}, {mp2.fit_basis_n_functions} fitting functions)")
     return heading("MP2 / Eh") + "\n" + "\n".join(body)
 
 
@@ -392,7 +392,7 @@ def format_comparison(comparison: Any) -> str:
         flag = "" if row.converged else "  (not converged)"
         lines.append(
             f"  {row.basis:<16} {row.n_functions:>9}  {form:<9} {row.energy_total:18.10f} "
-            f"{row.delta_mEh:11.3f} {row.delta_kcal_mol:13.3f} {row.iterations:>4} {row.wall_time:9.2f}{flag}"
+            f"{row.delta_mEh:11.3f} {row.delta_kcal_mol:13.3f} {row.iterations:>4} {row.wall_seconds:9.2f}{flag}"
         )
     lines.append(f"  Δ: energy above {comparison.reference_basis}, the basis with the most functions")
     if comparison.estimates:

@@ -2,14 +2,14 @@
 
 A room of its own beside :mod:`hfcore.report` so that the single-molecule
 report stays short. As there, every function returns text and computes no
-physics; unit factors come from :mod:`hfcore.analysis.compare`.
+physics; unit factors come from :mod:`hfcore.units`.
 """
 
 from __future__ import annotations
 
 from typing import Any
 
-from .analysis.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from .studies.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
 from .report import atom_ranges, heading
 
 
@@ -27,7 +27,7 @@ def format_interaction(study: Any) -> str:
     Parameters
     ----------
     study : InteractionStudy
-        From :func:`hfcore.analysis.interaction.interaction_energies`.
+        From :func:`hfcore.studies.interaction_energies`.
     """
     n = len(study.fragments)
     lines = [heading("Fragments")]
@@ -57,9 +57,9 @@ def format_interaction(study: Any) -> str:
     lines.append(f"\n  counterpoise correction: {study.citation}")
     runs = len(study.pieces)
     reused = sum(p.reused_integrals for p in study.pieces)
-    cost = f"  {runs} SCF runs in {study.seconds:.2f} s"
+    cost = f"  {runs} SCF runs in {study.wall_seconds:.2f} s"
     if study.batch:
-        cost = f"  {runs} SCF runs as batch jobs, {sum(p.seconds for p in study.pieces):.2f} s of job time"
+        cost = f"  {runs} SCF runs as batch jobs, {sum(p.wall_seconds for p in study.pieces):.2f} s of job time"
     if reused:
         cost += (
             f"; {reused} full-basis fragment runs reused the complex's integrals "
@@ -75,7 +75,7 @@ def format_reactions(study: Any) -> str:
     Parameters
     ----------
     study : ReactionStudy
-        From :func:`hfcore.analysis.reactions.reaction_energies`.
+        From :func:`hfcore.studies.reaction_energies`.
     """
     lines = [heading("Species")]
     width = max(len(s.label) for s in study.species)
@@ -87,7 +87,7 @@ def format_reactions(study: Any) -> str:
     lines.append(f"  {'#':>8} " + " ".join(f"{row.basis:>17}" for row in study.rows))
     for k in range(len(study.species)):
         lines.append(f"  {k + 1:>8} " + " ".join(f"{row.species_energies[k]:17.10f}" for row in study.rows))
-    lines.append(f"  {'time / s':>8} " + " ".join(f"{row.seconds:17.2f}" for row in study.rows))
+    lines.append(f"  {'time / s':>8} " + " ".join(f"{row.wall_seconds:17.2f}" for row in study.rows))
     spread = study.uncertainty()
     for r, reaction in enumerate(study.reactions):
         title = "Reaction energy" if len(study.reactions) == 1 else f"Reaction {r + 1}"

@@ -37,7 +37,7 @@ sys.path.insert(0, str(ROOT / "tests"))
 
 def main() -> None:
     import hfcore
-    from hfcore.analysis.interaction import interaction_energies
+    from hfcore.studies.interaction import interaction_energies
     from hfcore.cli_differences import parse_fragments
 
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
@@ -46,7 +46,7 @@ def main() -> None:
     parser.add_argument("--basis", default="6-31g,cc-pvdz,cc-pvtz")
     args = parser.parse_args()
     molecule = hfcore.read_xyz(args.geometry)
-    fragments = parse_fragments(args.fragments, molecule.natom)
+    fragments = parse_fragments(args.fragments, molecule.n_atoms)
     names = args.basis.split(",")
     print(f"{args.geometry}, fragments {args.fragments}, bases {args.basis}, one thread")
     print(f"{'basis':<10} {'functions':>9} {'shared / s':>11} {'separate / s':>13} {'reference / s':>14} "
@@ -57,13 +57,13 @@ def main() -> None:
         separate = interaction_energies(molecule, fragments, [name], reuse_integrals=False)
         ref_seconds, ref_cp = _reference(molecule, fragments, name)
         row = shared.rows[0]
-        totals[0] += shared.seconds
-        totals[1] += separate.seconds
+        totals[0] += shared.wall_seconds
+        totals[1] += separate.wall_seconds
         totals[2] += ref_seconds
-        ratio_ref = f"{shared.seconds / ref_seconds:17.2f}" if ref_seconds else f"{'—':>17}"
+        ratio_ref = f"{shared.wall_seconds / ref_seconds:17.2f}" if ref_seconds else f"{'—':>17}"
         diff = f"{row.counterpoise - ref_cp:13.1e}" if ref_cp is not None else f"{'—':>13}"
-        print(f"{name:<10} {row.n_functions:>9} {shared.seconds:11.2f} {separate.seconds:13.2f} {ref_seconds:14.2f} "
-              f"{shared.seconds / separate.seconds:16.2f} {ratio_ref} {diff}")
+        print(f"{name:<10} {row.n_functions:>9} {shared.wall_seconds:11.2f} {separate.wall_seconds:13.2f} {ref_seconds:14.2f} "
+              f"{shared.wall_seconds / separate.wall_seconds:16.2f} {ratio_ref} {diff}")
     print(f"{'all':<10} {'':>9} {totals[0]:11.2f} {totals[1]:13.2f} {totals[2]:14.2f} "
           f"{totals[0] / totals[1]:16.2f} {(totals[0] / totals[2]) if totals[2] else float('nan'):17.2f}")
 
@@ -80,7 +80,7 @@ def _reference(molecule, fragments, name):
     spherical = hfcore.build_basis(molecule, name).spherical
     start = time.perf_counter()
     e_ab = reference_energy(reference_mole(molecule, shells, spherical=spherical))
-    everything = set(range(molecule.natom))
+    everything = set(range(molecule.n_atoms))
     full = []
     for part in fragments:
         full.append(reference_energy(reference_mole(molecule.with_ghosts(sorted(everything - set(part))), shells,

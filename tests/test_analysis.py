@@ -31,7 +31,7 @@ REFERENCE_TIGHT = dict(conv_tol=1e-12, conv_tol_grad=1e-9)
 
 
 @pytest.fixture(scope="module", params=[("cc-pvdz", True), ("6-31g*", False)], ids=["cc-pVDZ spherical", "6-31G* Cartesian"])
-def water(request):
+def water_and_reference(request):
     name, spherical = request.param
     mol = read_input("water")
     basis = hfcore.build_basis(mol, name, spherical=spherical)
@@ -40,22 +40,22 @@ def water(request):
     return result, ref
 
 
-def test_mulliken_charges_match_reference(water):
-    result, ref = water
+def test_mulliken_charges_match_reference(water_and_reference):
+    result, ref = water_and_reference
     expected = ref.mulliken_pop(verbose=0)[1]
     # source: reference library run (PySCF), same shells, tight convergence
     np.testing.assert_allclose(mulliken_charges(result), expected, atol=1e-9, rtol=0)
 
 
-def test_mulliken_populations_sum_to_electron_count(water):
-    result, _ = water
+def test_mulliken_populations_sum_to_electron_count(water_and_reference):
+    result, _ = water_and_reference
     # source: exact property — tr(D S) = N
     assert mulliken_populations(result).sum() == pytest.approx(result.molecule.n_electrons, abs=1e-9)
     assert mulliken_charges(result).sum() == pytest.approx(result.molecule.charge, abs=1e-9)
 
 
-def test_lowdin_charges_match_reference(water):
-    result, ref = water
+def test_lowdin_charges_match_reference(water_and_reference):
+    result, ref = water_and_reference
     ref_mol = ref.mol
     # Löwdin populations depend on the scale of each function: hfcore makes every
     # Cartesian component a unit function, the reference library does not (xy vs xx),
@@ -73,20 +73,20 @@ def test_lowdin_charges_match_reference(water):
     assert lowdin_populations(result).sum() == pytest.approx(result.molecule.n_electrons, abs=1e-9)
 
 
-def test_dipole_matches_reference(water):
-    result, ref = water
+def test_dipole_matches_reference(water_and_reference):
+    result, ref = water_and_reference
     # source: reference library run (PySCF), dipole in atomic units, same shells
     np.testing.assert_allclose(dipole_moment(result), ref.dip_moment(unit="AU", verbose=0), atol=1e-9, rtol=0)
 
 
-def test_dipole_of_neutral_molecule_does_not_depend_on_origin(water):
-    result, _ = water
+def test_dipole_of_neutral_molecule_does_not_depend_on_origin(water_and_reference):
+    result, _ = water_and_reference
     # source: exact property — a neutral charge distribution has an origin-free dipole
     np.testing.assert_allclose(dipole_moment(result, origin=[1.5, -2.0, 3.0]), dipole_moment(result), atol=1e-10)
 
 
-def test_mp2_correlation_matches_reference(water):
-    result, ref = water
+def test_mp2_correlation_matches_reference(water_and_reference):
+    result, ref = water_and_reference
     mine = mp2_energy(result)
     theirs = mp.MP2(ref).run(verbose=0)
     # source: reference library run (PySCF MP2 on its own RHF), same shells
@@ -97,8 +97,8 @@ def test_mp2_correlation_matches_reference(water):
     assert mine.energy_total == pytest.approx(theirs.e_tot, abs=1e-8)
 
 
-def test_mp2_frozen_core_matches_reference(water):
-    result, ref = water
+def test_mp2_frozen_core_matches_reference(water_and_reference):
+    result, ref = water_and_reference
     mine = mp2_energy(result, frozen_core=core_orbital_count(result.molecule))
     theirs = mp.MP2(ref, frozen=1).run(verbose=0)
     # source: reference library run (PySCF MP2, lowest orbital frozen), same shells

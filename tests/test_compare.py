@@ -10,14 +10,14 @@ import pytest
 from conftest import assert_valid_png
 
 import hfcore
-from hfcore.analysis import (
-    KCAL_MOL_PER_HARTREE,
+from hfcore.studies import (
     ComparisonRow,
     basis_limit_estimates,
     compare_bases,
     project_density,
 )
 from hfcore.errors import InputError
+from hfcore.units import KCAL_MOL_PER_HARTREE
 from hfcore.plots import plot_comparison
 
 NESTED = ["6-31g*", "6-31g"]
@@ -26,7 +26,7 @@ NESTED = ["6-31g*", "6-31g"]
 @pytest.fixture(scope="module")
 def nested(hydrogen_fluoride_molecule):
     messages: list[str] = []
-    comparison = compare_bases(hydrogen_fluoride_molecule, NESTED, progress=messages.append)
+    comparison = compare_bases(hydrogen_fluoride_molecule, NESTED, message_progress=messages.append)
     return comparison, messages
 
 
@@ -105,7 +105,8 @@ def test_to_dict_has_stable_keys_and_is_json(nested):
         "delta_mEh",
         "delta_kcal_mol",
         "iterations",
-        "wall_time",
+        "wall_seconds",
+        "wall_time",  # the deprecated key, kept for one release
         "converged",
         "guess",
         "stable",

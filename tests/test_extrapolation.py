@@ -7,7 +7,7 @@ import math
 import numpy as np
 import pytest
 
-from hfcore.analysis.extrapolation import (
+from hfcore.studies.extrapolation import (
     cardinal_number,
     correlation_consistent,
     feller_three_point,

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import io
 import json
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -22,7 +21,7 @@ from hfcore.integrals.three_center import three_center_integrals, two_center_int
 from hfcore.scf import SCFOptions, run_rhf
 from hfcore.scf.fitted_jk import MetricFactor, plan_fitting
 
-INPUTS = Path(__file__).resolve().parents[1] / "inputs"
+from conftest import INPUTS
 TIGHT = {"energy_tol": 1e-11, "gradient_tol": 1e-8}
 
 
@@ -206,8 +205,11 @@ def test_cli_fit_basis_reports_the_fitting_set_and_json_keys(tmp_path):
     assert code == 0
     record = json.loads(out)
     assert record["scf"]["jk_mode"] == "fitted"
-    assert record["basis"]["fit_name"] == "cc-pVTZ-JKFIT"
-    assert record["basis"]["fit_n_functions"] == build_basis(read_xyz(INPUTS / "water.xyz"), "cc-pvtz-jkfit").n_functions
+    assert record["basis"]["fit_basis_name"] == "cc-pVTZ-JKFIT"
+    assert record["basis"]["fit_basis_n_functions"] == build_basis(read_xyz(INPUTS / "water.xyz"), "cc-pvtz-jkfit").n_functions
+    # the deprecated keys, kept for one release, say the same
+    assert (record["basis"]["fit_name"], record["basis"]["fit_n_functions"]) == (
+        record["basis"]["fit_basis_name"], record["basis"]["fit_basis_n_functions"])
     code, out, _ = _run("energy", str(INPUTS / "water.xyz"), "--basis", "cc-pvdz", "--fit-basis", "auto", "--quiet")
     assert code == 0 and "fitting set    cc-pVTZ-JKFIT" in out
 

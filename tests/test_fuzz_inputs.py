@@ -81,8 +81,8 @@ def strict(seconds: int = 10):
 
 def assert_well_formed(mol: Molecule) -> None:
     """What every accepted geometry must satisfy (the reader's stated rules)."""
-    assert mol.natom >= 1
-    assert mol.coordinates.shape == (mol.natom, 3)
+    assert mol.n_atoms >= 1
+    assert mol.coordinates.shape == (mol.n_atoms, 3)
     assert np.all(np.isfinite(mol.coordinates))
     assert np.all(np.abs(mol.coordinates_angstrom()) <= MAX_COORDINATE_ANGSTROM * (1 + 1e-12))
     assert np.all((mol.atomic_numbers >= 1) & (mol.atomic_numbers <= 36))

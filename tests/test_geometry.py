@@ -6,6 +6,7 @@ import re
 
 import numpy as np
 import pytest
+from conftest import INPUTS
 
 from hfcore.errors import InputError
 from hfcore.geometry import ANGSTROM_IN_BOHR, BOHR_IN_ANGSTROM, Molecule, parse_xyz, read_xyz
@@ -81,7 +82,7 @@ def test_symbols_in_any_case_and_atomic_numbers_are_accepted(tmp_path):
 
 def test_extra_columns_and_trailing_blank_lines_are_allowed(tmp_path):
     mol = read_xyz(write(tmp_path, "2\n\nH 0 0 0 0.1 extra\nH 0 0 0.74\n\n\n"))
-    assert mol.natom == 2
+    assert mol.n_atoms == 2
 
 
 def test_fortran_exponent_letters_are_read(tmp_path):
@@ -93,7 +94,7 @@ def test_byte_order_mark_and_windows_line_ends_are_accepted(tmp_path):
     path = tmp_path / "mol.xyz"
     path.write_bytes(b"\xef\xbb\xbf2\r\nH2\r\nH 0 0 0\r\nH 0 0 0.74\r\n")
     mol = read_xyz(path)
-    assert mol.natom == 2 and mol.comment == "H2"
+    assert mol.n_atoms == 2 and mol.comment == "H2"
 
 
 def test_charge_changes_electron_count_only(tmp_path):
@@ -125,10 +126,7 @@ def test_molecule_arrays_are_read_only(tmp_path):
 
 
 def test_shipped_demo_inputs_parse(tmp_path):
-    from pathlib import Path
-
-    inputs = Path(__file__).resolve().parent.parent / "inputs"
-    files = sorted(inputs.glob("*.xyz"))
+    files = sorted(INPUTS.glob("*.xyz"))
     assert len(files) >= 20
     for path in files:
         charge = {"ammonium.xyz": 1, "hydroxide.xyz": -1}.get(path.name, 0)

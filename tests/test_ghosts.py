@@ -83,7 +83,7 @@ def test_parse_atom_ranges():
 
 
 def test_energy_atoms_option_runs_one_fragment_as_interaction_does():
-    from hfcore.analysis.interaction import interaction_energies
+    from hfcore.studies.interaction import interaction_energies
 
     code, out, err = run_main("energy", str(DIMER), "--basis", "sto-3g", "--atoms", "4-6", "--json", "-")
     assert code == 0, err

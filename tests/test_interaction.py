@@ -9,8 +9,8 @@ from conftest import INPUTS, assert_valid_png, run_main
 from reference import family_shells, reference_energy, reference_mole
 
 import hfcore
-from hfcore.analysis.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
-from hfcore.analysis.interaction import check_fragments, interaction_energies, interaction_pieces
+from hfcore.units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from hfcore.studies.interaction import check_fragments, interaction_energies, interaction_pieces
 from hfcore.cli_differences import parse_fragments
 from hfcore.errors import InputError
 
@@ -73,12 +73,12 @@ def test_reusing_the_complex_integrals_changes_no_energy(dimer, study):
 
 
 def test_pieces_are_explicit_data(dimer):
-    pieces = interaction_pieces(dimer.natom, FRAGMENTS, ["sto-3g"], [0, 0])
+    pieces = interaction_pieces(dimer.n_atoms, FRAGMENTS, ["sto-3g"], [0, 0])
     assert [(p.kind, p.fragment) for p in pieces] == [
         ("complex", None), ("own basis", 0), ("own basis", 1), ("full basis", 0), ("full basis", 1)
     ]
     assert pieces[3].ghosts == (3, 4, 5) and pieces[3].atoms == (0, 1, 2)
-    assert pieces[2].molecule(dimer).natom == 3 and pieces[2].molecule(dimer).source == dimer.source
+    assert pieces[2].molecule(dimer).n_atoms == 3 and pieces[2].molecule(dimer).source == dimer.source
 
 
 @pytest.mark.parametrize(
@@ -134,7 +134,7 @@ def test_interaction_command_errors_are_one_line_before_any_run(extra, fragment)
 
 
 def test_raw_interaction_energy_equals_the_dimerisation_energy(study, monkeypatch):
-    from hfcore.analysis.reactions import reaction_energies
+    from hfcore.studies.reaction import reaction_energies
 
     monkeypatch.chdir(INPUTS)
     dimerisation = reaction_energies("2 water.xyz -> water_dimer.xyz", BASES[:2])

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import io
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -11,7 +10,7 @@ import pytest
 import hfcore
 from hfcore.cli import main
 
-INPUTS = Path(__file__).resolve().parent.parent / "inputs"
+from conftest import INPUTS
 
 
 def test_arrays_written_by_the_command_line_reproduce_the_energy(tmp_path):

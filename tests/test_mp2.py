@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import io
 import json
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -18,7 +17,7 @@ from hfcore.integrals import compute_eri
 from pyscf import mp
 from reference import family_shells, reference_mole, reference_rhf
 
-INPUTS = Path(__file__).resolve().parent.parent / "inputs"
+from conftest import INPUTS
 TIGHT = dict(energy_tol=1e-12, gradient_tol=1e-9)
 REFERENCE_TIGHT = dict(conv_tol=1e-12, conv_tol_grad=1e-9)
 
@@ -70,7 +69,7 @@ def test_scs_mp2_is_built_from_the_reference_spin_parts(pair):
 
 
 @pytest.fixture(scope="module")
-def water():
+def water_631gs():
     mol = hfcore.read_xyz(INPUTS / "water.xyz")
     return hfcore.run_rhf(mol, hfcore.build_basis(mol, "6-31g*"), hfcore.SCFOptions(**TIGHT))
 
@@ -85,19 +84,19 @@ def _dense_mp2(result) -> float:
     return float(np.sum(ovov * (2 * ovov - ovov.transpose(0, 3, 2, 1)) / d))
 
 
-def test_occupied_blocks_of_one_orbital_give_the_dense_answer(water):
+def test_occupied_blocks_of_one_orbital_give_the_dense_answer(water_631gs):
     # source: exact property — the blocking only reorders the sums; compared with a dense einsum transformation
-    assert mp2_energy(water, memory_bytes=1).correlation == pytest.approx(_dense_mp2(water), abs=1e-10)
+    assert mp2_energy(water_631gs, memory_bytes=1).correlation == pytest.approx(_dense_mp2(water_631gs), abs=1e-10)
 
 
-def test_a_given_store_of_another_basis_is_refused(water):
-    small = hfcore.run_rhf(water.molecule, "sto-3g")
+def test_a_given_store_of_another_basis_is_refused(water_631gs):
+    small = hfcore.run_rhf(water_631gs.molecule, "sto-3g")
     with pytest.raises(hfcore.InputError, match="functions"):
-        mp2_energy(water, eri=compute_eri(small.basis))
+        mp2_energy(water_631gs, eri=compute_eri(small.basis))
 
 
-def test_mp2_beyond_the_memory_limit_fails_before_computing(water):
-    tiny = hfcore.run_rhf(water.molecule, water.basis, hfcore.SCFOptions(memory_limit=0.01))
+def test_mp2_beyond_the_memory_limit_fails_before_computing(water_631gs):
+    tiny = hfcore.run_rhf(water_631gs.molecule, water_631gs.basis, hfcore.SCFOptions(memory_limit=0.01))
     with pytest.raises(ResourceError, match="MP2"):
         mp2_energy(tiny)
 
@@ -108,13 +107,13 @@ def _run(*argv: str) -> tuple[int, str, str]:
     return code, out.getvalue(), err.getvalue()
 
 
-def test_cli_mp2_json_keys_and_values(water):
+def test_cli_mp2_json_keys_and_values(water_631gs):
     code, out, err = _run("energy", str(INPUTS / "water.xyz"), "--basis", "6-31g*", "--mp2", "--frozen-core",
                           "--energy-tol", "1e-12", "--gradient-tol", "1e-9", "--json", "-")
     assert code == 0, err
     assert err == ""  # quiet in --json - mode
     record = json.loads(out)["mp2"]
-    direct = mp2_energy(water, frozen_core=1)
+    direct = mp2_energy(water_631gs, frozen_core=1)
     # source: exact property — the command line reports what the API computes for the same run
     assert record["correlation"] == pytest.approx(direct.correlation, abs=1e-9)
     assert record["frozen_core"] == 1

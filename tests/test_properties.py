@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import io
 import json
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -15,7 +14,7 @@ from hfcore.cli import main
 
 from reference import family_shells, reference_mole, reference_rhf
 
-INPUTS = Path(__file__).resolve().parent.parent / "inputs"
+from conftest import INPUTS
 TIGHT = dict(energy_tol=1e-12, gradient_tol=1e-9)
 
 

@@ -10,10 +10,10 @@ from pathlib import Path
 import pytest
 from conftest import INPUTS, assert_one_line_error, assert_valid_png, cli_result, run_main
 
-import hfcore.scf
-from hfcore.analysis.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
-from hfcore.analysis.extrapolation import karton_martin_two_point
-from hfcore.analysis.reactions import load_reactions, parse_reaction, reaction_energies, reaction_pieces
+import hfcore.studies.reaction
+from hfcore.units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from hfcore.studies.extrapolation import karton_martin_two_point
+from hfcore.studies.reaction import load_reactions, parse_reaction, reaction_energies, reaction_pieces
 
 HYDROGENATION = "formaldehyde.xyz + hydrogen.xyz -> methanol.xyz"
 DIMERISATION = "2 water.xyz -> water_dimer.xyz"
@@ -49,7 +49,7 @@ def test_bad_equation_is_one_line_exit_2_before_any_run(in_inputs, monkeypatch, 
     def no_scf(*args, **kwargs):  # the check must come before the first SCF run
         raise AssertionError("an SCF ran before the equation was checked")
 
-    monkeypatch.setattr(hfcore.scf, "run_rhf", no_scf)
+    monkeypatch.setattr(hfcore.studies.reaction, "run_rhf", no_scf)  # where the study's runner finds it
     code, out, err = run_main("reaction", spec, "--basis", "sto-3g")
     assert code == 2 and out == ""
     assert err.count("\n") == 1 and err.startswith("hfcore: error: ") and fragment in err
@@ -114,7 +114,7 @@ def test_reaction_plot_and_report(in_inputs, tmp_path):
 
 
 def test_three_point_estimate_and_spread(tmp_path, monkeypatch):
-    from hfcore.analysis.extrapolation import feller_three_point
+    from hfcore.studies.extrapolation import feller_three_point
 
     monkeypatch.chdir(tmp_path)
     Path("h2_long.xyz").write_text("2\nstretched hydrogen\nH 0 0 0\nH 0 0 0.9\n")

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import io
 import json
-from pathlib import Path
 
 import pytest
 from pyscf import mp
@@ -14,7 +13,7 @@ import hfcore
 from hfcore.analysis import core_orbital_count, mp2_energy
 from hfcore.cli import main
 
-INPUTS = Path(__file__).resolve().parent.parent / "inputs"
+from conftest import INPUTS
 TIGHT = dict(energy_tol=1e-12, gradient_tol=1e-9)
 REFERENCE_TIGHT = dict(conv_tol=1e-12, conv_tol_grad=1e-9)
 CASES = [("water", "cc-pvdz", "cc-pvdz-rifit"), ("ammonia", "def2-svp", "def2-svp-rifit")]
@@ -40,8 +39,8 @@ def test_fitted_mp2_matches_reference_library(pair, frozen):
     assert mine.correlation == pytest.approx(theirs.e_corr, abs=1e-8)
     assert mine.opposite_spin == pytest.approx(theirs.e_corr_os, abs=1e-8)
     assert mine.same_spin == pytest.approx(theirs.e_corr_ss, abs=1e-8)
-    assert mine.fit_name.lower() == fitting
-    assert mine.fit_n_functions == aux.nao_nr()
+    assert mine.fit_basis_name.lower() == fitting
+    assert mine.fit_basis_n_functions == aux.nao_nr()
 
 
 def test_fitted_mp2_is_close_to_exact_mp2_on_water():
@@ -51,8 +50,8 @@ def test_fitted_mp2_is_close_to_exact_mp2_on_water():
     fitted = mp2_energy(result, fit_basis="auto")
     # source: common practice (RI error of the matched cc-pVXZ-RI set, well below 1e-4 Eh for a small molecule)
     assert abs(fitted.correlation - exact.correlation) < 1e-4
-    assert fitted.fit_name == "cc-pVTZ-RIFIT"
-    assert exact.fit_name is None
+    assert fitted.fit_basis_name == "cc-pVTZ-RIFIT"
+    assert exact.fit_basis_name is None
 
 
 def _run(argv):
@@ -70,9 +69,9 @@ def test_cli_fitted_mp2_json_keys(tmp_path):
                          "--mp2-fit-basis", "auto", "--json", str(out), "--quiet"])
     assert code == 0, err
     record = json.loads(out.read_text())["mp2"]
-    assert record["fit_name"] == "cc-pVDZ-RIFIT"
+    assert record["fit_basis_name"] == "cc-pVDZ-RIFIT"
     # source: exact property (the command line and the API run the same SCF and fitted MP2)
-    assert record["fit_n_functions"] == api.fit_n_functions
+    assert record["fit_basis_n_functions"] == api.fit_basis_n_functions
     assert record["correlation"] == pytest.approx(api.correlation, abs=1e-8)
     assert record["frozen_core"] == 1
 

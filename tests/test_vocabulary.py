@@ -5,7 +5,6 @@ from __future__ import annotations
 import dataclasses
 import io
 import json
-from pathlib import Path
 
 import pytest
 
@@ -13,7 +12,7 @@ from hfcore.cli import main
 from hfcore.errors import InputError
 from hfcore.scf import SCFOptions
 
-INPUTS = Path(__file__).resolve().parent.parent / "inputs"
+from conftest import INPUTS
 
 
 def test_diis_space_keyword_sets_max_diis_size_with_a_warning():
@@ -82,26 +81,51 @@ def test_eri_bytes_is_the_old_name_of_eri_memory_bytes():
         type(plan)(mode="stored", eri_bytes=1, eri_memory_bytes=1, limit_bytes=2)
 
 
-def test_rhf_result_becomes_a_dict_the_way_the_json_export_writes_it():
+def test_rhf_result_becomes_a_dict_the_way_the_json_export_writes_it(water_molecule):
+    import numpy as np
+
     import hfcore
+    from hfcore import export, integrals
+    from hfcore.scf import solve_rhf
 
     out = io.StringIO()
     assert main(["energy", str(INPUTS / "water.xyz"), "--json", "-"], stdout=out, stderr=io.StringIO()) == 0
     from_cli = json.loads(out.getvalue())
-    record = hfcore.run_rhf(hfcore.read_xyz(INPUTS / "water.xyz")).to_dict()
-    assert set(from_cli) - {"analysis"} == set(record)
+    result = hfcore.run_rhf(water_molecule)
+    record = json.loads(export.to_json(result.to_dict({"note": "extra"})))
+    assert set(from_cli) == set(record) and record["analysis"] == {"note": "extra"}
+    assert "analysis" not in result.to_dict()
     # source: exact property — determinism: the same input gives the same digits
-    assert record["energy"]["total"] == from_cli["energy"]["total"]
+    assert record["energy"]["total"] == from_cli["energy"]["total"] == result.energy_total
+    # the record holds the result's own numbers, in bohr and hartree
+    np.testing.assert_array_equal(record["molecule"]["coordinates_bohr"], water_molecule.coordinates)
+    np.testing.assert_array_equal(record["orbitals"]["energies"], result.orbital_energies)
+    assert record["orbitals"]["homo"] == result.homo == 4 and record["molecule"]["n_electrons"] == 10
+    assert record["basis"]["n_functions"] == result.basis.n_functions == 7
+    assert [h["energy"] for h in record["scf"]["history"]] == [h.energy for h in result.history]
+    assert record["scf"]["stability"]["stable"] is True and record["hfcore"]["version"] == hfcore.__version__
+    # a run on bare matrices has no molecule or basis to describe
+    basis = result.basis
+    bare = solve_rhf(result.overlap, result.core_hamiltonian, integrals.compute_eri(basis), 10,
+                     result.energy_nuclear)
+    with pytest.raises(InputError, match="carries its molecule and basis"):
+        bare.to_dict()
 
 
-def test_the_two_guess_lists_have_their_own_names():
-    from hfcore.analysis import compare
-    from hfcore.analysis.compare import COMPARISON_GUESSES
-    from hfcore.scf import GUESSES as SCF_GUESSES
+def test_the_two_guess_lists_have_their_own_names(water_molecule):
+    import hfcore
+    from hfcore.studies import compare
+    from hfcore.studies.compare import COMPARISON_GUESSES
 
     with pytest.warns(DeprecationWarning, match="compare.GUESSES is deprecated; use COMPARISON_GUESSES"):
-        assert compare.GUESSES is COMPARISON_GUESSES
-    assert "projected" in COMPARISON_GUESSES and "projected" not in SCF_GUESSES
+        assert compare.GUESSES == COMPARISON_GUESSES
+    # a projected start belongs to a comparison (from the previous basis), not to one SCF run
+    with pytest.raises(InputError, match="unknown SCF guess 'projected'"):
+        hfcore.run_rhf(water_molecule, "sto-3g", guess="projected")
+    rows = hfcore.compare_bases(water_molecule, ["sto-3g", "6-31g"], guess="projected").rows
+    assert [r.guess for r in rows] == ["sad", "projected from sto-3g"]
+    with pytest.raises(InputError, match="unknown guess 'core' for a basis comparison"):
+        hfcore.compare_bases(water_molecule, ["sto-3g"], guess="core")
 
 
 def test_mp2_totals_are_energy_totals_and_the_old_names_warn():
@@ -130,14 +154,53 @@ def test_diis_space_keyword_and_attribute_are_the_old_max_size():
         assert diis.space == 3
 
 
-def test_every_accelerator_name_is_in_the_one_table():
-    from hfcore.scf import SCFOptions, accelerators, options, solver
+#: Water in STO-3G at commit 98172fa (hfcore's own earlier value, tests/test_energies_frozen.py).
+WATER_STO3G = -74.96304857620731
 
-    assert options.ACCELERATOR_NAMES is accelerators.ACCELERATOR_NAMES
-    assert solver.AID_STAGES is accelerators.AID_STAGES
-    assert set(accelerators.ACCELERATOR_NAMES) | set(accelerators.AID_STAGES) == set(accelerators.ACCELERATORS)
-    for name in accelerators.ACCELERATORS:
-        assert isinstance(accelerators.build_accelerator(SCFOptions(), name), accelerators.Chain)
+
+@pytest.mark.parametrize("name", ["diis", "damping", "second_order", "none", "diis+level_shift",
+                                  "damping+level_shift"])
+def test_every_name_in_the_accelerator_table_converges_water_to_one_energy(name, water_molecule):
+    import hfcore
+    from hfcore import integrals
+    from hfcore.scf import accelerators, sad_density, solve_rhf
+
+    assert name in accelerators.ACCELERATORS
+    basis = hfcore.build_basis(water_molecule, "sto-3g")
+    s = integrals.overlap(basis)
+    h = integrals.kinetic(basis) + integrals.nuclear_attraction(basis, water_molecule.atomic_numbers,
+                                                                 water_molecule.coordinates)
+    options = SCFOptions(auto_aids=False, max_iterations=300, stability="off")
+    accelerator = accelerators.build_accelerator(SCFOptions(damping=0.3), name)
+    result = solve_rhf(s, h, integrals.compute_eri(basis), water_molecule.n_electrons,
+                       water_molecule.nuclear_repulsion(), options, sad_density(basis, water_molecule.atomic_numbers),
+                       accelerator=accelerator)
+    # source: hfcore's own earlier value (regression guard): every method reaches the same solution
+    assert result.energy_total == pytest.approx(WATER_STO3G, abs=1e-9)
+
+
+def test_options_accept_exactly_the_chosen_names_of_the_table():
+    from hfcore.scf import accelerators
+
+    for name in accelerators.ACCELERATOR_NAMES:
+        damping = 0.5 if name == "damping" else 0.0
+        assert SCFOptions(accelerator=name, damping=damping).accelerator == name
+    for name in set(accelerators.ACCELERATORS) - set(accelerators.ACCELERATOR_NAMES):
+        with pytest.raises(InputError, match="accelerator"):
+            SCFOptions(accelerator=name)
+
+
+def test_second_order_steps_are_an_accelerator_that_moves_the_orbitals_itself(water_molecule):
+    import hfcore
+    from hfcore.scf import SecondOrder
+
+    with pytest.raises(NotImplementedError, match="next_density"):
+        SecondOrder().next_fock(None)
+    result = hfcore.run_rhf(water_molecule, "sto-3g", SCFOptions(accelerator="second_order"))
+    assert {h.aid for h in result.history[:-1]} == {"second_order"}
+    assert all(h.diis_size == 0 for h in result.history)
+    # source: hfcore's own earlier value (regression guard)
+    assert result.energy_total == pytest.approx(WATER_STO3G, abs=1e-9)
 
 
 @pytest.mark.parametrize("count, closed", [(2, True), (10, True), (2.0, True), (0, False), (-2, False), (3, False),

@@ -1,26 +1,14 @@
-"""Post-SCF analysis: populations, multipoles, orbital properties, MP2 and
-SCS-MP2, basis-limit extrapolation, and drivers over several RHF runs: basis
-comparison, interaction and reaction energies.
+"""Post-SCF analysis of one finished RHF run: populations, multipoles, orbital properties, MP2 and SCS-MP2.
 
-Everything here except the drivers (:func:`compare_bases`,
-:func:`interaction_energies`, :func:`reaction_energies`) works on a
-finished :class:`hfcore.scf.RHFResult` and never runs the SCF itself.
+Everything here works on a finished :class:`hfcore.scf.RHFResult` and never
+runs the SCF itself. The studies over several runs (basis comparison,
+reaction and interaction energies) and basis-limit extrapolation are in
+:mod:`hfcore.studies`; their old names here still work for one release,
+with a DeprecationWarning.
 """
 
 from __future__ import annotations
 
-from .compare import (
-    KCAL_MOL_PER_HARTREE,
-    BasisComparison,
-    BasisLimitEstimate,
-    ComparisonRow,
-    basis_limit_estimates,
-    compare_bases,
-    project_density,
-)
-from .interaction import InteractionStudy, interaction_energies
-from .reactions import ReactionStudy, reaction_energies
-from .extrapolation import cardinal_number, correlation_consistent, feller_three_point, karton_martin_two_point
 from .mp2 import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, MP2Result, core_orbital_count, mp2_energy
 from .multipoles import (
     DEBYE_ANGSTROM_PER_AU,
@@ -31,8 +19,30 @@ from .multipoles import (
     quadrupole_moment,
     second_moment,
 )
+from ..units import KCAL_MOL_PER_HARTREE
 from .properties import OrbitalProperties, orbital_properties
 from .populations import lowdin_charges, lowdin_populations, mulliken_charges, mulliken_populations
+
+#: Names that moved to :mod:`hfcore.studies` (served from there with a warning, for one release).
+_MOVED_TO_STUDIES = frozenset({
+    "compare_bases", "BasisComparison", "BasisLimitEstimate", "ComparisonRow", "basis_limit_estimates",
+    "project_density", "interaction_energies", "InteractionStudy", "reaction_energies", "ReactionStudy",
+    "cardinal_number", "correlation_consistent", "feller_three_point", "karton_martin_two_point",
+})
+
+
+def __getattr__(name: str):
+    if name in _MOVED_TO_STUDIES:
+        import importlib
+        import warnings
+
+        # Looked up by name at run time: the engine does not import the studies above it.
+        studies = importlib.import_module("hfcore.studies")
+        warnings.warn(f"hfcore.analysis.{name} is deprecated; use hfcore.studies.{name}", DeprecationWarning,
+                      stacklevel=2)
+        return getattr(studies, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
 
 __all__ = [
     "mulliken_populations",
@@ -53,19 +63,5 @@ __all__ = [
     "MP2Result",
     "mp2_energy",
     "core_orbital_count",
-    "cardinal_number",
-    "correlation_consistent",
-    "karton_martin_two_point",
-    "feller_three_point",
     "KCAL_MOL_PER_HARTREE",
-    "ComparisonRow",
-    "BasisLimitEstimate",
-    "BasisComparison",
-    "compare_bases",
-    "project_density",
-    "basis_limit_estimates",
-    "InteractionStudy",
-    "interaction_energies",
-    "ReactionStudy",
-    "reaction_energies",
 ]

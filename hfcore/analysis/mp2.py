@@ -24,15 +24,15 @@ numbers, chosen to fit ``memory_bytes``; nothing of size nbf⁴ is formed.
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
 
-from .._deprecation import rename_fields
+from .._deprecation import rename_keywords
 from .._memory import allocate, run_budget
-from ..errors import ConvergenceError, InputError, ResourceError
-from ._checks import require_placed
+from ..errors import InputError, ResourceError
+from .mp2_terms import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, MP2Result, _pair_map, assemble, orbital_spaces, pair_sums
+from .ri_mp2 import ri_mp2_energy
 
 if TYPE_CHECKING:
     from ..basis.family import BasisFamily
@@ -45,86 +45,8 @@ if TYPE_CHECKING:
 # the noble-gas core of the previous row): (highest Z of the row, core count).
 _CORE_BY_ROW = ((2, 0), (10, 1), (18, 5), (36, 9), (54, 18), (86, 27))
 
-#: Weights of the opposite-spin and same-spin parts in SCS-MP2
-#: (S. Grimme, J. Chem. Phys. 118, 9095 (2003)).
-SCS_OPPOSITE_SPIN: float = 6.0 / 5.0
-SCS_SAME_SPIN: float = 1.0 / 3.0
-
 #: Smallest work-array budget (bytes) when none is given.
 _MIN_WORK_BYTES = 32 << 20
-
-
-@dataclass(frozen=True)
-class MP2Result:
-    """The MP2 energy of a closed-shell molecule.
-
-    Attributes
-    ----------
-    correlation : float
-        E(2), the second-order correlation energy in hartree (negative).
-    energy_total : float
-        RHF total energy plus E(2), in hartree (``total`` is its deprecated
-        name).
-    reference : float
-        The RHF total energy the correction was added to, in hartree.
-    same_spin : float
-        Same-spin part of E(2) in hartree.
-    opposite_spin : float
-        Opposite-spin part of E(2) in hartree.
-    frozen_core : int
-        Number of lowest occupied orbitals left out of the correlation.
-    n_active_occupied : int
-        Correlated occupied orbitals.
-    n_virtual : int
-        Virtual orbitals.
-    scs_correlation : float
-        Spin-component-scaled correlation energy, 6/5 of the opposite-spin
-        plus 1/3 of the same-spin part (hartree).
-    scs_energy_total : float
-        RHF total energy plus ``scs_correlation`` (hartree; ``scs_total`` is
-        its deprecated name).
-    fit_name : str or None
-        The fitting set of density-fitted MP2 (None: exact integrals).
-    fit_n_functions : int or None
-        Functions of that fitting set on the molecule (None: exact integrals).
-    """
-
-    correlation: float
-    energy_total: float
-    reference: float
-    same_spin: float
-    opposite_spin: float
-    frozen_core: int
-    n_active_occupied: int
-    n_virtual: int
-    scs_correlation: float = 0.0
-    scs_energy_total: float = 0.0
-    fit_name: str | None = None
-    fit_n_functions: int | None = None
-
-    def to_dict(self) -> dict[str, float | int]:
-        """The record as plain numbers (hartree), for JSON.
-
-        Inside the ``mp2`` object the totals keep their short keys
-        ``total`` and ``scs_total``, as ``energy.total`` does.
-        """
-        return {
-            "correlation": self.correlation,
-            "total": self.energy_total,
-            "reference": self.reference,
-            "same_spin": self.same_spin,
-            "opposite_spin": self.opposite_spin,
-            "scs_correlation": self.scs_correlation,
-            "scs_total": self.scs_energy_total,
-            "frozen_core": self.frozen_core,
-            "n_active_occupied": self.n_active_occupied,
-            "n_virtual": self.n_virtual,
-            "fit_name": self.fit_name,
-            "fit_n_functions": self.fit_n_functions,
-        }
-
-
-rename_fields(MP2Result, {"total": "energy_total", "scs_total": "scs_energy_total"})
 
 
 def core_orbital_count(molecule: Molecule) -> int:
@@ -160,13 +82,6 @@ def _store_columns(packed: np.ndarray, tri: np.ndarray, pairs: np.ndarray, out: 
         row[p + 1 :] = packed[tri[p + 1 :] + p]
 
 
-def _pair_map(nbf: int) -> np.ndarray:
-    """Packed pair index of every (λ, σ), shape (nbf, nbf)."""
-    i = np.arange(nbf)
-    hi, lo = np.maximum(i[:, None], i[None, :]), np.minimum(i[:, None], i[None, :])
-    return hi * (hi + 1) // 2 + lo
-
-
 def _first_quarter(packed: np.ndarray, c_block: np.ndarray) -> np.ndarray:
     """(iν|κ) = Σ_μ C_μi (μν|κ) for the occupied orbitals of ``c_block`` (nbf, n_block).
 
@@ -195,90 +110,6 @@ def _ovov_row(half_i: np.ndarray, c_occ: np.ndarray, c_vir: np.ndarray, a_step: 
         ia_ls = ia_pair[a0 : a0 + a_step][:, pairs]  # (a, λ, σ)
         out[a0 : a0 + a_step] = np.matmul(np.matmul(c_occ.T, ia_ls), c_vir)
     return out
-
-
-def pair_sums(iajb: np.ndarray, e_i: float, e_occ: np.ndarray, e_vir: np.ndarray) -> tuple[float, float]:
-    """One occupied orbital's share of Σ (ia|jb)² / Δ and Σ (ia|jb)(ib|ja) / Δ (hartree).
-
-    Parameters
-    ----------
-    iajb : ndarray, shape (n_vir, n_occ, n_vir)
-        (ia|jb) for this i, indexed [a, j, b].
-    e_i : float
-        Orbital energy of i (hartree).
-    e_occ, e_vir : ndarray, shape (n_occ,) and (n_vir,)
-        Active occupied and virtual orbital energies (hartree).
-    """
-    denominator = e_i + e_occ[None, :, None] - e_vir[:, None, None] - e_vir[None, None, :]
-    amplitudes = iajb / denominator
-    return float(np.einsum("ajb,ajb->", amplitudes, iajb)), float(np.einsum("ajb,bja->", amplitudes, iajb))
-
-
-def orbital_spaces(result: RHFResult, frozen_core: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Active occupied and virtual coefficients and energies, after the checks every MP2 needs.
-
-    Returns
-    -------
-    c_occ : ndarray, shape (nbf, n_active)
-    c_vir : ndarray, shape (nbf, n_vir)
-    e_occ : ndarray, shape (n_active,)
-    e_vir : ndarray, shape (n_vir,)
-
-    Raises
-    ------
-    ConvergenceError, InputError
-        As :func:`mp2_energy`.
-    """
-    require_placed(result, "MP2")
-    if not result.converged:
-        raise ConvergenceError("MP2 needs a converged RHF result; this one did not converge", result)
-    occupations = np.asarray(result.occupations)
-    occupied = np.flatnonzero(occupations > 0.0)
-    virtual = np.flatnonzero(occupations == 0.0)
-    if not 0 <= frozen_core < occupied.size:
-        raise InputError(f"frozen_core = {frozen_core} must be between 0 and {occupied.size - 1} (occupied orbitals - 1)")
-    if virtual.size == 0:
-        raise InputError("the basis has no virtual orbitals, so MP2 has nothing to correlate into")
-    active = occupied[frozen_core:]
-    coefficients = np.asarray(result.coefficients, dtype=np.float64)
-    energies = np.asarray(result.orbital_energies, dtype=np.float64)
-    return (
-        np.ascontiguousarray(coefficients[:, active]),
-        np.ascontiguousarray(coefficients[:, virtual]),
-        energies[active],
-        energies[virtual],
-    )
-
-
-def assemble(
-    result: RHFResult,
-    frozen_core: int,
-    n_active: int,
-    n_virtual: int,
-    opposite: float,
-    exchange: float,
-    fit_name: str | None = None,
-    fit_n_functions: int | None = None,
-) -> MP2Result:
-    """The MP2 record from Σ (ia|jb)² / Δ (``opposite``) and Σ (ia|jb)(ib|ja) / Δ (``exchange``), hartree."""
-    same = opposite - exchange
-    correlation = opposite + same
-    scs = SCS_OPPOSITE_SPIN * opposite + SCS_SAME_SPIN * same
-    reference = float(result.energy_total)
-    return MP2Result(
-        correlation=correlation,
-        energy_total=reference + correlation,
-        reference=reference,
-        same_spin=same,
-        opposite_spin=opposite,
-        frozen_core=frozen_core,
-        n_active_occupied=int(n_active),
-        n_virtual=int(n_virtual),
-        scs_correlation=scs,
-        scs_energy_total=reference + scs,
-        fit_name=fit_name,
-        fit_n_functions=fit_n_functions,
-    )
 
 
 def _opposite_and_exchange(
@@ -310,13 +141,14 @@ def _opposite_and_exchange(
     return opposite, exchange
 
 
+@rename_keywords({"progress": "fraction_progress"})
 def mp2_energy(
     result: RHFResult,
     *,
     frozen_core: int = 0,
     eri: ERIStore | None = None,
     memory_bytes: int | None = None,
-    progress: Callable[[float], None] | None = None,
+    fraction_progress: Callable[[float], None] | None = None,
     fit_basis: str | BasisFamily | BasisSet | None = None,
 ) -> MP2Result:
     """Canonical closed-shell MP2 and SCS-MP2 energies from a converged RHF run.
@@ -341,7 +173,7 @@ def mp2_energy(
         peak stays within 1.5 times the SCF's, which held at least the
         store). At least one occupied orbital is done at a time, whatever
         the budget.
-    progress : callable, optional
+    fraction_progress : callable, optional
         Called with the fraction (0..1] of the work done: the integral pass
         (when the store is computed here) as the first half, then each
         occupied orbital.
@@ -370,9 +202,8 @@ def mp2_energy(
 
     frozen_core = int(frozen_core)
     if fit_basis is not None:
-        from .ri_mp2 import ri_mp2_energy
-
-        return ri_mp2_energy(result, fit_basis, frozen_core=frozen_core, memory_bytes=memory_bytes, progress=progress)
+        return ri_mp2_energy(result, fit_basis, frozen_core=frozen_core, memory_bytes=memory_bytes,
+                             fraction_progress=fraction_progress)
     c_occ, c_vir, e_occ, e_vir = orbital_spaces(result, frozen_core)
     nbf = result.basis.n_functions
     if eri is None:
@@ -383,7 +214,7 @@ def mp2_energy(
                 f"MP2 reads the stored integrals, {need / 2**20:.3g} MiB for {nbf} functions, but "
                 f"{limit / 2**20:.3g} MiB are allowed (--memory MIB, memory_limit)"
             )
-        report = None if progress is None else (lambda fraction: progress(0.5 * fraction))
+        report = None if fraction_progress is None else (lambda fraction: fraction_progress(0.5 * fraction))
         eri = compute_eri(
             result.basis, threshold=result.options.screening, progress=report, threads=result.options.n_threads, lean=True
         )
@@ -393,7 +224,7 @@ def mp2_energy(
     if eri.n_functions != nbf:
         raise InputError(f"the integral store has {eri.n_functions} functions but the basis has {nbf}")
     budget = max(_MIN_WORK_BYTES, eri.packed.nbytes // 2) if memory_bytes is None else int(memory_bytes)
-    done = None if progress is None else (lambda fraction: progress(start + (1.0 - start) * fraction))
+    done = None if fraction_progress is None else (lambda fraction: fraction_progress(start + (1.0 - start) * fraction))
     opposite, exchange = _opposite_and_exchange(eri.packed, c_occ, c_vir, e_occ, e_vir, budget, done)
     return assemble(result, frozen_core, c_occ.shape[1], c_vir.shape[1], opposite, exchange)
 

@@ -34,8 +34,8 @@ def _density_and_overlap(result: RHFResult) -> tuple[np.ndarray, np.ndarray]:
 def _atom_charges(result: RHFResult, populations: np.ndarray) -> np.ndarray:
     """Nuclear charge minus the electron population gathered on each atom."""
     atoms = result.basis.function_atoms()
-    natom = result.molecule.natom
-    electrons = np.bincount(atoms, weights=populations, minlength=natom)
+    n_atoms = result.molecule.n_atoms
+    electrons = np.bincount(atoms, weights=populations, minlength=n_atoms)
     return result.molecule.nuclear_charges - electrons
 
 
@@ -66,7 +66,7 @@ def mulliken_charges(result: RHFResult) -> np.ndarray:
 
     Returns
     -------
-    ndarray, shape (natom,)
+    ndarray, shape (n_atoms,)
         Z_A (0 for a ghost atom) minus the Mulliken population of A's
         functions, in units of e;
         the entries sum to the molecular charge.
@@ -109,7 +109,7 @@ def lowdin_charges(result: RHFResult) -> np.ndarray:
 
     Returns
     -------
-    ndarray, shape (natom,)
+    ndarray, shape (n_atoms,)
         Z_A minus the Löwdin population of A's functions, in units of e.
     """
     return _atom_charges(result, lowdin_populations(result))

@@ -10,9 +10,9 @@ with M_PQ = (P|Q) factored by :class:`~hfcore.scf.fitted_jk.MetricFactor`
 (Cholesky, or eigenvectors above its threshold when the metric is near
 singular). The three-centre integrals (P|μν) are computed a block of
 fitting functions at a time and transformed to (P|ia) at once, so the
-largest arrays are B (8 naux · o · v bytes) and one block; then (ia|jb) is
+largest arrays are B (8 n_fit · o · v bytes) and one block; then (ia|jb) is
 formed one occupied orbital i at a time (v · o · v numbers) and summed by
-the same pair sums and assembly as the exact MP2 (:mod:`.mp2`).
+the same pair sums and assembly as the exact MP2 (:mod:`.mp2_terms`).
 
 The fitting sets made for this are the cc-pVXZ-RI sets (F. Weigend,
 A. Köhn and C. Hättig, J. Chem. Phys. 116, 3175 (2002)) and the def2 RI
@@ -31,8 +31,9 @@ import numpy as np
 
 from .._memory import allocate, run_budget
 from ..basis.fitting import DEFAULT_RI, MATCHING_RI, FittingChoice, mp2_fitting_basis
+from .._deprecation import rename_keywords
 from ..errors import ResourceError
-from .mp2 import MP2Result, _pair_map, assemble, orbital_spaces, pair_sums
+from .mp2_terms import MP2Result, _pair_map, assemble, orbital_spaces, pair_sums
 
 if TYPE_CHECKING:
     from ..basis.family import BasisFamily
@@ -43,13 +44,14 @@ if TYPE_CHECKING:
 _BLOCK_BYTES = 32 << 20
 
 
+@rename_keywords({"progress": "fraction_progress"})
 def ri_mp2_energy(
     result: RHFResult,
     fit_basis: str | BasisFamily | BasisSet | FittingChoice,
     *,
     frozen_core: int = 0,
     memory_bytes: int | None = None,
-    progress: Callable[[float], None] | None = None,
+    fraction_progress: Callable[[float], None] | None = None,
 ) -> MP2Result:
     """Density-fitted MP2 and SCS-MP2 energies from a converged RHF run.
 
@@ -62,16 +64,16 @@ def ri_mp2_energy(
     frozen_core : int, optional
         Lowest occupied orbitals left uncorrelated.
     memory_bytes : int, optional
-        Budget for the fitted factors B (8 naux · o · v bytes) and one
+        Budget for the fitted factors B (8 n_fit · o · v bytes) and one
         integral block (default: the run's memory budget, ``result.memory_budget``).
-    progress : callable, optional
+    fraction_progress : callable, optional
         Called with the fraction (0..1] done: the three-centre pass as the
         first half, then each occupied orbital.
 
     Returns
     -------
     MP2Result
-        With ``fit_name`` and ``fit_n_functions`` set.
+        With ``fit_basis_name`` and ``fit_basis_n_functions`` set.
 
     Raises
     ------
@@ -88,37 +90,37 @@ def ri_mp2_energy(
     frozen_core = int(frozen_core)
     c_occ, c_vir, e_occ, e_vir = orbital_spaces(result, frozen_core)
     choice = fit_basis if isinstance(fit_basis, FittingChoice) else mp2_fitting_basis(result.molecule, result.basis, fit_basis)
-    aux = choice.basis
-    nbf, n_occ, n_vir, naux = c_occ.shape[0], c_occ.shape[1], c_vir.shape[1], aux.n_functions
-    block = int(max(1, min(naux, _BLOCK_BYTES // (16 * nbf * nbf))))
-    need = 8 * naux * n_occ * n_vir + 16 * block * nbf * nbf + 24 * naux * naux + 8 * n_vir * n_occ * n_vir
+    fit_set = choice.basis
+    nbf, n_occ, n_vir, n_fit = c_occ.shape[0], c_occ.shape[1], c_vir.shape[1], fit_set.n_functions
+    block = int(max(1, min(n_fit, _BLOCK_BYTES // (16 * nbf * nbf))))
+    need = 8 * n_fit * n_occ * n_vir + 16 * block * nbf * nbf + 24 * n_fit * n_fit + 8 * n_vir * n_occ * n_vir
     limit = run_budget(result).bytes if memory_bytes is None else int(memory_bytes)
     if need > limit:
         raise ResourceError(
-            f"density-fitted MP2 needs about {need / 2**20:.3g} MiB for {naux} fitting functions, but "
+            f"density-fitted MP2 needs about {need / 2**20:.3g} MiB for {n_fit} fitting functions, but "
             f"{limit / 2**20:.3g} MiB are allowed (--memory MIB, memory_limit)"
         )
-    engine = ThreeCenterEngine(result.basis, aux, threshold=result.options.screening)
+    engine = ThreeCenterEngine(result.basis, fit_set, threshold=result.options.screening)
     pairs = _pair_map(nbf)
-    factors = allocate("the density-fitted MP2 factors", (naux, n_occ, n_vir), zero=False)
+    factors = allocate("the density-fitted MP2 factors", (n_fit, n_occ, n_vir), zero=False)
     done = 0
     for index, values in engine.blocks(block):
         full = values[:, pairs]  # (nblock, nbf, nbf)
         factors[index] = np.matmul(np.matmul(c_occ.T, full), c_vir)
         done += index.size
-        if progress is not None:
-            progress(0.5 * done / naux)
-    metric = MetricFactor(two_center_integrals(aux))
-    flat = metric.whiten(factors.reshape(naux, n_occ * n_vir))  # (n_kept, o·v), in place
+        if fraction_progress is not None:
+            fraction_progress(0.5 * done / n_fit)
+    metric = MetricFactor(two_center_integrals(fit_set))
+    flat = metric.whiten(factors.reshape(n_fit, n_occ * n_vir))  # (n_kept, o·v), in place
     opposite = exchange = 0.0
     for i in range(n_occ):
         iajb = (flat[:, i * n_vir : (i + 1) * n_vir].T @ flat).reshape(n_vir, n_occ, n_vir)
         os_part, x_part = pair_sums(iajb, e_occ[i], e_occ, e_vir)
         opposite += os_part
         exchange += x_part
-        if progress is not None:
-            progress(0.5 + 0.5 * (i + 1) / n_occ)
-    return assemble(result, frozen_core, n_occ, n_vir, opposite, exchange, aux.name, naux)
+        if fraction_progress is not None:
+            fraction_progress(0.5 + 0.5 * (i + 1) / n_occ)
+    return assemble(result, frozen_core, n_occ, n_vir, opposite, exchange, fit_set.name, n_fit)
 
 
 __all__ = ["ri_mp2_energy", "mp2_fitting_basis", "MATCHING_RI", "DEFAULT_RI"]

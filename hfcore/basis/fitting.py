@@ -73,7 +73,7 @@ def fitting_basis(molecule: Molecule, orbital: BasisSet, choice: str | BasisFami
         (naming the element and the geometry line).
     """
     if isinstance(choice, BasisSet):
-        if {s.atom for s in choice.shells} != set(range(molecule.natom)):
+        if {s.atom for s in choice.shells} != set(range(molecule.n_atoms)):
             raise InputError("the fitting set given as a BasisSet must have functions on every atom of the molecule")
         return FittingChoice(choice)
     if isinstance(choice, str) and choice.strip().lower() == AUTO:

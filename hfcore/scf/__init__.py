@@ -7,8 +7,9 @@ Three lines::
     result.energy_total
 
 :func:`run_rhf` computes the integrals and a guess, then hands them to
-:func:`solve_rhf`, which iterates with a pluggable accelerator
-(:mod:`hfcore.scf.accelerators`, with automatic aids when it stalls),
+:func:`solve_rhf` (both in :mod:`hfcore.scf.driver`), which iterates
+with a pluggable accelerator (:mod:`hfcore.scf.solver`,
+:mod:`hfcore.scf.accelerators`, with automatic aids when it stalls), then
 analyses the stability of the converged solution and follows an
 instability to a lower one (:mod:`hfcore.scf.stability`,
 :mod:`hfcore.scf.following`), and returns an :class:`RHFResult`. The
@@ -17,15 +18,15 @@ layer never prints; pass ``progress`` to watch the iterations.
 
 from __future__ import annotations
 
-from .accelerators import DIIS, Accelerator, Chain, Damping, FockStep, LevelShift, build_accelerator
-from .driver import GUESSES, JKPlan, SharedIntegrals, plan_jk, prepare_integrals, run_rhf
+from .accelerators import DIIS, Accelerator, Chain, Damping, FockStep, LevelShift, SecondOrder, build_accelerator
+from .driver import GUESSES, JKPlan, SharedIntegrals, plan_jk, prepare_integrals, run_rhf, solve_rhf
 from .fitted_jk import FittedJK, FittingPlan, plan_fitting
 from .guess import sad_density
 from .jk import DenseJK, IncrementalJK, JKBuilder
 from .options import SCFOptions
 from .orthogonalise import Orthogonaliser
 from .result import RHFResult, SCFIteration
-from .solver import solve_rhf
+from .solver import IterationProgress
 from .stability import StabilityAnalysis, StabilityReport, analyse_stability, rotate_orbitals
 
 __all__ = [
@@ -51,6 +52,8 @@ __all__ = [
     "Damping",
     "LevelShift",
     "Chain",
+    "SecondOrder",
+    "IterationProgress",
     "build_accelerator",
     "JKBuilder",
     "DenseJK",

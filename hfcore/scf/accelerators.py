@@ -1,7 +1,8 @@
-"""Convergence accelerators: DIIS, Fock damping and level shifting.
+"""Convergence accelerators: DIIS, Fock damping, level shifting and second-order steps.
 
 Every accelerator meets one contract (see :class:`Accelerator`), so the
-driver treats them alike and runs them in a chain.
+solver treats them alike and runs them in a chain; :data:`ACCELERATORS` is
+the one registry of their names.
 """
 
 from __future__ import annotations
@@ -10,10 +11,13 @@ import warnings
 from abc import ABC, abstractmethod
 from collections import deque
 from collections.abc import Callable
-from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from dataclasses import dataclass, field, replace
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
+
+from .second_order import SecondOrderStep
+from .stability import plain_builder
 
 if TYPE_CHECKING:
     from .options import SCFOptions
@@ -35,29 +39,63 @@ class FockStep:
         orthonormal basis (antisymmetric).
     projector : ndarray, shape (nmo, nmo)
         Projector onto the currently occupied orbitals (half the density).
+    energy : float
+        Total energy of the current density (hartree; NaN if not given).
+    fock_ao, density_ao : ndarray, shape (nbf, nbf), optional
+        The current Fock matrix and total density in the atomic-orbital
+        basis, for methods that step the orbitals themselves.
     """
 
     iteration: int
     fock: np.ndarray
     error: np.ndarray
     projector: np.ndarray
+    energy: float = float("nan")
+    fock_ao: np.ndarray | None = field(default=None, repr=False)
+    density_ao: np.ndarray | None = field(default=None, repr=False)
 
 
 class Accelerator(ABC):
     """Base class of SCF convergence accelerators.
 
-    A new accelerator subclasses this and implements :meth:`next_fock`,
-    which receives a :class:`FockStep` and returns the symmetric matrix
-    (nmo, nmo) whose eigenvectors become the next orbitals. It may keep
-    state between calls; :meth:`reset` clears it. An accelerator that
-    holds a subspace reports its size in :attr:`subspace_size`. Accelerators
-    never print and never change the arrays they are given.
+    The solver asks each iteration for :meth:`next_density`. A Fock-matrix
+    accelerator (DIIS, damping, level shift) implements only
+    :meth:`next_fock`, which receives a :class:`FockStep` and returns the
+    symmetric matrix (nmo, nmo) whose eigenvectors become the next
+    orbitals; the base :meth:`next_density` diagonalises it and fills the
+    lowest orbitals. A method that moves the orbitals itself (such as
+    :class:`SecondOrder`) overrides :meth:`next_density` instead and
+    raises in :meth:`next_fock`. It may keep state between calls;
+    :meth:`reset` clears it. An accelerator that holds a subspace reports
+    its size in :attr:`subspace_size`. Accelerators never print and never
+    change the arrays they are given.
 
     An instance goes to :func:`hfcore.scf.solve_rhf` as ``accelerator=``;
     to make one selectable by name, add the name to
     :data:`ACCELERATORS` with the stages it builds, and to
     :data:`ACCELERATOR_NAMES`.
     """
+
+    def next_density(self, step: FockStep, problem: Any) -> np.ndarray:
+        """The next total density in the atomic-orbital basis.
+
+        Parameters
+        ----------
+        step : FockStep
+            The current iteration.
+        problem : object
+            The solver's fixed matrices: ``problem.occupy(fock_orthonormal)``
+            returns (energies, coefficients, density) of the lowest
+            ``problem.n_occ`` orbitals, ``problem.orbitals_of(density)`` the
+            S-orthonormal orbitals (nbf, nmo) spanning a density's occupied
+            space, and ``problem.jk`` is the J/K builder.
+
+        Returns
+        -------
+        ndarray, shape (nbf, nbf)
+        """
+        _, _, density = problem.occupy(self.next_fock(step))
+        return density
 
     @abstractmethod
     def next_fock(self, step: FockStep) -> np.ndarray:
@@ -233,8 +271,48 @@ class Chain(Accelerator):
     def next_fock(self, step: FockStep) -> np.ndarray:
         fock = step.fock
         for stage in self.stages:
-            fock = stage.next_fock(FockStep(step.iteration, fock, step.error, step.projector))
+            fock = stage.next_fock(replace(step, fock=fock))
         return fock
+
+    def next_density(self, step: FockStep, problem: Any) -> np.ndarray:
+        # A chain of one stage is that stage, which may move the orbitals itself.
+        if len(self.stages) == 1:
+            return self.stages[0].next_density(step, problem)
+        return super().next_density(step, problem)
+
+
+class SecondOrder(Accelerator):
+    """Trust-region Newton steps on the orbital gradient instead of a Fock matrix to diagonalise.
+
+    Each call takes one step of :class:`hfcore.scf.second_order.SecondOrderStep`
+    from the orbitals of the current density (Hessian products by J/K builds
+    on transition densities, a few per step). It needs no extrapolation
+    history, moves downhill even near a saddle point and converges fast
+    near the solution; it is the last automatic aid (:data:`AID_STAGES`).
+    """
+
+    def __init__(self) -> None:
+        self._step = SecondOrderStep()
+
+    def reset(self) -> None:
+        self._step = SecondOrderStep()
+
+    @property
+    def hessian_products(self) -> int:
+        """Hessian products (J/K builds) made since the last reset."""
+        return self._step.products
+
+    def next_fock(self, step: FockStep) -> np.ndarray:
+        raise NotImplementedError("second-order steps move the orbitals themselves: call next_density")
+
+    def next_density(self, step: FockStep, problem: Any) -> np.ndarray:
+        if step.fock_ao is None or step.density_ao is None:
+            raise ValueError("a second-order step needs the FockStep's fock_ao and density_ao")
+        n_occ = problem.n_occ
+        orbitals = self._step.next_orbitals(
+            problem.orbitals_of(step.density_ao), step.fock_ao, n_occ, plain_builder(problem.jk), step.energy
+        )
+        return 2.0 * orbitals[:, :n_occ] @ orbitals[:, :n_occ].T
 
 
 #: Level shift (hartree) and damping factor the automatic aids use.
@@ -251,12 +329,11 @@ def _diis_stages(options: SCFOptions) -> list[Accelerator]:
 
 #: Every accelerator name, chosen (:data:`ACCELERATOR_NAMES`) or switched on
 #: automatically (:data:`AID_STAGES`), and the stages it builds from the
-#: options. ``"second_order"`` builds none: the solver takes trust-region
-#: orbital steps itself.
+#: options.
 ACCELERATORS: dict[str, Callable[[SCFOptions], list[Accelerator]]] = {
     "diis": _diis_stages,
     "damping": lambda options: [Damping(options.damping)],
-    "second_order": lambda options: [],
+    "second_order": lambda options: [SecondOrder()],
     "none": lambda options: [],
     "diis+level_shift": lambda options: [DIIS(options.max_diis_size, 1), LevelShift(AID_LEVEL_SHIFT)],
     "damping+level_shift": lambda options: [Damping(AID_DAMPING), LevelShift(AID_LEVEL_SHIFT)],
@@ -273,9 +350,9 @@ def build_accelerator(options: SCFOptions, name: str | None = None) -> Accelerat
     ``"diis"`` gives DIIS (with damping before ``diis_start`` if
     ``damping > 0``), ``"damping"`` gives damping alone, ``"none"`` plain
     Roothaan iterations; for these a positive ``level_shift`` adds a level
-    shift last. ``"second_order"`` needs no Fock matrix to diagonalise (the
-    solver takes orbital steps itself) and gives an empty chain. The
-    automatic aids (:data:`AID_STAGES`) bring their own level shift.
+    shift last. ``"second_order"`` gives :class:`SecondOrder`, which has no
+    Fock matrix to shift. The automatic aids (:data:`AID_STAGES`) bring
+    their own level shift.
 
     Parameters
     ----------
@@ -289,7 +366,7 @@ def build_accelerator(options: SCFOptions, name: str | None = None) -> Accelerat
     """
     chosen = options.accelerator if name is None else name
     stages = ACCELERATORS[chosen](options)
-    if chosen in ACCELERATOR_NAMES and options.level_shift > 0.0:
+    if chosen in ACCELERATOR_NAMES and chosen != "second_order" and options.level_shift > 0.0:
         stages.append(LevelShift(options.level_shift))
     return Chain(stages)
 
@@ -300,4 +377,4 @@ __all__ = [
     "AID_STAGES",
     "AID_LEVEL_SHIFT",
     "AID_DAMPING",
-    "Accelerator", "FockStep", "DIIS", "Damping", "LevelShift", "Chain", "build_accelerator"]
+    "Accelerator", "FockStep", "DIIS", "Damping", "LevelShift", "Chain", "SecondOrder", "build_accelerator"]

@@ -1,4 +1,9 @@
-"""RHF on a molecule: integrals, guess, iterations, one record."""
+"""The SCF entry points: RHF on bare matrices (:func:`solve_rhf`) and on a molecule (:func:`run_rhf`).
+
+:func:`solve_rhf` converges (:mod:`hfcore.scf.solver`) and then analyses
+and follows instabilities (:mod:`hfcore.scf.following`); :func:`run_rhf`
+computes the integrals and a guess first.
+"""
 
 from __future__ import annotations
 
@@ -25,9 +30,81 @@ from .guess import sad_density
 from .jk import IncrementalJK, JKBuilder
 from .options import SCFOptions
 from .result import RHFResult
-from .solver import Progress, solve_rhf
+from .following import stabilise
+from .solver import IterationProgress, converge_rhf
+from .accelerators import Accelerator
 
 GUESSES: tuple[str, ...] = ("sad", "core")
+
+
+def solve_rhf(
+    overlap: np.ndarray,
+    core_hamiltonian: np.ndarray,
+    jk: JKBuilder,
+    n_electrons: int,
+    energy_nuclear: float = 0.0,
+    options: SCFOptions | None = None,
+    guess_density: np.ndarray | None = None,
+    *,
+    progress: IterationProgress | None = None,
+    accelerator: Accelerator | None = None,
+) -> RHFResult:
+    """Run closed-shell Roothaan-Hall iterations on given matrices, then check the solution's stability.
+
+    The integrals may come from anywhere; :func:`run_rhf` is the entry that
+    computes them for a molecule.
+
+    Parameters
+    ----------
+    overlap : ndarray, shape (nbf, nbf)
+        Overlap matrix S.
+    core_hamiltonian : ndarray, shape (nbf, nbf)
+        H = T + V (hartree).
+    jk : JKBuilder
+        Object whose ``jk(D)`` returns (J, K) for a symmetric density.
+    n_electrons : int
+        Even, positive electron count.
+    energy_nuclear : float
+        Nuclear repulsion added to the electronic energy (hartree).
+    options : SCFOptions, optional
+        Defaults to ``SCFOptions()``.
+    guess_density : ndarray, shape (nbf, nbf), optional
+        Starting total density (need not be idempotent nor hold the right
+        electron count: one Fock build and diagonalisation turn it into
+        orbitals). Without it, the core Hamiltonian gives the orbitals.
+    progress : callable, optional
+        Called with each :class:`SCFIteration` record as it is made.
+    accelerator : Accelerator, optional
+        Replaces the one ``options`` name; the automatic aids
+        (``options.auto_aids``) may still take over from it when it stalls.
+
+    Returns
+    -------
+    RHFResult
+        With ``molecule`` and ``basis`` left as None; timings hold "guess",
+        "scf", "stability" and "total". Unless ``options.stability`` is
+        "off", the converged solution has been analysed (and, with
+        "follow", left along unstable modes) by
+        :func:`hfcore.scf.following.stabilise`.
+
+    Raises
+    ------
+    InputError
+        For malformed matrices or an electron count the basis cannot hold.
+    ConvergenceError
+        If the criteria are not met within ``options.max_iterations``; its
+        ``result`` is the unconverged record.
+    """
+    t0 = time.perf_counter()
+    options = options or SCFOptions()
+    result = converge_rhf(
+        overlap, core_hamiltonian, jk, n_electrons, energy_nuclear, options, guess_density,
+        progress=progress, accelerator=accelerator,
+    )
+    if options.stability == "off":
+        return result
+    result = stabilise(result, jk, int(n_electrons), energy_nuclear, progress=progress)
+    return replace(result, timings={**result.timings, "total": time.perf_counter() - t0})
 
 
 def run_rhf(
@@ -36,7 +113,7 @@ def run_rhf(
     options: SCFOptions | None = None,
     *,
     guess: str | np.ndarray = "sad",
-    progress: Progress | None = None,
+    progress: IterationProgress | None = None,
     integral_progress: Callable[[float], None] | None = None,
     shared: "SharedIntegrals | None" = None,
     raise_on_failure: bool = True,
@@ -127,7 +204,7 @@ def _run_rhf(
     basis: BasisSet | str,
     options: SCFOptions,
     guess: str | np.ndarray,
-    progress: Progress | None,
+    progress: IterationProgress | None,
     integral_progress: Callable[[float], None] | None,
     shared: "SharedIntegrals | None",
     raise_on_failure: bool = True,
@@ -359,8 +436,8 @@ class SharedIntegrals:
     engine : JKBuilder
         The builder :func:`run_rhf` would make: the stored integrals, or the
         direct mode's incremental builder (copied fresh for every run).
-    seconds : float
-        Wall-clock time it took to compute them.
+    wall_seconds : float
+        Wall-clock time it took to compute them (``seconds`` is its deprecated name).
     """
 
     basis: BasisSet
@@ -368,13 +445,16 @@ class SharedIntegrals:
     kinetic: np.ndarray
     plan: JKPlan
     engine: JKBuilder
-    seconds: float
+    wall_seconds: float
 
     def jk_builder(self) -> JKBuilder:
         """A J/K builder for one SCF run: the store itself, or a fresh incremental builder on the same engine."""
         if isinstance(self.engine, IncrementalJK):
             return IncrementalJK(self.engine.engine, self.engine.rebuild_interval)
         return self.engine
+
+
+rename_fields(SharedIntegrals, {"seconds": "wall_seconds"})
 
 
 def prepare_integrals(

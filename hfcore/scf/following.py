@@ -1,21 +1,22 @@
 """Leaving an unstable RHF solution: analyse, rotate along the lowest mode, converge again.
 
 :func:`stabilise` is what :func:`hfcore.scf.solve_rhf` (and so
-:func:`hfcore.scf.run_rhf`) runs after convergence unless
-``SCFOptions.stability`` is "off".
+:func:`hfcore.scf.run_rhf`) runs after :func:`hfcore.scf.solver.converge_rhf`
+unless ``SCFOptions.stability`` is "off"; each later solution is converged
+by that same function.
 """
 
 from __future__ import annotations
 
 import time
-from collections.abc import Callable
 from dataclasses import replace
 
 import numpy as np
 
 from ..errors import ConvergenceError
 from .jk import IncrementalJK, JKBuilder
-from .result import RHFResult, SCFIteration
+from .result import RHFResult
+from .solver import IterationProgress, converge_rhf
 from .stability import (
     FOLLOW_ANGLES,
     StabilityAnalysis,
@@ -24,8 +25,6 @@ from .stability import (
     plain_builder,
     rotate_orbitals,
 )
-
-Progress = Callable[[SCFIteration], None]
 
 #: The next solution must lie at least this much lower (hartree) to count as a new one.
 NEW_SOLUTION_MARGIN: float = 1e-8
@@ -37,7 +36,7 @@ def stabilise(
     n_electrons: int,
     energy_nuclear: float,
     *,
-    progress: Progress | None = None,
+    progress: IterationProgress | None = None,
 ) -> RHFResult:
     """Analyse a converged solution and, in "follow" mode, move to a stable one.
 
@@ -69,8 +68,6 @@ def stabilise(
         all solutions concatenated (``SCFIteration.solution`` tells them
         apart), ``iterations`` their total and the aids of all runs.
     """
-    from .solver import solve_rhf
-
     t0 = time.perf_counter()
     options = result.options
     inner = replace(options, stability="off")
@@ -101,9 +98,9 @@ def stabilise(
         if isinstance(jk, IncrementalJK):
             jk.reset()
         try:
-            new = solve_rhf(
+            new = converge_rhf(
                 result.overlap, result.core_hamiltonian, jk, n_electrons, energy_nuclear, inner, density,
-                progress=progress, _solution=rounds + 1,
+                progress=progress, solution=rounds + 1,
             )
         except ConvergenceError as exc:
             message = (

@@ -3,11 +3,14 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from collections.abc import Mapping
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from .._deprecation import rename_fields
+from .._version import __version__
+from ..errors import InputError
 from .options import SCFOptions
 
 if TYPE_CHECKING:
@@ -15,6 +18,16 @@ if TYPE_CHECKING:
     from ..basis.shells import BasisSet
     from ..geometry import Molecule
     from .stability import StabilityReport
+
+#: What the numbers in an RHF run's record (:meth:`RHFResult.to_dict`) mean.
+UNITS: dict[str, str] = {
+    "energy": "hartree",
+    "length": "bohr (coordinates_angstrom: angstrom)",
+    "orbital_energies": "hartree",
+    "dipole": "e*bohr (atomic units); dipole_debye: debye",
+    "charges": "e (elementary charge)",
+    "time": "seconds",
+}
 
 
 @dataclass(frozen=True)
@@ -209,22 +222,134 @@ class RHFResult:
         lumo = self.lumo
         return None if lumo is None else float(self.orbital_energies[lumo])
 
-    def to_dict(self) -> dict:
-        """The record as the JSON export writes it (:func:`hfcore.export.result_record`).
+    def to_dict(self, analysis: Mapping[str, Any] | None = None) -> dict[str, Any]:
+        """The record as the JSON export writes it.
+
+        Parameters
+        ----------
+        analysis : mapping, optional
+            Extra post-SCF quantities (e.g. Mulliken charges, dipole) stored
+            under the key ``"analysis"``.
+
+        Returns
+        -------
+        dict
+            Keys ``hfcore``, ``units``, ``molecule``, ``basis``, ``energy``,
+            ``scf``, ``orbitals``, ``timings`` (and ``analysis``); energies in
+            hartree, coordinates in bohr; arrays stay numpy arrays
+            (:func:`hfcore.export.to_json` writes them as lists).
 
         Raises
         ------
         InputError
             For a result of the SCF on bare matrices (no molecule or basis).
         """
-        from ..errors import InputError
-        from ..export import result_record
-
         if self.molecule is None or self.basis is None:
             raise InputError("to_dict needs an RHF result that carries its molecule and basis (from run_rhf)")
-        return result_record(self)
+        record = {
+            "hfcore": {"version": __version__, "method": "RHF"},
+            "units": UNITS,
+            "molecule": _molecule_record(self.molecule),
+            "basis": {
+                "name": self.basis.name,
+                "spherical": self.basis.spherical,
+                "n_functions": self.basis.n_functions,
+                "n_shells": self.basis.n_shells,
+                "n_dropped": self.n_dropped,
+                "fit_basis_name": None if self.fit_basis is None else self.fit_basis.name,
+                "fit_basis_n_functions": None if self.fit_basis is None else self.fit_basis.n_functions,
+                # the deprecated keys of the two above, kept for one release
+                "fit_name": None if self.fit_basis is None else self.fit_basis.name,
+                "fit_n_functions": None if self.fit_basis is None else self.fit_basis.n_functions,
+            },
+            "energy": {
+                "total": self.energy_total,
+                "nuclear_repulsion": self.energy_nuclear,
+                "one_electron": self.energy_one_electron,
+                "two_electron": self.energy_two_electron,
+                "electronic": self.energy_electronic,
+            },
+            "scf": self._scf_record(),
+            "orbitals": {
+                "energies": self.orbital_energies,
+                "occupations": self.occupations,
+                "homo": self.homo,
+                "lumo": self.lumo,
+            },
+            "timings": dict(self.timings),
+        }
+        if analysis:
+            record["analysis"] = dict(analysis)
+        return record
+
+    def _scf_record(self) -> dict[str, Any]:
+        opts = self.options
+        return {
+            "converged": self.converged,
+            "iterations": self.iterations,
+            "jk_mode": self.jk_mode,
+            "eri_memory_bytes": self.eri_memory_bytes,
+            "memory_budget": None if self.memory_budget is None else self.memory_budget.to_dict(),
+            "threads": opts.n_threads,
+            "resource_notes": list(self.resource_notes),
+            "fit_storage": self.fit_storage or None,
+            "fit_notes": list(self.fit_notes),
+            "fit_metric_dropped": self.fit_dropped,
+            "thresholds": {
+                "energy_tol": opts.energy_tol,
+                "gradient_tol": opts.gradient_tol,
+                "max_iterations": opts.max_iterations,
+                "max_diis_size": opts.max_diis_size,
+                "diis_space": opts.max_diis_size,  # deprecated name, kept for one release
+                "lindep_threshold": opts.lindep_threshold,
+                "screening": opts.screening,
+                "stability_threshold": opts.stability_threshold,
+            },
+            "stability": stability_record(self),
+            "aufbau": {"satisfied": self.aufbau, "gap": self.aufbau_gap},
+            "aids": list(self.aids),
+            "history": [
+                {
+                    "iteration": h.iteration,
+                    "energy": h.energy,
+                    "delta_e": h.delta_e,
+                    "gradient_norm": h.gradient_norm,
+                    "diis_size": h.diis_size,
+                    "aid": h.aid,
+                    "solution": h.solution,
+                }
+                for h in self.history
+            ],
+        }
+
+
+def _molecule_record(mol: Molecule) -> dict[str, Any]:
+    return {
+        "source": mol.source,
+        "comment": mol.comment,
+        "charge": mol.charge,
+        "n_electrons": mol.n_electrons,
+        "symbols": mol.symbols,
+        "atomic_numbers": mol.atomic_numbers,
+        "ghost_atoms": [int(k) for k in np.flatnonzero(mol.ghosts)],
+        "coordinates_bohr": mol.coordinates,
+    }
+
+
+def stability_record(result: RHFResult) -> dict[str, Any]:
+    """The ``scf.stability`` object of an RHF run's record.
+
+    ``mode`` is always there; with the analysis off every other key is
+    null. Eigenvalues are those of the energy Hessian d²E/dκ² in hartree.
+    """
+    st = result.stability
+    if st is None:
+        keys = ("stable", "lowest_eigenvalue", "eigenvalues", "threshold", "solutions", "lowest_eigenvalues",
+                "rounds", "hessian_products", "message")
+        return {"mode": result.options.stability, **dict.fromkeys(keys)}
+    return st.to_dict()
 
 
 rename_fields(RHFResult, {"eri_bytes": "eri_memory_bytes"})
 
-__all__ = ["SCFIteration", "RHFResult"]
+__all__ = ["SCFIteration", "RHFResult", "UNITS", "stability_record"]

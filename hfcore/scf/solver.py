@@ -1,4 +1,9 @@
-"""The RHF iteration on bare matrices: guess orbitals, Fock builds, acceleration, convergence."""
+"""The RHF iteration on bare matrices: guess orbitals, Fock builds, acceleration, convergence.
+
+:func:`converge_rhf` iterates to one converged solution and stops there;
+following an instability (:mod:`hfcore.scf.following`) and the entry point
+over both (:func:`hfcore.scf.driver.solve_rhf`) sit above this module.
+"""
 
 from __future__ import annotations
 
@@ -8,6 +13,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from .._deprecation import module_aliases
 from ..errors import BasisError, ConvergenceError, InputError
 from ..geometry import is_closed_shell
 from .accelerators import AID_DAMPING, AID_LEVEL_SHIFT, AID_STAGES, Accelerator, FockStep, build_accelerator
@@ -15,10 +21,13 @@ from .jk import JKBuilder
 from .options import SCFOptions
 from .orthogonalise import Orthogonaliser
 from .result import RHFResult, SCFIteration
-from .second_order import SecondOrderStep
-from .stability import plain_builder
 
-Progress = Callable[[SCFIteration], None]
+#: The callback that watches the SCF: called with each :class:`SCFIteration` record as it is made.
+IterationProgress = Callable[[SCFIteration], None]
+# ``Progress``, the deprecated name of IterationProgress, warns when read. The other two kinds of
+# progress callback take the fraction done (``integral_progress``, MP2's ``fraction_progress``) or a
+# study's one-line message (``message_progress``, hfcore.studies.MessageProgress).
+__getattr__ = module_aliases(__name__, {"Progress": ("IterationProgress", IterationProgress)})
 
 #: Iterations over which progress is judged.
 AID_WINDOW: int = 8
@@ -39,7 +48,12 @@ class _Evaluation:
 
 
 class _Problem:
-    """The fixed matrices of one RHF problem and the operations on them."""
+    """The fixed matrices of one RHF problem and the operations on them.
+
+    An accelerator's :meth:`~hfcore.scf.accelerators.Accelerator.next_density`
+    receives it as ``problem`` (attributes ``n_occ``, ``jk``; methods
+    :meth:`occupy`, :meth:`orbitals_of`).
+    """
 
     def __init__(self, overlap: np.ndarray, hcore: np.ndarray, jk: JKBuilder, n_occ: int, ortho: Orthogonaliser):
         self.overlap = overlap
@@ -86,7 +100,7 @@ def _checked_square(name: str, matrix: np.ndarray, n: int | None = None) -> np.n
     return m
 
 
-def solve_rhf(
+def converge_rhf(
     overlap: np.ndarray,
     core_hamiltonian: np.ndarray,
     jk: JKBuilder,
@@ -95,14 +109,14 @@ def solve_rhf(
     options: SCFOptions | None = None,
     guess_density: np.ndarray | None = None,
     *,
-    progress: Progress | None = None,
+    progress: IterationProgress | None = None,
     accelerator: Accelerator | None = None,
-    _solution: int = 0,
+    solution: int = 0,
 ) -> RHFResult:
-    """Run closed-shell Roothaan-Hall iterations on given matrices.
+    """Run closed-shell Roothaan-Hall iterations on given matrices to one converged solution.
 
-    The integrals may come from anywhere; :func:`hfcore.scf.run_rhf` is the
-    entry that computes them for a molecule.
+    No stability analysis: :func:`hfcore.scf.solve_rhf` runs this and then
+    :func:`hfcore.scf.following.stabilise`.
 
     Parameters
     ----------
@@ -127,15 +141,15 @@ def solve_rhf(
     accelerator : Accelerator, optional
         Replaces the one ``options`` name; the automatic aids
         (``options.auto_aids``) may still take over from it when it stalls.
+    solution : int
+        0 for the first solution, k for the one after the k-th rotation
+        along an unstable mode (written into each :class:`SCFIteration`).
 
     Returns
     -------
     RHFResult
         With ``molecule`` and ``basis`` left as None; timings hold "guess",
-        "scf", "stability" and "total". Unless ``options.stability`` is
-        "off", the converged solution has been analysed (and, with
-        "follow", left along unstable modes) by
-        :func:`hfcore.scf.following.stabilise`.
+        "scf", "stability" (0 here) and "total"; ``stability`` is None.
 
     Raises
     ------
@@ -163,7 +177,7 @@ def solve_rhf(
     t_guess = time.perf_counter()
     previous = 0.0 if guess_energy is None else float(guess_energy + energy_nuclear)
     schedule = _AidSchedule(options, accelerator)
-    state = _iterate(problem, density, previous, energy_nuclear, options, schedule, progress, _solution)
+    state = _iterate(problem, density, previous, energy_nuclear, options, schedule, progress, solution)
     t_scf = time.perf_counter()
     result = _result(problem, state, energy_nuclear, options)
     timings = {"guess": t_guess - t0, "scf": t_scf - t_guess, "stability": 0.0, "total": time.perf_counter() - t0}
@@ -172,11 +186,6 @@ def solve_rhf(
         result = replace(result, message=f"{result.message}; automatic aids tried: {', '.join(schedule.used)}")
     if not result.converged:
         raise ConvergenceError(result.message, result)
-    if options.stability != "off" and _solution == 0:
-        from .following import stabilise
-
-        result = stabilise(result, jk, int(n_electrons), energy_nuclear, progress=progress)
-        result = replace(result, timings={**result.timings, "total": time.perf_counter() - t0})
     return result
 
 
@@ -227,7 +236,6 @@ class _AidSchedule:
             self.name = type(accelerator).__name__.lower()
         self.accelerator = accelerator
         self.accelerator.reset()
-        self.second_order: SecondOrderStep | None = SecondOrderStep() if self.name == "second_order" else None
         self.used: list[str] = []
         self._gradients: list[float] = []
         self._energies: list[float] = []
@@ -247,11 +255,7 @@ class _AidSchedule:
             self._switch(AID_STAGES[len(self.used)])
 
     def _switch(self, name: str) -> None:
-        opts = self.options
-        self.second_order = None
-        self.accelerator = build_accelerator(opts, name)
-        if name == "second_order":
-            self.second_order = SecondOrderStep()
+        self.accelerator = build_accelerator(self.options, name)
         self.name = name
         self.used.append(name)
         self._gradients.clear()
@@ -265,7 +269,7 @@ def _iterate(
     energy_nuclear: float,
     options: SCFOptions,
     schedule: _AidSchedule,
-    progress: Progress | None,
+    progress: IterationProgress | None,
     solution: int = 0,
 ) -> _State:
     """Iterate from ``density``; ``previous`` is the total energy the first change is measured from."""
@@ -280,14 +284,9 @@ def _iterate(
         if not converged:
             schedule.observe(energy, grad)
             aid = schedule.name
-            if schedule.second_order is not None:
-                orbitals = schedule.second_order.next_orbitals(
-                    problem.orbitals_of(ev.density), ev.fock, problem.n_occ, plain_builder(problem.jk), energy
-                )
-                density = 2.0 * orbitals[:, : problem.n_occ] @ orbitals[:, : problem.n_occ].T
-            else:
-                step = FockStep(iteration, problem.ortho.to_orthonormal(ev.fock), error, problem.projector(ev.density))
-                _, _, density = problem.occupy(schedule.accelerator.next_fock(step))
+            step = FockStep(iteration, problem.ortho.to_orthonormal(ev.fock), error, problem.projector(ev.density),
+                            energy=energy, fock_ao=ev.fock, density_ao=ev.density)
+            density = schedule.accelerator.next_density(step, problem)
         record = SCFIteration(
             iteration, energy, energy - previous, grad, schedule.accelerator.subspace_size, aid, solution
         )
@@ -358,4 +357,4 @@ def _aufbau_gap(problem: _Problem, ev: _Evaluation) -> float:
     return lowest - highest
 
 
-__all__ = ["solve_rhf", "Progress", "AID_STAGES", "AID_LEVEL_SHIFT", "AID_DAMPING", "AID_WINDOW"]
+__all__ = ["converge_rhf", "IterationProgress", "AID_STAGES", "AID_LEVEL_SHIFT", "AID_DAMPING", "AID_WINDOW"]

@@ -1,16 +1,17 @@
 """Reaction energies from RHF totals, across basis sets.
 
-The equations and their syntax are in :mod:`hfcore.analysis.equations`.
+The equations and their syntax are in :mod:`hfcore.studies.equations`.
 The reaction energy is ΔE = Σ ν E(products) − Σ ν E(reactants) with the
 RHF total energies at the given geometries (no zero-point or thermal
 terms). Each distinct species is computed once per basis. Basis-limit
 estimates of ΔE come from the species' extrapolated totals, with the two
-formulas of :func:`hfcore.analysis.compare.basis_limit_estimates`; the
-spread between the two estimates serves as their uncertainty.
+formulas of :func:`hfcore.studies.compare.series_estimates`; the spread
+between the two estimates serves as their uncertainty.
 
-The SCF runs are listed as plain data first (:func:`reaction_pieces`,
-species × basis), so that they could be handed to another runner;
-:func:`reaction_energies` runs them in this process.
+The study's contract (:mod:`hfcore.studies.pieces`): :func:`reaction_pieces`
+lists the SCF runs as plain data (species × basis); :func:`run_reaction_pieces`
+runs them in this process, or a runner passed to :func:`reaction_energies`
+runs them elsewhere; :func:`assemble_reactions` makes the record.
 """
 
 from __future__ import annotations
@@ -20,12 +21,19 @@ from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
+from .._deprecation import rename_fields, rename_keywords
+from ..basis import build_basis
 from ..errors import ConvergenceError
-from .compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE, ComparisonRow, _check_names, basis_limit_estimates
+from ..scf.driver import run_rhf
+from ..units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from .compare import correlation_consistent_series, series_estimates
 from .equations import Reaction, Species, load_reactions, parse_reaction  # noqa: F401  (part of this module's API)
+from .pieces import MessageProgress, PieceOutcome, check_basis_names, collect
 
 if TYPE_CHECKING:
+    from ..basis.shells import BasisSet
     from ..scf.options import SCFOptions
+
 
 @dataclass(frozen=True)
 class ReactionPiece:
@@ -40,6 +48,11 @@ class ReactionPiece:
 
     species: int
     basis: str
+
+    @property
+    def key(self) -> tuple[int, str]:
+        """The piece's key in a runner's outcomes: (species index, basis)."""
+        return (self.species, self.basis)
 
 
 def reaction_pieces(species: Sequence[Species], bases: Sequence[str]) -> list[ReactionPiece]:
@@ -73,8 +86,8 @@ class ReactionRow:
         ΔE of each reaction.
     deltas : tuple of float
         ΔE minus ΔE in the reference basis, per reaction.
-    seconds : float
-        Wall-clock time of this basis' runs.
+    wall_seconds : float
+        Wall-clock time of this basis' runs (summed over its pieces).
     species_functions : tuple of int
         Basis functions of each species.
     """
@@ -85,7 +98,7 @@ class ReactionRow:
     species_energies: tuple[float, ...]
     reaction_energies: tuple[float, ...]
     deltas: tuple[float, ...]
-    seconds: float
+    wall_seconds: float
     species_functions: tuple[int, ...] = ()
 
     def reaction_functions(self, reaction: Reaction) -> int:
@@ -100,7 +113,8 @@ class ReactionEstimate:
     Attributes
     ----------
     method : {"two-point", "three-point"}
-    family : str
+    series : str
+        The correlation-consistent series, ``"cc-pVXZ"`` or ``"aug-cc-pVXZ"``.
     bases : tuple of str
     species_energies : tuple of float
         Extrapolated total of each species (hartree).
@@ -110,7 +124,7 @@ class ReactionEstimate:
     """
 
     method: str
-    family: str
+    series: str
     bases: tuple[str, ...]
     species_energies: tuple[float, ...]
     reaction_energies: tuple[float, ...]
@@ -132,7 +146,7 @@ class ReactionStudy:
     estimates : tuple of ReactionEstimate
     notes : tuple of str
         Why an estimate was not made.
-    seconds : float
+    wall_seconds : float
         Wall-clock time of all runs.
     """
 
@@ -142,21 +156,25 @@ class ReactionStudy:
     reference_basis: str
     estimates: tuple[ReactionEstimate, ...] = ()
     notes: tuple[str, ...] = ()
-    seconds: float = 0.0
+    wall_seconds: float = 0.0
 
     def uncertainty(self) -> tuple[float, ...] | None:
-        """Per reaction, the spread (hartree) between the two- and three-point estimates of one family, if both exist."""
-        by_family: dict[str, dict[str, ReactionEstimate]] = {}
+        """Per reaction, the spread (hartree) between the two- and three-point estimates of one series, if both exist."""
+        by_series: dict[str, dict[str, ReactionEstimate]] = {}
         for est in self.estimates:
-            by_family.setdefault(est.family, {})[est.method] = est
-        for members in by_family.values():
+            by_series.setdefault(est.series, {})[est.method] = est
+        for members in by_series.values():
             if "two-point" in members and "three-point" in members:
                 a, b = members["two-point"].reaction_energies, members["three-point"].reaction_energies
                 return tuple(abs(x - y) for x, y in zip(a, b))
         return None
 
     def to_dict(self) -> dict:
-        """Plain, JSON-ready form; energies in hartree unless a key names kJ/mol or kcal/mol."""
+        """Plain, JSON-ready form; energies in hartree unless a key names kJ/mol or kcal/mol.
+
+        ``seconds`` and ``family`` repeat ``wall_seconds`` and ``series``
+        under their deprecated keys (kept for one release).
+        """
 
         def units(values: Sequence[float], key: str) -> dict:
             return {
@@ -185,14 +203,16 @@ class ReactionStudy:
                     "species_functions": list(row.species_functions),
                     **units(row.reaction_energies, "reaction_energies"),
                     **units(row.deltas, "deltas"),
-                    "seconds": row.seconds,
+                    "wall_seconds": row.wall_seconds,
+                    "seconds": row.wall_seconds,
                 }
                 for row in self.rows
             ],
             "estimates": [
                 {
                     "method": e.method,
-                    "family": e.family,
+                    "series": e.series,
+                    "family": e.series,
                     "bases": list(e.bases),
                     "species_energies": list(e.species_energies),
                     **units(e.reaction_energies, "reaction_energies"),
@@ -202,14 +222,71 @@ class ReactionStudy:
             ],
             "uncertainty": None if spread is None else units(spread, "reaction_energies"),
             "notes": list(self.notes),
-            "seconds": self.seconds,
+            "wall_seconds": self.wall_seconds,
+            "seconds": self.wall_seconds,
         }
 
 
-#: Runs reaction pieces elsewhere: (pieces, species) -> {(species index, basis): (energy / Eh, seconds)}.
-PieceRunner = Callable[[Sequence["ReactionPiece"], Sequence[Species]], Mapping[tuple[int, str], tuple[float, float]]]
+rename_fields(ReactionRow, {"seconds": "wall_seconds"})
+rename_fields(ReactionEstimate, {"family": "series"})
+rename_fields(ReactionStudy, {"seconds": "wall_seconds"})
+
+#: Runs reaction pieces elsewhere: (pieces, species) -> outcome by piece key (species index, basis),
+#: a :class:`~hfcore.studies.pieces.PieceOutcome` or a pair (energy / Eh, seconds).
+PieceRunner = Callable[[Sequence["ReactionPiece"], Sequence[Species]], Mapping[tuple[int, str], object]]
 
 
+def run_reaction_pieces(
+    pieces: Sequence[ReactionPiece],
+    species: Sequence[Species],
+    bases: Mapping[tuple[int, str], BasisSet],
+    *,
+    options: SCFOptions | None = None,
+    message_progress: MessageProgress | None = None,
+) -> dict[tuple[int, str], PieceOutcome]:
+    """The in-process runner of a reaction study: each piece in turn.
+
+    Parameters
+    ----------
+    pieces : sequence of ReactionPiece
+    species : sequence of Species
+    bases : mapping
+        The basis of each piece, by piece key.
+    options : SCFOptions, optional
+    message_progress : callable, optional
+        Called with a one-line message after each run.
+
+    Returns
+    -------
+    dict of (int, str) to PieceOutcome
+
+    Raises
+    ------
+    ConvergenceError
+        If a run does not converge (naming the species and basis).
+    """
+    out: dict[tuple[int, str], PieceOutcome] = {}
+    for step, piece in enumerate(pieces, start=1):
+        t0 = time.perf_counter()
+        basis = bases[piece.key]
+        try:
+            result = run_rhf(species[piece.species].molecule, basis, options)
+        except ConvergenceError as exc:
+            raise ConvergenceError(f"{species[piece.species].label} in {piece.basis}: {exc}", exc.result) from None
+        seconds = time.perf_counter() - t0
+        out[piece.key] = PieceOutcome(
+            float(result.energy_total), seconds, basis.n_functions, int(result.iterations), True,
+            None if result.stability is None else bool(result.stability.stable),
+        )
+        if message_progress is not None:
+            message_progress(
+                f"[{step}/{len(pieces)}] {piece.basis}, {species[piece.species].label} ({basis.n_functions} functions): "
+                f"E = {result.energy_total:.10f} Eh after {result.iterations} iterations in {time.perf_counter() - t0:.2f} s"
+            )
+    return out
+
+
+@rename_keywords({"progress": "message_progress"})
 def reaction_energies(
     reactions: Sequence[str] | str,
     bases: Sequence[str],
@@ -217,7 +294,7 @@ def reaction_energies(
     units: str = "angstrom",
     spherical: bool | None = None,
     options: SCFOptions | None = None,
-    progress: Callable[[str], None] | None = None,
+    message_progress: MessageProgress | None = None,
     runner: PieceRunner | None = None,
 ) -> ReactionStudy:
     """RHF reaction energies of one or more equations in several basis sets.
@@ -234,13 +311,14 @@ def reaction_energies(
         Real spherical or Cartesian functions; each family's own by default.
     options : SCFOptions, optional
         Settings of every SCF run.
-    progress : callable, optional
+    message_progress : callable, optional
         Called with a one-line message after each SCF run (in-process runs).
     runner : callable, optional
         Runs the pieces elsewhere instead of in this process: called as
-        ``runner(pieces, species)`` after every check, it returns the total
-        energy (hartree) and wall time (seconds) of each piece, keyed by
-        ``(species index, basis)`` (e.g. through the batch machinery).
+        ``runner(pieces, species)`` after every check, it returns the
+        outcome of each piece keyed by ``(species index, basis)``: a
+        :class:`~hfcore.studies.pieces.PieceOutcome` or a pair (total energy
+        / hartree, wall time / seconds), e.g. through the batch machinery.
 
     Returns
     -------
@@ -256,74 +334,89 @@ def reaction_energies(
     ConvergenceError
         If a run does not converge.
     """
-    from ..basis import build_basis
-    from ..scf import run_rhf
-
-    names = _check_names(bases)
+    names = check_basis_names(bases)
     species, parsed = load_reactions([reactions] if isinstance(reactions, str) else list(reactions), units=units)
     basis_of = {
         (k, name): build_basis(s.molecule, name, spherical=spherical) for name in names for k, s in enumerate(species)
     }
     pieces = reaction_pieces(species, names)
     started = time.perf_counter()
-    energies: dict[tuple[int, str], float] = {}
-    seconds: dict[str, float] = dict.fromkeys(names, 0.0)
     if runner is not None:
-        for (k, name), (energy, wall) in runner(pieces, species).items():
-            energies[(k, name)] = float(energy)
-            seconds[name] += float(wall)
-        pieces = []
-    for step, piece in enumerate(pieces, start=1):
-        t0 = time.perf_counter()
-        basis = basis_of[(piece.species, piece.basis)]
-        try:
-            result = run_rhf(species[piece.species].molecule, basis, options)
-        except ConvergenceError as exc:
-            raise ConvergenceError(f"{species[piece.species].label} in {piece.basis}: {exc}", exc.result) from None
-        energies[(piece.species, piece.basis)] = float(result.energy_total)
-        seconds[piece.basis] += time.perf_counter() - t0
-        if progress is not None:
-            progress(
-                f"[{step}/{len(pieces)}] {piece.basis}, {species[piece.species].label} ({basis.n_functions} functions): "
-                f"E = {result.energy_total:.10f} Eh after {result.iterations} iterations in {time.perf_counter() - t0:.2f} s"
-            )
-    size = {name: sum(basis_of[(k, name)].n_functions for k in range(len(species))) for name in names}
+        outcomes = collect(pieces, runner(pieces, species))
+    else:
+        outcomes = run_reaction_pieces(pieces, species, basis_of, options=options, message_progress=message_progress)
+    return assemble_reactions(species, parsed, names, basis_of, outcomes, time.perf_counter() - started)
+
+
+def assemble_reactions(
+    species: Sequence[Species],
+    reactions: Sequence[Reaction],
+    names: Sequence[str],
+    bases: Mapping[tuple[int, str], BasisSet],
+    outcomes: Mapping[tuple[int, str], PieceOutcome],
+    wall_seconds: float = 0.0,
+) -> ReactionStudy:
+    """The reaction study's record from the outcomes of its pieces.
+
+    Parameters
+    ----------
+    species : sequence of Species
+    reactions : sequence of Reaction
+    names : sequence of str
+        The basis names, in the order of the rows.
+    bases : mapping
+        The basis of each piece, by key (for function counts).
+    outcomes : mapping
+        The outcome of each piece, by key (species index, basis).
+    wall_seconds : float
+        Wall-clock time of all runs.
+
+    Returns
+    -------
+    ReactionStudy
+        Deltas relative to the basis with the most functions summed over the species.
+    """
+    n = len(species)
+    size = {name: sum(bases[(k, name)].n_functions for k in range(n)) for name in names}
     reference = max(names, key=lambda name: size[name])
-    per_basis = {name: tuple(energies[(k, name)] for k in range(len(species))) for name in names}
-    ref_de = tuple(r.energy(per_basis[reference]) for r in parsed)
+    per_basis = {name: tuple(outcomes[(k, name)].energy_total for k in range(n)) for name in names}
+    ref_de = tuple(r.energy(per_basis[reference]) for r in reactions)
     rows = []
     for name in names:
-        de = tuple(r.energy(per_basis[name]) for r in parsed)
+        de = tuple(r.energy(per_basis[name]) for r in reactions)
+        seconds = 0.0
+        for k in range(n):
+            seconds += outcomes[(k, name)].wall_seconds
         rows.append(
-            ReactionRow(name, size[name], basis_of[(0, name)].spherical, per_basis[name], de,
-                        tuple(a - b for a, b in zip(de, ref_de)), seconds[name],
-                        tuple(basis_of[(k, name)].n_functions for k in range(len(species))))
+            ReactionRow(name, size[name], bases[(0, name)].spherical, per_basis[name], de,
+                        tuple(a - b for a, b in zip(de, ref_de)), seconds,
+                        tuple(bases[(k, name)].n_functions for k in range(n)))
         )
-    estimates, notes = _estimates(species, parsed, names, basis_of, energies)
-    return ReactionStudy(species, parsed, tuple(rows), reference, tuple(estimates), tuple(notes),
-                         time.perf_counter() - started)
+    estimates, notes = _estimates(species, reactions, names, bases, outcomes)
+    return ReactionStudy(tuple(species), tuple(reactions), tuple(rows), reference, tuple(estimates), tuple(notes),
+                         wall_seconds)
 
 
-def _estimates(species, reactions, names, basis_of, energies) -> tuple[list[ReactionEstimate], list[str]]:
-    """Extrapolate every species with the basis comparison's formulas and combine the totals."""
+def _estimates(species, reactions, names, bases, outcomes) -> tuple[list[ReactionEstimate], list[str]]:
+    """Extrapolate every species' totals by series (:func:`series_estimates`) and combine them."""
     found: dict[tuple, list] = {}
     notes: list[str] = []
     for k in range(len(species)):
-        rows = [
-            ComparisonRow(name, basis_of[(k, name)].n_functions, basis_of[(k, name)].spherical, energies[(k, name)],
-                          0.0, 0.0, 0, 0.0, True, "sad")
-            for name in names
-        ]
-        estimates, why = basis_limit_estimates(rows, 0.0)
-        notes += [f"{species[k].label}: {n}" for n in why]
-        for est in estimates:
-            found.setdefault((est.method, est.family, est.bases, est.citation), [None] * len(species))[k] = est.energy_total
+        series = correlation_consistent_series(
+            [(name, bases[(k, name)].spherical, outcomes[(k, name)].energy_total) for name in names]
+        )
+        for (name, _), members in series.items():
+            estimates, why = series_estimates({x: e for x, (_, e) in members.items()}, name)
+            notes += [f"{species[k].label}: {n}" for n in why]
+            for est in estimates:
+                used = tuple(members[x][0] for x in est.cardinal_numbers)
+                found.setdefault((est.method, name, used, est.citation), [None] * len(species))[k] = est.energy_total
     out = []
-    for (method, family, bases, citation), totals in found.items():
+    for (method, series_name, used, citation), totals in found.items():
         if any(t is None for t in totals):
-            notes.append(f"{method} {family} estimate of the reaction energies skipped: not every species has one")
+            notes.append(f"{method} {series_name} estimate of the reaction energies skipped: not every species has one")
             continue
-        out.append(ReactionEstimate(method, family, bases, tuple(totals), tuple(r.energy(totals) for r in reactions),
+        out.append(ReactionEstimate(method, series_name, used, tuple(totals), tuple(r.energy(totals) for r in reactions),
                                     citation))
     return out, notes
 
@@ -338,6 +431,8 @@ __all__ = [
     "parse_reaction",
     "load_reactions",
     "reaction_pieces",
+    "run_reaction_pieces",
+    "assemble_reactions",
     "reaction_energies",
     "PieceRunner",
 ]

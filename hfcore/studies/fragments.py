@@ -1,7 +1,7 @@
 """Fragments of a complex, the SCF runs an interaction energy needs, and the records of their outcome.
 
 :func:`interaction_pieces` lists the runs as plain data
-(:class:`InteractionPiece`); :mod:`hfcore.analysis.interaction` runs them
+(:class:`InteractionPiece`); :mod:`hfcore.studies.interaction` runs them
 and assembles :class:`InteractionRow` and :class:`InteractionStudy`.
 """
 
@@ -11,8 +11,9 @@ from collections.abc import Sequence
 from dataclasses import asdict, dataclass, field
 from typing import TYPE_CHECKING
 
+from .._deprecation import rename_fields
 from ..errors import InputError
-from .compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from ..units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
 
 if TYPE_CHECKING:
     from ..geometry import Molecule
@@ -53,6 +54,11 @@ class InteractionPiece:
     charge: int
 
     @property
+    def key(self) -> tuple[str, str, int | None]:
+        """The piece's key in a runner's outcomes: (basis, kind, fragment)."""
+        return (self.basis, self.kind, self.fragment)
+
+    @property
     def label(self) -> str:
         """A short name, e.g. ``"fragment 2 in the full basis"``."""
         if self.fragment is None:
@@ -90,8 +96,8 @@ class PieceResult:
     n_functions : int
         Basis functions of the run (ghost functions included).
     iterations : int
-        SCF iterations.
-    seconds : float
+        SCF iterations (0 when the runner did not report them).
+    wall_seconds : float
         Wall-clock time of the run, integrals included.
     reused_integrals : bool
         True if the run took the complex's overlap, kinetic and
@@ -102,7 +108,7 @@ class PieceResult:
     energy_total: float
     n_functions: int
     iterations: int
-    seconds: float
+    wall_seconds: float
     reused_integrals: bool
 
 
@@ -128,7 +134,7 @@ class InteractionRow:
     superposition_error : float
         counterpoise minus raw: the sum over fragments of E(own) - E(full),
         never negative within RHF.
-    seconds : float
+    wall_seconds : float
         Wall-clock time of this basis' runs.
     integral_seconds : float
         Time the complex's overlap, kinetic and two-electron integrals
@@ -145,12 +151,16 @@ class InteractionRow:
     raw: float
     counterpoise: float
     superposition_error: float
-    seconds: float
+    wall_seconds: float
     integral_seconds: float = 0.0
 
     def to_dict(self) -> dict:
-        """Plain form; each of raw, counterpoise and superposition_error also in kJ/mol and kcal/mol."""
+        """Plain form; each of raw, counterpoise and superposition_error also in kJ/mol and kcal/mol.
+
+        ``seconds`` repeats ``wall_seconds`` under its deprecated key (kept for one release).
+        """
         out = asdict(self)
+        out["seconds"] = self.wall_seconds
         out["fragments_own_basis"] = list(self.fragments_own_basis)
         out["fragments_full_basis"] = list(self.fragments_full_basis)
         for name in ("raw", "counterpoise", "superposition_error"):
@@ -177,7 +187,7 @@ class InteractionStudy:
         Every SCF run, in the order run.
     reuse_integrals : bool
         Whether the full-basis fragment runs reused the complex's integrals.
-    seconds : float
+    wall_seconds : float
         Wall-clock time of all runs.
     citation : str
         Source of the counterpoise correction.
@@ -192,7 +202,7 @@ class InteractionStudy:
     rows: tuple[InteractionRow, ...]
     pieces: tuple[PieceResult, ...] = field(default=(), repr=False)
     reuse_integrals: bool = True
-    seconds: float = 0.0
+    wall_seconds: float = 0.0
     citation: str = BOYS_BERNARDI_CITATION
     batch: bool = False
 
@@ -204,7 +214,10 @@ class InteractionStudy:
         return sum(row.integral_seconds * len(self.fragments) for row in self.rows)
 
     def to_dict(self) -> dict:
-        """Plain, JSON-ready form (atom numbers 0-based, energies in hartree unless a key names a unit)."""
+        """Plain, JSON-ready form (atom numbers 0-based, energies in hartree unless a key names a unit).
+
+        ``seconds`` repeats ``wall_seconds`` under its deprecated key (kept for one release).
+        """
         return {
             "source": self.source,
             "fragments": [list(f) for f in self.fragments],
@@ -218,27 +231,34 @@ class InteractionStudy:
                     "energy_total": p.energy_total,
                     "n_functions": p.n_functions,
                     "iterations": p.iterations,
-                    "seconds": p.seconds,
+                    "wall_seconds": p.wall_seconds,
+                    "seconds": p.wall_seconds,
                     "reused_integrals": p.reused_integrals,
                 }
                 for p in self.pieces
             ],
             "reuse_integrals": self.reuse_integrals,
             "integral_seconds_saved": self.integral_seconds_saved,
-            "seconds": self.seconds,
+            "wall_seconds": self.wall_seconds,
+            "seconds": self.wall_seconds,
             "citation": self.citation,
             "batch": self.batch,
         }
 
 
+rename_fields(PieceResult, {"seconds": "wall_seconds"})
+rename_fields(InteractionRow, {"seconds": "wall_seconds"})
+rename_fields(InteractionStudy, {"seconds": "wall_seconds"})
+
+
 def check_fragments(
-    natom: int, fragments: Sequence[Sequence[int]], charges: Sequence[int] | None = None
+    n_atoms: int, fragments: Sequence[Sequence[int]], charges: Sequence[int] | None = None
 ) -> tuple[tuple[tuple[int, ...], ...], tuple[int, ...]]:
     """Check that fragments split the atoms exactly once each.
 
     Parameters
     ----------
-    natom : int
+    n_atoms : int
         Atoms of the complex.
     fragments : sequence of sequence of int
         0-based atoms of each fragment (at least two fragments).
@@ -265,12 +285,12 @@ def check_fragments(
         if not part:
             raise InputError(f"fragment {k + 1} has no atoms")
         for a in part:
-            if not 0 <= a < natom:
-                raise InputError(f"fragment {k + 1}: atom {a + 1} does not exist (the complex has {natom} atoms)")
+            if not 0 <= a < n_atoms:
+                raise InputError(f"fragment {k + 1}: atom {a + 1} does not exist (the complex has {n_atoms} atoms)")
             if a in seen:
                 raise InputError(f"atom {a + 1} is in fragment {seen[a] + 1} and in fragment {k + 1}")
             seen[a] = k
-    missing = [a + 1 for a in range(natom) if a not in seen]
+    missing = [a + 1 for a in range(n_atoms) if a not in seen]
     if missing:
         raise InputError(f"atom {missing[0]} is in no fragment; every atom of the complex must be in one")
     q = tuple(int(c) for c in charges) if charges is not None else (0,) * len(parts)
@@ -280,7 +300,7 @@ def check_fragments(
 
 
 def interaction_pieces(
-    natom: int, fragments: Sequence[Sequence[int]], bases: Sequence[str], charges: Sequence[int] | None = None
+    n_atoms: int, fragments: Sequence[Sequence[int]], bases: Sequence[str], charges: Sequence[int] | None = None
 ) -> list[InteractionPiece]:
     """Every SCF run an interaction calculation needs, per basis in order.
 
@@ -290,7 +310,7 @@ def interaction_pieces(
 
     Parameters
     ----------
-    natom : int
+    n_atoms : int
     fragments : sequence of sequence of int
         0-based atoms of each fragment.
     bases : sequence of str
@@ -300,9 +320,9 @@ def interaction_pieces(
     -------
     list of InteractionPiece
     """
-    parts, q = check_fragments(natom, fragments, charges)
+    parts, q = check_fragments(n_atoms, fragments, charges)
     pieces = []
-    everything = tuple(range(natom))
+    everything = tuple(range(n_atoms))
     for name in bases:
         pieces.append(InteractionPiece(name, "complex", None, everything, (), sum(q)))
         for kind in ("own basis", "full basis"):
