@@ -1,8 +1,8 @@
 """Running a batch: skip what the results file has, run the rest, append each line as it comes.
 
 The jobs run in local worker processes (:mod:`hfcore.batch.pool`) or on a
-Dask cluster (:mod:`hfcore.batch.cluster`); each is exactly an
-``hfcore energy --json -`` run (:mod:`hfcore.batch.worker`).
+Dask cluster (:mod:`hfcore.batch.cluster`); each is exactly the
+single run of its request (:mod:`hfcore.batch.worker`).
 """
 
 from __future__ import annotations
@@ -15,7 +15,6 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from .cluster import connect_dask, dask_results
-from .command import energy_defaults
 from .jobs import Job, largest_first
 from .pool import LocalPool, usable_cores
 from .results import ResultsWriter
@@ -103,8 +102,8 @@ def run_batch(
     scheduler_timeout : float
         Seconds to wait for the scheduler.
     extra : mapping, optional
-        Further ``energy`` arguments passed to every job but not part of
-        its identity.
+        Further request fields passed to every job but not part of its
+        identity (e.g. ``threads``).
     should_stop : callable
         Polled while jobs run; returning true abandons the running jobs.
     on_start : callable, optional
@@ -130,9 +129,8 @@ def run_batch(
     outcome = BatchOutcome(list(jobs))
     with ResultsWriter(results_path) as writer:
         outcome.truncated_bytes = writer.truncated_bytes
-        known = writer.contents.latest()
-        wanted = {j.key for j in jobs}
-        outcome.records = {k: r for k, r in known.items() if k in wanted}
+        known = writer.contents.latest_for(jobs)  # by current key, whatever rule the file's lines used
+        outcome.records = dict(known)
         todo = []
         for job in jobs:
             previous = known.get(job.key)
@@ -156,7 +154,7 @@ def run_batch(
             # Each job gets the batch's thread count for everything that takes
             # one (BLAS and, where 'energy' has --threads, the integral passes),
             # so N workers never oversubscribe the cores.
-            job_extra = {**({"threads": threads} if "threads" in energy_defaults() else {}), **(extra or {})}
+            job_extra = {"threads": threads, **(extra or {})}
             payloads = [{"job": j.record(), "extra": job_extra, "blas_threads": threads if scheduler else None}
                         for j in largest_first(todo)]
             if client is not None:

@@ -1,14 +1,13 @@
-"""One batch job in a worker process: exactly ``hfcore energy GEOMETRY --json -``.
+"""One batch job in a worker process: exactly the single run :func:`hfcore.runs.run_single` of its request.
 
-The worker sends back the whole results line (the ``energy --json`` record
-for a success, the one-line message and exit code of the single run for a
-failure); only the parent process writes the results file, so a worker
+The worker sends back the whole results line (the run's JSON record, as
+``hfcore energy --json`` writes it, for a success; the one-line message and
+exit code of the single run for a failure); only the parent process writes the results file, so a worker
 that dies or is killed never leaves half a line or a duplicate behind.
 """
 
 from __future__ import annotations
 
-import argparse
 import contextlib
 import os
 import socket
@@ -36,15 +35,15 @@ def _blas_limit(threads: int | None) -> contextlib.AbstractContextManager:
 
 
 def run_job(payload: Mapping[str, Any]) -> dict[str, Any]:
-    """Run one job as ``hfcore energy --json -`` would and return its results line.
+    """Run one job's request and return its results line.
 
     Parameters
     ----------
     payload : mapping
         ``job``: the job record (:meth:`Job.record`); ``extra``: further
-        ``energy`` arguments that are not part of the job's identity (e.g.
-        threads); ``blas_threads``: a BLAS thread limit to apply here, or
-        ``None``.
+        request fields that are not part of the job's identity (e.g.
+        ``threads``); ``blas_threads``: a BLAS thread limit to apply here,
+        or ``None``.
 
     Returns
     -------
@@ -56,19 +55,16 @@ def run_job(payload: Mapping[str, Any]) -> dict[str, Any]:
         than the wall time on a busy machine), ``host`` and ``pid``. Never raises for a job
         that fails: the failure is the record.
     """
-    from .. import cli
-    from .command import energy_defaults
+    from ..runs import RunRequest, run_single
 
     job = dict(payload["job"])
     started, cpu_started = time.perf_counter(), time.process_time()
-    args = argparse.Namespace(**{
-        **energy_defaults(), **job["options"], **payload.get("extra", {}),
-        "geometry": job["geometry"], "basis": job["basis"], "charge": job["charge"],
-    })
     outcome: dict[str, Any]
     try:
+        fields = {**job["options"], **payload.get("extra", {}), "basis": job["basis"], "charge": job["charge"]}
+        request = RunRequest.from_dict(job["geometry"], fields)
         with _blas_limit(payload.get("blas_threads")):
-            outcome = {"status": "ok", **cli.energy_record(args)}
+            outcome = {"status": "ok", **run_single(request).record}
     except HfcoreError as exc:
         outcome = {"status": "failed", "error": {"message": _one_line(str(exc)), "exit_code": exc.exit_code,
                                                  "kind": type(exc).__name__}}

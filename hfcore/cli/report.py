@@ -12,8 +12,8 @@ from typing import Any
 
 import numpy as np
 
-from .basis.components import L_LETTERS
-from .units import BOHR_IN_ANGSTROM, EV_PER_HARTREE
+from ..basis.components import L_LETTERS
+from ..units import BOHR_IN_ANGSTROM, EV_PER_HARTREE
 
 #: Virtual orbitals listed after the LUMO before the list is cut short.
 MAX_VIRTUALS_SHOWN: int = 10
@@ -95,8 +95,18 @@ def format_basis(basis: Any, plan: Any = None) -> str:
     return heading("Basis") + "\n" + _pairs(info)
 
 
-def _mib(n_bytes: int) -> str:
-    return f"{n_bytes / 2**20:.3g} MiB"
+def _mib(n_bytes: float) -> str:
+    """A memory size in MiB, or GiB / TiB when large, to three significant digits (never an exponent)."""
+    value = n_bytes / 2**20
+    for unit in ("MiB", "GiB", "TiB"):
+        if round(value, 2 - _magnitude(value)) < 1000 or unit == "TiB":
+            return f"{value:.3g} {unit}" if value < 1000 else f"{value:.0f} {unit}"
+        value /= 1024
+    raise AssertionError("unreachable")
+
+
+def _magnitude(value: float) -> int:
+    return int(np.floor(np.log10(value))) if value > 0 else 0
 
 
 def _jk_rows(plan: Any) -> list[tuple[str, str]]:
@@ -187,6 +197,13 @@ def format_aid_switch(record: Any) -> str:
     return f"  -- no progress: switching to {record.aid} --"
 
 
+#: How the report names each stability setting.
+STABILITY_SETTINGS: dict[str, str] = {
+    "report": "report (analysed and reported; --stability descend would move to a lower solution)",
+    "descend": "descend (analysed; an unstable solution is left for a lower one)",
+}
+
+
 def format_stability(result: Any) -> str:
     """The stability section: what was checked after convergence, the aufbau check and the aids used.
 
@@ -199,10 +216,13 @@ def format_stability(result: Any) -> str:
     st = result.stability
     rows: list[tuple[str, str]] = []
     if st is None:
-        rows.append(("internal stability", "not checked (--stability off)"))
+        rows.append(("internal stability", "not checked (--stability skip)"))
     else:
-        verdict = "stable" if st.stable else "UNSTABLE"
-        rows.append(("internal stability", f"{verdict} ({st.mode}): {st.message}"))
+        # The message states the verdict itself ("stable after ...", "unstable: ..."),
+        # so it is shown once, with the setting on a row of its own.
+        message = st.message if st.stable else st.message.replace("unstable", "UNSTABLE", 1)
+        rows.append(("internal stability", message))
+        rows.append(("setting", STABILITY_SETTINGS.get(st.mode, st.mode)))
         threshold = f"threshold -{st.threshold:.0e}"
         if np.isfinite(st.lowest_eigenvalue):
             rows.append(("lowest eigenvalue", f"{st.lowest_eigenvalue:.4e} Eh (orbital Hessian, {threshold})"))
@@ -320,18 +340,19 @@ def format_properties(analysis: dict[str, Any]) -> str:
 
 
 def format_mp2(mp2: Any) -> str:
-    """MP2 and SCS-MP2 correlation and total energies, in hartree."""
+    """MP2 and SCS-MP2 energies as a table (rows: same-spin, opposite-spin, correlation, total), in hartree."""
+    from ..analysis.mp2 import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN
+
     plural = "s" if mp2.frozen_core > 1 else ""
     core = f"{mp2.frozen_core} frozen core orbital{plural}" if mp2.frozen_core else "all electrons correlated"
     rows = [
-        ("same-spin", mp2.same_spin),
-        ("opposite-spin", mp2.opposite_spin),
-        ("MP2 correlation", mp2.correlation),
-        ("MP2 total", mp2.energy_total),
-        ("SCS-MP2 correlation", mp2.scs_correlation),
-        ("SCS-MP2 total", mp2.scs_energy_total),
+        ("same-spin", mp2.same_spin, SCS_SAME_SPIN * mp2.same_spin),
+        ("opposite-spin", mp2.opposite_spin, SCS_OPPOSITE_SPIN * mp2.opposite_spin),
+        ("correlation", mp2.correlation, mp2.scs_correlation),
+        ("total", mp2.energy_total, mp2.scs_energy_total),
     ]
-    body = [f"  {name:<20}{value:22.12f}" for name, value in rows]
+    body = [f"  {'':<16}{'MP2':>22}{'SCS-MP2':>22}"]
+    body += [f"  {name:<16}{plain:22.12f}{scaled:22.12f}" for name, plain, scaled in rows]
     body.append(f"  ({core}; {mp2.n_active_occupied} occupied and {mp2.n_virtual} virtual orbitals;")
     body.append("   SCS-MP2: 6/5 opposite-spin + 1/3 same-spin, S. Grimme, J. Chem. Phys. 118, 9095 (2003))")
     if getattr(mp2, "fit_name", None):
@@ -339,10 +360,29 @@ def format_mp2(mp2: Any) -> str:
     return heading("MP2 / Eh") + "\n" + "\n".join(body)
 
 
-def format_timings(timings: dict[str, float], wall: float) -> str:
-    """Timings of the stages and of the whole command, in seconds."""
-    rows = [(name, f"{seconds:9.3f} s") for name, seconds in timings.items()]
-    rows.append(("whole command", f"{wall:9.3f} s"))
+#: Report labels of the stages the timings hold, in the order they run.
+_STAGE_LABELS: dict[str, str] = {
+    "integrals": "integrals", "guess": "guess", "scf": "iterations", "stability": "stability",
+    "total": "SCF total", "mp2": "MP2 (not in the SCF total)",
+}
+
+
+def format_timings(timings: dict[str, float], wall: float, counted: str = "since the process started") -> str:
+    """Timings of the stages, then of MP2, then of the whole command, in seconds.
+
+    Parameters
+    ----------
+    timings : dict
+        Seconds by stage, as in the JSON record (``total`` is the SCF's total
+        and does not include ``mp2``).
+    wall : float
+        Seconds of the whole command.
+    counted : str
+        What ``wall`` counts from, e.g. ``"since the process started"``.
+    """
+    order = [k for k in _STAGE_LABELS if k in timings] + [k for k in timings if k not in _STAGE_LABELS]
+    rows = [(_STAGE_LABELS.get(name, name), f"{timings[name]:9.3f} s") for name in order]
+    rows.append((f"whole command ({counted})", f"{wall:9.3f} s"))
     return heading("Timings") + "\n" + _pairs(rows)
 
 
@@ -399,7 +439,7 @@ def format_comparison(comparison: Any) -> str:
 
 def _element_span(atomic_numbers: Iterable[int]) -> str:
     # Runs of consecutive elements read better as ranges: "H–Ar" rather than 18 symbols.
-    from . import elements
+    from .. import elements
 
     zs = sorted(atomic_numbers)
     runs: list[list[int]] = []

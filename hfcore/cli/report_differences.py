@@ -1,6 +1,6 @@
 """Human-readable tables of energy differences: interaction and reaction energies.
 
-A room of its own beside :mod:`hfcore.report` so that the single-molecule
+A room of its own beside :mod:`hfcore.cli.report` so that the single-molecule
 report stays short. As there, every function returns text and computes no
 physics; unit factors come from :mod:`hfcore.analysis.compare`.
 """
@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from .analysis.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from ..analysis.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
 from .report import atom_ranges, heading
 
 

@@ -131,7 +131,7 @@ class RHFResult:
         (empty when the chosen accelerator sufficed).
     stability : StabilityReport or None
         What the stability analysis checked and did; None with
-        ``stability="off"`` or for an unconverged run.
+        ``stability="skip"`` or for an unconverged run.
     fit_basis : BasisSet or None
         The fitting set of a fitted run.
     fit_notes : tuple of str

@@ -133,8 +133,8 @@ def solve_rhf(
     RHFResult
         With ``molecule`` and ``basis`` left as None; timings hold "guess",
         "scf", "stability" and "total". Unless ``options.stability`` is
-        "off", the converged solution has been analysed (and, with
-        "follow", left along unstable modes) by
+        "skip", the converged solution has been analysed (and, with
+        "descend", left along unstable modes) by
         :func:`hfcore.scf.following.stabilise`.
 
     Raises
@@ -172,7 +172,7 @@ def solve_rhf(
         result = replace(result, message=f"{result.message}; automatic aids tried: {', '.join(schedule.used)}")
     if not result.converged:
         raise ConvergenceError(result.message, result)
-    if options.stability != "off" and _solution == 0:
+    if options.stability != "skip" and _solution == 0:
         from .following import stabilise
 
         result = stabilise(result, jk, int(n_electrons), energy_nuclear, progress=progress)
