@@ -24,12 +24,24 @@ from .errors import InputError
 #: tensor takes nbf**4 * 8 bytes, 0.8 GB at 100 functions.
 ERI_NPZ_MAX_FUNCTIONS: int = 100
 
-#: What the numbers in the exported records mean.
+#: What the numbers in a single run's record mean (only keys the record holds).
 UNITS: dict[str, str] = {
     "energy": "hartree",
-    "length": "bohr (coordinates_angstrom: angstrom)",
+    "length": "bohr",
     "orbital_energies": "hartree",
     "dipole": "e*bohr (atomic units); dipole_debye: debye",
+    "quadrupole": "e*bohr^2 (atomic units, traceless); quadrupole_debye_angstrom: debye*angstrom",
+    "charges": "e (elementary charge)",
+    "time": "seconds",
+}
+
+#: Units of the study records: energies and times only (the rows hold no coordinates, dipoles or charges).
+COMPARISON_UNITS: dict[str, str] = {
+    "energy": "hartree; delta_mEh: millihartree; delta_kcal_mol: kcal/mol",
+    "time": "seconds",
+}
+DIFFERENCE_UNITS: dict[str, str] = {
+    "energy": "hartree; keys ending _kJ_mol: kJ/mol; keys ending _kcal_mol: kcal/mol",
     "charges": "e (elementary charge)",
     "time": "seconds",
 }
@@ -302,21 +314,21 @@ def comparison_record(comparison: Any) -> dict[str, Any]:
     """The JSON record of a basis comparison: ``hfcore``, ``units``, ``comparison``."""
     from . import __version__
 
-    return {"hfcore": {"version": __version__}, "units": UNITS, "comparison": comparison.to_dict()}
+    return {"hfcore": {"version": __version__}, "units": COMPARISON_UNITS, "comparison": comparison.to_dict()}
 
 
 def interaction_record(study: Any) -> dict[str, Any]:
     """The JSON record of an interaction study: ``hfcore``, ``units``, ``interaction``."""
     from . import __version__
 
-    return {"hfcore": {"version": __version__}, "units": UNITS, "interaction": study.to_dict()}
+    return {"hfcore": {"version": __version__}, "units": DIFFERENCE_UNITS, "interaction": study.to_dict()}
 
 
 def reaction_record(study: Any) -> dict[str, Any]:
     """The JSON record of a reaction study: ``hfcore``, ``units``, ``reaction``."""
     from . import __version__
 
-    return {"hfcore": {"version": __version__}, "units": UNITS, "reaction": study.to_dict()}
+    return {"hfcore": {"version": __version__}, "units": DIFFERENCE_UNITS, "reaction": study.to_dict()}
 
 
 def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS) -> dict[str, np.ndarray]:

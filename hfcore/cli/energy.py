@@ -74,8 +74,9 @@ def add_parser(sub: Any) -> argparse.ArgumentParser:
     )
     post.add_argument(
         "--mp2-fit-basis", metavar="NAME",
-        help="with --mp2: density-fitted MP2 with this RI fitting set (e.g. cc-pVTZ-RI, def2-SVP-RI), or auto: "
-        "cc-pVXZ-RI for (aug-)cc-pVXZ, def2-SVP-RI for def2-SVP, def2-TZVP-RI otherwise (default: exact integrals)",
+        help="with --mp2: density-fitted MP2 with this MP2 fitting set (e.g. cc-pVTZ-RIFIT, def2-SVP-RIFIT), or auto: "
+        "cc-pVXZ-RIFIT for (aug-)cc-pVXZ, def2-SVP-RIFIT for def2-SVP, def2-TZVP-RIFIT otherwise "
+        "(default: exact integrals; see 'hfcore bases')",
     )
     post.add_argument(
         "--origin", nargs=3, type=finite_float, metavar=("X", "Y", "Z"),

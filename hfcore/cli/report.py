@@ -452,6 +452,13 @@ def _element_span(atomic_numbers: Iterable[int]) -> str:
     return ", ".join(parts)
 
 
+#: What each kind of shipped set is for, by the library's family label (orbital sets have their own labels).
+SET_USES: dict[str, str] = {
+    "jk-fitting": "J/K fitting (--fit-basis)",
+    "mp2-fitting": "MP2 fitting (--mp2-fit-basis)",
+}
+
+
 def format_basis_list(families: Sequence[Any], fitted: Sequence[str]) -> str:
     """The basis sets the command line accepts.
 
@@ -463,10 +470,12 @@ def format_basis_list(families: Sequence[Any], fitted: Sequence[str]) -> str:
         Names of the fitted Slater sets.
     """
     width = max(len(f.name) for f in families)
-    lines = [heading("Basis sets shipped with hfcore"), f"  {'name':<{width}}   {'default form':<16} elements"]
+    lines = [heading("Basis sets shipped with hfcore"),
+             f"  {'name':<{width}}   {'use':<22} {'default form':<16} elements"]
     for family in families:
         form = "real spherical" if family.default_spherical else "Cartesian"
-        lines.append(f"  {family.name:<{width}}   {form:<16} {_element_span(family.elements())}")
+        use = SET_USES.get(getattr(family, "family", ""), "orbital set (--basis)")
+        lines.append(f"  {family.name:<{width}}   {use:<22} {form:<16} {_element_span(family.elements())}")
     lines.append(heading("Fitted Slater sets (H–Ar; --zeta changes their exponents)"))
     lines.append("  " + "  ".join(fitted))
     lines.append("\n  Other published sets are found by name with the optional extra: pip install 'hfcore[bse]'")
