@@ -471,11 +471,11 @@ def format_basis_list(families: Sequence[Any], fitted: Sequence[str]) -> str:
     """
     width = max(len(f.name) for f in families)
     lines = [heading("Basis sets shipped with hfcore"),
-             f"  {'name':<{width}}   {'use':<22} {'default form':<16} elements"]
+             f"  {'name':<{width}}   {'use':<29} {'default form':<16} elements"]
     for family in families:
         form = "real spherical" if family.default_spherical else "Cartesian"
         use = SET_USES.get(getattr(family, "family", ""), "orbital set (--basis)")
-        lines.append(f"  {family.name:<{width}}   {use:<22} {form:<16} {_element_span(family.elements())}")
+        lines.append(f"  {family.name:<{width}}   {use:<29} {form:<16} {_element_span(family.elements())}")
     lines.append(heading("Fitted Slater sets (H–Ar; --zeta changes their exponents)"))
     lines.append("  " + "  ".join(fitted))
     lines.append("\n  Other published sets are found by name with the optional extra: pip install 'hfcore[bse]'")
