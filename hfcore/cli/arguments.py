@@ -118,7 +118,18 @@ class Parser(argparse.ArgumentParser):
 
 
 def _value_hint(message: str, argv: Sequence[str]) -> str:
-    """A hint for ``--opt -1,1``: a value that starts with '-' must be attached with '='."""
+    """A hint naming the cause of two usage errors that hide it.
+
+    ``--opt -1,1``: a value that starts with '-' must be attached with '='.
+    A missing GEOMETRY after ``--basis-for X`` / ``--zeta X`` with X not
+    ``EL=...``: the option took X.
+    """
+    if "required: GEOMETRY" in message:
+        for position, token in enumerate(argv[:-1]):
+            if token in ELEMENT_ITEM_OPTIONS:
+                return (f"; {token} took {argv[position + 1]!r} as one of its EL=... items: "
+                        f"give the geometry first, or the items as {token}=EL=...")
+        return ""
     match = re.match(r"argument ([-\w]+)(?:/[-\w]+)*: expected (?:one|\d+) arguments?", message)
     if not match:
         return ""
