@@ -280,7 +280,7 @@ def run_batch_command(args: argparse.Namespace, console: Any) -> int:
         )
         signum = received()
     progress.close()
-    from . import report
+    from . import report_batch as report
 
     console.report(report.format_batch_run(outcome, args.results))
     if signum is not None:
@@ -293,7 +293,7 @@ def run_batch_command(args: argparse.Namespace, console: Any) -> int:
 def _summary(args: argparse.Namespace, console: Any) -> int:
     from ..batch.summary import energy_table
     from ..export import check_output_path
-    from . import report
+    from . import report_batch as report
 
     if args.plot:
         check_output_path(args.plot)

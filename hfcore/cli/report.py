@@ -26,7 +26,8 @@ def heading(title: str) -> str:
     return f"\n{title}\n{'─' * _RULE_WIDTH}"
 
 
-def _pairs(rows: Iterable[tuple[str, str]], indent: int = 2) -> str:
+def pairs(rows: Iterable[tuple[str, str]], indent: int = 2) -> str:
+    """Rows of (label, value) with the values aligned."""
     items = list(rows)
     width = max(len(k) for k, _ in items)
     return "\n".join(f"{' ' * indent}{k:<{width}}   {v}" for k, v in items)
@@ -52,7 +53,7 @@ def format_molecule(molecule: Any) -> str:
     ghosts = np.flatnonzero(molecule.ghosts)
     if ghosts.size:
         info.append(("ghost atoms", f"{atom_ranges(ghosts)} (basis functions only: no nucleus, no electrons)"))
-    lines.append(_pairs(info))
+    lines.append(pairs(info))
     lines.append("")
     lines.append(f"  {'#':>4}  {'element':<7}  {'x / Å':>13}  {'y / Å':>13}  {'z / Å':>13}")
     xyz = np.asarray(molecule.coordinates) * BOHR_IN_ANGSTROM
@@ -92,7 +93,7 @@ def format_basis(basis: Any, plan: Any = None) -> str:
     ]
     if plan is not None:
         info.extend(_jk_rows(plan))
-    return heading("Basis") + "\n" + _pairs(info)
+    return heading("Basis") + "\n" + pairs(info)
 
 
 def _mib(n_bytes: float) -> str:
@@ -244,7 +245,7 @@ def format_stability(result: Any) -> str:
         rows.append(("convergence aids", "; ".join(starts)))
     else:
         rows.append(("convergence aids", "none needed"))
-    return heading("Stability and occupation") + "\n" + _pairs(rows)
+    return heading("Stability and occupation") + "\n" + pairs(rows)
 
 
 def format_energies(result: Any) -> str:
@@ -336,7 +337,7 @@ def format_properties(analysis: dict[str, Any]) -> str:
     ie = analysis["koopmans_ionisation"]
     rows.append(("Koopmans ionisation energy", f"{ie:14.8f} Eh  {ie * EV_PER_HARTREE:10.4f} eV"))
     rows.append(("virial ratio -V/T", f"{analysis['virial_ratio']:14.8f}"))
-    return heading("Properties") + "\n" + _pairs(rows)
+    return heading("Properties") + "\n" + pairs(rows)
 
 
 def format_mp2(mp2: Any) -> str:
@@ -383,7 +384,7 @@ def format_timings(timings: dict[str, float], wall: float, counted: str = "since
     order = [k for k in _STAGE_LABELS if k in timings] + [k for k in timings if k not in _STAGE_LABELS]
     rows = [(_STAGE_LABELS.get(name, name), f"{timings[name]:9.3f} s") for name in order]
     rows.append((f"whole command ({counted})", f"{wall:9.3f} s"))
-    return heading("Timings") + "\n" + _pairs(rows)
+    return heading("Timings") + "\n" + pairs(rows)
 
 
 def format_sto_fit(fit: Any) -> str:
@@ -400,7 +401,7 @@ def format_sto_fit(fit: Any) -> str:
         ("Gaussians", str(fit.n_gaussians)),
         ("Slater exponent ζ", f"{fit.zeta:g} bohr⁻¹"),
     ]
-    lines = [heading("Least-squares Gaussian fit to a Slater function"), _pairs(info), ""]
+    lines = [heading("Least-squares Gaussian fit to a Slater function"), pairs(info), ""]
     header = f"  {'#':>3}  {'exponent α / bohr⁻²':>22}" + "".join(f"  {'d(' + letters[l] + ')':>14}" for l in ls)
     lines.append(header)
     for k, alpha in enumerate(fit.exponents):
@@ -483,72 +484,6 @@ def format_basis_list(families: Sequence[Any], fitted: Sequence[str]) -> str:
 
 
 
-def format_batch_run(outcome: Any, results_path: str) -> str:
-    """The summary at the end of ``hfcore batch``.
-
-    Parameters
-    ----------
-    outcome : BatchOutcome
-        From :func:`hfcore.batch.run_batch`.
-    results_path : str
-        The results file, named in the summary.
-    """
-    ran = outcome.ran
-    ok = sum(r["status"] == "ok" for r in ran)
-    rows = [
-        ("jobs", f"{len(outcome.jobs)}"),
-        ("run now", f"{len(ran)}: {ok} ok, {len(ran) - ok} failed"),
-        ("skipped", f"{outcome.skipped_ok} already ok, {outcome.skipped_failed} already failed"),
-    ]
-    if outcome.missing:
-        rows.append(("not finished", f"{len(outcome.missing)} (stopped; run the same command again)"))
-    rows.append(("wall time", f"{outcome.wall_seconds:.2f} s"))
-    times = [(r["batch"]["wall_seconds"], r["job"]) for r in ran if r["batch"].get("wall_seconds") is not None]
-    if times:
-        mean = sum(t for t, _ in times) / len(times)
-        longest, job = max(times, key=lambda item: item[0])
-        rows.append(("per job", f"mean {mean:.2f} s, longest {longest:.2f} s ({job['geometry']} {job['basis']})"))
-    rows.append(("results", results_path))
-    lines = [heading("Batch"), _pairs(rows)]
-    failed = outcome.failed
-    if failed:
-        groups: dict[tuple[int, str], list[str]] = {}
-        for record in failed:
-            error = record["error"]
-            groups.setdefault((error["exit_code"], error["message"]), []).append(record["job"]["basis"])
-        lines.append(heading(f"Failed jobs: {len(failed)}, by reason"))
-        for (code, message), bases in sorted(groups.items(), key=lambda item: -len(item[1])):
-            lines.append(f"  {len(bases):>4} × exit {code:<3} {message}  [{', '.join(bases)}]")
-    return "\n".join(lines)
-
-
-def format_batch_energies(table: Any) -> str:
-    """Energies from a results file as a table: one row per geometry, one column per basis.
-
-    Parameters
-    ----------
-    table : EnergyTable
-        From :func:`hfcore.batch.energy_table`.
-    """
-    if not table.geometries:
-        return heading(f"Energies / Eh in {table.path}") + "\n  no finished jobs yet"
-    width = max(len("geometry"), *(len(g) for g in table.geometries))
-    column = max(16, *(len(b) + 2 for b in table.bases))
-    lines = [heading(f"Energies / Eh in {table.path}"),
-             f"  {'geometry':<{width}}" + "".join(f"{b:>{column}}" for b in table.bases)]
-    for geometry in table.geometries:
-        cells = []
-        for basis in table.bases:
-            energy = table.energies.get((geometry, basis))
-            if energy is not None:
-                cells.append(f"{energy:>{column}.10f}")
-            else:
-                cells.append(f"{'failed' if (geometry, basis) in table.failures else '—':>{column}}")
-        lines.append(f"  {geometry:<{width}}" + "".join(cells))
-    if table.failures:
-        lines.append(f"\n  {len(table.failures)} failed job(s); their lines in the results file say why")
-    return "\n".join(lines)
-
 __all__ = [
     "MAX_VIRTUALS_SHOWN",
     "EV_PER_HARTREE",
@@ -571,6 +506,4 @@ __all__ = [
     "format_sto_fit",
     "format_comparison",
     "format_basis_list",
-    "format_batch_run",
-    "format_batch_energies",
 ]
