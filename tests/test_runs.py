@@ -25,14 +25,48 @@ def _one_error_line(err: str) -> str:
     return lines[0]
 
 
-def test_run_single_gives_the_record_the_energy_command_prints():
-    outcome = run_single(RunRequest(INPUTS / "water.xyz", basis="sto-3g", mp2=True))
-    code, out, _ = run_main("energy", INPUTS / "water.xyz", "--mp2", "--json", "-")
+def test_run_single_matches_the_reference_library_and_the_energy_command_prints_its_record():
+    from pyscf import mp
+    from reference import family_shells, reference_mole, reference_rhf
+
+    request = RunRequest(INPUTS / "water.xyz", basis="6-31g*", spherical=False, mp2=True, energy_tol=1e-12,
+                         gradient_tol=1e-9)
+    outcome = run_single(request)
+    molecule = outcome.molecule
+    ref = reference_rhf(reference_mole(molecule, family_shells(molecule, "6-31g*"), spherical=False),
+                        conv_tol=1e-12, conv_tol_grad=1e-9)
+    theirs = mp.MP2(ref).run(verbose=0)
+    # source: reference library run (RHF and MP2 on the same shells)
+    assert outcome.record["energy"]["total"] == pytest.approx(ref.e_tot, abs=1e-8)
+    assert outcome.mp2.correlation == pytest.approx(theirs.e_corr, abs=1e-8)
+    code, out, _ = run_main("energy", INPUTS / "water.xyz", "--basis", "6-31g*", "--cartesian", "--mp2",
+                            "--energy-tol", "1e-12", "--gradient-tol", "1e-9", "--json", "-")
     printed = json.loads(out)
     assert code == 0
-    assert outcome.record["energy"]["total"] == printed["energy"]["total"]
-    assert outcome.record["mp2"]["total"] == printed["mp2"]["total"] == outcome.mp2.energy_total
-    assert outcome.record["analysis"]["dipole_magnitude_debye"] == printed["analysis"]["dipole_magnitude_debye"]
+    assert printed["energy"]["total"] == pytest.approx(ref.e_tot, abs=1e-8)
+    assert printed["mp2"]["correlation"] == pytest.approx(theirs.e_corr, abs=1e-8)
+
+
+def test_the_mp2_table_shows_the_reference_spin_parts_and_their_scaled_sums():
+    from pyscf import mp
+    from reference import family_shells, reference_mole, reference_rhf
+
+    code, out, _ = run_main("energy", INPUTS / "water.xyz", "--basis", "6-31g*", "--cartesian", "--mp2", "--quiet",
+                            "--energy-tol", "1e-12", "--gradient-tol", "1e-9")
+    assert code == 0
+    rows = out.split("MP2 / Eh", 1)[1].splitlines()[3:7]
+    table = {row.split()[0]: [float(v) for v in row.split()[1:]] for row in rows}
+    molecule = run_single(RunRequest(INPUTS / "water.xyz")).molecule
+    ref = reference_rhf(reference_mole(molecule, family_shells(molecule, "6-31g*"), spherical=False),
+                        conv_tol=1e-12, conv_tol_grad=1e-9)
+    theirs = mp.MP2(ref).run(verbose=0)
+    # source: reference library run; SCS weights 6/5 and 1/3 from S. Grimme, J. Chem. Phys. 118, 9095 (2003)
+    # (from memory). The table prints 12 decimals.
+    ss, os_ = theirs.e_corr_ss, theirs.e_corr_os
+    expected = {"same-spin": [ss, ss / 3], "opposite-spin": [os_, 1.2 * os_], "correlation": [ss + os_, ss / 3 + 1.2 * os_],
+                "total": [ref.e_tot + ss + os_, ref.e_tot + ss / 3 + 1.2 * os_]}
+    for name, (plain, scaled) in expected.items():
+        assert table[name] == pytest.approx([plain, scaled], abs=1e-8), name
 
 
 def test_run_single_reports_progress_through_its_callbacks():
