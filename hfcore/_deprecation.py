@@ -115,3 +115,26 @@ def _old_attribute(owner: str, old: str, new: str) -> property:
 
     read.__doc__ = f"Deprecated name of ``{new}`` (warns)."
     return property(read)
+
+
+def renamed_value(what: str, value: str, renames: Mapping[str, str]) -> str:
+    """The new spelling of an option value renamed for one release, with a DeprecationWarning.
+
+    Parameters
+    ----------
+    what : str
+        What the value sets, for the message (e.g. ``"the stability setting"``).
+    value : str
+        The value as given.
+    renames : mapping of str to str
+        Old spelling to new spelling.
+
+    Returns
+    -------
+    str
+        ``renames[value]`` (warning) or ``value`` itself when it is not an old spelling.
+    """
+    if value not in renames:
+        return value
+    warnings.warn(f"{what} {value!r} is deprecated; use {renames[value]!r}", DeprecationWarning, stacklevel=3)
+    return renames[value]

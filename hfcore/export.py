@@ -29,6 +29,17 @@ ERI_NPZ_MAX_FUNCTIONS: int = 100
 #: What the numbers in the exported records mean (the RHF record's own, :data:`hfcore.scf.result.UNITS`).
 UNITS: dict[str, str] = RESULT_UNITS
 
+#: Units of the study records: energies and times only (the rows hold no coordinates, dipoles or charges).
+COMPARISON_UNITS: dict[str, str] = {
+    "energy": "hartree; delta_mEh: millihartree; delta_kcal_mol: kcal/mol",
+    "time": "seconds",
+}
+DIFFERENCE_UNITS: dict[str, str] = {
+    "energy": "hartree; keys ending _kJ_mol: kJ/mol; keys ending _kcal_mol: kcal/mol",
+    "charges": "e (elementary charge)",
+    "time": "seconds",
+}
+
 
 def check_output_path(path: str | os.PathLike) -> str:
     """Fail early if a file cannot be created at ``path``.
@@ -208,17 +219,17 @@ def sto_fit_record(fit: Any) -> dict[str, Any]:
 
 def comparison_record(comparison: Any) -> dict[str, Any]:
     """The JSON record of a basis comparison: ``hfcore``, ``units``, ``comparison``."""
-    return {"hfcore": {"version": __version__}, "units": UNITS, "comparison": comparison.to_dict()}
+    return {"hfcore": {"version": __version__}, "units": COMPARISON_UNITS, "comparison": comparison.to_dict()}
 
 
 def interaction_record(study: Any) -> dict[str, Any]:
     """The JSON record of an interaction study: ``hfcore``, ``units``, ``interaction``."""
-    return {"hfcore": {"version": __version__}, "units": UNITS, "interaction": study.to_dict()}
+    return {"hfcore": {"version": __version__}, "units": DIFFERENCE_UNITS, "interaction": study.to_dict()}
 
 
 def reaction_record(study: Any) -> dict[str, Any]:
     """The JSON record of a reaction study: ``hfcore``, ``units``, ``reaction``."""
-    return {"hfcore": {"version": __version__}, "units": UNITS, "reaction": study.to_dict()}
+    return {"hfcore": {"version": __version__}, "units": DIFFERENCE_UNITS, "reaction": study.to_dict()}
 
 
 def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS) -> dict[str, np.ndarray]:

@@ -38,7 +38,7 @@ sys.path.insert(0, str(ROOT / "tests"))
 def main() -> None:
     import hfcore
     from hfcore.studies.interaction import interaction_energies
-    from hfcore.cli_differences import parse_fragments
+    from hfcore.cli.interaction import parse_fragments
 
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("geometry", nargs="?", default=str(ROOT / "inputs" / "water_dimer.xyz"))

@@ -190,13 +190,13 @@ def test_the_1e200_coordinate_is_refused_by_the_real_process(tmp_path):
     ],
 )
 def test_a_floating_point_problem_past_validation_is_one_line_with_exit_6(monkeypatch, water_file, failure):
-    import hfcore.cli as cli
+    import hfcore.runs as runs
 
     def broken(*args, **kwargs):
         failure()
         raise AssertionError("the floating-point problem should have stopped the run")
 
-    monkeypatch.setattr(cli, "_read_molecule", broken)
+    monkeypatch.setattr(runs, "read_molecule", broken)
     proc = cli_result("energy", water_file.name, "--json", "out.json", cwd=water_file.parent)
     assert_one_line_error(proc, 6, "numerical failure")
     assert only_inputs_left(water_file.parent, water_file.name)

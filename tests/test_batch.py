@@ -406,14 +406,14 @@ def test_a_scheduler_that_does_not_answer(tmp_path):
 def test_bad_list_file_line(tmp_path):
     (tmp_path / "m.list").write_text("a.xyz charge=one\n")
     code, out, err = run_main("batch", f"@{tmp_path / 'm.list'}", "--results", tmp_path / "r.jsonl")
-    assert_one_line_error(code, out, err, 2, "m.list:1: expected 'PATH [charge=N]'")
+    assert_one_line_error(code, out, err, 2, "m.list:1: expected 'PATH [charge=N] [multiplicity=M]'")
     assert not (tmp_path / "r.jsonl").exists()
 
 
 def test_new_energy_options_flow_into_batch_even_when_a_batch_option_shadows_them():
     import argparse
 
-    from hfcore.batch.command import add_batch_parser
+    from hfcore.cli.batch import add_batch_parser
 
     root = argparse.ArgumentParser()
     sub = root.add_subparsers(dest="command")

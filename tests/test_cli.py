@@ -18,7 +18,8 @@ from reference import family_shells, reference_mole, reference_rhf
 
 from hfcore import export
 from hfcore.geometry import read_xyz
-from hfcore.cli import main, parse_basis_for
+from hfcore.cli import main
+from hfcore.runs import parse_basis_for
 from hfcore.errors import InputError
 
 REQUIRED_JSON_KEYS = [
@@ -477,12 +478,12 @@ def test_version_flag(tmp_path):
 
 
 def test_numpy_out_of_memory_exits_5_with_one_line(monkeypatch, water_file):
-    import hfcore.cli as cli
+    import hfcore.runs as runs
 
     def exhausted(*args, **kwargs):
         raise MemoryError
 
-    monkeypatch.setattr(cli, "_read_molecule", exhausted)
+    monkeypatch.setattr(runs, "read_molecule", exhausted)
     code, out, err = run_main("energy", str(water_file))
     assert code == 5 and out == ""
     assert err.startswith("hfcore: error: not enough memory") and err.count("\n") == 1
@@ -501,12 +502,12 @@ def test_reader_that_goes_away_ends_the_run_quietly_with_141(water_file):
 
 
 def test_interrupt_exits_130_with_one_line(monkeypatch, water_file):
-    import hfcore.cli as cli
+    import hfcore.runs as runs
 
     def interrupted(*args, **kwargs):
         raise KeyboardInterrupt
 
-    monkeypatch.setattr(cli, "_read_molecule", interrupted)
+    monkeypatch.setattr(runs, "read_molecule", interrupted)
     code, out, err = run_main("energy", str(water_file))
     assert code == 130 and out == "" and err == "hfcore: interrupted\n"
     assert os.path.exists(water_file)

@@ -12,7 +12,7 @@ from conftest import read_input, run_main
 
 import hfcore
 from hfcore import integrals
-from hfcore.cli import _IntegralProgress
+from hfcore.cli.console import IntegralProgress as _IntegralProgress
 from hfcore.errors import InputError, ResourceError
 from hfcore.scf import IncrementalJK, SCFOptions, plan_jk, run_rhf, solve_rhf
 from hfcore.scf.options import FALLBACK_MEMORY_MIB, MEMORY_FRACTION, default_memory_limit

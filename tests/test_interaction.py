@@ -11,7 +11,7 @@ from reference import family_shells, reference_energy, reference_mole
 import hfcore
 from hfcore.units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
 from hfcore.studies.interaction import check_fragments, interaction_energies, interaction_pieces
-from hfcore.cli_differences import parse_fragments
+from hfcore.cli.interaction import parse_fragments
 from hfcore.errors import InputError
 
 DIMER = INPUTS / "water_dimer.xyz"  # a geometry of our own (see its comment line)

@@ -278,22 +278,20 @@ def test_the_report_says_the_budget_bound_and_the_thread_cap_in_words(water_file
 
 def test_a_batch_never_runs_jobs_whose_predictions_exceed_the_shared_budget(tmp_path):
     from hfcore.batch import expand_geometries, make_jobs, run_batch
-    from hfcore.batch.command import _memory_estimator
-    from hfcore.cli import build_parser
+    from hfcore.cli.batch import _memory_estimator
 
     names = ["water", "methane", "ammonia", "hydrogen_fluoride", "methanol", "formaldehyde"]
     for name in names:
         copy_input(name, tmp_path)
     results = tmp_path / "r.jsonl"
-    args = build_parser().parse_args(["batch", "--results", str(results)])
-    memory_of = _memory_estimator(args)
+    memory_of = _memory_estimator()
     jobs, _ = make_jobs(expand_geometries([str(tmp_path / f"{n}.xyz") for n in names]), ["cc-pvdz"], 0, {})
     roomy = MemoryBudget(4 * GiB, "requested", "as requested")
     alone = {j.key: memory_of(j, roomy) for j in jobs}
     # Room for the largest job alone, or for two of the smaller ones.
     budget = MemoryBudget(int(1.05 * max(alone.values())), "requested", "as requested")
     forced = make_jobs(expand_geometries([str(tmp_path / "methanol.xyz")]), ["cc-pvdz"], 0,
-                       {"direct": False, "memory": 0.05})[0]
+                       {"direct": False, "memory_mib": 0.05})[0]
     outcome = run_batch(jobs + forced, str(results), workers=2, memory_of=memory_of, memory_budget=budget)
     lines = {r["job"]["key"]: r for r in outcome.ran}
     assert len(lines) == len(jobs) + 1

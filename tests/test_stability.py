@@ -123,7 +123,7 @@ def test_default_command_reaches_the_lowest_solution_of_the_reference_library(na
     assert stable
     assert record["energy"]["total"] == pytest.approx(energies[-1], abs=1e-8)
     assert record["scf"]["converged"] and record["scf"]["stability"]["stable"]
-    assert record["scf"]["stability"]["mode"] == "follow"
+    assert record["scf"]["stability"]["mode"] == "descend"
     assert record["scf"]["aufbau"]["satisfied"]
     assert "warning" not in err
 
@@ -171,7 +171,7 @@ def test_stretched_n2_matches_the_published_check_values():
 @pytest.mark.parametrize("name", ["water, O-H 1.89 Å", "ozone"])
 def test_stable_case_eigenvalues_agree_with_the_reference_library(name):
     atoms, basis_name = HARD_CASES[name]
-    result = run_rhf(_molecule(atoms), basis_name, SCFOptions(stability="check"))
+    result = run_rhf(_molecule(atoms), basis_name, SCFOptions(stability="report"))
     assert result.stability.stable
     # Source: reference library run, its internal-stability Hessian solved to 1e-12 (see the helper's note on scale).
     reference = _reference_hessian_eigenvalues(atoms, basis_name)
@@ -184,7 +184,7 @@ def test_lowest_eigenvalue_is_the_curvature_of_the_energy_along_its_mode_with_dr
     # eigenvector it equals the eigenvalue. Checked with functions dropped for near-linear
     # dependence (a raised threshold), so the rotations live in the reduced orbital space.
     molecule = _molecule("F 0 0 0\nH 0 0 0.917")
-    options = SCFOptions(lindep_threshold=1e-2, stability="check")
+    options = SCFOptions(lindep_threshold=1e-2, stability="report")
     result = run_rhf(molecule, "aug-cc-pvdz", options)
     assert result.n_dropped > 0
     jk = compute_eri(result.basis)
@@ -205,12 +205,12 @@ def test_lowest_eigenvalue_is_the_curvature_of_the_energy_along_its_mode_with_dr
 
 def test_check_mode_on_an_unstable_case_warns_and_flags_it_in_the_json(tmp_path):
     atoms, basis_name = HARD_CASES["N2 2.2 Å"]
-    record, err, code = _energy_json(tmp_path, atoms, basis_name, "--stability", "check")
+    record, err, code = _energy_json(tmp_path, atoms, basis_name, "--stability", "report")
     assert code == 0
     lines = err.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith("hfcore: warning: ") and "unstable" in lines[0]
     stability = record["scf"]["stability"]
-    assert stability["mode"] == "check" and stability["stable"] is False
+    assert stability["mode"] == "report" and stability["stable"] is False
     assert stability["lowest_eigenvalue"] < -stability["threshold"]
     # Source: checks.md (reference library measurement): the unfollowed solution is -108.2326862 Eh.
     assert record["energy"]["total"] == pytest.approx(-108.2326862, abs=1e-7)
@@ -220,8 +220,8 @@ def test_check_mode_on_an_unstable_case_warns_and_flags_it_in_the_json(tmp_path)
 def test_a_check_on_a_stable_molecule_changes_nothing():
     # Common practice: the analysis only reads the solution; on a stable one, follow has nothing to do.
     molecule = _molecule("O 0 0 0\nH 0 0.757 0.587\nH 0 -0.757 0.587")
-    off = run_rhf(molecule, "6-31g", SCFOptions(stability="off"))
-    check = run_rhf(molecule, "6-31g", SCFOptions(stability="check"))
+    off = run_rhf(molecule, "6-31g", SCFOptions(stability="skip"))
+    check = run_rhf(molecule, "6-31g", SCFOptions(stability="report"))
     follow = run_rhf(molecule, "6-31g")
     assert off.stability is None
     assert check.stability.stable and follow.stability.stable and follow.stability.rounds == 0
@@ -307,7 +307,7 @@ def test_a_solution_holding_the_lumo_instead_of_the_homo_fails_the_aufbau_check(
     h = integrals.kinetic(basis) + integrals.nuclear_attraction(
         basis, molecule.atomic_numbers.astype(float), molecule.coordinates
     )
-    options = SCFOptions(stability="check", auto_aids=False)
+    options = SCFOptions(stability="report", auto_aids=False)
     result = solve_rhf(s, h, compute_eri(basis), 10, molecule.nuclear_repulsion(), options, accelerator=SwapHomoLumo(5))
     assert result.converged
     assert not result.aufbau and result.aufbau_gap < 0.0

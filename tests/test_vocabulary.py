@@ -234,7 +234,7 @@ def test_stability_report_to_dict_is_the_json_object_and_products_is_an_old_name
     result = hfcore.run_rhf(hfcore.read_xyz(INPUTS / "water.xyz"), "sto-3g")
     st = result.stability
     record = json.loads(export.to_json(result.to_dict()))["scf"]["stability"]
-    assert set(record) == set(st.to_dict()) and record["mode"] == "follow" and record["stable"] is True
+    assert set(record) == set(st.to_dict()) and record["mode"] == "descend" and record["stable"] is True
     assert record["hessian_products"] == st.hessian_products > 0
     with pytest.warns(DeprecationWarning, match="StabilityReport.products is deprecated; use hessian_products"):
         assert st.products == st.hessian_products

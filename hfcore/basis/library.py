@@ -340,8 +340,10 @@ def find_family(name: str) -> BasisFamily:
         ) from None
     metadata = bse.get_metadata()
     if bse.misc.transform_basis_name(name) not in metadata:
-        names = available_basis_sets() + [m["display_name"] for m in metadata.values()]
-        raise BasisError(f"basis {name!r} is unknown to hfcore's library and to the basis-set-exchange package" + _close_names(name, names))
+        # hfcore's own sets first: a published name that is merely close in
+        # spelling (cc-pV9Z covers neon alone) is offered only when none is.
+        hint = _close_names(name, available_basis_sets()) or _close_names(name, [m["display_name"] for m in metadata.values()])
+        raise BasisError(f"basis {name!r} is unknown to hfcore's library and to the basis-set-exchange package" + hint)
     return _bse_family(name)
 
 

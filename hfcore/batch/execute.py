@@ -1,8 +1,8 @@
 """Running a batch: skip what the results file has, run the rest, append each line as it comes.
 
 The jobs run in local worker processes (:mod:`hfcore.batch.pool`) or on a
-Dask cluster (:mod:`hfcore.batch.cluster`); each is exactly an
-``hfcore energy --json -`` run (:mod:`hfcore.batch.worker`).
+Dask cluster (:mod:`hfcore.batch.cluster`); each is exactly the
+single run of its request (:mod:`hfcore.batch.worker`).
 """
 
 from __future__ import annotations
@@ -19,7 +19,6 @@ from .._memory import MemoryBudget, budget_for
 from .._parallel import split_cores, usable_cores
 from ..errors import HfcoreError
 from .cluster import connect_dask, dask_results
-from .command import energy_defaults
 from .jobs import Job, largest_first
 from .pool import LocalPool
 from .results import ResultsWriter
@@ -119,8 +118,8 @@ def run_batch(
     scheduler_timeout : float
         Seconds to wait for the scheduler.
     extra : mapping, optional
-        Further ``energy`` arguments passed to every job but not part of
-        its identity.
+        Further request fields passed to every job but not part of its
+        identity (e.g. ``threads``).
     should_stop : callable
         Polled while jobs run; returning true abandons the running jobs.
     on_start : callable, optional
@@ -132,7 +131,7 @@ def run_batch(
         the largest jobs start first. Called only for the jobs to run.
     memory_of : callable, optional
         ``memory_of(job, budget)``: the predicted peak bytes of a job under
-        the batch's budget (e.g. :func:`hfcore.cli.planned_memory`). Local
+        the batch's budget (e.g. :func:`hfcore.runs.planned_memory`). Local
         workers then reserve it from one shared budget, so the running
         jobs' predictions never exceed it together; a job that does not
         fit waits (smaller ones may start meanwhile), and one whose plan
@@ -157,9 +156,8 @@ def run_batch(
     outcome = BatchOutcome(list(jobs))
     with ResultsWriter(results_path) as writer:
         outcome.truncated_bytes = writer.truncated_bytes
-        known = writer.contents.latest()
-        wanted = {j.key for j in jobs}
-        outcome.records = {k: r for k, r in known.items() if k in wanted}
+        known = writer.contents.latest_for(jobs)  # by current key, whatever rule the file's lines used
+        outcome.records = dict(known)
         todo = []
         for job in jobs:
             previous = known.get(job.key)
@@ -190,7 +188,7 @@ def run_batch(
             # one (BLAS and, where 'energy' has --threads, the integral passes),
             # so N workers never oversubscribe the cores.
             # (after the cap above: a "threads" in ``extra`` is the batch's own, uncapped).
-            job_extra = {**(extra or {}), **({"threads": threads} if "threads" in energy_defaults() else {})}
+            job_extra = {**(extra or {}), "threads": threads}
             payloads, refused = [], []
             for j in largest_first(todo):
                 payload = {"job": j.record(), "extra": job_extra, "blas_threads": threads if scheduler else None,
@@ -201,8 +199,8 @@ def run_batch(
                     except HfcoreError as exc:  # cannot fit even alone: its line says why, the batch goes on
                         refused.append(failed_record(j.record(), exc))
                         continue
-                    if j.options.get("memory") is None and "memory" in energy_defaults():
-                        payload["extra"] = {**job_extra, "memory": budget.bytes / 2**20}
+                    if j.options.get("memory_mib") is None:
+                        payload["extra"] = {**job_extra, "memory_mib": budget.bytes / 2**20}
                 payloads.append(payload)
             if client is not None:
                 stream: Iterator[dict[str, Any]] = dask_results(payloads, client, should_stop)

@@ -37,7 +37,7 @@ POLL_S: float = 0.2
 #: Modules the fork server imports once, before it forks any worker.
 PRELOAD: tuple[str, ...] = (
     "numpy", "numpy.linalg", "scipy", "scipy.linalg", "threadpoolctl",
-    "hfcore.cli", "hfcore.scf", "hfcore.basis.sto", "hfcore._parallel", "hfcore.batch.command",
+    "hfcore.runs", "hfcore.export", "hfcore.scf", "hfcore.basis.sto", "hfcore._parallel",
     "hfcore.batch.worker",
 )
 
@@ -89,10 +89,7 @@ def _init_local_worker(threads: int | None = None, batch_pid: int | None = None)
         os.environ.update({name: str(threads) for name in THREAD_VARIABLES})
         from .._parallel import _controller
 
-        from .command import energy_defaults
-
         _controller()  # scan the loaded libraries now, not in the first job
-        energy_defaults()
 
 
 def _die_with_parent() -> None:
@@ -165,7 +162,7 @@ def _thread_environment(threads: int) -> Iterator[None]:
 
 def _warm_up() -> None:
     """Import what every job needs, while the parent still prepares the job list."""
-    from .. import cli, scf  # noqa: F401
+    from .. import runs, scf  # noqa: F401
     from ..basis import sto  # noqa: F401
 
 

@@ -3,8 +3,13 @@
 Layout (JSON Lines, UTF-8):
 
 * line 1, the header: ``{"hfcore_batch_results": FORMAT, "hfcore_version": "..."}``;
-  a file whose header names another format or another hfcore version is
-  refused, so results of different programs never mix;
+  a file whose header names an unknown format or another hfcore version is
+  refused, so results of different programs never mix. The format number
+  says which rule made the job keys: 2 (written now) keys a job by its run
+  request's fields, 1 by the command's option names; a file of format 1
+  still resumes, its jobs found by their rule-1 keys
+  (:attr:`hfcore.batch.jobs.Job.legacy_key`), and lines added to it keep
+  the file's own header;
 * then one line per finished job, ``{"job": {...}, "status": "ok" | "failed", ...}``.
 
 Every line is written with a single ``os.write`` on a descriptor opened
@@ -26,14 +31,16 @@ from __future__ import annotations
 import fcntl
 import json
 import os
-from collections.abc import Iterator, Mapping
+from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass
 from typing import Any
 
 from ..errors import ResultsFileError
 
-#: The version of the results-file layout; bumped on any incompatible change.
-RESULTS_FORMAT: int = 1
+#: The version of the results-file layout (and of the job-key rule); bumped on any incompatible change.
+RESULTS_FORMAT: int = 2
+#: Formats this hfcore reads and resumes (1: jobs keyed by the command's option names).
+READABLE_FORMATS: tuple[int, ...] = (1, 2)
 
 _HEADER_KEY = "hfcore_batch_results"
 
@@ -65,18 +72,40 @@ class ResultsContents:
         Length of a trailing line without newline (0 if none).
     valid_length : int
         Bytes up to and including the last complete line.
+    format : int
+        The results format in the header (the key rule of the file's lines);
+        :data:`RESULTS_FORMAT` for a new file.
     """
 
     records: list[dict[str, Any]]
     partial_bytes: int
     valid_length: int
+    format: int = RESULTS_FORMAT
 
     def latest(self) -> dict[str, dict[str, Any]]:
         """The last line of each job, by job key."""
         return {r["job"]["key"]: r for r in self.records}
 
+    def latest_for(self, jobs: Iterable[Any]) -> dict[str, dict[str, Any]]:
+        """The last line of each of ``jobs`` the file holds, by the job's (current) key.
 
-def _check_header(path: str, line: bytes) -> None:
+        In a file of format 1 a job is also found by its rule-1 key
+        (``job.legacy_key``); the later line counts when both are there.
+        """
+        latest = self.latest()
+        position = {id(r): k for k, r in enumerate(self.records)}
+        found = {}
+        for job in jobs:
+            lines = [latest.get(job.key)]
+            if self.format == 1 and getattr(job, "legacy_key", None):
+                lines.append(latest.get(job.legacy_key))
+            lines = [r for r in lines if r is not None]
+            if lines:
+                found[job.key] = max(lines, key=lambda r: position[id(r)])
+        return found
+
+
+def _check_header(path: str, line: bytes) -> int:
     try:
         header = json.loads(line)
     except ValueError:
@@ -84,12 +113,13 @@ def _check_header(path: str, line: bytes) -> None:
     if not isinstance(header, dict) or _HEADER_KEY not in header:
         raise ResultsFileError(f"{path}: not an hfcore batch results file (no header line)")
     ours = header_record()
-    if header.get(_HEADER_KEY) != ours[_HEADER_KEY] or header.get("hfcore_version") != ours["hfcore_version"]:
+    if header.get(_HEADER_KEY) not in READABLE_FORMATS or header.get("hfcore_version") != ours["hfcore_version"]:
         raise ResultsFileError(
             f"{path}: written by hfcore {header.get('hfcore_version')} (results format "
             f"{header.get(_HEADER_KEY)}), this is hfcore {ours['hfcore_version']} (format {RESULTS_FORMAT}); "
             "use a new results file"
         )
+    return int(header[_HEADER_KEY])
 
 
 def read_results(path: str) -> ResultsContents:
@@ -127,7 +157,7 @@ def read_results(path: str) -> ResultsContents:
     lines = data[:end].split(b"\n")[:-1]
     if not lines:
         raise ResultsFileError(f"{path}: not an hfcore batch results file (no complete header line)")
-    _check_header(path, lines[0])
+    file_format = _check_header(path, lines[0])
     records = []
     for number, line in enumerate(lines[1:], start=2):
         try:
@@ -138,7 +168,7 @@ def read_results(path: str) -> ResultsContents:
         if not ok:
             raise ResultsFileError(f"{path}:{number}: not a batch job record")
         records.append(record)
-    return ResultsContents(records, partial, end)
+    return ResultsContents(records, partial, end, file_format)
 
 
 class ResultsWriter:
@@ -260,6 +290,7 @@ def iter_job_records(path: str) -> Iterator[dict[str, Any]]:
 
 __all__ = [
     "RESULTS_FORMAT",
+    "READABLE_FORMATS",
     "header_record",
     "encode_line",
     "ResultsContents",

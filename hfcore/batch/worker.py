@@ -1,14 +1,13 @@
-"""One batch job in a worker process: exactly ``hfcore energy GEOMETRY --json -``.
+"""One batch job in a worker process: exactly the single run :func:`hfcore.runs.run_single` of its request.
 
-The worker sends back the whole results line (the ``energy --json`` record
-for a success, the one-line message and exit code of the single run for a
-failure); only the parent process writes the results file, so a worker
+The worker sends back the whole results line (the run's JSON record, as
+``hfcore energy --json`` writes it, for a success; the one-line message and
+exit code of the single run for a failure); only the parent process writes the results file, so a worker
 that dies or is killed never leaves half a line or a duplicate behind.
 """
 
 from __future__ import annotations
 
-import argparse
 import contextlib
 import os
 import socket
@@ -69,19 +68,19 @@ def _dask_worker_memory() -> float | None:
 
 
 def run_job(payload: Mapping[str, Any]) -> dict[str, Any]:
-    """Run one job as ``hfcore energy --json -`` would and return its results line.
+    """Run one job's request and return its results line.
 
     Parameters
     ----------
     payload : mapping
         ``job``: the job record (:meth:`Job.record`); ``extra``: further
-        ``energy`` arguments that are not part of the job's identity (e.g.
-        threads); ``blas_threads``: a BLAS thread limit to apply here, or
-        ``None``; ``on_dask``: true on a Dask worker, whose own memory
+        request fields that are not part of the job's identity (e.g.
+        ``threads``); ``blas_threads``: a BLAS thread limit to apply here,
+        or ``None``; ``on_dask``: true on a Dask worker, whose own memory
         limit then sets the job's budget (half of it, as half of the
         machine's headroom for a single run) unless the job gives
-        ``memory``; ``reserve_bytes``: the share of a local batch's budget
-        reserved for it (recorded in the line).
+        ``memory_mib``; ``reserve_bytes``: the share of a local batch's
+        budget reserved for it (recorded in the line).
 
     Returns
     -------
@@ -95,22 +94,19 @@ def run_job(payload: Mapping[str, Any]) -> dict[str, Any]:
         ``reserved_bytes`` (None outside a local batch's budget). Never raises for a job
         that fails: the failure is the record.
     """
-    from .. import cli
-    from .command import energy_defaults
+    from ..runs import RunRequest, run_single
 
     job = dict(payload["job"])
     started, cpu_started, epoch = time.perf_counter(), time.process_time(), time.time()
     extra = dict(payload.get("extra", {}))
     outcome: dict[str, Any]
     try:
-        if payload.get("on_dask") and job["options"].get("memory") is None and "memory" not in extra:
-            extra["memory"] = _dask_worker_memory()
-        args = argparse.Namespace(**{
-            **energy_defaults(), **job["options"], **extra,
-            "geometry": job["geometry"], "basis": job["basis"], "charge": job["charge"],
-        })
+        if payload.get("on_dask") and job["options"].get("memory_mib") is None and "memory_mib" not in extra:
+            extra["memory_mib"] = _dask_worker_memory()
+        fields = {**job["options"], **extra, "basis": job["basis"], "charge": job["charge"]}
+        request = RunRequest.from_dict(job["geometry"], fields)
         with _blas_limit(payload.get("blas_threads")):
-            outcome = {"status": "ok", **cli.energy_record(args)}
+            outcome = {"status": "ok", **run_single(request).record}
     except Exception as exc:  # HfcoreError, MemoryError or a bug: the line says which
         outcome = {"status": "failed", "error": _error(exc)}
     wall, cpu = time.perf_counter() - started, time.process_time() - cpu_started

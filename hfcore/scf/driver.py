@@ -83,8 +83,8 @@ def solve_rhf(
     RHFResult
         With ``molecule`` and ``basis`` left as None; timings hold "guess",
         "scf", "stability" and "total". Unless ``options.stability`` is
-        "off", the converged solution has been analysed (and, with
-        "follow", left along unstable modes) by
+        "skip", the converged solution has been analysed (and, with
+        "descend", left along unstable modes) by
         :func:`hfcore.scf.following.stabilise`.
 
     Raises
@@ -101,7 +101,7 @@ def solve_rhf(
         overlap, core_hamiltonian, jk, n_electrons, energy_nuclear, options, guess_density,
         progress=progress, accelerator=accelerator,
     )
-    if options.stability == "off":
+    if options.stability == "skip":
         return result
     result = stabilise(result, jk, int(n_electrons), energy_nuclear, progress=progress)
     return replace(result, timings={**result.timings, "total": time.perf_counter() - t0})

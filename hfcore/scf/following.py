@@ -2,7 +2,7 @@
 
 :func:`stabilise` is what :func:`hfcore.scf.solve_rhf` (and so
 :func:`hfcore.scf.run_rhf`) runs after :func:`hfcore.scf.solver.converge_rhf`
-unless ``SCFOptions.stability`` is "off"; each later solution is converged
+unless ``SCFOptions.stability`` is "skip"; each later solution is converged
 by that same function.
 """
 
@@ -38,11 +38,11 @@ def stabilise(
     *,
     progress: IterationProgress | None = None,
 ) -> RHFResult:
-    """Analyse a converged solution and, in "follow" mode, move to a stable one.
+    """Analyse a converged solution and, in "descend" mode, move to a stable one.
 
     Each round: find the lowest eigenpairs of the orbital Hessian
     (:func:`hfcore.scf.stability.analyse_stability`); if the lowest is below
-    ``-stability_threshold`` and the mode is "follow", turn the orbitals
+    ``-stability_threshold`` and the mode is "descend", turn the orbitals
     along its eigenvector by the angle of :data:`FOLLOW_ANGLES` with the
     lowest energy (a scan, one J/K build per angle) and converge again from
     there, at most ``stability_rounds`` times. A round that does not
@@ -70,7 +70,7 @@ def stabilise(
     """
     t0 = time.perf_counter()
     options = result.options
-    inner = replace(options, stability="off")
+    inner = replace(options, stability="skip")
     energies = [result.energy_total]
     lowest: list[float] = []
     history = list(result.history)
@@ -88,8 +88,8 @@ def stabilise(
             plural = "instability" if rounds == 1 else "instabilities"
             message = "stable" if rounds == 0 else f"stable after following {rounds} {plural}"
             break
-        if options.stability == "check":
-            message = "unstable: a lower RHF solution exists (not followed in check mode)"
+        if options.stability == "report":
+            message = "unstable: a lower RHF solution exists (not followed in report mode)"
             break
         if rounds >= options.stability_rounds:
             message = f"still unstable after {rounds} rotations (the limit, stability_rounds)"
@@ -141,8 +141,8 @@ def stabilise(
     )
 
 
-#: Roots and residual tolerance of the analysis in "follow" mode (the default) and in
-#: "check" mode. Following needs only the verdict's root and its mode; the Ritz value
+#: Roots and residual tolerance of the analysis in "descend" mode (the default) and in
+#: "report" mode. Following needs only the verdict's root and its mode; the Ritz value
 #: of the lowest root is an upper bound whose error is about residual² / gap, so a
 #: residual of 1e-3 leaves it good to ~1e-6 hartree and can never make a stable
 #: solution look unstable. A check is the diagnostic a user asked for: it reports the
@@ -153,7 +153,7 @@ CHECK_ANALYSIS: tuple[int, float] = (3, 1e-4)
 
 
 def _analyse(result: RHFResult, jk: JKBuilder) -> StabilityAnalysis:
-    check = result.options.stability == "check" and not isinstance(jk, IncrementalJK)
+    check = result.options.stability == "report" and not isinstance(jk, IncrementalJK)
     n_roots, tol = CHECK_ANALYSIS if check else FOLLOW_ANALYSIS
     return analyse_stability(
         result.coefficients, result.fock, result.n_occupied, jk,

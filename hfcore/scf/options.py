@@ -98,22 +98,24 @@ class SCFOptions:
         rlimits (:mod:`hfcore._memory`); the plan and the result record
         the budget and which bound set it. A value above the headroom of
         a hard bound (cgroup, rlimit) is refused when the run starts.
-    stability : {"follow", "check", "off"}
+    stability : {"descend", "report", "skip"}
         After convergence, analyse the internal (real RHF→RHF) stability of
-        the solution (:mod:`hfcore.scf.stability`). ``"follow"`` also leaves
+        the solution (:mod:`hfcore.scf.stability`). ``"descend"`` also leaves
         an unstable solution along its lowest Hessian mode and converges
-        again, up to ``stability_rounds`` times; ``"check"`` only reports;
-        ``"off"`` skips the analysis. The default is the same in every J/K
-        mode, since a wrong state costs more than the check. ``"follow"``
+        again, up to ``stability_rounds`` times; ``"report"`` only reports;
+        ``"skip"`` skips the analysis (the old spellings ``follow``, ``check``
+        and ``off`` still work for one release, with a DeprecationWarning).
+        The default is the same in every J/K
+        mode, since a wrong state costs more than the check. ``"descend"``
         seeks only the lowest eigenvalue, to a residual of 1e-3 (about 10
-        J/K builds on a stable molecule); ``"check"`` reports the lowest
+        J/K builds on a stable molecule); ``"report"`` reports the lowest
         three, to 1e-4 (20-30 builds), except in direct mode, where each
         build is a full integral pass and only the lowest is sought.
     stability_threshold : float
         A solution is stable when the lowest eigenvalue of the energy
         Hessian d²E/dκ² is at least ``-stability_threshold`` (hartree).
     stability_rounds : int
-        Most rotations ``"follow"`` makes before reporting the solution it
+        Most rotations ``"descend"`` makes before reporting the solution it
         holds (as unstable, if it still is).
     auto_aids : bool
         When the iterations stall or oscillate, switch on convergence aids
@@ -158,7 +160,7 @@ class SCFOptions:
     direct: bool | None = None
     memory_limit: float | None = None
     rebuild_interval: int = 8
-    stability: str = "follow"
+    stability: str = "descend"
     stability_threshold: float = 1e-5
     stability_rounds: int = 4
     auto_aids: bool = True

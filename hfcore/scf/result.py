@@ -22,9 +22,10 @@ if TYPE_CHECKING:
 #: What the numbers in an RHF run's record (:meth:`RHFResult.to_dict`) mean.
 UNITS: dict[str, str] = {
     "energy": "hartree",
-    "length": "bohr (coordinates_angstrom: angstrom)",
+    "length": "bohr",
     "orbital_energies": "hartree",
     "dipole": "e*bohr (atomic units); dipole_debye: debye",
+    "quadrupole": "e*bohr^2 (atomic units, traceless); quadrupole_debye_angstrom: debye*angstrom",
     "charges": "e (elementary charge)",
     "time": "seconds",
 }
@@ -145,7 +146,7 @@ class RHFResult:
         (empty when the chosen accelerator sufficed).
     stability : StabilityReport or None
         What the stability analysis checked and did; None with
-        ``stability="off"`` or for an unconverged run.
+        ``stability="skip"`` or for an unconverged run.
     fit_basis : BasisSet or None
         The fitting set of a fitted run.
     fit_notes : tuple of str

@@ -37,8 +37,11 @@ from .._deprecation import rename_fields
 from ..errors import InputError
 from .jk import IncrementalJK, JKBuilder
 
-#: Names accepted for :attr:`hfcore.scf.SCFOptions.stability`.
-STABILITY_MODES: tuple[str, ...] = ("off", "check", "follow")
+#: Names accepted for :attr:`hfcore.scf.SCFOptions.stability`: no analysis, analyse and
+#: report, analyse and descend to a lower solution.
+STABILITY_MODES: tuple[str, ...] = ("skip", "report", "descend")
+#: Spellings of the stability settings before 0.1.0, accepted with a DeprecationWarning for one release.
+OLD_STABILITY_MODES: dict[str, str] = {"off": "skip", "check": "report", "follow": "descend"}
 
 #: Rotation angles (radians along the unit-norm mode) tried when leaving an unstable solution.
 FOLLOW_ANGLES: tuple[float, ...] = tuple(0.15 * k for k in range(1, 11))
@@ -92,8 +95,8 @@ class StabilityReport:
 
     Attributes
     ----------
-    mode : {"check", "follow"}
-        The setting used (``"off"`` runs leave ``RHFResult.stability`` None).
+    mode : {"report", "descend"}
+        The setting used (``"skip"`` runs leave ``RHFResult.stability`` None).
     stable : bool
         Verdict on the final solution: no Hessian eigenvalue below
         ``-threshold``.
@@ -152,8 +155,16 @@ rename_fields(StabilityReport, {"products": "hessian_products"})
 
 
 def check_stability_mode(mode: object) -> str:
-    """The lower-case stability setting, or InputError naming the choices."""
+    """The lower-case stability setting, or InputError naming the choices.
+
+    An old spelling (``off``, ``check``, ``follow``) gives its new name with a
+    DeprecationWarning.
+    """
     name = mode.lower() if isinstance(mode, str) else mode
+    if name in OLD_STABILITY_MODES:
+        from .._deprecation import renamed_value
+
+        name = renamed_value("the stability setting", str(name), OLD_STABILITY_MODES)
     if name not in STABILITY_MODES:
         raise InputError(f"unknown stability setting {mode!r}: choose one of {', '.join(STABILITY_MODES)}")
     return str(name)

@@ -12,8 +12,8 @@ from typing import Any
 
 import numpy as np
 
-from .basis.components import L_LETTERS
-from .units import BOHR_IN_ANGSTROM, EV_PER_HARTREE
+from ..basis.components import L_LETTERS
+from ..units import BOHR_IN_ANGSTROM, EV_PER_HARTREE
 
 #: Virtual orbitals listed after the LUMO before the list is cut short.
 MAX_VIRTUALS_SHOWN: int = 10
@@ -26,7 +26,8 @@ def heading(title: str) -> str:
     return f"\n{title}\n{'─' * _RULE_WIDTH}"
 
 
-def _pairs(rows: Iterable[tuple[str, str]], indent: int = 2) -> str:
+def pairs(rows: Iterable[tuple[str, str]], indent: int = 2) -> str:
+    """Rows of (label, value) with the values aligned."""
     items = list(rows)
     width = max(len(k) for k, _ in items)
     return "\n".join(f"{' ' * indent}{k:<{width}}   {v}" for k, v in items)
@@ -52,7 +53,7 @@ def format_molecule(molecule: Any) -> str:
     ghosts = np.flatnonzero(molecule.ghosts)
     if ghosts.size:
         info.append(("ghost atoms", f"{atom_ranges(ghosts)} (basis functions only: no nucleus, no electrons)"))
-    lines.append(_pairs(info))
+    lines.append(pairs(info))
     lines.append("")
     lines.append(f"  {'#':>4}  {'element':<7}  {'x / Å':>13}  {'y / Å':>13}  {'z / Å':>13}")
     xyz = np.asarray(molecule.coordinates) * BOHR_IN_ANGSTROM
@@ -92,7 +93,7 @@ def format_basis(basis: Any, plan: Any = None) -> str:
     ]
     if plan is not None:
         info.extend(_jk_rows(plan))
-    return heading("Basis") + "\n" + _pairs(info)
+    return heading("Basis") + "\n" + pairs(info)
 
 
 def _mib(n_bytes: int) -> str:
@@ -196,6 +197,13 @@ def format_aid_switch(record: Any) -> str:
     return f"  -- no progress: switching to {record.aid} --"
 
 
+#: How the report names each stability setting.
+STABILITY_SETTINGS: dict[str, str] = {
+    "report": "report (analysed and reported; --stability descend would move to a lower solution)",
+    "descend": "descend (analysed; an unstable solution is left for a lower one)",
+}
+
+
 def format_stability(result: Any) -> str:
     """The stability section: what was checked after convergence, the aufbau check and the aids used.
 
@@ -208,10 +216,13 @@ def format_stability(result: Any) -> str:
     st = result.stability
     rows: list[tuple[str, str]] = []
     if st is None:
-        rows.append(("internal stability", "not checked (--stability off)"))
+        rows.append(("internal stability", "not checked (--stability skip)"))
     else:
-        verdict = "stable" if st.stable else "UNSTABLE"
-        rows.append(("internal stability", f"{verdict} ({st.mode}): {st.message}"))
+        # The message states the verdict itself ("stable after ...", "unstable: ..."),
+        # so it is shown once, with the setting on a row of its own.
+        message = st.message if st.stable else st.message.replace("unstable", "UNSTABLE", 1)
+        rows.append(("internal stability", message))
+        rows.append(("setting", STABILITY_SETTINGS.get(st.mode, st.mode)))
         threshold = f"threshold -{st.threshold:.0e}"
         if np.isfinite(st.lowest_eigenvalue):
             rows.append(("lowest eigenvalue", f"{st.lowest_eigenvalue:.4e} Eh (orbital Hessian, {threshold})"))
@@ -233,7 +244,7 @@ def format_stability(result: Any) -> str:
         rows.append(("convergence aids", "; ".join(starts)))
     else:
         rows.append(("convergence aids", "none needed"))
-    return heading("Stability and occupation") + "\n" + _pairs(rows)
+    return heading("Stability and occupation") + "\n" + pairs(rows)
 
 
 def format_energies(result: Any) -> str:
@@ -325,22 +336,23 @@ def format_properties(analysis: dict[str, Any]) -> str:
     ie = analysis["koopmans_ionisation"]
     rows.append(("Koopmans ionisation energy", f"{ie:14.8f} Eh  {ie * EV_PER_HARTREE:10.4f} eV"))
     rows.append(("virial ratio -V/T", f"{analysis['virial_ratio']:14.8f}"))
-    return heading("Properties") + "\n" + _pairs(rows)
+    return heading("Properties") + "\n" + pairs(rows)
 
 
 def format_mp2(mp2: Any) -> str:
-    """MP2 and SCS-MP2 correlation and total energies, in hartree."""
+    """MP2 and SCS-MP2 energies as a table (rows: same-spin, opposite-spin, correlation, total), in hartree."""
+    from ..analysis.mp2 import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN
+
     plural = "s" if mp2.frozen_core > 1 else ""
     core = f"{mp2.frozen_core} frozen core orbital{plural}" if mp2.frozen_core else "all electrons correlated"
     rows = [
-        ("same-spin", mp2.same_spin),
-        ("opposite-spin", mp2.opposite_spin),
-        ("MP2 correlation", mp2.correlation),
-        ("MP2 total", mp2.energy_total),
-        ("SCS-MP2 correlation", mp2.scs_correlation),
-        ("SCS-MP2 total", mp2.scs_energy_total),
+        ("same-spin", mp2.same_spin, SCS_SAME_SPIN * mp2.same_spin),
+        ("opposite-spin", mp2.opposite_spin, SCS_OPPOSITE_SPIN * mp2.opposite_spin),
+        ("correlation", mp2.correlation, mp2.scs_correlation),
+        ("total", mp2.energy_total, mp2.scs_energy_total),
     ]
-    body = [f"  {name:<20}{value:22.12f}" for name, value in rows]
+    body = [f"  {'':<16}{'MP2':>22}{'SCS-MP2':>22}"]
+    body += [f"  {name:<16}{plain:22.12f}{scaled:22.12f}" for name, plain, scaled in rows]
     body.append(f"  ({core}; {mp2.n_active_occupied} occupied and {mp2.n_virtual} virtual orbitals;")
     body.append("   SCS-MP2: 6/5 opposite-spin + 1/3 same-spin, S. Grimme, J. Chem. Phys. 118, 9095 (2003))")
     if getattr(mp2, "fit_basis_name", None):
@@ -348,11 +360,30 @@ def format_mp2(mp2: Any) -> str:
     return heading("MP2 / Eh") + "\n" + "\n".join(body)
 
 
-def format_timings(timings: dict[str, float], wall: float) -> str:
-    """Timings of the stages and of the whole command, in seconds."""
-    rows = [(name, f"{seconds:9.3f} s") for name, seconds in timings.items()]
-    rows.append(("whole command", f"{wall:9.3f} s"))
-    return heading("Timings") + "\n" + _pairs(rows)
+#: Report labels of the stages the timings hold, in the order they run.
+_STAGE_LABELS: dict[str, str] = {
+    "integrals": "integrals", "guess": "guess", "scf": "iterations", "stability": "stability",
+    "total": "SCF total", "mp2": "MP2 (not in the SCF total)",
+}
+
+
+def format_timings(timings: dict[str, float], wall: float, counted: str = "since the process started") -> str:
+    """Timings of the stages, then of MP2, then of the whole command, in seconds.
+
+    Parameters
+    ----------
+    timings : dict
+        Seconds by stage, as in the JSON record (``total`` is the SCF's total
+        and does not include ``mp2``).
+    wall : float
+        Seconds of the whole command.
+    counted : str
+        What ``wall`` counts from, e.g. ``"since the process started"``.
+    """
+    order = [k for k in _STAGE_LABELS if k in timings] + [k for k in timings if k not in _STAGE_LABELS]
+    rows = [(_STAGE_LABELS.get(name, name), f"{timings[name]:9.3f} s") for name in order]
+    rows.append((f"whole command ({counted})", f"{wall:9.3f} s"))
+    return heading("Timings") + "\n" + pairs(rows)
 
 
 def format_sto_fit(fit: Any) -> str:
@@ -369,7 +400,7 @@ def format_sto_fit(fit: Any) -> str:
         ("Gaussians", str(fit.n_gaussians)),
         ("Slater exponent ζ", f"{fit.zeta:g} bohr⁻¹"),
     ]
-    lines = [heading("Least-squares Gaussian fit to a Slater function"), _pairs(info), ""]
+    lines = [heading("Least-squares Gaussian fit to a Slater function"), pairs(info), ""]
     header = f"  {'#':>3}  {'exponent α / bohr⁻²':>22}" + "".join(f"  {'d(' + letters[l] + ')':>14}" for l in ls)
     lines.append(header)
     for k, alpha in enumerate(fit.exponents):
@@ -408,7 +439,7 @@ def format_comparison(comparison: Any) -> str:
 
 def _element_span(atomic_numbers: Iterable[int]) -> str:
     # Runs of consecutive elements read better as ranges: "H–Ar" rather than 18 symbols.
-    from . import elements
+    from .. import elements
 
     zs = sorted(atomic_numbers)
     runs: list[list[int]] = []
@@ -419,6 +450,13 @@ def _element_span(atomic_numbers: Iterable[int]) -> str:
             runs.append([z])
     parts = [elements.symbol(r[0]) if len(r) == 1 else f"{elements.symbol(r[0])}–{elements.symbol(r[-1])}" for r in runs]
     return ", ".join(parts)
+
+
+#: What each kind of shipped set is for, by the library's family label (orbital sets have their own labels).
+SET_USES: dict[str, str] = {
+    "jk-fitting": "J/K fitting (--fit-basis)",
+    "mp2-fitting": "MP2 fitting (--mp2-fit-basis)",
+}
 
 
 def format_basis_list(families: Sequence[Any], fitted: Sequence[str]) -> str:
@@ -432,82 +470,18 @@ def format_basis_list(families: Sequence[Any], fitted: Sequence[str]) -> str:
         Names of the fitted Slater sets.
     """
     width = max(len(f.name) for f in families)
-    lines = [heading("Basis sets shipped with hfcore"), f"  {'name':<{width}}   {'default form':<16} elements"]
+    lines = [heading("Basis sets shipped with hfcore"),
+             f"  {'name':<{width}}   {'use':<29} {'default form':<16} elements"]
     for family in families:
         form = "real spherical" if family.default_spherical else "Cartesian"
-        lines.append(f"  {family.name:<{width}}   {form:<16} {_element_span(family.elements())}")
+        use = SET_USES.get(getattr(family, "family", ""), "orbital set (--basis)")
+        lines.append(f"  {family.name:<{width}}   {use:<29} {form:<16} {_element_span(family.elements())}")
     lines.append(heading("Fitted Slater sets (H–Ar; --zeta changes their exponents)"))
     lines.append("  " + "  ".join(fitted))
     lines.append("\n  Other published sets are found by name with the optional extra: pip install 'hfcore[bse]'")
     return "\n".join(lines)
 
 
-
-def format_batch_run(outcome: Any, results_path: str) -> str:
-    """The summary at the end of ``hfcore batch``.
-
-    Parameters
-    ----------
-    outcome : BatchOutcome
-        From :func:`hfcore.batch.run_batch`.
-    results_path : str
-        The results file, named in the summary.
-    """
-    ran = outcome.ran
-    ok = sum(r["status"] == "ok" for r in ran)
-    rows = [
-        ("jobs", f"{len(outcome.jobs)}"),
-        ("run now", f"{len(ran)}: {ok} ok, {len(ran) - ok} failed"),
-        ("skipped", f"{outcome.skipped_ok} already ok, {outcome.skipped_failed} already failed"),
-    ]
-    if outcome.missing:
-        rows.append(("not finished", f"{len(outcome.missing)} (stopped; run the same command again)"))
-    rows.append(("wall time", f"{outcome.wall_seconds:.2f} s"))
-    times = [(r["batch"]["wall_seconds"], r["job"]) for r in ran if r["batch"].get("wall_seconds") is not None]
-    if times:
-        mean = sum(t for t, _ in times) / len(times)
-        longest, job = max(times, key=lambda item: item[0])
-        rows.append(("per job", f"mean {mean:.2f} s, longest {longest:.2f} s ({job['geometry']} {job['basis']})"))
-    rows.append(("results", results_path))
-    lines = [heading("Batch"), _pairs(rows)]
-    failed = outcome.failed
-    if failed:
-        groups: dict[tuple[int, str], list[str]] = {}
-        for record in failed:
-            error = record["error"]
-            groups.setdefault((error["exit_code"], error["message"]), []).append(record["job"]["basis"])
-        lines.append(heading(f"Failed jobs: {len(failed)}, by reason"))
-        for (code, message), bases in sorted(groups.items(), key=lambda item: -len(item[1])):
-            lines.append(f"  {len(bases):>4} × exit {code:<3} {message}  [{', '.join(bases)}]")
-    return "\n".join(lines)
-
-
-def format_batch_energies(table: Any) -> str:
-    """Energies from a results file as a table: one row per geometry, one column per basis.
-
-    Parameters
-    ----------
-    table : EnergyTable
-        From :func:`hfcore.batch.energy_table`.
-    """
-    if not table.geometries:
-        return heading(f"Energies / Eh in {table.path}") + "\n  no finished jobs yet"
-    width = max(len("geometry"), *(len(g) for g in table.geometries))
-    column = max(16, *(len(b) + 2 for b in table.bases))
-    lines = [heading(f"Energies / Eh in {table.path}"),
-             f"  {'geometry':<{width}}" + "".join(f"{b:>{column}}" for b in table.bases)]
-    for geometry in table.geometries:
-        cells = []
-        for basis in table.bases:
-            energy = table.energies.get((geometry, basis))
-            if energy is not None:
-                cells.append(f"{energy:>{column}.10f}")
-            else:
-                cells.append(f"{'failed' if (geometry, basis) in table.failures else '—':>{column}}")
-        lines.append(f"  {geometry:<{width}}" + "".join(cells))
-    if table.failures:
-        lines.append(f"\n  {len(table.failures)} failed job(s); their lines in the results file say why")
-    return "\n".join(lines)
 
 __all__ = [
     "MAX_VIRTUALS_SHOWN",
@@ -531,6 +505,4 @@ __all__ = [
     "format_sto_fit",
     "format_comparison",
     "format_basis_list",
-    "format_batch_run",
-    "format_batch_energies",
 ]

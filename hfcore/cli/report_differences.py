@@ -1,6 +1,6 @@
 """Human-readable tables of energy differences: interaction and reaction energies.
 
-A room of its own beside :mod:`hfcore.report` so that the single-molecule
+A room of its own beside :mod:`hfcore.cli.report` so that the single-molecule
 report stays short. As there, every function returns text and computes no
 physics; unit factors come from :mod:`hfcore.units`.
 """
@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from .studies.compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from ..units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
 from .report import atom_ranges, heading
 
 
@@ -69,6 +69,12 @@ def format_interaction(study: Any) -> str:
     return "\n".join(lines)
 
 
+def _weighted_functions(row: Any, reaction: Any) -> str:
+    """Σ |ν| × functions over the species of a reaction (``2 water -> dimer`` counts water twice)."""
+    total = float(sum(abs(nu) * row.species_functions[k] for k, nu in reaction.terms))
+    return f"{total:.0f}" if total.is_integer() else f"{total:.1f}"
+
+
 def format_reactions(study: Any) -> str:
     """Species, their energies per basis, and each reaction energy with its basis-limit estimates.
 
@@ -96,10 +102,12 @@ def format_reactions(study: Any) -> str:
         for row in study.rows:
             d = row.deltas[r]
             lines.append(
-                f"  {row.basis:<14} {row.reaction_functions(reaction):>9} {_units(row.reaction_energies[r])}   "
+                f"  {row.basis:<14} {_weighted_functions(row, reaction):>9} {_units(row.reaction_energies[r])}   "
                 f"{d * KJ_MOL_PER_HARTREE:11.3f} {d * KCAL_MOL_PER_HARTREE:12.3f}"
             )
-        lines.append(f"  functions: summed over the species; Δ: change from {study.reference_basis}")
+        lines.append("  functions: basis functions of each species times its stoichiometric factor, summed over "
+                     "both sides")
+        lines.append(f"  Δ: change from {study.reference_basis}")
         if study.estimates:
             lines.append("  basis-limit estimates from the extrapolated totals:")
             for est in study.estimates:

@@ -1,14 +1,15 @@
 """The ``hfcore batch`` subcommand: options, progress on stderr, the summary, signals.
 
 The per-job options are not listed here: :func:`add_batch_parser` copies
-every option of the ``energy`` parser, so a new ``energy`` option applies
-to batch jobs without any change in this module.
+every option of the ``energy`` parser, and the jobs get the
+:class:`~hfcore.runs.RunRequest` those options make (as ``energy`` does),
+so a new ``energy`` option applies to batch jobs without any change in
+this module, and a job's key is made of request fields, not of flags.
 """
 
 from __future__ import annotations
 
 import argparse
-import functools
 import signal
 import threading
 import time
@@ -17,13 +18,8 @@ from contextlib import contextmanager
 from typing import Any, TextIO
 
 from ..errors import InputError
-
-#: Exit code when the batch ran but at least one job failed (its line says why).
-EXIT_JOBS_FAILED: int = 10
-#: Exit code after SIGTERM (128 + 15), the shell convention.
-EXIT_TERMINATED: int = 143
-#: Exit code after SIGINT (128 + 2).
-EXIT_INTERRUPTED: int = 130
+from .arguments import positive_float, positive_int, run_request
+from .exits import EXIT_INTERRUPTED, EXIT_JOBS_FAILED, EXIT_TERMINATED
 
 # Options of 'energy' that a batch sets itself or that make no sense per job.
 _NOT_COPIED = {"geometry", "basis", "json", "npz", "quiet", "help"}
@@ -69,8 +65,7 @@ def add_batch_parser(sub: Any, energy: argparse.ArgumentParser) -> argparse.Argu
     energy : ArgumentParser
         The ``energy`` parser whose options every job takes.
     """
-    from ..cli import _positive_float, _positive_int
-    from .cluster import DASK_RETRIES
+    from ..batch.cluster import DASK_RETRIES
 
     batch = sub.add_parser(
         "batch",
@@ -78,7 +73,7 @@ def add_batch_parser(sub: Any, energy: argparse.ArgumentParser) -> argparse.Argu
         description="Run every (geometry, basis) pair and append one JSON line per finished job to a "
         "results file. Running the same command again skips the finished jobs.",
         epilog="GEOMETRY is an XYZ file, a directory (its *.xyz files) or @LIST (a file with one path "
-        "per line, optionally followed by charge=N). Exit codes: 0 every job ok, 10 some jobs failed, "
+        "per line, optionally followed by charge=N and multiplicity=M). Exit codes: 0 every job ok, 10 some jobs failed, "
         "11 the results file cannot be used, 12 no Dask scheduler answered, 2 bad input, "
         "130 interrupted, 143 terminated.",
         conflict_handler="error",
@@ -88,14 +83,14 @@ def add_batch_parser(sub: Any, energy: argparse.ArgumentParser) -> argparse.Argu
                        help="comma-separated basis names, each run on every geometry (default sto-3g)")
     batch.add_argument("--results", required=True, metavar="FILE.jsonl", help="the results file (JSON Lines)")
     run = batch.add_argument_group("running")
-    run.add_argument("--workers", type=_positive_int, metavar="N",
+    run.add_argument("--workers", type=positive_int, metavar="N",
                      help="local worker processes (default: the usable cores)")
-    run.add_argument("--threads", type=_positive_int, default=1, metavar="N",
+    run.add_argument("--threads", type=positive_int, default=1, metavar="N",
                      help="threads per job: BLAS, and the integral passes of 'energy --threads' (default 1)")
     run.add_argument("--scheduler", metavar="ADDRESS",
                      help=f"send the jobs to this Dask scheduler instead (e.g. tcp://host:8786); "
                      f"tasks that fail are retried {DASK_RETRIES} times")
-    run.add_argument("--scheduler-timeout", type=_positive_float, default=10.0, metavar="S",
+    run.add_argument("--scheduler-timeout", type=positive_float, default=10.0, metavar="S",
                      help="seconds to wait for the scheduler to answer (default 10)")
     run.add_argument("--retry-failed", action="store_true", help="rerun jobs whose last line says failed")
     run.add_argument("--quiet", action="store_true", help="no progress lines on stderr")
@@ -107,28 +102,11 @@ def add_batch_parser(sub: Any, energy: argparse.ArgumentParser) -> argparse.Argu
     job_dests = [d for d in copied if d != "charge"]
     # An 'energy' option that a batch option of the same name shadows (e.g.
     # --threads) gets the batch value where the meaning is shared; any other
-    # shadowed one keeps its 'energy' default (see energy_defaults).
+    # shadowed one keeps its 'energy' default.
     shadowed = {a.dest for a in energy._actions if a.option_strings and a.dest not in copied}
     batch.set_defaults(handler=run_batch_command, batch_job_dests=job_dests,
                        batch_extra_dests=sorted(_NOT_IN_KEY & shadowed))
     return batch
-
-
-@functools.lru_cache(maxsize=1)
-def energy_defaults() -> dict[str, Any]:
-    """Every ``hfcore energy`` option at its default, by option name (dest)."""
-    from ..cli import build_parser
-
-    parsed = vars(build_parser().parse_args(["energy", "GEOMETRY"]))
-    return {k: v for k, v in parsed.items() if k not in {"handler", "command", "geometry"}}
-
-
-@functools.lru_cache(maxsize=1)
-def job_option_defaults() -> dict[str, Any]:
-    """The per-job options of a batch (the copied ``energy`` options except the charge) at their defaults."""
-    from ..cli import build_parser
-
-    return _job_options(build_parser().parse_args(["batch", "--results", "FILE.jsonl"]))
 
 
 # ----------------------------------------------------------------------------
@@ -235,42 +213,36 @@ def _stop_on_signals() -> Iterator[Callable[[], int | None]]:
 # ----------------------------------------------------------------------------
 
 
-def _job_options(args: argparse.Namespace) -> dict[str, Any]:
-    """The per-job options as plain JSON values (any other type, e.g. a path object, as its text)."""
-    import json
-
-    from ..export import plain_values
-
-    return {d: json.loads(json.dumps(plain_values(getattr(args, d)), default=str)) for d in args.batch_job_dests}
+def _job_request(args: argparse.Namespace) -> Any:
+    """The request every job starts from: the copied ``energy`` options (geometry, basis and charge per job)."""
+    # The batch's own --basis (a list), --charge (the default of the list
+    # entries) and --threads (per job, no part of its identity) are set per job.
+    return run_request(args, geometry="", basis="sto-3g", charge=0, threads=None)
 
 
-def _size_estimator(args: argparse.Namespace) -> Callable[[Any], int]:
+def _size_estimator() -> Callable[[Any], int]:
     """A job's number of basis functions (0 where the geometry or basis fails: the job will say why)."""
-    from ..cli import basis_function_count
     from ..errors import HfcoreError
+    from ..runs import basis_function_count
 
     def size_of(job: Any) -> int:
-        ns = argparse.Namespace(**{**vars(args), **job.options, "geometry": job.geometry, "basis": job.basis,
-                                   "charge": job.charge})
         try:
-            return basis_function_count(ns)
+            return basis_function_count(job.request())
         except (HfcoreError, MemoryError):
             return 0
 
     return size_of
 
 
-def _memory_estimator(args: argparse.Namespace) -> Callable[[Any, Any], int]:
+def _memory_estimator() -> Callable[[Any, Any], int]:
     """A job's predicted peak memory under the batch's budget (0 where the geometry or basis fails: the job will
     say why); a job that cannot fit even alone raises its ResourceError, which becomes its failed line."""
-    from ..cli import planned_memory
     from ..errors import HfcoreError, ResourceError
+    from ..runs import planned_memory
 
     def memory_of(job: Any, budget: Any) -> int:
-        ns = argparse.Namespace(**{**vars(args), **job.options, "geometry": job.geometry, "basis": job.basis,
-                                   "charge": job.charge})
         try:
-            return planned_memory(ns, budget)
+            return planned_memory(job.request(), budget)
         except ResourceError:
             raise
         except (HfcoreError, MemoryError):
@@ -287,16 +259,16 @@ def run_batch_command(args: argparse.Namespace, console: Any) -> int:
         return _summary(args, console)
     if args.plot:
         raise InputError("batch: --plot goes with --summary")
-    from . import expand_geometries, make_jobs, parse_basis_list, run_batch
     from .._parallel import split_cores, usable_cores
-    from .pool import start_worker_server
+    from ..batch import expand_geometries, make_jobs, parse_basis_list, run_batch
+    from ..batch.pool import start_worker_server
 
     if not args.scheduler:
         start_worker_server()
 
     bases = parse_basis_list(args.basis)
     entries = expand_geometries(args.geometry)
-    jobs, duplicates = make_jobs(entries, bases, args.charge, _job_options(args))
+    jobs, duplicates = make_jobs(entries, bases, args.charge, _job_request(args))
     progress = Progress(console.stderr, args.quiet)
     if duplicates:
         progress.say(f"batch: {duplicates} job(s) named twice, run once")
@@ -328,11 +300,11 @@ def run_batch_command(args: argparse.Namespace, console: Any) -> int:
             jobs, args.results, retry_failed=args.retry_failed, workers=workers or None, threads=args.threads,
             scheduler=args.scheduler, scheduler_timeout=args.scheduler_timeout, extra=extra,
             should_stop=lambda: received() is not None, on_start=on_start, on_record=progress.record,
-            size_of=_size_estimator(args), memory_of=_memory_estimator(args),
+            size_of=_size_estimator(), memory_of=_memory_estimator(),
         )
         signum = received()
     progress.close()
-    from .. import report
+    from . import report_batch as report
 
     console.report(report.format_batch_run(outcome, args.results))
     if signum is not None:
@@ -343,9 +315,9 @@ def run_batch_command(args: argparse.Namespace, console: Any) -> int:
 
 
 def _summary(args: argparse.Namespace, console: Any) -> int:
-    from .. import report
+    from ..batch.summary import energy_table
     from ..export import check_output_path
-    from .summary import energy_table
+    from . import report_batch as report
 
     if args.plot:
         check_output_path(args.plot)

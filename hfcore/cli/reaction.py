@@ -1,0 +1,99 @@
+"""``hfcore reaction``: reaction energies from SCF totals in several basis sets."""
+
+from __future__ import annotations
+
+import argparse
+from typing import Any
+
+from .. import export
+from .._version import __version__
+from ..errors import InputError
+from .arguments import (
+    add_fit_argument,
+    add_geometry_arguments,
+    add_json_argument,
+    add_scf_arguments,
+    basis_names,
+    refuse_open_shell_study,
+    scf_options,
+)
+from .console import Console
+from .paths import output_paths, report_written
+from .pieces import add_batch_arguments, job_request, run_jobs
+
+
+def add_parser(sub: Any) -> None:
+    """Register ``hfcore reaction`` on the subcommand set ``sub``."""
+    reaction = sub.add_parser("reaction", help="reaction energies from RHF totals in several basis sets")
+    reaction.add_argument(
+        "reactions", nargs="+", metavar="SPEC",
+        help="an equation over geometry files, e.g. 'formaldehyde.xyz + hydrogen.xyz -> methanol.xyz', "
+        "'2 water.xyz -> water_dimer.xyz' or 'ammonia.xyz + water.xyz -> ammonium.xyz[+1] + hydroxide.xyz[-1]'; "
+        "several equations share their species",
+    )
+    reaction.add_argument(
+        "--basis", required=True, metavar="NAMES", help="comma-separated basis names, e.g. cc-pvdz,cc-pvtz,cc-pvqz"
+    )
+    add_geometry_arguments(reaction, geometry=False, charge_option=False)
+    add_scf_arguments(reaction)
+    add_fit_argument(reaction)
+    add_json_argument(reaction)
+    reaction.add_argument("--plot", metavar="PNG", help="plot the reaction energies against basis size")
+    add_batch_arguments(reaction, "each species in each basis as a batch job")
+    reaction.set_defaults(handler=run)
+
+
+def _batch_runner(args: argparse.Namespace, console: Console) -> Any:
+    """A runner for :func:`reaction_energies` that sends each species × basis to the batch machinery.
+
+    Each piece is a single-run job keyed by the geometry file's content and
+    the request's fields, so a second run with the same results file finds
+    the finished pieces there and runs only the rest.
+    """
+    from ..batch import GeometryEntry, make_jobs
+
+    template = job_request(args)
+
+    def run(pieces: Any, species: Any) -> dict[tuple[int, str], tuple[float, float]]:
+        bases = list(dict.fromkeys(p.basis for p in pieces))
+        entries = [GeometryEntry(s.path, s.charge, "reaction") for s in species]
+        jobs, _ = make_jobs(entries, bases, 0, template)
+        done = run_jobs(args, console, jobs)
+        return {(job.order[0], bases[job.order[1]]): done[job.key] for job in jobs}
+
+    return run
+
+
+def run(args: argparse.Namespace, console: Console) -> int:
+    """``hfcore reaction``: run every species in every basis, then report, write JSON and plot."""
+    from ..studies.reaction import reaction_energies
+
+    paths = output_paths(args, "json", "plot", "results")
+    names = basis_names(args)
+    if args.workers is not None and args.results is None:
+        raise InputError("--workers goes with --results")
+    refuse_open_shell_study(args, None, "reaction")
+    runner = _batch_runner(args, console) if args.results is not None else None
+    study = reaction_energies(
+        args.reactions, names, units=args.units, spherical=args.spherical, options=scf_options(args),
+        message_progress=console.study_progress(), runner=runner,
+    )
+    record = export.reaction_record(study)
+    if "plot" in paths:
+        from ..plots import plot_reactions
+
+        plot_reactions(study, paths["plot"])
+    if "json" in paths:
+        export.write_file_atomically(paths["json"], export.to_json(record))
+    if args.json == "-":
+        console.data(export.to_json(record))
+        return 0
+    from .report_differences import format_reactions
+
+    console.report(f"hfcore {__version__} · reaction energies (restricted Hartree–Fock)")
+    console.report(format_reactions(study))
+    report_written(console, paths.values())
+    return 0
+
+
+__all__ = ["add_parser", "run"]
