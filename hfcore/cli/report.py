@@ -97,7 +97,7 @@ def format_basis(basis: Any, plan: Any = None) -> str:
 
 
 def _mib(n_bytes: int) -> str:
-    from ._memory import format_bytes
+    from .._memory import format_bytes
 
     return format_bytes(n_bytes)
 
