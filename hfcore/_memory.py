@@ -126,13 +126,19 @@ class MemoryBudget:
 
 
 def format_bytes(n_bytes: float) -> str:
-    """A size for people: ``"512 KiB"``, ``"172 MiB"``, ``"11.8 GiB"`` (binary units, 3 digits)."""
+    """A size for people: ``"512 KiB"``, ``"172 MiB"``, ``"11.8 GiB"`` (binary units, 3 digits, never an exponent).
+
+    A value that would round to 1000 or more in one unit is given in the next
+    (1000 MiB is ``"0.977 GiB"``), so ``.3g`` never falls back to ``1e+03``.
+    """
     value = float(n_bytes)
-    for unit in ("B", "KiB", "MiB", "GiB", "TiB"):
-        if abs(value) < 1024.0 or unit == "TiB":
-            return f"{value:.0f} {unit}" if unit == "B" else f"{value:.3g} {unit}"
+    for unit in ("B", "KiB", "MiB", "GiB"):
+        if unit == "B" and abs(value) < 1024.0:
+            return f"{value:.0f} B"
+        if unit != "B" and float(f"{abs(value):.3g}") < 1000.0:
+            return f"{value:.3g} {unit}"
         value /= 1024.0
-    raise AssertionError("unreachable")
+    return f"{value:.3g} TiB" if abs(value) < 1000.0 else f"{value:.0f} TiB"
 
 
 def _read(path: str) -> str | None:

@@ -84,8 +84,8 @@ def test_memory_sizes_never_print_an_exponent():
     from hfcore.cli.report import _mib
 
     # exact properties of the units: 1 GiB = 1024 MiB, 1 TiB = 1024 GiB
-    assert [_mib(x * 2**20) for x in (0.277, 12.5, 999.0, 12345.0, 3 * 2**20)] == [
-        "0.277 MiB", "12.5 MiB", "999 MiB", "12.1 GiB", "3 TiB"]
+    assert [_mib(x * 2**20) for x in (0.277, 12.5, 999.0, 1000.0, 12345.0, 3 * 2**20)] == [
+        "284 KiB", "12.5 MiB", "999 MiB", "0.977 GiB", "12.1 GiB", "3 TiB"]
 
 
 def test_timings_say_what_the_scf_total_holds_and_list_mp2_after_it():

@@ -116,5 +116,5 @@ def test_solve_rhf_checks_stability_and_converge_rhf_stops_at_the_first_solution
     assert first.stability is None and first.timings["stability"] == 0.0
     assert checked.stability is not None and checked.stability.stable
     assert checked.energy_total == pytest.approx(first.energy_total, abs=1e-12)
-    off = solve_rhf(*args, options=dataclasses.replace(hfcore.SCFOptions(), stability="off"))
+    off = solve_rhf(*args, options=dataclasses.replace(hfcore.SCFOptions(), stability="skip"))
     assert off.stability is None
