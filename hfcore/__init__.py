@@ -17,13 +17,13 @@ from .basis import BasisSet, Shell, build_basis, get_family
 from .errors import BasisError, ConvergenceError, HfcoreError, InputError, ResourceError
 from .geometry import Molecule, parse_xyz, read_xyz
 
-__version__ = "0.1.0"
+from ._version import __version__
 
 
 def __getattr__(name: str):
     # The SCF layer is imported lazily so that reading geometries and basis
     # sets stays cheap.
-    if name in {"run_rhf", "solve_rhf", "SCFOptions", "RHFResult"}:
+    if name in {"run_rhf", "solve_rhf", "SCFOptions", "RHFResult", "run_scf", "UHFResult", "ROHFResult"}:
         from . import scf
 
         return getattr(scf, name)
@@ -47,9 +47,12 @@ __all__ = [
     "build_basis",
     "get_family",
     "run_rhf",
+    "run_scf",
     "solve_rhf",
     "SCFOptions",
     "RHFResult",
+    "UHFResult",
+    "ROHFResult",
     "mp2_energy",
     "project_density",
     "load_arrays",

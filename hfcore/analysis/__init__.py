@@ -32,10 +32,11 @@ from .multipoles import (
     second_moment,
 )
 from .properties import OrbitalProperties, orbital_properties
-from .populations import lowdin_charges, lowdin_populations, mulliken_charges, mulliken_populations
+from .populations import lowdin_charges, lowdin_populations, mulliken_charges, mulliken_populations, mulliken_spin_populations
 
 __all__ = [
     "mulliken_populations",
+    "mulliken_spin_populations",
     "mulliken_charges",
     "lowdin_populations",
     "lowdin_charges",

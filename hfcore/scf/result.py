@@ -140,6 +140,9 @@ class RHFResult:
         Fitted factors kept, or recomputed in blocks every iteration.
     fit_dropped : int
         Metric eigenvectors dropped as near-singular.
+    warnings : tuple of str
+        Findings a face should show, e.g. that a lower unrestricted
+        solution exists (set by :func:`hfcore.scf.run_scf`).
     """
 
     energy_total: float
@@ -173,6 +176,7 @@ class RHFResult:
     fit_notes: tuple[str, ...] = ()
     fit_storage: str = ""
     fit_dropped: int = 0
+    warnings: tuple[str, ...] = ()
 
     @property
     def n_occupied(self) -> int:
