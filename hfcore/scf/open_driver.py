@@ -61,6 +61,18 @@ def run_scf(
     progress, integral_progress, shared, raise_on_failure
         As for :func:`run_rhf`.
 
+    Notes
+    -----
+    A singlet run as UHF starts from the spin-symmetric atomic density and,
+    with the default ``stability="follow"``, leaves the closed-shell
+    solution along its lowest unstable UHF mode (the RHF→UHF instability)
+    into the broken-symmetry solution. With ``"check"`` or ``"off"`` the
+    start itself breaks the symmetry instead (the α HOMO turned towards the
+    α LUMO, :data:`hfcore.scf.uhf.BREAK_ANGLE`). Measured on N2 at 2.2 Å
+    (cc-pVDZ): following reaches the reference library's broken-symmetry
+    solution in 19 iterations, the turned start alone did not converge in
+    100, so following is the default route.
+
     Returns
     -------
     RHFResult, UHFResult or ROHFResult
@@ -190,7 +202,7 @@ def run_open_shell(
             if method == "uhf":
                 result = solve_uhf(
                     shared.overlap, hcore, jk, n_a, n_b, molecule.nuclear_repulsion(), options, user_guess,
-                    break_symmetry=(n_a == n_b), progress=progress,
+                    break_symmetry=(n_a == n_b and options.stability != "follow"), progress=progress,
                 )
             else:
                 from .rohf import solve_rohf
