@@ -4,7 +4,9 @@ comparison, interaction and reaction energies.
 
 Everything here except the drivers (:func:`compare_bases`,
 :func:`interaction_energies`, :func:`reaction_energies`) works on a
-finished :class:`hfcore.scf.RHFResult` and never runs the SCF itself.
+finished :class:`hfcore.scf.RHFResult` (or, for populations, multipoles,
+orbital properties and :func:`ump2_energy`, an open-shell
+:class:`hfcore.scf.UHFResult`) and never runs the SCF itself.
 """
 
 from __future__ import annotations
@@ -22,6 +24,7 @@ from .interaction import InteractionStudy, interaction_energies
 from .reactions import ReactionStudy, reaction_energies
 from .extrapolation import cardinal_number, correlation_consistent, feller_three_point, karton_martin_two_point
 from .mp2 import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, MP2Result, core_orbital_count, mp2_energy
+from .ump2 import UMP2Result, check_mp2_reference, ump2_energy
 from .multipoles import (
     DEBYE_ANGSTROM_PER_AU,
     DEBYE_PER_AU,
@@ -35,6 +38,9 @@ from .properties import OrbitalProperties, orbital_properties
 from .populations import lowdin_charges, lowdin_populations, mulliken_charges, mulliken_populations, mulliken_spin_populations
 
 __all__ = [
+    "ump2_energy",
+    "UMP2Result",
+    "check_mp2_reference",
     "mulliken_populations",
     "mulliken_spin_populations",
     "mulliken_charges",
