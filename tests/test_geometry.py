@@ -130,8 +130,14 @@ def test_shipped_demo_inputs_parse(tmp_path):
     inputs = Path(__file__).resolve().parent.parent / "inputs"
     files = sorted(inputs.glob("*.xyz"))
     assert len(files) >= 20
+    # The open-shell demo species (inputs/README.md) with their ground-state multiplicities.
+    open_shells = {"h.xyz": 2, "c.xyz": 3, "n.xyz": 4, "o.xyz": 3, "f.xyz": 2, "oh.xyz": 2, "nh2.xyz": 2,
+                   "ch3.xyz": 2, "o2.xyz": 3, "ch2.xyz": 3}
     for path in files:
         charge = {"ammonium.xyz": 1, "hydroxide.xyz": -1}.get(path.name, 0)
+        if path.name in open_shells:
+            assert read_xyz(path, multiplicity=open_shells[path.name]).spin_multiplicity == open_shells[path.name]
+            continue
         read_xyz(path, charge=charge).require_closed_shell()
 
 
