@@ -17,7 +17,7 @@ from hfcore import build_basis, integrals
 from hfcore.errors import InputError
 from hfcore.geometry import Molecule, read_xyz
 from hfcore.scf import SCFOptions, UHFResult, run_rhf, run_scf, run_uhf, solve_uhf
-from hfcore.scf.uhf import split_density
+from hfcore.scf.guess import split_density
 
 INPUTS = Path(__file__).resolve().parent.parent / "inputs"
 

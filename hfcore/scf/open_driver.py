@@ -22,7 +22,8 @@ from ..basis.shells import BasisSet
 from ..errors import ConvergenceError, InputError
 from ..geometry import Molecule
 from ..integrals.pool import blas_threads
-from .driver import SharedIntegrals, _checked_guess, prepare_integrals, run_rhf, scf_blas_threads
+from ..basis.fitting import fitting_basis
+from .driver import SharedIntegrals, _checked_guess, _jk_builder, plan_jk, prepare_integrals, run_rhf, scf_blas_threads
 from .guess import sad_density
 from .jk import IncrementalJK
 from .open_result import ROHFResult, UHFResult
@@ -30,7 +31,8 @@ from .options import SCFOptions
 from .result import RHFResult
 from .solver import Progress
 from .spin import resolve_method
-from .uhf import solve_uhf, split_density
+from .guess import split_density
+from .uhf import solve_uhf
 
 
 def run_scf(
@@ -162,7 +164,7 @@ def run_open_shell(
         require_room_for(molecule, basis)
         user_guess = _open_guess(guess, basis)
         if shared is None:
-            shared = prepare_integrals(basis, options, integral_progress, molecule=molecule)
+            shared = _prepare_open(basis, options, integral_progress, molecule)
         elif shared.basis is not basis:
             raise InputError("shared integrals belong to another basis; build them with prepare_integrals(basis)")
         hcore = shared.kinetic + integrals.nuclear_attraction(basis, molecule.nuclear_charges, molecule.coordinates)
@@ -218,6 +220,22 @@ def run_open_shell(
                 return finish(exc.result)
             raise ConvergenceError(str(exc), finish(exc.result)) from None
         return finish(result)
+
+
+def _prepare_open(
+    basis: BasisSet, options: SCFOptions, integral_progress: Callable[[float], None] | None, molecule: Molecule
+) -> SharedIntegrals:
+    """:func:`prepare_integrals` for an open shell: a fitted plan is sized for N_α + N_β exchange columns."""
+    if options.fit_basis is None:
+        return prepare_integrals(basis, options, integral_progress, molecule=molecule)
+    t0 = time.perf_counter()
+    fitting = fitting_basis(molecule, basis, options.fit_basis)
+    # Both spins' occupied orbitals go through one half-transform (FittedJK.jk_multi).
+    plan = plan_jk(basis, options, fitting=fitting, n_occupied=molecule.n_alpha + molecule.n_beta)
+    with blas_threads(options.n_threads):
+        overlap, kinetic = integrals.overlap(basis), integrals.kinetic(basis)
+        engine = _jk_builder(basis, options, plan, integral_progress)
+    return SharedIntegrals(basis, overlap, kinetic, plan, engine, time.perf_counter() - t0)
 
 
 def _open_guess(guess: str | np.ndarray, basis: BasisSet) -> np.ndarray | None:

@@ -22,6 +22,7 @@ import numpy as np
 
 from ..errors import BasisError, ConvergenceError, InputError
 from .accelerators import AID_DAMPING, AID_LEVEL_SHIFT, DIIS, FockStep
+from .guess import split_density
 from .jk import JKBuilder, jk_multi
 from .open_result import UHFResult
 from .options import SCFOptions
@@ -108,23 +109,6 @@ def _checked_square(name: str, matrix: np.ndarray, n: int | None = None) -> np.n
     if not np.all(np.isfinite(m)):
         raise InputError(f"{name} contains non-finite values")
     return m
-
-
-def split_density(total: np.ndarray, n_alpha: int, n_beta: int) -> np.ndarray:
-    """An α and a β density from a total one, in proportion to the electrons of each spin.
-
-    The atomic-density start of an open shell: the superposition of atomic
-    densities carries no spin, so it is shared N_α : N_β; the first
-    diagonalisation then fills N_α and N_β orbitals.
-
-    Returns
-    -------
-    ndarray, shape (2, nbf, nbf)
-    """
-    n = n_alpha + n_beta
-    if n == 0:
-        return np.array([0.5 * total, 0.5 * total])
-    return np.array([total * (n_alpha / n), total * (n_beta / n)])
 
 
 def solve_uhf(
@@ -237,9 +221,13 @@ def _initial_densities(
 
 
 class _Schedule:
-    """DIIS, then DIIS with a level shift, then damping with a level shift, when progress stalls."""
+    """DIIS, then DIIS with a level shift, then damping with a level shift, when progress stalls.
 
-    STAGES = ("diis", "diis+level_shift", "damping+level_shift")
+    Damping ends once the energy settles (four iterations within 1e-5 Eh);
+    DIIS with the level shift then finishes from that basin.
+    """
+
+    STAGES = ("diis", "diis+level_shift", "damping+level_shift", "diis+level_shift")
 
     def __init__(self, options: SCFOptions) -> None:
         self.options = options
@@ -254,22 +242,36 @@ class _Schedule:
     def name(self) -> str:
         return self.STAGES[self.stage]
 
+    @property
+    def shifting(self) -> bool:
+        """Whether the next step applies a level shift."""
+        return self.stage > 0 or self.options.level_shift > 0.0
+
     def observe(self, energy: float, gradient: float) -> None:
         self._gradients.append(gradient)
         self._energies.append(energy)
         if not self.options.auto_aids or self.stage + 1 >= len(self.STAGES):
+            return
+        if self.name == "damping+level_shift":
+            # Damping has brought the iterations into a basin (the energy settles): extrapolate again.
+            e = self._energies
+            if len(e) >= 4 and max(abs(np.diff(e[-4:]))) < 1e-5:
+                self._advance()
             return
         g = self._gradients
         stalled = len(g) >= 12 and min(g[-AID_WINDOW:]) > 0.5 * min(g[:-AID_WINDOW])
         e = np.array(self._energies[-AID_WINDOW - 1 :])
         rises = int(np.count_nonzero(np.diff(e) > max(self.options.energy_tol, 1e-9)))
         if stalled or (len(e) > AID_WINDOW and rises >= AID_WINDOW // 2):
-            self.stage += 1
-            self.used.append(self.name)
-            self.diis = DIIS(self.options.max_diis_size, 1)
-            self.previous = None
-            self._gradients.clear()
-            self._energies.clear()
+            self._advance()
+
+    def _advance(self) -> None:
+        self.stage += 1
+        self.used.append(self.name)
+        self.diis = DIIS(self.options.max_diis_size, 1)
+        self.previous = None
+        self._gradients.clear()
+        self._energies.clear()
 
     def next_focks(self, iteration: int, focks: np.ndarray, errors: np.ndarray, projectors: np.ndarray) -> np.ndarray:
         """The α and β matrices (2, nmo, nmo) to diagonalise next."""
@@ -308,9 +310,9 @@ def iterate_uhf(
         if not converged:
             schedule.observe(energy, grad)
             aid = schedule.name
-            focks = schedule.next_focks(
-                iteration, problem.orthonormal_focks(ev), errors, problem.projectors(ev.densities)
-            )
+            # The occupied-space projectors are only needed for a level shift.
+            projectors = problem.projectors(ev.densities) if schedule.shifting else None
+            focks = schedule.next_focks(iteration, problem.orthonormal_focks(ev), errors, projectors)
             _, _, densities = problem.occupy(focks)
         record = SCFIteration(iteration, energy, energy - previous, grad, schedule.diis.subspace_size, aid, solution)
         history.append(record)
