@@ -199,3 +199,19 @@ def test_koopmans_charges_and_dipole_work_on_an_open_shell_record(runs):
     assert props.koopmans_ionisation == -result.homo_energy > 0
     assert 1.9 < props.virial_ratio < 2.1  # common practice: near 2 at a reasonable geometry
     assert np.linalg.norm(dipole_moment(result)) > 0.1
+
+
+@pytest.mark.parametrize(
+    "options",
+    [SCFOptions(accelerator="damping", damping=0.3), SCFOptions(accelerator="none"), SCFOptions(level_shift=0.3)],
+    ids=["damping", "none", "level-shift"],
+)
+def test_every_fock_accelerator_reaches_the_same_uhf_solution(runs, options):
+    result = run_scf(species("OH"), "6-31g", options)
+    # source: the DIIS run above, itself checked against the reference library
+    assert abs(result.energy_total - runs["OH", "6-31g"].energy_total) < 1e-9
+
+
+def test_the_second_order_accelerator_is_refused_for_open_shells():
+    with pytest.raises(InputError, match="RHF only"):
+        run_scf(species("OH"), "sto-3g", SCFOptions(accelerator="second_order"))

@@ -149,6 +149,8 @@ def solve_rohf(
     t0 = time.perf_counter()
     options = options or SCFOptions()
     scheme = check_coupling(coupling)
+    if options.accelerator != "diis":
+        raise InputError(f"ROHF iterates with DIIS on its orbital gradient; the {options.accelerator!r} accelerator is not offered for it")
     if n_alpha < n_beta or n_beta < 0 or n_alpha == 0:
         raise InputError(f"ROHF needs N_alpha >= N_beta >= 0 and some electrons, got {n_alpha} and {n_beta}")
     s = _checked_square("overlap", overlap)

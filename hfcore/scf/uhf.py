@@ -227,10 +227,14 @@ class _Schedule:
     DIIS with the level shift then finishes from that basin.
     """
 
-    STAGES = ("diis", "diis+level_shift", "damping+level_shift", "diis+level_shift")
+    AIDS = ("diis+level_shift", "damping+level_shift", "diis+level_shift")
 
     def __init__(self, options: SCFOptions) -> None:
+        if options.accelerator == "second_order":
+            raise InputError("the second_order accelerator serves RHF only; open shells use diis, damping or none")
         self.options = options
+        # The chosen accelerator first ("diis", "damping" or "none"), then the automatic aids.
+        self.STAGES = (options.accelerator,) + self.AIDS
         self.stage = 0
         self.diis = DIIS(options.max_diis_size, options.diis_start)
         self.previous: np.ndarray | None = None
@@ -275,11 +279,17 @@ class _Schedule:
 
     def next_focks(self, iteration: int, focks: np.ndarray, errors: np.ndarray, projectors: np.ndarray) -> np.ndarray:
         """The α and β matrices (2, nmo, nmo) to diagonalise next."""
-        if self.name == "damping+level_shift":
-            out = focks if self.previous is None else (1 - AID_DAMPING) * focks + AID_DAMPING * self.previous
+        if self.name in ("damping+level_shift", "damping"):
+            factor = AID_DAMPING if self.stage > 0 else self.options.damping
+            out = focks if self.previous is None else (1 - factor) * focks + factor * self.previous
             self.previous = out.copy()
+        elif self.name == "none":
+            out = focks
         else:
             out = self.diis.next_fock(FockStep(iteration, focks, errors, projectors))
+            if self.stage == 0 and self.options.damping > 0.0 and iteration < self.options.diis_start:
+                out = focks if self.previous is None else (1 - self.options.damping) * focks + self.options.damping * self.previous
+                self.previous = out.copy()
         shift = AID_LEVEL_SHIFT if self.stage > 0 else self.options.level_shift
         if shift > 0.0:
             eye = np.eye(focks.shape[1])
