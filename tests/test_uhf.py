@@ -199,6 +199,10 @@ def test_koopmans_charges_and_dipole_work_on_an_open_shell_record(runs):
     assert props.koopmans_ionisation == -result.homo_energy > 0
     assert 1.9 < props.virial_ratio < 2.1  # common practice: near 2 at a reasonable geometry
     assert np.linalg.norm(dipole_moment(result)) > 0.1
+    from hfcore.analysis import lowdin_charges, quadrupole_moment
+
+    assert abs(lowdin_charges(result).sum()) < 1e-10  # exact property: charges sum to the molecular charge
+    assert abs(np.trace(quadrupole_moment(result))) < 1e-10  # exact property: the quadrupole is traceless
 
 
 @pytest.mark.parametrize(
