@@ -235,6 +235,7 @@ def result_record(result: Any, analysis: Mapping[str, Any] | None = None) -> dic
             "stability": stability_record(result),
             "aufbau": {"satisfied": result.aufbau, "gap": result.aufbau_gap},
             "aids": list(result.aids),
+            "warnings": list(getattr(result, "warnings", ())),
             "history": [
                 {
                     "iteration": h.iteration,

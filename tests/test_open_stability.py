@@ -60,6 +60,7 @@ def test_rhf_on_stretched_h2_reports_the_lower_unrestricted_solution_as_a_warnin
     # source: checks.md, reference library run: RHF -0.8653301 Eh, unstable towards UHF
     assert abs(result.energy_total - -0.8653301) < 1e-7
     assert len(result.warnings) == 1 and "unstable towards UHF" in result.warnings[0]
+    assert result.to_dict()["scf"]["warnings"] == list(result.warnings)
 
 
 def test_stretched_n2_uhf_reaches_the_reference_librarys_stability_followed_solution():
