@@ -219,3 +219,13 @@ def test_every_fock_accelerator_reaches_the_same_uhf_solution(runs, options):
 def test_the_second_order_accelerator_is_refused_for_open_shells():
     with pytest.raises(InputError, match="RHF only"):
         run_scf(species("OH"), "sto-3g", SCFOptions(accelerator="second_order"))
+
+
+def test_the_npz_export_writes_the_open_shell_arrays(runs):
+    from hfcore.export import result_arrays
+
+    arrays = result_arrays(runs["OH", "6-31g"])
+    for key in ("coefficients_alpha", "coefficients_beta", "density_alpha", "density_beta", "density", "kinetic"):
+        assert key in arrays
+    # exact property: the saved total density is the sum of the saved spin densities
+    assert np.allclose(arrays["density"], arrays["density_alpha"] + arrays["density_beta"])
