@@ -22,8 +22,9 @@ class JKBuilder(Protocol):
     ``jk_multi(densities)``: ``densities`` has shape (m, nbf, nbf) (m
     symmetric matrices, e.g. D_α and D_β); it returns ``J`` of their
     **sum**, shape (nbf, nbf), and ``K`` of **each**, shape (m, nbf, nbf),
-    from one read of its integrals (one pass over the store, one integral
-    pass, one use of the fitted factors). Every builder of hfcore has it. A
+    sharing the work the densities have in common (one pass over a lean
+    store, one integral pass of the direct engine, one pass of recomputed
+    fitted blocks; J once). Every builder of hfcore has it. A
     builder of one's own needs only :meth:`jk`: :func:`jk_multi` then calls
     ``jk`` once per density and sums the Coulomb parts, which gives the
     same matrices at m times the cost.
