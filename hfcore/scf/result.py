@@ -179,6 +179,11 @@ class RHFResult:
     warnings: tuple[str, ...] = ()
 
     @property
+    def method(self) -> str:
+        """"RHF" (the open-shell records say "UHF" or "ROHF")."""
+        return "RHF"
+
+    @property
     def n_occupied(self) -> int:
         """Number of doubly occupied orbitals."""
         return int(np.count_nonzero(self.occupations > 0))
