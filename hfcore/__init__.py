@@ -22,7 +22,7 @@ from .geometry import Molecule, parse_xyz, read_xyz
 def __getattr__(name: str):
     # The SCF layer is imported lazily so that reading geometries and basis
     # sets stays cheap.
-    if name in {"run_rhf", "solve_rhf", "SCFOptions", "RHFResult"}:
+    if name in {"run_rhf", "solve_rhf", "SCFOptions", "RHFResult", "run_scf", "UHFResult", "ROHFResult"}:
         from . import scf
 
         return getattr(scf, name)
@@ -50,9 +50,12 @@ __all__ = [
     "build_basis",
     "get_family",
     "run_rhf",
+    "run_scf",
     "solve_rhf",
     "SCFOptions",
     "RHFResult",
+    "UHFResult",
+    "ROHFResult",
     "mp2_energy",
     "project_density",
     "compare_bases",

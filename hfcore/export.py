@@ -258,16 +258,20 @@ def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS
 
     basis = result.basis
     mol = result.molecule
-    arrays = {
-        "overlap": result.overlap,
-        "kinetic": integrals.kinetic(basis),
-        "nuclear_attraction": integrals.nuclear_attraction(basis, mol.nuclear_charges, mol.coordinates),
-        "core_hamiltonian": result.core_hamiltonian,
+    # An open-shell record brings its own per-spin arrays (UHFResult.to_arrays).
+    orbitals = result.to_arrays() if hasattr(result, "to_arrays") else {
         "coefficients": result.coefficients,
         "orbital_energies": result.orbital_energies,
         "occupations": result.occupations,
         "density": result.density,
         "fock": result.fock,
+    }
+    arrays = {
+        **orbitals,
+        "overlap": result.overlap,
+        "kinetic": integrals.kinetic(basis),
+        "nuclear_attraction": integrals.nuclear_attraction(basis, mol.nuclear_charges, mol.coordinates),
+        "core_hamiltonian": result.core_hamiltonian,
         "atomic_numbers": mol.atomic_numbers,
         "ghosts": mol.ghosts,
         "coordinates": mol.coordinates,

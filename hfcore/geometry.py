@@ -57,6 +57,11 @@ class Molecule:
         Ghost atoms (all False by default): a ghost keeps the basis
         functions of its element at its position but has no nuclear charge
         and brings no electrons (see :meth:`with_ghosts`).
+    multiplicity : int or None
+        Spin multiplicity 2S + 1. None (default) means 1 for an even
+        electron count and 2 for an odd one; :attr:`spin_multiplicity`
+        gives the value in force. Checked against the electron count by
+        :func:`check_multiplicity` (parity, 2S <= N).
     """
 
     atomic_numbers: np.ndarray
@@ -66,6 +71,7 @@ class Molecule:
     comment: str = ""
     _line_numbers: tuple[int, ...] = field(default=(), repr=False, compare=False)
     ghosts: np.ndarray | None = None
+    multiplicity: int | None = None
 
     def __post_init__(self) -> None:
         z, xyz = _checked_arrays(self.atomic_numbers, self.coordinates, self.source)
@@ -86,6 +92,31 @@ class Molecule:
         ghosts = ghosts.copy()
         ghosts.setflags(write=False)
         object.__setattr__(self, "ghosts", ghosts)
+        if self.multiplicity is not None:
+            m = self.multiplicity
+            if isinstance(m, bool) or not isinstance(m, (int, np.integer)):
+                raise InputError(f"{self.source}: the multiplicity must be a whole number 2S+1 >= 1, got {m!r}")
+            object.__setattr__(self, "multiplicity", int(m))
+            check_multiplicity(self.n_electrons, int(m), self.source)
+
+    @property
+    def spin_multiplicity(self) -> int:
+        """The multiplicity 2S + 1 in force: the given one, or 1 (even) / 2 (odd electron count)."""
+        return default_multiplicity(self.n_electrons) if self.multiplicity is None else int(self.multiplicity)
+
+    @property
+    def n_alpha(self) -> int:
+        """Electrons of spin α, (N + 2S) / 2 (the larger set)."""
+        return (self.n_electrons + self.spin_multiplicity - 1) // 2
+
+    @property
+    def n_beta(self) -> int:
+        """Electrons of spin β, (N - 2S) / 2."""
+        return (self.n_electrons - self.spin_multiplicity + 1) // 2
+
+    def with_multiplicity(self, multiplicity: int | None) -> "Molecule":
+        """A copy with another multiplicity (None: the default for its electron count)."""
+        return replace(self, multiplicity=multiplicity)
 
     @property
     def n_atoms(self) -> int:
@@ -122,7 +153,7 @@ class Molecule:
         return self.coordinates * BOHR_IN_ANGSTROM
 
     def with_charge(self, charge: int) -> "Molecule":
-        """A copy with another total charge."""
+        """A copy with another total charge (an explicit multiplicity is kept and checked again)."""
         return replace(self, charge=charge)
 
     def with_ghosts(self, atoms: Iterable[int], charge: int | None = None) -> "Molecule":
@@ -143,10 +174,12 @@ class Molecule:
         Returns
         -------
         Molecule
+            With the default multiplicity of its own electron count (a
+            piece has its own spin: set it with :meth:`with_multiplicity`).
         """
         mask = self.ghosts.copy()
         mask[_checked_atoms(atoms, self.n_atoms, self.source)] = True
-        return replace(self, ghosts=mask, charge=self.charge if charge is None else charge)
+        return replace(self, ghosts=mask, charge=self.charge if charge is None else charge, multiplicity=None)
 
     def subset(self, atoms: Iterable[int], charge: int = 0) -> "Molecule":
         """The molecule made of the given atoms only (0-based, kept in file order).
@@ -188,6 +221,50 @@ class Molecule:
 
 # ``natom``, the old name of n_atoms, warns when read (kept for one release).
 rename_fields(Molecule, {"natom": "n_atoms"})
+
+
+def default_multiplicity(n_electrons: int) -> int:
+    """1 (singlet) for an even electron count, 2 (doublet) for an odd one."""
+    return 1 if int(n_electrons) % 2 == 0 else 2
+
+
+def check_multiplicity(n_electrons: int, multiplicity: int, source: str = "<memory>") -> int:
+    """The one place a multiplicity is checked against the electron count.
+
+    Parameters
+    ----------
+    n_electrons : int
+        Electrons of the molecule (ghost atoms bring none).
+    multiplicity : int
+        2S + 1.
+    source : str
+        Name for the message.
+
+    Returns
+    -------
+    int
+        The multiplicity.
+
+    Raises
+    ------
+    InputError
+        One line, when 2S + 1 < 1, when 2S and N differ in parity, or when
+        2S exceeds N (more unpaired electrons than electrons).
+    """
+    m = int(multiplicity)
+    n = int(n_electrons)
+    if m < 1:
+        raise InputError(f"{source}: multiplicity {m} is impossible; it is 2S+1, at least 1")
+    unpaired = m - 1
+    if unpaired > n:
+        raise InputError(
+            f"{source}: multiplicity {m} needs {unpaired} unpaired electrons but the molecule has {n}"
+        )
+    if (n - unpaired) % 2:
+        kind = "odd" if n % 2 else "even"
+        allowed = "2, 4, 6, ..." if n % 2 else "1, 3, 5, ..."
+        raise InputError(f"{source}: multiplicity {m} does not fit {n} electrons (an {kind} count takes {allowed})")
+    return m
 
 
 def is_closed_shell(n_electrons: object) -> bool:
@@ -346,7 +423,9 @@ def _symbol_problem(token: str) -> str:
     return f"unknown element {token!r}"
 
 
-def parse_xyz(text: str, source: str = "<string>", units: str = "angstrom", charge: int = 0) -> Molecule:
+def parse_xyz(
+    text: str, source: str = "<string>", units: str = "angstrom", charge: int = 0, multiplicity: int | None = None
+) -> Molecule:
     """Parse the text of an XYZ file.
 
     Format: line 1 holds the number of atoms, line 2 a free comment, then one
@@ -367,6 +446,9 @@ def parse_xyz(text: str, source: str = "<string>", units: str = "angstrom", char
         Units of the coordinates in the text.
     charge : int
         Total molecular charge.
+    multiplicity : int, optional
+        Spin multiplicity 2S + 1 (default: 1 for an even, 2 for an odd
+        electron count).
 
     Returns
     -------
@@ -444,7 +526,7 @@ def parse_xyz(text: str, source: str = "<string>", units: str = "angstrom", char
             f"{source}:{line_numbers[b]}: atom {b + 1} is {d * BOHR_IN_ANGSTROM:.3g} Å from atom {a + 1} "
             f"(line {line_numbers[a]}); atoms closer than {MIN_DISTANCE_ANGSTROM} Å are not allowed"
         )
-    return Molecule(np.array(zs), r, charge, source, comment, tuple(line_numbers))
+    return Molecule(np.array(zs), r, charge, source, comment, tuple(line_numbers), multiplicity=multiplicity)
 
 
 def _closest_close_pair(r: np.ndarray, cutoff: float) -> tuple[int, int, float] | None:
@@ -472,7 +554,9 @@ def _closest_close_pair(r: np.ndarray, cutoff: float) -> tuple[int, int, float] 
     return int(pairs[k, 0]), int(pairs[k, 1]), float(d[k])
 
 
-def read_xyz(path: str | os.PathLike, units: str = "angstrom", charge: int = 0) -> Molecule:
+def read_xyz(
+    path: str | os.PathLike, units: str = "angstrom", charge: int = 0, multiplicity: int | None = None
+) -> Molecule:
     """Read a molecule from an XYZ file.
 
     Parameters
@@ -483,6 +567,9 @@ def read_xyz(path: str | os.PathLike, units: str = "angstrom", charge: int = 0) 
         Units of the coordinates in the file (default ångström).
     charge : int
         Total molecular charge.
+    multiplicity : int, optional
+        Spin multiplicity 2S + 1 (default: 1 for an even, 2 for an odd
+        electron count).
 
     Returns
     -------
@@ -491,7 +578,8 @@ def read_xyz(path: str | os.PathLike, units: str = "angstrom", charge: int = 0) 
     Raises
     ------
     InputError
-        If the file is missing, unreadable or malformed.
+        If the file is missing, unreadable or malformed, or the
+        multiplicity does not fit the electron count.
     """
     source = os.fspath(path)
     try:
@@ -513,7 +601,7 @@ def read_xyz(path: str | os.PathLike, units: str = "angstrom", charge: int = 0) 
         text = data.decode("utf-8-sig")
     except UnicodeDecodeError:
         raise InputError(f"{source}: not a text file (cannot decode as UTF-8)") from None
-    return parse_xyz(text, source=source, units=units, charge=charge)
+    return parse_xyz(text, source=source, units=units, charge=charge, multiplicity=multiplicity)
 
 
 __all__ = [
@@ -523,6 +611,8 @@ __all__ = [
     "nuclear_repulsion",
     "parse_atom_ranges",
     "is_closed_shell",
+    "check_multiplicity",
+    "default_multiplicity",
     "BOHR_IN_ANGSTROM",
     "ANGSTROM_IN_BOHR",
     "MAX_COORDINATE_ANGSTROM",

@@ -128,8 +128,14 @@ def test_molecule_arrays_are_read_only(tmp_path):
 def test_shipped_demo_inputs_parse(tmp_path):
     files = sorted(INPUTS.glob("*.xyz"))
     assert len(files) >= 20
+    # The open-shell demo species (inputs/README.md) with their ground-state multiplicities.
+    open_shells = {"h.xyz": 2, "c.xyz": 3, "n.xyz": 4, "o.xyz": 3, "f.xyz": 2, "oh.xyz": 2, "nh2.xyz": 2,
+                   "ch3.xyz": 2, "o2.xyz": 3, "ch2.xyz": 3}
     for path in files:
         charge = {"ammonium.xyz": 1, "hydroxide.xyz": -1}.get(path.name, 0)
+        if path.name in open_shells:
+            assert read_xyz(path, multiplicity=open_shells[path.name]).spin_multiplicity == open_shells[path.name]
+            continue
         read_xyz(path, charge=charge).require_closed_shell()
 
 
@@ -231,3 +237,56 @@ def test_no_electrons_left(tmp_path):
 def test_molecule_rejects_mismatched_arrays():
     with pytest.raises(InputError, match="2 atomic numbers but 1 positions"):
         Molecule(np.array([1, 1]), np.zeros((1, 3)))
+
+
+# --- multiplicity (open shells) -------------------------------------------------
+
+
+def test_default_multiplicity_is_singlet_for_even_and_doublet_for_odd_counts():
+    # common practice: the lowest multiplicity the electron count allows
+    from hfcore.geometry import Molecule
+
+    water = Molecule(np.array([8, 1, 1]), np.array([[0.0, 0, 0], [0, 1.4, 1.1], [0, -1.4, 1.1]]))
+    assert water.spin_multiplicity == 1 and (water.n_alpha, water.n_beta) == (5, 5)
+    cation = water.with_charge(1)
+    assert cation.spin_multiplicity == 2 and (cation.n_alpha, cation.n_beta) == (5, 4)
+
+
+def test_a_triplet_has_two_more_alpha_than_beta_electrons():
+    from hfcore.geometry import Molecule
+
+    oxygen = Molecule(np.array([8]), np.zeros((1, 3)), multiplicity=3)
+    assert (oxygen.n_alpha, oxygen.n_beta) == (5, 3)
+
+
+@pytest.mark.parametrize(
+    "z, charge, multiplicity, words",
+    [(8, 0, 2, "does not fit 8 electrons"), (8, 0, 11, "needs 10 unpaired"), (1, 0, 3, "needs 2 unpaired"),
+     (8, 0, 0, "impossible"), (7, 0, 1, "does not fit 7")],
+)
+def test_impossible_multiplicities_are_refused_in_one_line(z, charge, multiplicity, words):
+    from hfcore.errors import InputError
+    from hfcore.geometry import Molecule
+
+    with pytest.raises(InputError, match=words) as info:
+        Molecule(np.array([z]), np.zeros((1, 3)), charge, source="atom.xyz", multiplicity=multiplicity)
+    assert "\n" not in str(info.value) and str(info.value).startswith("atom.xyz:")
+
+
+def test_read_xyz_takes_the_multiplicity(tmp_path):
+    from hfcore.errors import InputError
+    from hfcore.geometry import read_xyz
+
+    path = tmp_path / "o.xyz"
+    path.write_text("1\noxygen atom\nO 0 0 0\n")
+    assert read_xyz(path, multiplicity=3).spin_multiplicity == 3
+    with pytest.raises(InputError, match="multiplicity 2"):
+        read_xyz(path, multiplicity=2)
+
+
+def test_ghost_atoms_bring_no_electrons_to_the_spin_count():
+    from hfcore.geometry import Molecule
+
+    pair = Molecule(np.array([1, 1]), np.array([[0.0, 0, 0], [0, 0, 1.4]]))
+    ghosted = pair.with_ghosts([1])
+    assert ghosted.n_electrons == 1 and ghosted.spin_multiplicity == 2

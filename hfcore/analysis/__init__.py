@@ -1,8 +1,10 @@
 """Post-SCF analysis of one finished RHF run: populations, multipoles, orbital properties, MP2 and SCS-MP2.
 
-Everything here works on a finished :class:`hfcore.scf.RHFResult` and never
-runs the SCF itself. The studies over several runs (basis comparison,
-reaction and interaction energies) and basis-limit extrapolation are in
+Everything here works on a finished SCF record (:class:`hfcore.scf.RHFResult`,
+or, for populations, multipoles, orbital properties and :func:`ump2_energy`,
+an open-shell :class:`hfcore.scf.UHFResult` / ``ROHFResult``) and never runs
+the SCF itself. The studies over several runs (basis comparison, reaction
+and interaction energies) and basis-limit extrapolation are in
 :mod:`hfcore.studies`; their old names here still work for one release,
 with a DeprecationWarning.
 """
@@ -10,6 +12,7 @@ with a DeprecationWarning.
 from __future__ import annotations
 
 from .mp2 import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, MP2Result, core_orbital_count, mp2_energy
+from .ump2 import UMP2Result, check_mp2_reference, ump2_energy
 from .multipoles import (
     DEBYE_ANGSTROM_PER_AU,
     DEBYE_PER_AU,
@@ -21,7 +24,7 @@ from .multipoles import (
 )
 from ..units import KCAL_MOL_PER_HARTREE
 from .properties import OrbitalProperties, orbital_properties
-from .populations import lowdin_charges, lowdin_populations, mulliken_charges, mulliken_populations
+from .populations import lowdin_charges, lowdin_populations, mulliken_charges, mulliken_populations, mulliken_spin_populations
 
 #: Names that moved to :mod:`hfcore.studies` (served from there with a warning, for one release).
 _MOVED_TO_STUDIES = frozenset({
@@ -45,7 +48,11 @@ def __getattr__(name: str):
 
 
 __all__ = [
+    "ump2_energy",
+    "UMP2Result",
+    "check_mp2_reference",
     "mulliken_populations",
+    "mulliken_spin_populations",
     "mulliken_charges",
     "lowdin_populations",
     "lowdin_charges",

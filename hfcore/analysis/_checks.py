@@ -17,4 +17,4 @@ def require_placed(result: RHFResult, what: str) -> None:
     needs to know which atom each basis function sits on.
     """
     if getattr(result, "molecule", None) is None or getattr(result, "basis", None) is None:
-        raise InputError(f"{what} needs an RHF result that carries its molecule and basis (from run_rhf)")
+        raise InputError(f"{what} needs an SCF result that carries its molecule and basis (from run_rhf or run_scf)")

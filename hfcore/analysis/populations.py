@@ -1,4 +1,4 @@
-"""Population analyses of an RHF density: Mulliken and Löwdin.
+"""Population analyses of an SCF density: Mulliken and Löwdin charges (any record), Mulliken spin populations (open shells).
 
 Both split the electron count N = tr(D S) over basis functions and then over
 the atoms the functions sit on. They depend on the basis and are a
@@ -115,4 +115,27 @@ def lowdin_charges(result: RHFResult) -> np.ndarray:
     return _atom_charges(result, lowdin_populations(result))
 
 
-__all__ = ["mulliken_populations", "mulliken_charges", "lowdin_populations", "lowdin_charges"]
+def mulliken_spin_populations(result) -> np.ndarray:
+    """Mulliken spin population of every atom of an open-shell record.
+
+    Parameters
+    ----------
+    result : UHFResult or ROHFResult
+        A finished open-shell run (uses ``density_alpha``, ``density_beta`` and ``overlap``).
+        An RHF record has no spin: every population is zero.
+
+    Returns
+    -------
+    ndarray, shape (natom,)
+        Σ_{μ on A} ((D_α − D_β) S)_μμ; the entries sum to N_α − N_β.
+    """
+    from ..scf.open_result import atom_sums
+
+    _, overlap = _density_and_overlap(result)
+    spin = getattr(result, "spin_density", None)
+    if spin is None:
+        return np.zeros(result.molecule.natom)
+    return atom_sums(result.basis, np.asarray(spin, dtype=np.float64), overlap)
+
+
+__all__ = ["mulliken_populations", "mulliken_charges", "lowdin_populations", "lowdin_charges", "mulliken_spin_populations"]

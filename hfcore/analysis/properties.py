@@ -1,4 +1,8 @@
-"""One-number properties of an RHF state: orbital gap, Koopmans ionisation energy, virial ratio."""
+"""One-number properties of an SCF state (RHF, UHF or ROHF): orbital gap, Koopmans ionisation energy, virial ratio.
+
+For an open-shell record the HOMO is the highest occupied orbital of either
+spin and the LUMO the lowest empty one (``UHFResult.homo_energy``,
+``lumo_energy``)."""
 
 from __future__ import annotations
 

@@ -76,10 +76,10 @@ class _Accumulator:
     _BATCH = 1 << 21
     _buffers = threading.local()
 
-    def __init__(self, n: int) -> None:
+    def __init__(self, n: int, m: int = 1) -> None:
         self.n = n
         self.j = np.zeros(n * (n + 1) // 2)
-        self.k = np.zeros(n * n)
+        self.k = np.zeros(m * n * n)
         self._jparts: list[tuple[np.ndarray, np.ndarray]] = []
         # Each pool thread keeps one pair of scatter buffers for all its work units.
         cache = self._buffers
@@ -115,7 +115,7 @@ class _Accumulator:
             self._used = 0
 
     def partial(self) -> tuple[np.ndarray, np.ndarray]:
-        """The sums so far: J over packed pairs, shape (npair,), and N, shape (nbf * nbf,)."""
+        """The sums so far: J over packed pairs, shape (npair,), and N, shape (m * nbf * nbf,)."""
         self.flush()
         return self.j, self.k
 
@@ -197,14 +197,40 @@ class DirectERI:
             J_μν = Σ (μν|λσ) D_λσ and K_μν = Σ (μλ|νσ) D_λσ.
         """
         d = np.ascontiguousarray(density, dtype=np.float64)
-        block_max = _block_max(np.abs(d), self._families)
+        j, k = self._build(d, d[None])
+        return j, k[0]
+
+    def jk_multi(self, densities: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Coulomb matrix of the sum and exchange matrix of each density, from one integral pass.
+
+        Parameters
+        ----------
+        densities : ndarray, shape (m, nbf, nbf)
+            Symmetric matrices (full densities or density changes).
+
+        Returns
+        -------
+        J : ndarray, shape (nbf, nbf)
+            Of ``densities.sum(axis=0)``.
+        K : ndarray, shape (m, nbf, nbf)
+            Of each density. A quartet is screened with the largest
+            |D| of any of the densities.
+        """
+        stack = np.ascontiguousarray(densities, dtype=np.float64)
+        return self._build(np.ascontiguousarray(stack.sum(axis=0)), stack)
+
+    def _build(self, total: np.ndarray, stack: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """J of ``total`` and K of each matrix of ``stack`` (m, nbf, nbf), in one pass."""
+        absd = np.abs(stack[0]) if stack.shape[0] == 1 else np.maximum(np.abs(total), np.abs(stack).max(axis=0))
+        block_max = _block_max(absd, self._families)
         dmax = float(block_max.max()) if block_max.size else 0.0
         n = self.n_functions
-        j, half = np.zeros(n * (n + 1) // 2), np.zeros(n * n)
+        m = stack.shape[0]
+        j, half = np.zeros(n * (n + 1) // 2), np.zeros(m * n * n)
         counts = np.zeros(2, dtype=np.int64)
 
         def run(unit: slice) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-            return self._unit(self._tiles[unit], d, block_max, dmax)
+            return self._unit(self._tiles[unit], total, stack, block_max, dmax)
 
         # Partial sums are added in unit order: the same bits for any thread count.
         for pj, pk, pc in ordered_map(run, self._units, self.threads):
@@ -212,13 +238,14 @@ class DirectERI:
             half += pk
             counts += pc
         self.last_stats = DirectPassStats(int(counts[0]), int(counts[1]))
-        return _symmetrised(j, half, n)
+        parts = [_symmetrised(j, half[q * n * n : (q + 1) * n * n], n) for q in range(m)]
+        return parts[0][0], np.stack([p[1] for p in parts])
 
     def _unit(
-        self, tiles: list[Tile], d: np.ndarray, block_max: np.ndarray, dmax: float
+        self, tiles: list[Tile], d: np.ndarray, stack: np.ndarray, block_max: np.ndarray, dmax: float
     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Packed J sums, half-exchange and quartet counts of one work unit of tiles."""
-        acc = _Accumulator(self.n_functions)
+        """Packed J sums (of ``d``), half-exchange (of each of ``stack``) and quartet counts of one work unit of tiles."""
+        acc = _Accumulator(self.n_functions, stack.shape[0])
         counts = np.zeros(2, dtype=np.int64)
         for tile in tiles:
             counts[0] += tile.quartets
@@ -230,7 +257,7 @@ class DirectERI:
                 continue
             counts[1] += rows.size * cols.size * tile.bra.nprim * tile.ket.nprim
             block = tile_integrals(tile.bra, rows, tile.ket, cols)
-            _contract(bra, rows, ket, cols, block, 0.5 if tile.diagonal else 1.0, d, acc)
+            _contract(bra, rows, ket, cols, block, 0.5 if tile.diagonal else 1.0, d, stack, acc)
         pj, pk = acc.partial()
         return pj, pk, counts
 
@@ -269,7 +296,7 @@ def _significant(
 
 def _contract(
     bra: _DirectGroup, brows: np.ndarray, ket: _DirectGroup, krows: np.ndarray, block: np.ndarray, scale: float,
-    d: np.ndarray, acc: _Accumulator,
+    d: np.ndarray, stack: np.ndarray, acc: _Accumulator,
 ) -> None:
     """Add a tile's integrals, with all eight index permutations, to J and K.
 
@@ -278,7 +305,8 @@ def _contract(
     over the number of times the tiles hold that integral times the share of
     its eight permutations that coincide. Then J_ij, J_kl get 2 w v D_kl,
     2 w v D_ij and the half-exchange N gets w v D_jl at (i, k) and likewise
-    for (j,k), (i,l), (j,l); J and K are the symmetrised sums.
+    for (j,k), (i,l), (j,l); J and K are the symmetrised sums. J uses ``d``,
+    and each matrix of ``stack`` (m, nbf, nbf) gets its own N.
     """
     n = d.shape[0]
     ih, il = bra.hi[brows].ravel(), bra.lo[brows].ravel()
@@ -288,12 +316,13 @@ def _contract(
     dflat = d.ravel()
     acc.add_j(bra.pairs.pidx[brows].ravel(), 2.0 * (wv @ dflat[kh * n + kl]))
     acc.add_j(ket.pairs.pidx[krows].ravel(), 2.0 * (dflat[ih * n + il] @ wv))
-    for r1, r2 in ((ih, il), (il, ih)):
-        r1n = r1[:, None] * n
-        for c1, c2 in ((kh, kl), (kl, kh)):
-            index, value = acc.k_slot(ih.size, kh.size)
-            np.add(r1n, c1[None, :], out=index)
-            np.multiply(wv, d[np.ix_(r2, c2)], out=value)
+    for q, dq in enumerate(stack):
+        for r1, r2 in ((ih, il), (il, ih)):
+            r1n = r1[:, None] * n + q * n * n  # density q's half-exchange sits in the q-th nbf² stretch
+            for c1, c2 in ((kh, kl), (kl, kh)):
+                index, value = acc.k_slot(ih.size, kh.size)
+                np.add(r1n, c1[None, :], out=index)
+                np.multiply(wv, dq[np.ix_(r2, c2)], out=value)
 
 
 

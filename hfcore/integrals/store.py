@@ -43,6 +43,8 @@ STORE_LIMIT_BYTES = 12 << 30
 EXCHANGE_KERNEL_LIMIT_BYTES = 128 << 20
 #: A lean K build is cut into this many work units (fixed, for the same sums on any thread count).
 _LEAN_UNITS = 16
+#: Densities the lean store's worker processes take in one build (α and β).
+_TEAM_DENSITIES = 2
 #: The pass is cut into about this many work units (thread pool tasks and progress steps).
 _UNITS = 256
 
@@ -175,10 +177,46 @@ class ERIStore:
         kp = blas.dspmv(self.n_pairs, 1.0, self._exchange_kernel(), dp)
         return _unpack_symmetric(jp, n), _unpack_symmetric(kp, n)
 
+    def jk_multi(self, densities: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Coulomb matrix of the sum and exchange matrix of each of several symmetric densities.
+
+        Parameters
+        ----------
+        densities : ndarray, shape (m, nbf, nbf)
+
+        Returns
+        -------
+        J : ndarray, shape (nbf, nbf)
+            Of ``densities.sum(axis=0)``.
+        K : ndarray, shape (m, nbf, nbf)
+            Of each density.
+
+        Notes
+        -----
+        With the exchange kernel: one ``spmv`` over the integrals for J and
+        one over the kernel per density (m + 1 products instead of 2m). A
+        lean store reads each of its rows once for J and every K.
+        """
+        d = np.asarray(densities, dtype=np.float64)
+        n = self.n_functions
+        first, second = np.tril_indices(n)
+        scale = np.where(first == second, 1.0, 2.0)
+        dps = d[:, first, second] * scale
+        dp_total = dps.sum(axis=0)
+        if self.lean:
+            jp, k = self._lean_jk(d, dp_total)
+            return _unpack_symmetric(jp, n), k
+        jp = blas.dspmv(self.n_pairs, 1.0, self.packed, dp_total)
+        kernel = self._exchange_kernel()
+        k = np.stack([_unpack_symmetric(blas.dspmv(self.n_pairs, 1.0, kernel, dp), n) for dp in dps])
+        return _unpack_symmetric(jp, n), k
+
     def _lean_jk(self, d: np.ndarray, dp: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """J over packed pairs, shape (npair,), and K, shape (nbf, nbf), in one read of the store.
 
-        ``dp`` is the density over packed pairs with off-diagonal elements
+        ``d`` may also be a stack (m, nbf, nbf): K is then one per density,
+        shape (m, nbf, nbf), from the same read, and ``dp`` belongs to their
+        sum. ``dp`` is the density over packed pairs with off-diagonal elements
         doubled. J: row IJ adds row . dp[:IJ+1] to J[IJ] and row[:IJ] dp[IJ]
         to J[:IJ] (the upper triangle by symmetry). K_ab = Σ_cd (ac|bd) D_cd. The stored row of pair IJ = (i, j) holds
         (ij|bd) for every pair BD <= IJ: as a packed symmetric matrix V
@@ -197,23 +235,27 @@ class ERIStore:
         cuts = np.searchsorted(cost, cost[-1] * np.arange(1, _LEAN_UNITS) / _LEAN_UNITS) if n else []
         bounds = np.unique(np.concatenate([[0], cuts, [n]])).astype(int)
         units = list(zip(bounds[:-1], bounds[1:]))
-        h = np.zeros((n, n))
+        stack = d if d.ndim == 3 else d[None]
+        m = stack.shape[0]
+        h = np.zeros((m, n, n))
         jp = np.zeros(self.n_pairs)
-        if self.threads > 1 and can_fork():
+        if self.threads > 1 and can_fork() and m <= _TEAM_DENSITIES:
             # Worker processes: the rows are many small BLAS calls, held back
             # by the interpreter lock on threads. Each unit's share has its
             # own slot, added here in unit order as below.
             team = self._lean_team(units)
-            team.density[...] = d
+            team.count[0] = m
+            team.density[:m] = stack
             team.packed_density[...] = dp
             team.run(len(units))
-            parts = zip(team.parts_j, team.parts_h)
+            parts = ((pj, ph[:m]) for pj, ph in zip(team.parts_j, team.parts_h))
         else:
-            parts = ordered_map(lambda unit: self._lean_rows(unit[0], unit[1], d, dp), units, self.threads)
+            parts = ordered_map(lambda unit: self._lean_rows(unit[0], unit[1], stack, dp), units, self.threads)
         for part_j, part_h in parts:
             jp += part_j
             h += part_h
-        return jp, h + h.T
+        k = h + h.transpose(0, 2, 1)
+        return jp, (k if d.ndim == 3 else k[0])
 
     def _lean_team(self, units: list[tuple[int, int]]) -> _LeanTeam:
         """The store's worker processes for lean K builds, made on first use, kept until the store goes."""
@@ -241,14 +283,17 @@ class _LeanTeam:
         npair = n * (n + 1) // 2
         self.size = size
         what = "the lean K build's shared arrays"
-        self.density = shared_zeros((n, n), what=what)
+        self.count = shared_zeros(1, what=what)
+        self.density = shared_zeros((_TEAM_DENSITIES, n, n), what=what)
         self.packed_density = shared_zeros(npair, what=what)
         self.parts_j = shared_zeros((len(units), npair), what=what)
-        self.parts_h = shared_zeros((len(units), n, n), what=what)
-        density, packed_density, parts_j, parts_h = self.density, self.packed_density, self.parts_j, self.parts_h
+        self.parts_h = shared_zeros((len(units), _TEAM_DENSITIES, n, n), what=what)
+        count, density, packed_density = self.count, self.density, self.packed_density
+        parts_j, parts_h = self.parts_j, self.parts_h
 
         def work(u: int) -> None:
-            parts_j[u], parts_h[u] = _lean_rows(packed, n, units[u][0], units[u][1], density, packed_density)
+            m = int(count[0])
+            parts_j[u], parts_h[u, :m] = _lean_rows(packed, n, units[u][0], units[u][1], density[:m], packed_density)
 
         self._team = WorkerTeam(work, size)
 
@@ -264,9 +309,11 @@ def _lean_rows(
 ) -> tuple[np.ndarray, np.ndarray]:
     """The shares of J (packed, shape (npair,)) and H (shape (n, n)) of the rows with first index in [first, stop).
 
-    See :meth:`ERIStore._lean_jk`.
+    ``d`` may be a stack (m, n, n); H is then (m, n, n), one per density,
+    from the same read of each row. See :meth:`ERIStore._lean_jk`.
     """
-    h = np.zeros((n, n))
+    stack = d if d.ndim == 3 else d[None]
+    hs = np.zeros(stack.shape)
     jp = np.zeros(n * (n + 1) // 2)
     spmv, axpy = blas.dspmv, blas.daxpy
     for i in range(first, stop):
@@ -276,13 +323,14 @@ def _lean_rows(
         lower = js[None, :] <= js[:, None]
         r = np.where(lower, packed[np.where(lower, starts[:, None] + js[None, :], 0)], 0.0)
         r[js, js] *= 0.5
-        dd = d[: i + 1, : i + 1]
-        # (a, c) = (i, j): H[i, i] += Σ_j R[j] · D[j], H[i, d] += Σ_j R[j, d] D[j, i] for d != i.
-        h[i, i] += np.einsum("jd,jd->", r, dd) - r[i, i] * d[i, i]
-        h[i, : i + 1] += r.T @ d[: i + 1, i]
-        # (a, c) = (j, i), j < i: H[j, i] += R[j] · D[i], H[j, d] += R[j, d] D[i, i].
-        h[:i, i] += r[:i] @ d[i, : i + 1]
-        h[:i, :i] += r[:i, :i] * d[i, i]
+        for h, dm in zip(hs, stack):
+            dd = dm[: i + 1, : i + 1]
+            # (a, c) = (i, j): H[i, i] += Σ_j R[j] · D[j], H[i, d] += Σ_j R[j, d] D[j, i] for d != i.
+            h[i, i] += np.einsum("jd,jd->", r, dd) - r[i, i] * dm[i, i]
+            h[i, : i + 1] += r.T @ dm[: i + 1, i]
+            # (a, c) = (j, i), j < i: H[j, i] += R[j] · D[i], H[j, d] += R[j, d] D[i, i].
+            h[:i, i] += r[:i] @ dm[i, : i + 1]
+            h[:i, :i] += r[:i, :i] * dm[i, i]
         for j in range(i + 1):
             pair = ti + j
             start = int(starts[j]) - ti
@@ -293,10 +341,11 @@ def _lean_rows(
             if i == 0:
                 continue
             full = row[:ti]
-            spmv(i, 1.0, full, d[j, :i], beta=1.0, y=h[i, :i], overwrite_y=1)
-            if j < i:
-                spmv(i, 1.0, full, d[i, :i], beta=1.0, y=h[j, :i], overwrite_y=1)
-    return jp, h
+            for h, dm in zip(hs, stack):
+                spmv(i, 1.0, full, dm[j, :i], beta=1.0, y=h[i, :i], overwrite_y=1)
+                if j < i:
+                    spmv(i, 1.0, full, dm[i, :i], beta=1.0, y=h[j, :i], overwrite_y=1)
+    return jp, (hs if d.ndim == 3 else hs[0])
 
 
 def _unpack_symmetric(vec: np.ndarray, n: int) -> np.ndarray:

@@ -1,4 +1,8 @@
-"""The SCF layer: restricted Hartree-Fock on a molecule or on bare matrices.
+"""The SCF layer: restricted, unrestricted and restricted open-shell Hartree-Fock.
+
+:func:`run_scf` runs the method ``options.method`` chooses (RHF for a
+singlet, UHF otherwise, or ROHF) and returns an :class:`RHFResult`,
+:class:`UHFResult` or :class:`ROHFResult`.
 
 Three lines::
 
@@ -28,8 +32,25 @@ from .orthogonalise import Orthogonaliser
 from .result import RHFResult, SCFIteration
 from .solver import IterationProgress
 from .stability import StabilityAnalysis, StabilityReport, analyse_stability, rotate_orbitals
+from .open_driver import run_rohf, run_scf, run_uhf
+from .open_result import ROHFResult, UHFResult
+from .rohf import COUPLINGS, solve_rohf
+from .uhf import solve_uhf
+from .uhf_stability import analyse_uhf_stability, check_rhf_to_uhf
+from .jk import jk_multi
 
 __all__ = [
+    "run_scf",
+    "run_uhf",
+    "run_rohf",
+    "solve_uhf",
+    "solve_rohf",
+    "UHFResult",
+    "ROHFResult",
+    "COUPLINGS",
+    "analyse_uhf_stability",
+    "check_rhf_to_uhf",
+    "jk_multi",
     "run_rhf",
     "plan_jk",
     "JKPlan",

@@ -246,4 +246,21 @@ def _valence_averaged(groups: list[tuple[int, int]], n_electrons: float, n_core:
     return occupations
 
 
-__all__ = ["sad_density", "atomic_density", "fractional_scf", "core_electrons", "DEGENERACY_TOL"]
+def split_density(total: np.ndarray, n_alpha: int, n_beta: int) -> np.ndarray:
+    """An α and a β density from a total one, in proportion to the electrons of each spin.
+
+    The atomic-density start of an open shell: the superposition of atomic
+    densities carries no spin, so it is shared N_α : N_β; the first
+    diagonalisation then fills N_α and N_β orbitals.
+
+    Returns
+    -------
+    ndarray, shape (2, nbf, nbf)
+    """
+    n = n_alpha + n_beta
+    if n == 0:
+        return np.array([0.5 * total, 0.5 * total])
+    return np.array([total * (n_alpha / n), total * (n_beta / n)])
+
+
+__all__ = ["split_density", "sad_density", "atomic_density", "fractional_scf", "core_electrons", "DEGENERACY_TOL"]

@@ -14,6 +14,20 @@ class JKBuilder(Protocol):
 
     The stored-integral store of :mod:`hfcore.integrals` meets this, and so
     can a direct (integral-recomputing) builder.
+
+    Several densities at once
+    -------------------------
+    An open-shell SCF needs, per iteration, one Coulomb matrix of the total
+    density and one exchange matrix per spin. A builder may offer
+    ``jk_multi(densities)``: ``densities`` has shape (m, nbf, nbf) (m
+    symmetric matrices, e.g. D_α and D_β); it returns ``J`` of their
+    **sum**, shape (nbf, nbf), and ``K`` of **each**, shape (m, nbf, nbf),
+    sharing the work the densities have in common (one pass over a lean
+    store, one integral pass of the direct engine, one pass of recomputed
+    fitted blocks; J once). Every builder of hfcore has it. A
+    builder of one's own needs only :meth:`jk`: :func:`jk_multi` then calls
+    ``jk`` once per density and sums the Coulomb parts, which gives the
+    same matrices at m times the cost.
     """
 
     def jk(self, density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -32,6 +46,43 @@ class JKBuilder(Protocol):
             when D is a density in electrons.
         """
         ...
+
+
+def jk_multi(builder: JKBuilder, densities: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """J of the sum and K of each of several densities (see :class:`JKBuilder`).
+
+    Parameters
+    ----------
+    builder : JKBuilder
+        Its own ``jk_multi`` is used when it has one; otherwise ``jk`` is
+        called once per density.
+    densities : ndarray, shape (m, nbf, nbf)
+        Symmetric matrices.
+
+    Returns
+    -------
+    J : ndarray, shape (nbf, nbf)
+        Coulomb matrix of ``densities.sum(axis=0)``.
+    K : ndarray, shape (m, nbf, nbf)
+        Exchange matrix of each density.
+    """
+    d = np.asarray(densities, dtype=np.float64)
+    if d.ndim != 3 or d.shape[1] != d.shape[2]:
+        raise InputError(f"jk_multi needs densities of shape (m, nbf, nbf), got {d.shape}")
+    own = getattr(builder, "jk_multi", None)
+    if own is not None:
+        return own(d)
+    return jk_multi_by_parts(builder, d)
+
+
+def jk_multi_by_parts(builder: JKBuilder, densities: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`jk_multi` by one ``jk`` call per density (the fallback for a builder without ``jk_multi``)."""
+    j = np.zeros(densities.shape[1:])
+    k = np.empty(densities.shape)
+    for index, density in enumerate(densities):
+        jm, k[index] = builder.jk(density)
+        j += jm
+    return j, k
 
 
 class DenseJK:
@@ -53,6 +104,19 @@ class DenseJK:
         j = (self._square @ density.ravel()).reshape(n, n)
         k = np.einsum("mlns,ls->mn", self.eri, density, optimize=True)
         return j, k
+
+    def jk_multi(self, densities: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """J of the sum, K of each of densities (m, nbf, nbf), in one pass over the tensor."""
+        m, n, _ = densities.shape
+        j = (self._square @ densities.sum(axis=0).ravel()).reshape(n, n)
+        k = (self._square_exchange() @ densities.reshape(m, n * n).T).T.reshape(m, n, n)
+        return j, k
+
+    def _square_exchange(self) -> np.ndarray:
+        if not hasattr(self, "_exchange"):
+            n = self.eri.shape[0]
+            self._exchange = np.ascontiguousarray(self.eri.transpose(0, 2, 1, 3)).reshape(n * n, n * n)
+        return self._exchange
 
 
 class IncrementalJK:
@@ -90,6 +154,8 @@ class IncrementalJK:
         self._density: np.ndarray | None = None
         self._jk: tuple[np.ndarray, np.ndarray] | None = None
         self._since_full = 0
+        self._multi: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
+        self._multi_since = 0
 
     def jk(self, density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         d = np.array(density, dtype=np.float64)
@@ -105,5 +171,25 @@ class IncrementalJK:
         self._density, self._jk = d, (j, k)
         return j.copy(), k.copy()
 
+    def jk_multi(self, densities: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """J of the sum and K of each density, from the changes since the previous multi-density build.
 
-__all__ = ["JKBuilder", "DenseJK", "IncrementalJK"]
+        Single- and multi-density builds keep separate histories; a change
+        in the number of densities starts a full build.
+        """
+        d = np.array(densities, dtype=np.float64)
+        last = getattr(self, "_multi", None)
+        if last is None or last[0].shape != d.shape or self._multi_since >= self.rebuild_interval:
+            j, k = jk_multi(self.engine, d)
+            self._multi_since = 1
+            self.builds.append("full")
+        else:
+            dj, dk = jk_multi(self.engine, d - last[0])
+            j, k = last[1] + dj, last[2] + dk
+            self._multi_since += 1
+            self.builds.append("change")
+        self._multi = (d, j, k)
+        return j.copy(), k.copy()
+
+
+__all__ = ["JKBuilder", "DenseJK", "IncrementalJK", "jk_multi", "jk_multi_by_parts"]

@@ -26,6 +26,9 @@ def _count(name: str, value: object, minimum: int) -> int:
     return int(value)
 
 
+#: Names accepted for :attr:`SCFOptions.method`.
+METHODS: tuple[str, ...] = ("rhf", "uhf", "rohf")
+
 #: Budget in MiB when no memory bound can be read (half of the assumed headroom).
 FALLBACK_MEMORY_MIB: float = MEMORY_FRACTION * FALLBACK_HEADROOM_BYTES / 2**20
 
@@ -136,6 +139,11 @@ class SCFOptions:
         :func:`hfcore.basis.fitting.fitting_basis`), a set's name such as
         ``"cc-pvtz-jkfit"``, a family or a placed set. None (default) uses
         the exact integrals. Excludes ``direct``.
+    method : {"rhf", "uhf", "rohf"} or None
+        The Hartree-Fock variant for :func:`hfcore.scf.run_scf`. None
+        (default) runs RHF on a singlet and UHF on any other multiplicity;
+        RHF on a non-singlet is refused. One field, so UHF and ROHF cannot
+        both be chosen.
 
     ``diis_space`` is the deprecated name of ``max_diis_size``, kept for
     one release: ``SCFOptions(diis_space=N)`` still works (with a
@@ -166,6 +174,7 @@ class SCFOptions:
     auto_aids: bool = True
     threads: int | None = None
     fit_basis: Any = None
+    method: str | None = None
 
     def __post_init__(self) -> None:
         for name in ("energy_tol", "gradient_tol", "lindep_threshold"):
@@ -188,6 +197,11 @@ class SCFOptions:
         if self.threads is not None:
             object.__setattr__(self, "threads", _count("threads", self.threads, 1))
         self._check_fit_basis()
+        if self.method is not None:
+            name = self.method.lower() if isinstance(self.method, str) else self.method
+            if name not in METHODS:
+                raise InputError(f"unknown SCF method {self.method!r}: choose one of {', '.join(METHODS)}")
+            object.__setattr__(self, "method", name)
 
     def _check_fit_basis(self) -> None:
         from ..basis.family import BasisFamily
@@ -253,4 +267,4 @@ class SCFOptions:
 
 rename_fields(SCFOptions, {"diis_space": "max_diis_size"})
 
-__all__ = ["SCFOptions", "ACCELERATOR_NAMES", "default_memory_limit", "MEMORY_FRACTION", "FALLBACK_MEMORY_MIB"]
+__all__ = ["SCFOptions", "METHODS", "ACCELERATOR_NAMES", "default_memory_limit", "MEMORY_FRACTION", "FALLBACK_MEMORY_MIB"]

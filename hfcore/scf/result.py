@@ -161,6 +161,9 @@ class RHFResult:
     resource_notes : tuple of str
         What was capped to fit the machine (threads beyond the usable
         cores), as the faces print it.
+    warnings : tuple of str
+        Findings a face should show, e.g. that a lower unrestricted
+        solution exists (set by :func:`hfcore.scf.run_scf`).
     """
 
     energy_total: float
@@ -196,6 +199,12 @@ class RHFResult:
     fit_dropped: int = 0
     memory_budget: "MemoryBudget | None" = None
     resource_notes: tuple[str, ...] = ()
+    warnings: tuple[str, ...] = ()
+
+    @property
+    def method(self) -> str:
+        """"RHF" (the open-shell records say "UHF" or "ROHF")."""
+        return "RHF"
 
     @property
     def n_occupied(self) -> int:
@@ -248,28 +257,11 @@ class RHFResult:
         if self.molecule is None or self.basis is None:
             raise InputError("to_dict needs an RHF result that carries its molecule and basis (from run_rhf)")
         record = {
-            "hfcore": {"version": __version__, "method": "RHF"},
+            "hfcore": {"version": __version__, "method": self.method},
             "units": UNITS,
             "molecule": _molecule_record(self.molecule),
-            "basis": {
-                "name": self.basis.name,
-                "spherical": self.basis.spherical,
-                "n_functions": self.basis.n_functions,
-                "n_shells": self.basis.n_shells,
-                "n_dropped": self.n_dropped,
-                "fit_basis_name": None if self.fit_basis is None else self.fit_basis.name,
-                "fit_basis_n_functions": None if self.fit_basis is None else self.fit_basis.n_functions,
-                # the deprecated keys of the two above, kept for one release
-                "fit_name": None if self.fit_basis is None else self.fit_basis.name,
-                "fit_n_functions": None if self.fit_basis is None else self.fit_basis.n_functions,
-            },
-            "energy": {
-                "total": self.energy_total,
-                "nuclear_repulsion": self.energy_nuclear,
-                "one_electron": self.energy_one_electron,
-                "two_electron": self.energy_two_electron,
-                "electronic": self.energy_electronic,
-            },
+            "basis": basis_record(self),
+            "energy": energy_record(self),
             "scf": self._scf_record(),
             "orbitals": {
                 "energies": self.orbital_energies,
@@ -284,44 +276,81 @@ class RHFResult:
         return record
 
     def _scf_record(self) -> dict[str, Any]:
-        opts = self.options
         return {
-            "converged": self.converged,
-            "iterations": self.iterations,
-            "jk_mode": self.jk_mode,
-            "eri_memory_bytes": self.eri_memory_bytes,
-            "memory_budget": None if self.memory_budget is None else self.memory_budget.to_dict(),
-            "threads": opts.n_threads,
-            "resource_notes": list(self.resource_notes),
-            "fit_storage": self.fit_storage or None,
-            "fit_notes": list(self.fit_notes),
-            "fit_metric_dropped": self.fit_dropped,
-            "thresholds": {
-                "energy_tol": opts.energy_tol,
-                "gradient_tol": opts.gradient_tol,
-                "max_iterations": opts.max_iterations,
-                "max_diis_size": opts.max_diis_size,
-                "diis_space": opts.max_diis_size,  # deprecated name, kept for one release
-                "lindep_threshold": opts.lindep_threshold,
-                "screening": opts.screening,
-                "stability_threshold": opts.stability_threshold,
-            },
+            **scf_common_record(self),
             "stability": stability_record(self),
             "aufbau": {"satisfied": self.aufbau, "gap": self.aufbau_gap},
-            "aids": list(self.aids),
-            "history": [
-                {
-                    "iteration": h.iteration,
-                    "energy": h.energy,
-                    "delta_e": h.delta_e,
-                    "gradient_norm": h.gradient_norm,
-                    "diis_size": h.diis_size,
-                    "aid": h.aid,
-                    "solution": h.solution,
-                }
-                for h in self.history
-            ],
         }
+
+
+def basis_record(result: Any) -> dict[str, Any]:
+    """The ``basis`` object of any SCF record's JSON (RHF, UHF, ROHF)."""
+    basis, fit = result.basis, result.fit_basis
+    return {
+        "name": basis.name,
+        "spherical": basis.spherical,
+        "n_functions": basis.n_functions,
+        "n_shells": basis.n_shells,
+        "n_dropped": result.n_dropped,
+        "fit_basis_name": None if fit is None else fit.name,
+        "fit_basis_n_functions": None if fit is None else fit.n_functions,
+        # the deprecated keys of the two above, kept for one release
+        "fit_name": None if fit is None else fit.name,
+        "fit_n_functions": None if fit is None else fit.n_functions,
+    }
+
+
+def energy_record(result: Any) -> dict[str, Any]:
+    """The ``energy`` object of any SCF record's JSON (hartree)."""
+    return {
+        "total": result.energy_total,
+        "nuclear_repulsion": result.energy_nuclear,
+        "one_electron": result.energy_one_electron,
+        "two_electron": result.energy_two_electron,
+        "electronic": result.energy_electronic,
+    }
+
+
+def scf_common_record(result: Any) -> dict[str, Any]:
+    """The parts of the ``scf`` object every SCF record's JSON shares (the method adds its stability)."""
+    opts = result.options
+    budget = getattr(result, "memory_budget", None)
+    return {
+        "converged": result.converged,
+        "iterations": result.iterations,
+        "jk_mode": result.jk_mode,
+        "eri_memory_bytes": result.eri_memory_bytes,
+        "memory_budget": None if budget is None else budget.to_dict(),
+        "threads": opts.n_threads,
+        "resource_notes": list(getattr(result, "resource_notes", ())),
+        "fit_storage": result.fit_storage or None,
+        "fit_notes": list(result.fit_notes),
+        "fit_metric_dropped": result.fit_dropped,
+        "thresholds": {
+            "energy_tol": opts.energy_tol,
+            "gradient_tol": opts.gradient_tol,
+            "max_iterations": opts.max_iterations,
+            "max_diis_size": opts.max_diis_size,
+            "diis_space": opts.max_diis_size,  # deprecated name, kept for one release
+            "lindep_threshold": opts.lindep_threshold,
+            "screening": opts.screening,
+            "stability_threshold": opts.stability_threshold,
+        },
+        "aids": list(result.aids),
+        "warnings": list(result.warnings),
+        "history": [
+            {
+                "iteration": h.iteration,
+                "energy": h.energy,
+                "delta_e": h.delta_e,
+                "gradient_norm": h.gradient_norm,
+                "diis_size": h.diis_size,
+                "aid": h.aid,
+                "solution": h.solution,
+            }
+            for h in result.history
+        ],
+    }
 
 
 def _molecule_record(mol: Molecule) -> dict[str, Any]:

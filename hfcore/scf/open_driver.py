@@ -1,0 +1,253 @@
+"""Any Hartree-Fock variant on a molecule: RHF, UHF or ROHF from one entry, :func:`run_scf`.
+
+The method comes from ``options.method`` (see :func:`hfcore.scf.spin.resolve_method`):
+RHF for a singlet and UHF otherwise by default. RHF runs exactly as
+:func:`hfcore.scf.run_rhf`; UHF and ROHF share its integrals
+(:func:`hfcore.scf.prepare_integrals`), its atomic-density start (split
+into α and β) and its J/K modes.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import time
+from collections.abc import Callable
+from dataclasses import replace
+
+import numpy as np
+
+from .. import integrals
+from ..basis import build_basis, require_room_for
+from ..basis.shells import BasisSet
+from ..errors import ConvergenceError, InputError
+from ..geometry import Molecule
+from .._parallel import blas_threads
+from ..basis.fitting import fitting_basis
+from .driver import SharedIntegrals, _checked_guess, _jk_builder, plan_jk, prepare_integrals, run_rhf, scf_blas_threads
+from .guess import sad_density
+from .jk import IncrementalJK
+from .open_result import ROHFResult, UHFResult
+from .options import SCFOptions
+from .result import RHFResult
+from .solver import Progress
+from .spin import resolve_method
+from .guess import split_density
+from .uhf import solve_uhf
+
+
+def run_scf(
+    molecule: Molecule,
+    basis: BasisSet | str = "sto-3g",
+    options: SCFOptions | None = None,
+    *,
+    guess: str | np.ndarray = "sad",
+    progress: Progress | None = None,
+    integral_progress: Callable[[float], None] | None = None,
+    shared: SharedIntegrals | None = None,
+    raise_on_failure: bool = True,
+) -> RHFResult | UHFResult | ROHFResult:
+    """Hartree-Fock energy and orbitals of a molecule of any multiplicity.
+
+    Parameters
+    ----------
+    molecule : Molecule
+        Geometry, charge and multiplicity (``molecule.spin_multiplicity``).
+    basis : BasisSet or str
+    options : SCFOptions, optional
+        ``options.method`` chooses "rhf", "uhf" or "rohf"; None means RHF
+        for a singlet and UHF otherwise. RHF on a non-singlet is refused.
+    guess : {"sad", "core"} or ndarray
+        As for :func:`run_rhf`; for UHF/ROHF an array may be a total
+        density (nbf, nbf), shared between the spins in proportion to
+        their electrons, or α and β densities (2, nbf, nbf).
+    progress, integral_progress, shared, raise_on_failure
+        As for :func:`run_rhf`.
+
+    Notes
+    -----
+    A singlet run as UHF starts from the spin-symmetric atomic density and,
+    with the default ``stability="descend"``, leaves the closed-shell
+    solution along its lowest unstable UHF mode (the RHF→UHF instability)
+    into the broken-symmetry solution. With ``"report"`` or ``"skip"`` the
+    start itself breaks the symmetry instead (the α HOMO turned towards the
+    α LUMO, :data:`hfcore.scf.uhf.BREAK_ANGLE`). Measured on N2 at 2.2 Å
+    (cc-pVDZ): following reaches the reference library's broken-symmetry
+    solution in 19 iterations, the turned start alone did not converge in
+    100, so following is the default route.
+
+    Returns
+    -------
+    RHFResult, UHFResult or ROHFResult
+        ``UHFResult.stability`` holds the UHF→UHF analysis; an
+        ``RHFResult`` of a singlet is the plain RHF record (its RHF→UHF
+        check is :func:`hfcore.scf.uhf_stability.check_rhf_to_uhf`).
+
+    Raises
+    ------
+    InputError
+        RHF on a non-singlet; an unknown guess; as :func:`run_rhf`.
+    ConvergenceError, ResourceError
+        As :func:`run_rhf`.
+    """
+    options = options or SCFOptions()
+    method = resolve_method(molecule.spin_multiplicity, options.method)
+    if method == "rhf":
+        return _run_rhf_checked(molecule, basis, options, guess, progress, integral_progress, shared, raise_on_failure)
+    return run_open_shell(
+        molecule, basis, options, method=method, guess=guess, progress=progress,
+        integral_progress=integral_progress, shared=shared, raise_on_failure=raise_on_failure,
+    )
+
+
+def _run_rhf_checked(molecule, basis, options, guess, progress, integral_progress, shared, raise_on_failure) -> RHFResult:
+    """RHF, then (unless stability is "skip") the RHF→UHF test; a lower unrestricted solution becomes a warning."""
+    if options.stability == "skip":
+        return run_rhf(
+            molecule, basis, options, guess=guess, progress=progress, integral_progress=integral_progress,
+            shared=shared, raise_on_failure=raise_on_failure,
+        )
+    molecule.require_closed_shell()
+    if isinstance(basis, str):
+        basis = build_basis(molecule, basis)
+    if shared is None:
+        require_room_for(molecule, basis)
+        shared = prepare_integrals(basis, options, integral_progress, molecule=molecule)
+    result = run_rhf(
+        molecule, basis, options, guess=guess, progress=progress, shared=shared, raise_on_failure=raise_on_failure
+    )
+    if not result.converged:
+        return result
+    from .uhf_stability import check_rhf_to_uhf, rhf_to_uhf_warning
+
+    t0 = time.perf_counter()
+    with blas_threads(options.n_threads):
+        analysis = check_rhf_to_uhf(result, shared.jk_builder())
+    warning = rhf_to_uhf_warning(analysis)
+    timings = {**result.timings, "stability": result.timings.get("stability", 0.0) + time.perf_counter() - t0}
+    timings["total"] = result.timings.get("total", 0.0) + time.perf_counter() - t0
+    return replace(result, warnings=result.warnings + ((warning,) if warning else ()), timings=timings)
+
+
+def run_uhf(molecule: Molecule, basis: BasisSet | str = "sto-3g", options: SCFOptions | None = None, **kwargs) -> UHFResult:
+    """:func:`run_scf` with method "uhf" (any multiplicity, singlets included)."""
+    return run_open_shell(molecule, basis, options or SCFOptions(), method="uhf", **kwargs)
+
+
+def run_rohf(molecule: Molecule, basis: BasisSet | str = "sto-3g", options: SCFOptions | None = None, **kwargs) -> ROHFResult:
+    """:func:`run_scf` with method "rohf"; ``coupling=`` names the effective-Fock scheme."""
+    return run_open_shell(molecule, basis, options or SCFOptions(), method="rohf", **kwargs)
+
+
+def run_open_shell(
+    molecule: Molecule,
+    basis: BasisSet | str,
+    options: SCFOptions,
+    *,
+    method: str,
+    guess: str | np.ndarray = "sad",
+    progress: Progress | None = None,
+    integral_progress: Callable[[float], None] | None = None,
+    shared: SharedIntegrals | None = None,
+    raise_on_failure: bool = True,
+    coupling: str = "guest-saunders",
+) -> UHFResult | ROHFResult:
+    """UHF or ROHF on a molecule (see :func:`run_scf`)."""
+    if method not in ("uhf", "rohf"):
+        raise InputError(f"run_open_shell runs 'uhf' or 'rohf', not {method!r}")
+    with blas_threads(options.n_threads), contextlib.ExitStack() as blas:
+        t0 = time.perf_counter()
+        n = molecule.n_electrons
+        if n <= 0:
+            raise InputError(f"{molecule.source}: charge {molecule.charge} leaves {n} electrons; nothing to compute")
+        if isinstance(basis, str):
+            basis = build_basis(molecule, basis)
+        require_room_for(molecule, basis)
+        user_guess = _open_guess(guess, basis)
+        if shared is None:
+            shared = _prepare_open(basis, options, integral_progress, molecule)
+        elif shared.basis is not basis:
+            raise InputError("shared integrals belong to another basis; build them with prepare_integrals(basis)")
+        hcore = shared.kinetic + integrals.nuclear_attraction(basis, molecule.nuclear_charges, molecule.coordinates)
+        plan, jk = shared.plan, shared.jk_builder()
+        blas.enter_context(blas_threads(scf_blas_threads(plan, options)))
+        t_integrals = time.perf_counter()
+        n_a, n_b = molecule.n_alpha, molecule.n_beta
+        if user_guess is not None and user_guess.ndim == 2:
+            user_guess = split_density(user_guess, n_a, n_b)
+        if user_guess is None and isinstance(guess, str) and guess.lower() == "sad":
+            total = sad_density(basis, np.where(molecule.ghosts, 0, molecule.atomic_numbers), jk)
+            if isinstance(jk, IncrementalJK):
+                jk.reset()
+            user_guess = split_density(total, n_a, n_b)
+        t_sad = time.perf_counter() - t_integrals
+
+        def finish(result):
+            timings = {
+                "integrals": t_integrals - t0,
+                "guess": t_sad + result.timings.get("guess", 0.0),
+                "scf": result.timings.get("scf", 0.0),
+                "stability": result.timings.get("stability", 0.0),
+                "total": time.perf_counter() - t0,
+            }
+            fitted = {}
+            if plan.fitting is not None:
+                fitted = {
+                    "fit_basis": plan.fit_basis, "fit_notes": plan.fit_notes, "fit_storage": plan.fitting.storage,
+                    "fit_dropped": getattr(jk, "n_dropped", 0),
+                }
+            return replace(
+                result, molecule=molecule, basis=basis, timings=timings, jk_mode=plan.mode,
+                eri_memory_bytes=plan.eri_memory_bytes, memory_budget=plan.budget, resource_notes=plan.notes, **fitted,
+            )
+
+        try:
+            if method == "uhf":
+                result = solve_uhf(
+                    shared.overlap, hcore, jk, n_a, n_b, molecule.nuclear_repulsion(), options, user_guess,
+                    break_symmetry=(n_a == n_b and options.stability != "descend"), progress=progress,
+                )
+            else:
+                from .rohf import solve_rohf
+
+                result = solve_rohf(
+                    shared.overlap, hcore, jk, n_a, n_b, molecule.nuclear_repulsion(), options, user_guess,
+                    coupling=coupling, progress=progress,
+                )
+        except ConvergenceError as exc:
+            if exc.result is None:
+                raise
+            if not raise_on_failure:
+                return finish(exc.result)
+            raise ConvergenceError(str(exc), finish(exc.result)) from None
+        return finish(result)
+
+
+def _prepare_open(
+    basis: BasisSet, options: SCFOptions, integral_progress: Callable[[float], None] | None, molecule: Molecule
+) -> SharedIntegrals:
+    """:func:`prepare_integrals` for an open shell: a fitted plan is sized for N_α + N_β exchange columns."""
+    if options.fit_basis is None:
+        return prepare_integrals(basis, options, integral_progress, molecule=molecule)
+    t0 = time.perf_counter()
+    fitting = fitting_basis(molecule, basis, options.fit_basis)
+    # Both spins' occupied orbitals go through one half-transform (FittedJK.jk_multi).
+    plan = plan_jk(basis, options, fitting=fitting, n_occupied=molecule.n_alpha + molecule.n_beta)
+    with blas_threads(options.n_threads):
+        overlap, kinetic = integrals.overlap(basis), integrals.kinetic(basis)
+        engine = _jk_builder(basis, options, plan, integral_progress)
+    return SharedIntegrals(basis, overlap, kinetic, plan, engine, time.perf_counter() - t0)
+
+
+def _open_guess(guess: str | np.ndarray, basis: BasisSet) -> np.ndarray | None:
+    """The user's start: α and β densities (2, nbf, nbf) or a total one (nbf, nbf); None for a named guess."""
+    if isinstance(guess, str):
+        _checked_guess(guess, basis)
+        return None
+    g = np.asarray(guess, dtype=np.float64)
+    n = basis.n_functions
+    if g.shape == (2, n, n):
+        return g
+    return _checked_guess(g, basis)
+
+
+__all__ = ["run_scf", "run_uhf", "run_rohf", "run_open_shell"]
