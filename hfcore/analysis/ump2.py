@@ -28,6 +28,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from .._memory import run_budget
 from ..errors import ConvergenceError, InputError, ResourceError
 from ._checks import require_placed
 from .mp2 import _MIN_WORK_BYTES, SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, _first_quarter, _pair_map
@@ -232,7 +233,7 @@ def ump2_energy(
     nbf = result.basis.n_functions
     if eri is None:
         need = 8 * (nbf * (nbf + 1) // 2) * (nbf * (nbf + 1) // 2 + 1) // 2
-        limit = result.options.memory_limit_bytes
+        limit = run_budget(result).bytes
         if need > limit:
             raise ResourceError(
                 f"MP2 reads the stored integrals, {need / 2**20:.3g} MiB for {nbf} functions, but "
@@ -280,7 +281,7 @@ def _fitted(result, spaces, frozen_core, fit_basis, memory_bytes, progress) -> U
     block = int(max(1, min(naux, _BLOCK_BYTES // (16 * nbf * nbf))))
     n_vir_max = max(ca_v.shape[1], cb_v.shape[1])
     need = 8 * naux * sum(ov) + 16 * block * nbf * nbf + 24 * naux * naux + 8 * n_vir_max * max(ov)
-    limit = result.options.memory_limit_bytes if memory_bytes is None else int(memory_bytes)
+    limit = run_budget(result).bytes if memory_bytes is None else int(memory_bytes)
     if need > limit:
         raise ResourceError(
             f"density-fitted MP2 needs about {need / 2**20:.3g} MiB for {naux} fitting functions, but "

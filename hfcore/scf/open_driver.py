@@ -206,6 +206,11 @@ def run_open_shell(
                     shared.overlap, hcore, jk, n_a, n_b, molecule.nuclear_repulsion(), options, user_guess,
                     break_symmetry=(n_a == n_b and options.stability != "descend"), progress=progress,
                 )
+                if options.stability != "skip":
+                    from .uhf_stability import stabilise_uhf
+
+                    # converging and following stay apart (as for RHF); finish() times the whole run
+                    result = stabilise_uhf(result, jk, molecule.nuclear_repulsion(), progress=progress)
             else:
                 from .rohf import solve_rohf
 

@@ -351,7 +351,7 @@ class ROHFResult(UHFResult):
 
     @property
     def orbital_energy_convention(self) -> str:
-        from .rohf import COUPLINGS
+        from .couplings import COUPLINGS
 
         return (
             f"eigenvalues of the effective Fock matrix of the {self.coupling} coupling ({COUPLINGS[self.coupling].source}); "

@@ -37,6 +37,7 @@ import numpy as np
 from ..errors import BasisError, ConvergenceError, InputError
 from .accelerators import AID_LEVEL_SHIFT, DIIS, FockStep
 from .jk import JKBuilder
+from .couplings import COUPLINGS, Coupling, check_coupling
 from .open_result import ROHFResult
 from .options import SCFOptions
 from .orthogonalise import Orthogonaliser
@@ -45,31 +46,6 @@ from .spin import s_squared, s_squared_exact
 from .uhf import UHFProblem, _checked_square
 
 Progress = Callable[[SCFIteration], None]
-
-
-@dataclass(frozen=True)
-class Coupling:
-    """Diagonal-block coefficients (A, B) of F_eff = A F_α + B F_β per space, and where they come from."""
-
-    core: tuple[float, float]
-    open: tuple[float, float]
-    virtual: tuple[float, float]
-    source: str
-
-
-#: Coupling schemes of the effective Fock matrix, by name.
-COUPLINGS: dict[str, Coupling] = {
-    "guest-saunders": Coupling((0.5, 0.5), (0.5, 0.5), (0.5, 0.5), "M. F. Guest and V. R. Saunders, Mol. Phys. 28, 819 (1974)"),
-    "roothaan": Coupling((-0.5, 1.5), (0.5, 0.5), (1.5, -0.5), "C. C. J. Roothaan, Rev. Mod. Phys. 32, 179 (1960)"),
-}
-
-
-def check_coupling(name: str) -> str:
-    """The lower-case coupling name, or InputError naming the choices."""
-    key = name.lower() if isinstance(name, str) else name
-    if key not in COUPLINGS:
-        raise InputError(f"unknown ROHF coupling {name!r}: choose one of {', '.join(COUPLINGS)}")
-    return str(key)
 
 
 class _ROHF:

@@ -123,7 +123,6 @@ def solve_uhf(
     *,
     break_symmetry: bool = False,
     progress: Progress | None = None,
-    stabilise: bool = True,
     _solution: int = 0,
 ) -> UHFResult:
     """Run UHF iterations on given matrices.
@@ -148,9 +147,6 @@ def solve_uhf(
         can be reached.
     progress : callable, optional
         Called with each :class:`SCFIteration`.
-    stabilise : bool
-        Analyse (and follow, per ``options.stability``) the UHF→UHF
-        stability of the converged solution.
 
     Returns
     -------
@@ -188,11 +184,6 @@ def solve_uhf(
     result = replace(result, timings=timings, aids=tuple(aids))
     if not result.converged:
         raise ConvergenceError(result.message, result)
-    if stabilise and options.stability != "skip" and _solution == 0:
-        from .uhf_stability import stabilise_uhf
-
-        result = stabilise_uhf(result, jk, energy_nuclear, progress=progress)
-        result = replace(result, timings={**result.timings, "total": time.perf_counter() - t0})
     return result
 
 

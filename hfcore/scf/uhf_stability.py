@@ -34,6 +34,7 @@ from ..errors import ConvergenceError
 from .following import CHECK_ANALYSIS, FOLLOW_ANALYSIS, NEW_SOLUTION_MARGIN
 from .jk import IncrementalJK, JKBuilder, jk_multi
 from .open_result import UHFResult
+from .uhf import solve_uhf
 from .result import RHFResult, SCFIteration
 from .stability import FOLLOW_ANGLES, StabilityAnalysis, StabilityReport, lowest_eigenpairs, plain_builder, rotate_orbitals
 
@@ -195,8 +196,6 @@ def stabilise_uhf(
         The final solution with ``stability`` filled in and the histories
         of all solutions concatenated.
     """
-    from .uhf import solve_uhf
-
     t0 = time.perf_counter()
     options = result.options
     inner = replace(options, stability="skip")
