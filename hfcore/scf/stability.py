@@ -206,8 +206,15 @@ class OrbitalHessian:
 
     def __call__(self, x: np.ndarray) -> np.ndarray:
         """d²E/dκ² · x for a rotation x of shape (nvir, nocc); result of the same shape, hartree."""
-        half = self.vir @ x @ self.occ.T
-        j, k = self.jk.jk(half + half.T)
+        left = self.vir @ x
+        transition = getattr(self.jk, "jk_transition", None)
+        if transition is not None:
+            # The transition density is C_v x C_oᵀ + its transpose: a builder that takes the
+            # two thin factors (the fitted one) half-transforms C_o once for all products.
+            j, k = transition(left, self.occ)
+        else:
+            half = left @ self.occ.T
+            j, k = self.jk.jk(half + half.T)
         self.products += 1
         two_electron = self.vir.T @ (2.0 * j - k) @ self.occ
         return 4.0 * (self.f_vv @ x - x @ self.f_oo + two_electron)
