@@ -56,4 +56,9 @@ def test_jk_of_thin_factors_equals_jk_of_their_density(water, limit_mib):
         j_ref, k_ref = jk.jk(left @ right.T + right @ left.T)
         assert np.allclose(j, j_ref, rtol=0, atol=1e-10)
         assert np.allclose(k, k_ref, rtol=0, atol=1e-10)
+    lefts = [rng.standard_normal((basis.n_functions, 5)) for _ in range(3)]
+    for (j, k), left in zip(jk.jk_transitions(lefts, right), lefts):
+        j_ref, k_ref = jk.jk(left @ right.T + right @ left.T)
+        assert np.allclose(j, j_ref, rtol=0, atol=1e-10)
+        assert np.allclose(k, k_ref, rtol=0, atol=1e-10)
     jk.release()

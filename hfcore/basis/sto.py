@@ -37,7 +37,6 @@ from functools import lru_cache
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy.optimize import minimize
 
 from .. import elements
 from ..errors import BasisError, InputError
@@ -182,6 +181,8 @@ def _even_tempered_start(m: int, n: int, ls: tuple[int, ...]) -> np.ndarray:
 
     # The most diffuse Gaussian of these fits lies near α ~ 0.03..0.3 and
     # successive ratios near 3..5; a fixed start keeps the result deterministic.
+    from scipy.optimize import minimize  # only the fitter needs it: a plain run does not pay its import
+
     best = minimize(reduced, np.array([-2.0, 1.2]), jac=True, method="BFGS")
     return best.x[0] + best.x[1] * steps
 
@@ -222,6 +223,8 @@ def _fit_unit(shell: str, m: int) -> tuple[tuple[float, ...], tuple[tuple[float,
     """
     n, ls = SLATER_SHELLS[shell]
     start = _even_tempered_start(m, n, ls)
+    from scipy.optimize import minimize  # only the fitter needs it (a lazy import, as above)
+
     result = minimize(_objective, start, args=(n, ls), jac=True, method="BFGS", options={"gtol": 1e-8, "maxiter": 2000})
     x = np.sort(_newton_polish(result.x, n, ls))[::-1]
     grad = _objective(x, n, ls)[1]

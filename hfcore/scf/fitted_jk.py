@@ -422,27 +422,59 @@ class FittedJK:
         J, K : ndarray, shape (nbf, nbf)
             As :meth:`jk` returns for the density ``left @ right.T + right @ left.T``.
         """
-        left = np.ascontiguousarray(left, dtype=np.float64)
+        return self.jk_transitions([left], right)[0]
+
+    def jk_transitions(self, lefts: list[np.ndarray], right: np.ndarray) -> list[tuple[np.ndarray, np.ndarray]]:
+        """:meth:`jk_transition` for several left factors sharing one right factor, in one pass.
+
+        With stored factors the lefts are half-transformed together (a wider
+        product, so a higher rate) in as many groups as the memory budget
+        allows, and all Coulomb matrices come from one pass over the factors.
+
+        Parameters
+        ----------
+        lefts : list of ndarray, each shape (nbf, rank)
+        right : ndarray, shape (nbf, rank)
+
+        Returns
+        -------
+        list of (J, K), each ndarray of shape (nbf, nbf)
+        """
         right = np.ascontiguousarray(right, dtype=np.float64)
-        half = left @ right.T
-        dp = self._packed(half + half.T)
-        n = self.n_functions
+        lefts = [np.ascontiguousarray(x, dtype=np.float64) for x in lefts]
+        n, rank = self.n_functions, right.shape[1]
+        densities = [x @ right.T for x in lefts]
+        packed = np.array([self._packed(d + d.T) for d in densities]).reshape(len(lefts), -1)
         if self._factors is None:
             root = np.sqrt(0.5)
-            vectors = np.column_stack([root * (left + right), root * (left - right)])
-            signs = np.concatenate([np.ones(left.shape[1]), -np.ones(left.shape[1])])
-            jp, k = self._blocked(dp, vectors, signs)
-        else:
-            b = self._factors
-            jp = b @ (dp @ b)
-            z_right = self._half_of_fixed(right)
-            z_left = _half_transform_rows(b, left, self._plan.tile_bytes).reshape(n, -1)
-            m = z_left @ z_right.reshape(n, -1).T
-            k = m + m.T
-        j = np.empty((n, n))
+            signs = np.concatenate([np.ones(rank), -np.ones(rank)])
+            out = []
+            for x, dp in zip(lefts, packed):
+                jp, k = self._blocked(dp, np.column_stack([root * (x + right), root * (x - right)]), signs)
+                out.append((self._unpack(jp), 0.5 * (k + k.T)))
+            return out
+        b = self._factors
+        jps = b @ (packed @ b).T  # (npair, m): every Coulomb matrix from one pass
+        z_right = self._half_of_fixed(right).reshape(n, -1)
+        # One group's half-transform takes rank · group columns; the plan holds one of rank nocc.
+        spare = self._plan.limit_bytes - self._plan.need_bytes - (z_right.nbytes if self._fixed_half is not None else 0)
+        group = max(1, 1 + int(spare // max(1, z_right.nbytes)))
+        exchange = []
+        for g0 in range(0, len(lefts), group):
+            chunk = lefts[g0 : g0 + group]
+            z = _half_transform_rows(b, np.column_stack(chunk), self._plan.tile_bytes).reshape(n, len(chunk), -1)
+            for i in range(len(chunk)):
+                m = z[:, i] @ z_right.T  # z[:, i] is a strided view that the product takes as it is
+                k = m + m.T
+                exchange.append(0.5 * (k + k.T))
+            del z
+        return [(self._unpack(jps[:, i]), k) for i, k in enumerate(exchange)]
+
+    def _unpack(self, jp: np.ndarray) -> np.ndarray:
+        j = np.empty((self.n_functions, self.n_functions))
         j[self._first, self._second] = jp
         j[self._second, self._first] = jp
-        return j, 0.5 * (k + k.T)
+        return j
 
     def _half_of_fixed(self, right: np.ndarray) -> np.ndarray:
         """Z_R for :meth:`jk_transition`, reused while ``right`` is unchanged and the budget allows."""
