@@ -283,13 +283,15 @@ def _half_transform_rows(b: np.ndarray, c: np.ndarray, tile_bytes: int = _TILE_B
     return z
 
 
-def _half_transform(b: np.ndarray, c: np.ndarray, upper_rows: list[np.ndarray] | None = None) -> np.ndarray:
+def _half_transform(
+    b: np.ndarray, c: np.ndarray, upper_rows: list[np.ndarray] | None = None, tile_bytes: int = _TILE_BYTES
+) -> np.ndarray:
     """Z[μ, P, k] = Σ_ν B_Pμν c_νk from pair-major factors b (npair, nP); shape (nbf, nP, rank).
 
     The layout of :func:`_half_transform_rows` transposed (``upper_rows`` is
     no longer needed and ignored; it stays for callers written before).
     """
-    return np.ascontiguousarray(_half_transform_rows(b, c).transpose(0, 2, 1))
+    return np.ascontiguousarray(_half_transform_rows(b, c, tile_bytes).transpose(0, 2, 1))
 
 
 class FittedJK:
@@ -346,6 +348,8 @@ class FittedJK:
         self._factors: np.ndarray | None = None
         if self.storage == "stored":
             self._factors = self._metric.whiten_pair_major(factors)
+        # _half_transform no longer needs the gathered rows; the name stays for callers written before.
+        self._upper_rows = None
         # The half-transformed fixed factor of jk_transition, kept between calls when it fits.
         self._fixed_factor: np.ndarray | None = None
         self._fixed_half: np.ndarray | None = None
