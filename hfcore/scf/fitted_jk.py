@@ -369,39 +369,6 @@ class FittedJK:
                 k += sign * (flat.T @ flat)
         return k
 
-    def jk(self, density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Fitted Coulomb and exchange matrices of a symmetric density.
-
-        Parameters
-        ----------
-        density : ndarray, shape (nbf, nbf)
-
-        Returns
-        -------
-        J, K : ndarray, shape (nbf, nbf)
-            J_μν ≈ Σ (μν|λσ) D_λσ and K_μν ≈ Σ (μλ|νσ) D_λσ with the fitted integrals.
-        """
-        d = np.asarray(density, dtype=np.float64)
-        vectors, signs = factor_density(d)
-        dp = self._packed(d)
-        if self._factors is not None:
-            b = self._factors
-            jp = b @ (dp @ b)
-            k = np.zeros((self.n_functions, self.n_functions))
-            for sign in (1.0, -1.0):
-                part = vectors[:, signs == sign]
-                if part.shape[1]:
-                    z = _half_transform_rows(b, part, self._plan.tile_bytes).reshape(self.n_functions, -1)
-                    # z zᵀ is symmetric: the rank-k update computes one triangle (half the flops).
-                    upper = scipy.linalg.blas.dsyrk(1.0, z.T, trans=1)  # z.T is Fortran-ordered: no copy
-                    k += sign * (upper + np.triu(upper, 1).T)
-        else:
-            jp, k = self._blocked(dp, vectors, signs)
-        j = np.empty((self.n_functions, self.n_functions))
-        j[self._first, self._second] = jp
-        j[self._second, self._first] = jp
-        return j, 0.5 * (k + k.T)
-
     def jk_transition(self, left: np.ndarray, right: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Fitted J and K of the symmetric density D = L Rᵀ + R Lᵀ given by its two thin factors.
 
@@ -492,6 +459,39 @@ class FittedJK:
     def release(self) -> None:
         """Drop the half-transformed factor :meth:`jk_transition` keeps (its memory returns)."""
         self._fixed_factor = self._fixed_half = None
+
+    def jk(self, density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Fitted Coulomb and exchange matrices of a symmetric density.
+
+        Parameters
+        ----------
+        density : ndarray, shape (nbf, nbf)
+
+        Returns
+        -------
+        J, K : ndarray, shape (nbf, nbf)
+            J_μν ≈ Σ (μν|λσ) D_λσ and K_μν ≈ Σ (μλ|νσ) D_λσ with the fitted integrals.
+        """
+        d = np.asarray(density, dtype=np.float64)
+        vectors, signs = factor_density(d)
+        dp = self._packed(d)
+        if self._factors is not None:
+            b = self._factors
+            jp = b @ (dp @ b)
+            k = np.zeros((self.n_functions, self.n_functions))
+            for sign in (1.0, -1.0):
+                part = vectors[:, signs == sign]
+                if part.shape[1]:
+                    z = _half_transform_rows(b, part, self._plan.tile_bytes).reshape(self.n_functions, -1)
+                    # z zᵀ is symmetric: the rank-k update computes one triangle (half the flops).
+                    upper = scipy.linalg.blas.dsyrk(1.0, z.T, trans=1)  # z.T is Fortran-ordered: no copy
+                    k += sign * (upper + np.triu(upper, 1).T)
+        else:
+            jp, k = self._blocked(dp, vectors, signs)
+        j = np.empty((self.n_functions, self.n_functions))
+        j[self._first, self._second] = jp
+        j[self._second, self._first] = jp
+        return j, 0.5 * (k + k.T)
 
     def _blocked(self, dp: np.ndarray, vectors: np.ndarray, signs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """J (packed) and K recomputing (P|μν) in blocks; the density rank is taken in chunks that fit."""
