@@ -2,9 +2,6 @@
 
 from __future__ import annotations
 
-import subprocess
-import sys
-
 import pytest
 from scipy import constants
 
@@ -36,9 +33,3 @@ def test_every_exported_factor_is_checked():
 
 def test_the_thermochemical_calorie_is_the_one_in_the_table():
     assert constants.calorie == 4.184  # exact property: the thermochemical calorie is 4.184 J
-
-
-def test_starting_the_command_imports_neither_scipy_constants_nor_scipy_optimize():
-    code = "import sys, hfcore, hfcore.cli; print(sorted(m for m in sys.modules if m.startswith(('scipy.constants', 'scipy.optimize'))))"
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
-    assert out.strip() == "[]"
