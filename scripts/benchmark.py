@@ -407,12 +407,20 @@ def _child_env(threads: int) -> dict:
     return env
 
 
+_CPU_SECONDS: list[float] = []  # CPU time (user + system) of the last child, set by _timed
+
+
 def _timed(command: list[str], threads: int) -> tuple[float, str]:
+    """Wall time and standard output of a child process; its CPU time goes to _CPU_SECONDS."""
+    import resource
     import subprocess
 
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
     t0 = time.perf_counter()
     done = subprocess.run(command, capture_output=True, text=True, env=_child_env(threads), cwd=str(ROOT))
     wall = time.perf_counter() - t0
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    _CPU_SECONDS[:] = [after.ru_utime - before.ru_utime + after.ru_stime - before.ru_stime]
     if done.returncode != 0:
         raise RuntimeError(f"{' '.join(command[:4])} ... exited {done.returncode}: {done.stderr.strip()[-300:]}")
     return wall, done.stdout
@@ -450,6 +458,7 @@ def _table_row(label: str, geometry: str, basis: str, fit: str | None, folder: P
     out = str(folder / "hfcore.json")
     try:
         row["hfcore_wall"], _ = _timed(_hfcore_command(geometry, basis, fit, 1, out), 1)
+        row["hfcore_cpu"] = _CPU_SECONDS[0]
         record = json.loads(Path(out).read_text())
         timings = record["timings"]
         row.update(energy=record["energy"]["total"], scf=timings.get("scf", math.nan),
@@ -457,6 +466,8 @@ def _table_row(label: str, geometry: str, basis: str, fit: str | None, folder: P
                    iterations=record["scf"]["iterations"])
         ref_wall, ref_out = _timed(_reference_job(geometry, basis, fit, folder) + ["1"], 1)
         row["reference_wall"] = ref_wall
+        row["reference_cpu"] = _CPU_SECONDS[0]
+        row["cpu_ratio"] = row["hfcore_cpu"] / row["reference_cpu"]
         row["energy_difference"] = row["energy"] - json.loads(ref_out)["energy"]
         row["ratio"] = row["hfcore_wall"] / ref_wall
     except (RuntimeError, ImportError, KeyError) as exc:
@@ -469,11 +480,14 @@ def _startup_row(folder: Path) -> dict:
     row = {"case": f"{label} start-up"}
     try:
         reference = _reference_job(geometry, basis, None, folder) + ["1"]
-        ours, theirs = [], []
+        ours, theirs, our_cpu, their_cpu = [], [], [], []
         for _ in range(STARTUP_REPEATS):  # interleaved, so a burst of load hits both
             ours.append(_timed(_hfcore_command(geometry, basis, None, 1, str(folder / "startup.json")), 1)[0])
+            our_cpu.append(_CPU_SECONDS[0])
             theirs.append(_timed(reference, 1)[0])
-        row.update(hfcore_wall=min(ours), reference_wall=min(theirs), ratio=min(ours) / min(theirs))
+            their_cpu.append(_CPU_SECONDS[0])
+        row.update(hfcore_wall=min(ours), reference_wall=min(theirs), ratio=min(ours) / min(theirs),
+                   hfcore_cpu=min(our_cpu), reference_cpu=min(their_cpu), cpu_ratio=min(our_cpu) / min(their_cpu))
     except (RuntimeError, ImportError) as exc:
         row["error"] = str(exc)
     return row
@@ -516,22 +530,24 @@ def user_table(quick: bool) -> dict:
 
 
 def _format_table(result: dict) -> str:
-    head = (f"{'case':<24}{'hfcore/s':>9}{'ref/s':>8}{'ratio':>7}{'scf/s':>7}{'stab/s':>7}{'stab/scf':>9}"
+    head = (f"{'case':<24}{'hfcore/s':>9}{'ref/s':>8}{'ratio':>7}{'cpu':>6}{'scf/s':>7}{'stab/s':>7}{'stab/scf':>9}"
             f"{'products':>9}{'it':>4}{'dE/Eh':>10}")
     lines = [f"load average before {result['load_before'][0]:.2f}, after {result['load_after'][0]:.2f} (1 min)",
              "whole processes, one thread each; hfcore's default command (stability included) against the "
-             "reference library's plain RHF on the same shells", head, "-" * len(head)]
+             "reference library's plain RHF on the same shells; ratio of wall times, cpu of CPU times "
+             "(user + system, steadier on a loaded machine)", head, "-" * len(head)]
     for r in result["rows"]:
         if "error" in r:
             lines.append(f"{r['case']:<24} failed: {r['error']}")
             continue
         share = r["stability"] / r["scf"] if r["scf"] > 0 else math.nan
         lines.append(f"{r['case']:<24}{r['hfcore_wall']:>9.2f}{r['reference_wall']:>8.2f}{r['ratio']:>7.2f}"
-                     f"{r['scf']:>7.2f}{r['stability']:>7.2f}{share:>9.2f}{r['products']:>9}{r['iterations']:>4}"
+                     f"{r['cpu_ratio']:>6.2f}{r['scf']:>7.2f}{r['stability']:>7.2f}{share:>9.2f}{r['products']:>9}{r['iterations']:>4}"
                      f"{r['energy_difference']:>10.1e}")
     st = result["startup"]
     lines.append(f"{st['case']:<24}" + (f" failed: {st['error']}" if "error" in st else
-                 f"{st['hfcore_wall']:>9.2f}{st['reference_wall']:>8.2f}{st['ratio']:>7.2f}   (best of {STARTUP_REPEATS})"))
+                 f"{st['hfcore_wall']:>9.2f}{st['reference_wall']:>8.2f}{st['ratio']:>7.2f}{st['cpu_ratio']:>6.2f}"
+                 f"   (best of {STARTUP_REPEATS}; CPU {st['hfcore_cpu']:.2f} s / {st['reference_cpu']:.2f} s)"))
     sp = result["speedup"]
     lines.append(f"{sp['case']:<24}" + (f" failed: {sp['error']}" if "error" in sp else
                  f"{sp['one']:>9.2f}{sp['two']:>8.2f}  speed-up {sp['speedup']:.2f}, same energy: {sp['same_energy']}"))

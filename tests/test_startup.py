@@ -9,10 +9,13 @@ import numpy as np
 import pytest
 from scipy.special import gammaincc
 
+from pathlib import Path
+
 from hfcore.basis import sto
 from hfcore.integrals import boys as _boys_function  # noqa: F401  (the module is looked up below)
 
 BOYS = sys.modules["hfcore.integrals.boys"]
+WATER = str(Path(__file__).resolve().parent.parent / "inputs" / "water.xyz")
 
 
 def _imported_after(code: str) -> set[str]:
@@ -23,7 +26,7 @@ def _imported_after(code: str) -> set[str]:
 
 def test_a_water_sto3g_run_imports_no_optimizer_no_special_functions_no_constants():
     modules = _imported_after(
-        "from hfcore.cli import main; main(['energy', 'inputs/water.xyz', '--basis', 'sto-3g', '--quiet', '--json', '-'])"
+        f"from hfcore.cli import main; main(['energy', {WATER!r}, '--basis', 'sto-3g', '--quiet', '--json', '-'])"
     )
     assert not {m for m in modules if m.startswith(("scipy.optimize", "scipy.special", "scipy.constants"))}
 
