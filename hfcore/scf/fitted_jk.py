@@ -249,9 +249,9 @@ def _half_transform_rows(b: np.ndarray, c: np.ndarray, tile_bytes: int = _TILE_B
     read in place. The other part, Σ_{ν > μ} c_νk B_P(ν,μ), reads column μ
     of the triangle, which is scattered; it is taken a block of columns ν ∈
     [j0, j1) at a time: the rows μ > j0 of the block are copied (contiguous
-    slabs, zero above the diagonal) into a tile of at most ``_TILE_BYTES``,
-    and one matrix product cᵀ · tile gives the block's whole contribution
-    (``tile_bytes`` sets the block; one column at least).
+    slabs, zero above the diagonal) into a tile, and one matrix product
+    cᵀ · tile gives the block's whole contribution (the tile and that product
+    take at most 2 · ``tile_bytes`` together, or one column's worth).
     Both products have the (rank × K)·(K × many) shape that runs at the
     matrix-product rate (a Python loop over μ with a gather of rows per μ and
     a (nP × K)·(K × rank) product ran at about half of it).
@@ -266,7 +266,8 @@ def _half_transform_rows(b: np.ndarray, c: np.ndarray, tile_bytes: int = _TILE_B
         np.matmul(ct[:, : mu + 1], b[s : s + mu + 1], out=z[mu])
     if n < 2 or rank == 0:
         return z
-    width = max(1, min(n, tile_bytes // (8 * n * n_cols)))
+    # The tile (rows × width × nP) and its product (rank × width × nP) share twice tile_bytes.
+    width = max(1, min(n, 2 * tile_bytes // (8 * n_cols * (n - 1 + rank))))
     tile = np.empty(width * (n - 1) * n_cols)
     product = np.empty(rank * width * n_cols)
     for j0 in range(0, n - 1, width):
