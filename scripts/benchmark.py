@@ -17,6 +17,16 @@ Usage::
     python scripts/benchmark.py --json out.json
     python scripts/benchmark.py --exact-tz      # benzene/cc-pVTZ, integrals stored
     python scripts/benchmark.py --speedup       # two threads against one, benzene/cc-pVDZ
+    python scripts/benchmark.py --table         # the default command as users run it (see below)
+    python scripts/benchmark.py --table --quick # its quick subset
+
+``--table`` times whole processes: hfcore's default command (``python -m
+hfcore energy``, stability analysis included) against a script that runs the
+reference library's plain RHF on the same shells, for water cc-pVTZ, benzene
+6-31G*, benzene cc-pVTZ (exact) and benzene cc-pVQZ (fitted); water STO-3G
+start-up (best of three of each); the stability analysis's share of the SCF
+time; and the two-thread speed-up of the default command on benzene cc-pVDZ.
+``--quick`` leaves out the two large benzene cases.
 
 The table reports wall times (integrals and SCF separately for hfcore), the
 hfcore/reference ratio, the energy difference, iteration counts and peak
@@ -343,6 +353,207 @@ def _format(rows: list[dict]) -> str:
     return "\n".join(lines)
 
 
+# ----------------------------------------------------------------------------
+# The default command as users run it, whole processes (--table)
+
+#: (label, geometry file, basis, fitting set or None, in the quick subset)
+TABLE_CASES = [
+    ("water/cc-pVTZ", "water.xyz", "cc-pvtz", None, True),
+    ("benzene/6-31G*", "benzene.xyz", "6-31g*", None, True),
+    ("benzene/cc-pVTZ exact", "benzene.xyz", "cc-pvtz", None, False),
+    ("benzene/cc-pVQZ fitted", "benzene.xyz", "cc-pvqz", "cc-pvqz-jkfit", False),
+]
+STARTUP_CASE = ("water/STO-3G", "water.xyz", "sto-3g")
+STARTUP_REPEATS = 3
+
+#: The reference side of --table: the plain RHF of the reference library on dumped shells.
+_REFERENCE_SCRIPT = """
+import json, sys
+from pyscf import gto, lib, scf
+lib.num_threads(int(sys.argv[2]))
+job = json.load(open(sys.argv[1]))
+def shells(dump):
+    atoms, basis = [], {}
+    for k, (label, r) in enumerate(dump["atoms"]):
+        atoms.append((label, r))
+        basis[label] = [[l] + [[e, *cs] for e, cs in zip(exps, zip(*coefs))] for l, exps, coefs in dump["per_atom"][str(k)]]
+    return atoms, basis
+atoms, basis = shells(job["orbital"])
+mol = gto.M(atom=atoms, basis=basis, unit="Bohr", charge=job["orbital"]["charge"], cart=not job["spherical"],
+            verbose=0, max_memory=job["memory_mb"])
+mf = scf.RHF(mol)
+if job["fit"] is not None:
+    mf = mf.density_fit(auxbasis=shells(job["fit"])[1])
+mf.conv_tol = job["energy_tol"]
+mf.conv_tol_grad = job["gradient_tol"]
+print(json.dumps({"energy": float(mf.kernel()), "converged": bool(mf.converged)}))
+"""
+
+
+def _labelled_dump(mol, basis) -> dict:
+    from hfcore import elements
+
+    dump = _shell_dump(mol, basis)
+    dump["atoms"] = [(f"{elements.symbol(z)}{k}", r) for k, (z, r) in enumerate(dump["atoms"])]
+    dump["per_atom"] = {str(k): v for k, v in dump["per_atom"].items()}
+    return dump
+
+
+def _child_env(threads: int) -> dict:
+    env = dict(os.environ)
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        env[var] = str(threads)
+    env["PYTHONPATH"] = str(ROOT) + (os.pathsep + env["PYTHONPATH"] if env.get("PYTHONPATH") else "")
+    return env
+
+
+_CPU_SECONDS: list[float] = []  # CPU time (user + system) of the last child, set by _timed
+
+
+def _timed(command: list[str], threads: int) -> tuple[float, str]:
+    """Wall time and standard output of a child process; its CPU time goes to _CPU_SECONDS."""
+    import resource
+    import subprocess
+
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
+    t0 = time.perf_counter()
+    done = subprocess.run(command, capture_output=True, text=True, env=_child_env(threads), cwd=str(ROOT))
+    wall = time.perf_counter() - t0
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    _CPU_SECONDS[:] = [after.ru_utime - before.ru_utime + after.ru_stime - before.ru_stime]
+    if done.returncode != 0:
+        raise RuntimeError(f"{' '.join(command[:4])} ... exited {done.returncode}: {done.stderr.strip()[-300:]}")
+    return wall, done.stdout
+
+
+def _hfcore_command(geometry: str, basis: str, fit: str | None, threads: int, json_path: str) -> list[str]:
+    command = [sys.executable, "-m", "hfcore", "energy", str(INPUTS / geometry), "--basis", basis,
+               "--threads", str(threads), "--quiet", "--json", json_path]
+    return command + (["--fit-basis", fit] if fit else [])
+
+
+def _reference_job(geometry: str, basis: str, fit: str | None, folder: Path) -> list[str]:
+    """Write the shells hfcore uses and the reference script; the command that runs it."""
+    import hfcore
+    from hfcore.basis.fitting import fitting_basis
+
+    mol = hfcore.read_xyz(INPUTS / geometry)
+    orbital = hfcore.build_basis(mol, basis)
+    job = {
+        "orbital": _labelled_dump(mol, orbital),
+        "fit": _labelled_dump(mol, fitting_basis(mol, orbital, fit).basis) if fit else None,
+        "spherical": orbital.spherical,
+        "memory_mb": REFERENCE_MEMORY_MB,
+        "energy_tol": ENERGY_TOL,
+        "gradient_tol": GRADIENT_TOL,
+    }
+    job_path, script = folder / f"{basis}-{fit}.json", folder / "reference_rhf.py"
+    job_path.write_text(json.dumps(job))
+    script.write_text(_REFERENCE_SCRIPT)
+    return [sys.executable, str(script), str(job_path)]
+
+
+def _table_row(label: str, geometry: str, basis: str, fit: str | None, folder: Path) -> dict:
+    row = {"case": label}
+    out = str(folder / "hfcore.json")
+    try:
+        row["hfcore_wall"], _ = _timed(_hfcore_command(geometry, basis, fit, 1, out), 1)
+        row["hfcore_cpu"] = _CPU_SECONDS[0]
+        record = json.loads(Path(out).read_text())
+        timings = record["timings"]
+        row.update(energy=record["energy"]["total"], scf=timings.get("scf", math.nan),
+                   stability=timings.get("stability", 0.0), products=record["scf"]["stability"]["hessian_products"],
+                   iterations=record["scf"]["iterations"])
+        ref_wall, ref_out = _timed(_reference_job(geometry, basis, fit, folder) + ["1"], 1)
+        row["reference_wall"] = ref_wall
+        row["reference_cpu"] = _CPU_SECONDS[0]
+        row["cpu_ratio"] = row["hfcore_cpu"] / row["reference_cpu"]
+        row["energy_difference"] = row["energy"] - json.loads(ref_out)["energy"]
+        row["ratio"] = row["hfcore_wall"] / ref_wall
+    except (RuntimeError, ImportError, KeyError) as exc:
+        row["error"] = str(exc)
+    return row
+
+
+def _startup_row(folder: Path) -> dict:
+    label, geometry, basis = STARTUP_CASE
+    row = {"case": f"{label} start-up"}
+    try:
+        reference = _reference_job(geometry, basis, None, folder) + ["1"]
+        ours, theirs, our_cpu, their_cpu = [], [], [], []
+        for _ in range(STARTUP_REPEATS):  # interleaved, so a burst of load hits both
+            ours.append(_timed(_hfcore_command(geometry, basis, None, 1, str(folder / "startup.json")), 1)[0])
+            our_cpu.append(_CPU_SECONDS[0])
+            theirs.append(_timed(reference, 1)[0])
+            their_cpu.append(_CPU_SECONDS[0])
+        row.update(hfcore_wall=min(ours), reference_wall=min(theirs), ratio=min(ours) / min(theirs),
+                   hfcore_cpu=min(our_cpu), reference_cpu=min(their_cpu), cpu_ratio=min(our_cpu) / min(their_cpu))
+    except (RuntimeError, ImportError) as exc:
+        row["error"] = str(exc)
+    return row
+
+
+def _speedup_row(folder: Path) -> dict:
+    label, geometry, basis, _ = SPEEDUP
+    row = {"case": f"{label} two threads / one"}
+    try:
+        one = _timed(_hfcore_command(geometry, basis, None, 1, str(folder / "one.json")), 1)[0]
+        two = _timed(_hfcore_command(geometry, basis, None, 2, str(folder / "two.json")), 2)[0]
+        same = json.loads((folder / "one.json").read_text())["energy"]["total"] == json.loads(
+            (folder / "two.json").read_text())["energy"]["total"]
+        row.update(one=one, two=two, speedup=one / two, same_energy=same)
+    except RuntimeError as exc:
+        row["error"] = str(exc)
+    return row
+
+
+def user_table(quick: bool) -> dict:
+    """All rows of --table (a subset with ``quick``), with the load average before and after."""
+    import tempfile
+
+    if str(ROOT) not in sys.path:
+        sys.path.insert(0, str(ROOT))  # the parent builds the shells the reference script gets
+    result = {"load_before": os.getloadavg(), "rows": []}
+    with tempfile.TemporaryDirectory(prefix="hfcore-bench-") as tmp:
+        folder = Path(tmp)
+        for label, geometry, basis, fit, in_quick in TABLE_CASES:
+            if quick and not in_quick:
+                continue
+            print(f"running {label} (default command, then the reference script) ...", file=sys.stderr, flush=True)
+            result["rows"].append(_table_row(label, geometry, basis, fit, folder))
+        print("timing start-up ...", file=sys.stderr, flush=True)
+        result["startup"] = _startup_row(folder)
+        print("timing the two-thread speed-up ...", file=sys.stderr, flush=True)
+        result["speedup"] = _speedup_row(folder)
+    result["load_after"] = os.getloadavg()
+    return result
+
+
+def _format_table(result: dict) -> str:
+    head = (f"{'case':<24}{'hfcore/s':>9}{'ref/s':>8}{'ratio':>7}{'cpu':>6}{'scf/s':>7}{'stab/s':>7}{'stab/scf':>9}"
+            f"{'products':>9}{'it':>4}{'dE/Eh':>10}")
+    lines = [f"load average before {result['load_before'][0]:.2f}, after {result['load_after'][0]:.2f} (1 min)",
+             "whole processes, one thread each; hfcore's default command (stability included) against the "
+             "reference library's plain RHF on the same shells; ratio of wall times, cpu of CPU times "
+             "(user + system, steadier on a loaded machine)", head, "-" * len(head)]
+    for r in result["rows"]:
+        if "error" in r:
+            lines.append(f"{r['case']:<24} failed: {r['error']}")
+            continue
+        share = r["stability"] / r["scf"] if r["scf"] > 0 else math.nan
+        lines.append(f"{r['case']:<24}{r['hfcore_wall']:>9.2f}{r['reference_wall']:>8.2f}{r['ratio']:>7.2f}"
+                     f"{r['cpu_ratio']:>6.2f}{r['scf']:>7.2f}{r['stability']:>7.2f}{share:>9.2f}{r['products']:>9}{r['iterations']:>4}"
+                     f"{r['energy_difference']:>10.1e}")
+    st = result["startup"]
+    lines.append(f"{st['case']:<24}" + (f" failed: {st['error']}" if "error" in st else
+                 f"{st['hfcore_wall']:>9.2f}{st['reference_wall']:>8.2f}{st['ratio']:>7.2f}{st['cpu_ratio']:>6.2f}"
+                 f"   (best of {STARTUP_REPEATS}; CPU {st['hfcore_cpu']:.2f} s / {st['reference_cpu']:.2f} s)"))
+    sp = result["speedup"]
+    lines.append(f"{sp['case']:<24}" + (f" failed: {sp['error']}" if "error" in sp else
+                 f"{sp['one']:>9.2f}{sp['two']:>8.2f}  speed-up {sp['speedup']:.2f}, same energy: {sp['same_energy']}"))
+    return "\n".join(lines)
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--threads", type=int, default=1, help="threads for both programs (default 1)")
@@ -353,9 +564,19 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--exact-tz", action="store_true", help="also run benzene/cc-pVTZ with stored integrals")
     parser.add_argument("--speedup", action="store_true",
                         help="also time benzene/cc-pVDZ on two threads against one (whole process, each program)")
+    parser.add_argument("--table", action="store_true",
+                        help="only the table of the default command as users run it, whole processes (see above)")
+    parser.add_argument("--quick", action="store_true", help="with --table (implied): leave out the two large benzene cases")
     parser.add_argument("--only", help="comma-separated case labels to run ('none' for no fixed case)")
     parser.add_argument("--json", help="write the rows as JSON to this path ('-' for stdout)")
     args = parser.parse_args(argv)
+    if args.table or args.quick:
+        result = user_table(args.quick)
+        if args.json:
+            text = json.dumps(result, indent=2)
+            print(text) if args.json == "-" else Path(args.json).write_text(text + "\n")
+        print(_format_table(result))
+        return 0
     cases = CASES + (SCALING if args.scaling else []) + (EXACT_TZ if args.exact_tz else [])
     if args.only:
         wanted = {s.strip() for s in args.only.split(",")}

@@ -32,7 +32,7 @@ import difflib
 import json
 from collections.abc import Mapping, Sequence
 from functools import lru_cache
-from importlib import resources
+from pathlib import Path
 from typing import Any
 
 from .. import elements
@@ -128,7 +128,21 @@ def shells_from_published(electron_shells: Sequence[Mapping[str, Any]]) -> list[
 # The shipped library
 
 
+_DATA_DIR = Path(__file__).resolve().parent / "data"
+
+
 def _data_text(filename: str) -> str:
+    """A shipped data file's text: read from the package directory, as installs unpack it.
+
+    ``importlib.resources`` (for a package kept in a zip archive) is imported
+    only when the file is not on disk: its import costs a small run more
+    than reading every shipped set.
+    """
+    path = _DATA_DIR / filename
+    if path.is_file():
+        return path.read_text(encoding="utf-8")
+    from importlib import resources
+
     return resources.files("hfcore.basis").joinpath("data", filename).read_text(encoding="utf-8")
 
 

@@ -28,16 +28,17 @@ digits by cancellation when the Gaussian is diffuse.
 
 from __future__ import annotations
 
+import json
 import math
 import numbers
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass
 from functools import lru_cache
+from pathlib import Path
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy.optimize import minimize
 
 from .. import elements
 from ..errors import BasisError, InputError
@@ -182,6 +183,8 @@ def _even_tempered_start(m: int, n: int, ls: tuple[int, ...]) -> np.ndarray:
 
     # The most diffuse Gaussian of these fits lies near α ~ 0.03..0.3 and
     # successive ratios near 3..5; a fixed start keeps the result deterministic.
+    from scipy.optimize import minimize  # only the fitter needs it: a plain run does not pay its import
+
     best = minimize(reduced, np.array([-2.0, 1.2]), jac=True, method="BFGS")
     return best.x[0] + best.x[1] * steps
 
@@ -210,9 +213,17 @@ def _newton_polish(x: np.ndarray, n: int, ls: tuple[int, ...]) -> np.ndarray:
     return x
 
 
+#: The fits at ζ = 1 of every shell and size, as :func:`_fit_unit_now` makes them, written by
+#: ``scripts/make_sto_fits.py`` (``tests/test_startup.py`` fits again and compares): a run
+#: reads them instead of fitting, and so does not import scipy.optimize.
+_FIT_TABLE = Path(__file__).resolve().parent / "data" / "sto_fits.json"
+
+
 @lru_cache(maxsize=None)
 def _fit_unit(shell: str, m: int) -> tuple[tuple[float, ...], tuple[tuple[float, ...], ...], tuple[float, ...]]:
     """Fit of ``m`` Gaussians to the Slater shell at ζ = 1 (cached, immutable).
+
+    Read from the shipped table when it holds the fit, else made now.
 
     Returns
     -------
@@ -220,8 +231,26 @@ def _fit_unit(shell: str, m: int) -> tuple[tuple[float, ...], tuple[tuple[float,
         Exponents in decreasing order; coefficients of normalised
         primitives, normalised so the expansion has unit norm.
     """
+    fit = _fit_table().get(shell, {}).get(str(m))
+    if fit is None:
+        return _fit_unit_now(shell, m)
+    return tuple(fit["exponents"]), tuple(tuple(c) for c in fit["coefficients"]), tuple(fit["overlaps"])
+
+
+@lru_cache(maxsize=None)
+def _fit_table() -> dict:
+    try:
+        return json.loads(_FIT_TABLE.read_text(encoding="utf-8"))
+    except OSError:
+        return {}
+
+
+def _fit_unit_now(shell: str, m: int) -> tuple[tuple[float, ...], tuple[tuple[float, ...], ...], tuple[float, ...]]:
+    """:func:`_fit_unit` by the fitter itself (what the shipped table was made from)."""
     n, ls = SLATER_SHELLS[shell]
     start = _even_tempered_start(m, n, ls)
+    from scipy.optimize import minimize  # only the fitter needs it (a lazy import, as above)
+
     result = minimize(_objective, start, args=(n, ls), jac=True, method="BFGS", options={"gtol": 1e-8, "maxiter": 2000})
     x = np.sort(_newton_polish(result.x, n, ls))[::-1]
     grad = _objective(x, n, ls)[1]

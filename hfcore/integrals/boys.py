@@ -51,13 +51,25 @@ def _build_table(t_max: float) -> np.ndarray:
     return np.ascontiguousarray(table)
 
 
+def _upper_gamma_half_orders(t: np.ndarray) -> np.ndarray:
+    """Q(m + ½, t) = Γ(m + ½, t) / Γ(m + ½) for m = 0..M_MAX, shape (M_MAX + 1, t.size).
+
+    Q(½, t) = erfc(√t) and Q(a + 1, t) = Q(a, t) + t^a e^{-t} / Γ(a + 1)
+    (exact properties), every term positive, so the upward recursion is
+    stable; the closed form spares importing scipy.special at start-up.
+    """
+    q = np.empty((M_MAX + 1, t.size))
+    q[0] = [math.erfc(math.sqrt(x)) for x in t]
+    for m in range(M_MAX):
+        a = m + 0.5
+        q[m + 1] = q[m] + np.exp(a * np.log(t) - t - math.lgamma(a + 1.0))
+    return q
+
+
 def _switch_points() -> np.ndarray:
     """Smallest integer T per order above which the asymptotic form is exact to 1e-16."""
-    from scipy.special import gammaincc
-
     t = np.arange(1.0, 400.0)
-    m = np.arange(M_MAX + 1.0)[:, None] + 0.5
-    return np.argmax(gammaincc(m, t) < 1e-17, axis=1) + 1.0
+    return np.argmax(_upper_gamma_half_orders(t) < 1e-17, axis=1) + 1.0
 
 
 def _taylor_tables(table: np.ndarray) -> np.ndarray:

@@ -47,6 +47,9 @@ from ..integrals.three_center import ThreeCenterEngine, estimate_three_center_me
 METRIC_THRESHOLD: float = 1e-10
 #: Orbital-pair columns whitened at a time.
 _COLUMN_CHUNK = 4096
+#: Bytes of the tile buffer of :func:`_half_transform_rows` (a column block of the packed
+#: factors, copied so that it feeds one matrix product; at least one orbital's rows).
+_TILE_BYTES: int = 32 * 2**20
 
 
 @dataclass(frozen=True)
@@ -68,6 +71,9 @@ class FittingPlan:
     half_bytes : int
         Room for the half-transformed factors in the blocked way (bytes);
         a density of higher rank than fits is taken in several passes.
+    tile_bytes : int
+        Tile of the half-transform (bytes, see :func:`_half_transform_rows`);
+        0 for the narrowest tile, one orbital's rows.
     """
 
     storage: str
@@ -76,6 +82,7 @@ class FittingPlan:
     limit_bytes: int
     block_functions: int
     half_bytes: int = 0
+    tile_bytes: int = _TILE_BYTES
 
 
 def _metric_bytes(naux: int) -> int:
@@ -108,14 +115,17 @@ def plan_fitting(basis: BasisSet, aux: BasisSet, n_occupied: int, limit_bytes: i
     nbf, naux = basis.n_functions, aux.n_functions
     npair = nbf * (nbf + 1) // 2
     fixed = _metric_bytes(naux) + 8 * nbf * nbf * 8
-    # Half-transformed factors Z (nbf, naux, nocc) and one gathered row block per orbital.
+    # Half-transformed factors Z (nbf, naux, nocc); the tile of the half-transform comes on top.
     half = 8 * naux * max(1, n_occupied) * nbf
-    stored = estimate_three_center_memory(basis, aux) + fixed + half + 8 * naux * nbf
+    stored = estimate_three_center_memory(basis, aux) + fixed + half + _tile_bytes(nbf, naux)
     if stored <= limit_bytes:
         return FittingPlan("stored", stored, stored, limit_bytes, naux)
     smallest = max(s.n_functions(aux.spherical) for s in aux.shells)
-    per_function = 8 * 2 * npair  # a block row, and its pair-major copy
+    per_function = 8 * 2 * npair + 16 * nbf  # a block row, its pair-major copy, a one-column tile
     room = limit_bytes - fixed - half
+    # A wide tile makes the half-transform faster; it is reserved only where the budget has room.
+    tile = 2 * _TILE_BYTES if room - 2 * _TILE_BYTES >= smallest * per_function else 0
+    fixed, room = fixed + tile, room - tile
     if room < smallest * per_function:
         minimum = fixed + half + smallest * per_function
         raise ResourceError(
@@ -126,7 +136,7 @@ def plan_fitting(basis: BasisSet, aux: BasisSet, n_occupied: int, limit_bytes: i
     block = int(min(naux, room // per_function))
     return FittingPlan(
         "blocked", fixed + half + block * per_function, stored, limit_bytes, block,
-        limit_bytes - fixed - block * per_function,
+        limit_bytes - fixed - block * per_function, tile // 2,
     )
 
 
@@ -227,22 +237,63 @@ def factor_density(density: np.ndarray, tolerance: float = 1e-13) -> tuple[np.nd
     return np.ascontiguousarray(vk * np.sqrt(np.abs(wk))), np.sign(wk)
 
 
-def _half_transform(b: np.ndarray, c: np.ndarray, upper_rows: list[np.ndarray]) -> np.ndarray:
+def _tile_bytes(n_functions: int, n_columns: int) -> int:
+    """Peak scratch memory of :func:`_half_transform` (the tile and its product), bytes."""
+    return 2 * max(_TILE_BYTES, 8 * n_functions * n_columns)
+
+
+def _half_transform_rows(b: np.ndarray, c: np.ndarray, tile_bytes: int = _TILE_BYTES) -> np.ndarray:
+    """Zᵀ[μ, k, P] = Σ_ν c_νk B_Pμν from pair-major packed factors b (npair, nP); shape (nbf, rank, nP).
+
+    The packed lower triangle holds, for each μ, the rows p(μ, ν ≤ μ) as one
+    contiguous run: their part, Σ_{ν ≤ μ}, is one product cᵀ · run per μ,
+    read in place. The other part, Σ_{ν > μ} c_νk B_P(ν,μ), reads column μ
+    of the triangle, which is scattered; it is taken a block of columns ν ∈
+    [j0, j1) at a time: the rows μ > j0 of the block are copied (contiguous
+    slabs, zero above the diagonal) into a tile, and one matrix product
+    cᵀ · tile gives the block's whole contribution (the tile and that product
+    take at most 2 · ``tile_bytes`` together, or one column's worth).
+    Both products have the (rank × K)·(K × many) shape that runs at the
+    matrix-product rate (a Python loop over μ with a gather of rows per μ and
+    a (nP × K)·(K × rank) product ran at about half of it).
+    """
+    n, n_cols = int(round((np.sqrt(8 * b.shape[0] + 1) - 1) / 2)), b.shape[1]
+    rank = c.shape[1]
+    ct = np.ascontiguousarray(c.T)
+    z = np.empty((n, rank, n_cols))
+    starts = np.arange(n) * (np.arange(n) + 1) // 2
+    for mu in range(n):
+        s = starts[mu]
+        np.matmul(ct[:, : mu + 1], b[s : s + mu + 1], out=z[mu])
+    if n < 2 or rank == 0:
+        return z
+    # The tile (rows × width × nP) and its product (rank × width × nP) share twice tile_bytes.
+    width = max(1, min(n, 2 * tile_bytes // (8 * n_cols * (n - 1 + rank))))
+    tile = np.empty(width * (n - 1) * n_cols)
+    product = np.empty(rank * width * n_cols)
+    for j0 in range(0, n - 1, width):
+        j1 = min(n, j0 + width)
+        nj, rows = j1 - j0, n - j0 - 1
+        block = tile[: rows * nj * n_cols].reshape(rows, nj, n_cols)
+        for mu in range(j0 + 1, n):
+            s, top = starts[mu], min(mu, j1)
+            block[mu - j0 - 1, : top - j0] = b[s + j0 : s + top]
+            block[mu - j0 - 1, top - j0 :] = 0.0
+        out = product[: rank * nj * n_cols].reshape(rank, nj * n_cols)
+        np.matmul(ct[:, j0 + 1 :], block.reshape(rows, -1), out=out)
+        z[j0:j1] += out.reshape(rank, nj, n_cols).transpose(1, 0, 2)
+    return z
+
+
+def _half_transform(
+    b: np.ndarray, c: np.ndarray, upper_rows: list[np.ndarray] | None = None, tile_bytes: int = _TILE_BYTES
+) -> np.ndarray:
     """Z[μ, P, k] = Σ_ν B_Pμν c_νk from pair-major factors b (npair, nP); shape (nbf, nP, rank).
 
-    For each μ the rows p(μ, ν ≤ μ) are one contiguous run of the packed
-    layout, used in place; the rows p(μ, ν > μ) (``upper_rows[μ]``) are
-    gathered whole, each a contiguous row over P, so every step is a
-    matrix product.
+    The layout of :func:`_half_transform_rows` transposed (``upper_rows`` is
+    no longer needed and ignored; it stays for callers written before).
     """
-    n = len(upper_rows)
-    z = np.empty((n, b.shape[1], c.shape[1]))
-    for mu in range(n):
-        start = mu * (mu + 1) // 2
-        np.matmul(b[start : start + mu + 1].T, c[: mu + 1], out=z[mu])
-        if mu + 1 < n:
-            z[mu] += b[upper_rows[mu]].T @ c[mu + 1 :]
-    return z
+    return np.ascontiguousarray(_half_transform_rows(b, c, tile_bytes).transpose(0, 2, 1))
 
 
 class FittedJK:
@@ -299,8 +350,11 @@ class FittedJK:
         self._factors: np.ndarray | None = None
         if self.storage == "stored":
             self._factors = self._metric.whiten_pair_major(factors)
-        # Row p(μ, ν) for ν > μ, per μ: the rows the packed lower triangle does not hold in one run.
-        self._upper_rows = [self._pair.reshape(n, n)[mu, mu + 1 :] for mu in range(n)]
+        # _half_transform no longer needs the gathered rows; the name stays for callers written before.
+        self._upper_rows = None
+        # The half-transformed fixed factor of jk_transition, kept between calls when it fits.
+        self._fixed_factor: np.ndarray | None = None
+        self._fixed_half: np.ndarray | None = None
 
     def _packed(self, density: np.ndarray) -> np.ndarray:
         d = density[self._first, self._second]
@@ -316,6 +370,97 @@ class FittedJK:
                 flat = np.ascontiguousarray(y[:, part]).reshape(-1, y.shape[2])
                 k += sign * (flat.T @ flat)
         return k
+
+    def jk_transition(self, left: np.ndarray, right: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Fitted J and K of the symmetric density D = L Rᵀ + R Lᵀ given by its two thin factors.
+
+        A stability or second-order step needs J/K of transition densities
+        ``C_v x C_oᵀ + (C_v x C_oᵀ)ᵀ``: ``left = C_v x`` changes from call to
+        call, ``right = C_o`` does not. With stored factors, K = Z_L Z_Rᵀ +
+        Z_R Z_Lᵀ from the half-transformed factors Z (see
+        :func:`_half_transform_rows`); Z_R is kept between calls while the same
+        ``right`` comes back and the memory budget has room for it, so a call
+        costs one half-transform and one matrix product (:meth:`jk` on the
+        same density would eigen-factor it into rank 2·nocc and half-transform
+        both signs). In blocked storage the density goes through the blocked
+        build factored as ½[(L+R)(L+R)ᵀ − (L−R)(L−R)ᵀ], without an
+        eigen-decomposition.
+
+        Parameters
+        ----------
+        left, right : ndarray, shape (nbf, rank)
+
+        Returns
+        -------
+        J, K : ndarray, shape (nbf, nbf)
+            As :meth:`jk` returns for the density ``left @ right.T + right @ left.T``.
+        """
+        return self.jk_transitions([left], right)[0]
+
+    def jk_transitions(self, lefts: list[np.ndarray], right: np.ndarray) -> list[tuple[np.ndarray, np.ndarray]]:
+        """:meth:`jk_transition` for several left factors sharing one right factor, in one pass.
+
+        With stored factors the lefts are half-transformed together (a wider
+        product, so a higher rate) in as many groups as the memory budget
+        allows, and all Coulomb matrices come from one pass over the factors.
+
+        Parameters
+        ----------
+        lefts : list of ndarray, each shape (nbf, rank)
+        right : ndarray, shape (nbf, rank)
+
+        Returns
+        -------
+        list of (J, K), each ndarray of shape (nbf, nbf)
+        """
+        right = np.ascontiguousarray(right, dtype=np.float64)
+        lefts = [np.ascontiguousarray(x, dtype=np.float64) for x in lefts]
+        n, rank = self.n_functions, right.shape[1]
+        densities = [x @ right.T for x in lefts]
+        packed = np.array([self._packed(d + d.T) for d in densities]).reshape(len(lefts), -1)
+        if self._factors is None:
+            root = np.sqrt(0.5)
+            signs = np.concatenate([np.ones(rank), -np.ones(rank)])
+            out = []
+            for x, dp in zip(lefts, packed):
+                jp, k = self._blocked(dp, np.column_stack([root * (x + right), root * (x - right)]), signs)
+                out.append((self._unpack(jp), 0.5 * (k + k.T)))
+            return out
+        b = self._factors
+        jps = b @ (packed @ b).T  # (npair, m): every Coulomb matrix from one pass
+        z_right = self._half_of_fixed(right).reshape(n, -1)
+        # One group's half-transform takes rank · group columns; the plan holds one of rank nocc.
+        spare = self._plan.limit_bytes - self._plan.need_bytes - (z_right.nbytes if self._fixed_half is not None else 0)
+        group = max(1, 1 + int(spare // max(1, z_right.nbytes)))
+        exchange = []
+        for g0 in range(0, len(lefts), group):
+            chunk = lefts[g0 : g0 + group]
+            z = _half_transform_rows(b, np.column_stack(chunk), self._plan.tile_bytes).reshape(n, len(chunk), -1)
+            for i in range(len(chunk)):
+                m = z[:, i] @ z_right.T  # z[:, i] is a strided view that the product takes as it is
+                k = m + m.T
+                exchange.append(0.5 * (k + k.T))
+            del z
+        return [(self._unpack(jps[:, i]), k) for i, k in enumerate(exchange)]
+
+    def _unpack(self, jp: np.ndarray) -> np.ndarray:
+        j = np.empty((self.n_functions, self.n_functions))
+        j[self._first, self._second] = jp
+        j[self._second, self._first] = jp
+        return j
+
+    def _half_of_fixed(self, right: np.ndarray) -> np.ndarray:
+        """Z_R for :meth:`jk_transition`, reused while ``right`` is unchanged and the budget allows."""
+        if self._fixed_half is not None and self._fixed_factor is not None and np.array_equal(right, self._fixed_factor):
+            return self._fixed_half
+        z = _half_transform_rows(self._factors, right, self._plan.tile_bytes)
+        if self._plan.limit_bytes - self._plan.need_bytes >= z.nbytes:
+            self._fixed_factor, self._fixed_half = right.copy(), z
+        return z
+
+    def release(self) -> None:
+        """Drop the half-transformed factor :meth:`jk_transition` keeps (its memory returns)."""
+        self._fixed_factor = self._fixed_half = None
 
     def jk(self, density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Fitted Coulomb and exchange matrices of a symmetric density.
@@ -339,7 +484,7 @@ class FittedJK:
             for sign in (1.0, -1.0):
                 part = vectors[:, signs == sign]
                 if part.shape[1]:
-                    z = _half_transform(b, part, self._upper_rows).reshape(self.n_functions, -1)
+                    z = _half_transform_rows(b, part, self._plan.tile_bytes).reshape(self.n_functions, -1)
                     # z zᵀ is symmetric: the rank-k update computes one triangle (half the flops).
                     upper = scipy.linalg.blas.dsyrk(1.0, z.T, trans=1)  # z.T is Fortran-ordered: no copy
                     k += sign * (upper + np.triu(upper, 1).T)
@@ -415,8 +560,8 @@ class FittedJK:
                 if first:
                     gamma[index] = values @ dp
                 if half is not None:
-                    z = _half_transform(np.ascontiguousarray(values.T), vectors[:, cols], self._upper_rows)
-                    half[index] = z.transpose(1, 2, 0)
+                    z = _half_transform_rows(np.ascontiguousarray(values.T), vectors[:, cols], self._plan.tile_bytes)
+                    half[index] = z.transpose(2, 1, 0)
             first = False
             if half is not None:
                 y = self._metric.whiten(half.reshape(naux, -1)).reshape(-1, cols.stop - cols.start, n)

@@ -62,7 +62,8 @@ class StabilityAnalysis:
         The solution counts as stable when the lowest eigenvalue is above
         ``-threshold``.
     converged : bool
-        Whether every root's residual fell below the solver tolerance.
+        Whether every root's residual fell below the solver tolerance (or,
+        with one root, the verdict was settled: see :func:`analyse_stability`).
     products : int
         Hessian-vector products used, each one J/K build.
     """
@@ -217,11 +218,41 @@ class OrbitalHessian:
 
     def __call__(self, x: np.ndarray) -> np.ndarray:
         """d²E/dκ² · x for a rotation x of shape (nvir, nocc); result of the same shape, hartree."""
-        half = self.vir @ x @ self.occ.T
-        j, k = self.jk.jk(half + half.T)
-        self.products += 1
-        two_electron = self.vir.T @ (2.0 * j - k) @ self.occ
-        return 4.0 * (self.f_vv @ x - x @ self.f_oo + two_electron)
+        return self.block([x])[0]
+
+    def block(self, xs: list[np.ndarray]) -> list[np.ndarray]:
+        """:meth:`__call__` for several rotations at once (a builder that can does them in one pass).
+
+        The transition density of ``x`` is L C_oᵀ + C_o Lᵀ with ``L = C_v x``:
+        a builder that takes the two thin factors (``jk_transitions``, the
+        fitted one) half-transforms C_o once for all products and the lefts
+        together; any other builder gets one J/K build per rotation.
+        """
+        lefts = [self.vir @ x for x in xs]
+        transitions = getattr(self.jk, "jk_transitions", None)
+        if transitions is not None:
+            built = transitions(lefts, self.occ)
+        else:
+            built = []
+            for left in lefts:
+                half = left @ self.occ.T
+                built.append(self.jk.jk(half + half.T))
+        self.products += len(xs)
+        return [
+            4.0 * (self.f_vv @ x - x @ self.f_oo + self.vir.T @ (2.0 * j - k) @ self.occ)
+            for x, (j, k) in zip(xs, built)
+        ]
+
+    def release(self) -> None:
+        """Let the builder drop what it kept for these products (the fitted builder's Z of C_o)."""
+        release = getattr(self.jk, "release", None)
+        if release is not None:
+            release()
+
+
+#: Verdict mode of :func:`lowest_eigenpairs`: stop once the lowest residual is at most this
+#: fraction of the lowest Ritz value's distance above ``-threshold`` (see there).
+VERDICT_RESIDUAL: float = 0.1
 
 
 def lowest_eigenpairs(
@@ -232,6 +263,9 @@ def lowest_eigenpairs(
     max_iterations: int = 60,
     max_space: int = 40,
     n_start: int | None = None,
+    *,
+    verdict_threshold: float | None = None,
+    start: np.ndarray | None = None,
 ) -> tuple[np.ndarray, np.ndarray, bool]:
     """Davidson's method for the lowest eigenpairs of a symmetric operator.
 
@@ -239,7 +273,9 @@ def lowest_eigenpairs(
     ----------
     hessian : callable
         Maps an array of the shape of ``diagonal`` to the product with the
-        operator.
+        operator. If it has a ``block`` method (a list of arrays to a list
+        of products, as :class:`OrbitalHessian`), the start vectors go
+        through it together.
     diagonal : ndarray
         An approximation of the operator's diagonal (preconditioner and
         source of the start vectors).
@@ -256,6 +292,13 @@ def lowest_eigenpairs(
         Unit start vectors on the smallest diagonal elements (default
         ``n_roots + 3``), plus one preconditioned vector reaching every
         component.
+    verdict_threshold : float, optional
+        Verdict mode: stop as soon as the lowest eigenvalue is clearly above
+        ``-verdict_threshold`` (the rule is in the code), without driving
+        the residual down to ``tol``. Below it, the search goes on to
+        ``tol`` as without this setting.
+    start : ndarray, shape (m, *diagonal.shape), optional
+        Extra start vectors (for example the modes of a previous analysis).
 
     Returns
     -------
@@ -263,11 +306,19 @@ def lowest_eigenpairs(
     vectors : ndarray, shape (n_roots, *diagonal.shape)
         Unit-norm eigenvectors.
     converged : bool
+        Every residual below ``tol``, or (verdict mode) the verdict settled.
     """
     shape = diagonal.shape
     d = diagonal.ravel()
     dim = d.size
     n_roots = max(1, min(n_roots, dim))
+    block = getattr(hessian, "block", None)
+
+    def products_of(vectors: np.ndarray) -> np.ndarray:
+        trial = [v.reshape(shape) for v in vectors.T]
+        made = block(trial) if block is not None else [hessian(v) for v in trial]
+        return np.column_stack([p.ravel() for p in made])
+
     # Unit vectors on the smallest diagonal elements reach modes of several
     # symmetries; one vector with every component nonzero (from a fixed seed,
     # so runs repeat digit for digit) reaches any symmetry they miss. It is
@@ -282,8 +333,10 @@ def lowest_eigenpairs(
     if n_start < dim:
         spread = np.random.default_rng(20260).standard_normal(dim) / (d - d.min() + 0.5)
         basis = np.column_stack([basis, spread])
+    if start is not None and len(start):
+        basis = np.column_stack([basis, np.reshape(start, (len(start), dim)).T])
     basis = _orthonormal_columns(basis)
-    products = np.column_stack([hessian(v.reshape(shape)).ravel() for v in basis.T])
+    products = products_of(basis)
     converged = False
     for _ in range(max_iterations):
         small = basis.T @ products
@@ -292,6 +345,9 @@ def lowest_eigenpairs(
         ritz = basis @ vecs
         residuals = products @ vecs - ritz * values
         norms = np.linalg.norm(residuals, axis=0)
+        if verdict_threshold is not None and _verdict_settled(values[0], norms[0], verdict_threshold):
+            converged = True
+            break
         if np.all(norms < tol) or basis.shape[1] >= dim:
             converged = bool(np.all(norms < tol)) or basis.shape[1] >= dim
             break
@@ -306,9 +362,31 @@ def lowest_eigenpairs(
         if added.shape[1] == 0:
             break
         basis = np.column_stack([basis, added])
-        products = np.column_stack([products] + [hessian(v.reshape(shape)).ravel() for v in added.T])
+        products = np.column_stack([products, products_of(added)])
     vectors = np.array([ritz[:, k].reshape(shape) / np.linalg.norm(ritz[:, k]) for k in range(n_roots)])
     return values.copy(), vectors, converged
+
+
+def _verdict_settled(theta: float, residual: float, threshold: float) -> bool:
+    """Whether the lowest Ritz pair (θ, residual norm) settles "no eigenvalue below -threshold".
+
+    For a symmetric operator and a unit Ritz vector v = Σ c_i u_i over the
+    eigenvectors, ‖r‖² = Σ c_i² (λ_i − θ)². Every eigenvalue below
+    −threshold lies more than θ + threshold below θ, so the weight of all
+    such modes in v is Σ c_i² < ‖r‖² / (θ + threshold)². Stopping once ‖r‖ ≤
+    :data:`VERDICT_RESIDUAL` · (θ + threshold) means: the best vector of the
+    subspace (θ is the lowest Rayleigh quotient it holds) carries under 1 %
+    of its weight on unstable modes, and an eigenvalue lies within ‖r‖ of θ,
+    well above −threshold (the interval bound |λ − θ| ≤ ‖r‖). A mode the
+    subspace does not reach at all is missed by this rule as by a fully
+    converged one; the spread start vector is there for that. Above the
+    threshold, θ overestimates its eigenvalue by about ‖r‖² / gap (Ritz
+    values are upper bounds), so the reported lowest eigenvalue stays good
+    to a few digits; below it nothing changes, as the mode to follow must
+    then be accurate.
+    """
+    margin = theta + threshold
+    return margin > 0.0 and residual <= VERDICT_RESIDUAL * margin
 
 
 def _orthonormal_columns(m: np.ndarray) -> np.ndarray:
@@ -341,6 +419,7 @@ def analyse_stability(
     threshold: float = 1e-5,
     n_roots: int = 3,
     tol: float = 1e-6,
+    start: np.ndarray | None = None,
 ) -> StabilityAnalysis:
     """Internal (real RHF→RHF) stability analysis of a converged solution.
 
@@ -360,7 +439,14 @@ def analyse_stability(
     n_roots : int
         Eigenvalues wanted.
     tol : float
-        Residual norm at which the eigensolver stops (hartree).
+        Residual norm at which the eigensolver stops (hartree). With
+        ``n_roots == 1`` (the verdict of the default "follow" mode) it stops
+        earlier once the lowest eigenvalue is clearly above ``-threshold``
+        (see :func:`_verdict_settled`); below the threshold it goes on to
+        ``tol``, as the mode to follow must be accurate.
+    start : ndarray, shape (m, nvir, nocc), optional
+        Extra start vectors, e.g. the modes of the previous solution's
+        analysis.
 
     Returns
     -------
@@ -375,7 +461,14 @@ def analyse_stability(
     nvir, nocc = hessian.shape
     if nvir == 0 or nocc == 0:
         return StabilityAnalysis(np.array([np.inf]), np.zeros((1, nvir, nocc)), threshold, True, 0)
-    values, vectors, converged = lowest_eigenpairs(hessian, hessian.diagonal, n_roots, tol)
+    # With one root wanted only the verdict (and, when unstable, its mode) matters.
+    verdict = threshold if n_roots == 1 else None
+    try:
+        values, vectors, converged = lowest_eigenpairs(
+            hessian, hessian.diagonal, n_roots, tol, verdict_threshold=verdict, start=start
+        )
+    finally:
+        hessian.release()
     return StabilityAnalysis(values, vectors, threshold, converged, hessian.products)
 
 

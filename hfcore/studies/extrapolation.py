@@ -18,8 +18,6 @@ from __future__ import annotations
 import math
 import re
 
-from scipy.optimize import brentq
-
 from ..errors import InputError
 
 #: Citation of the two-point form.
@@ -111,6 +109,8 @@ def _decay_rate(r: float, h1: float, h2: float) -> float:
     high = 1.0
     while mismatch(high) > 0.0:
         high *= 2.0
+    from scipy.optimize import brentq  # lazy: only this solve needs it, not every run's start-up
+
     return brentq(mismatch, 1e-12, high, xtol=1e-15, rtol=1e-15, maxiter=500)
 
 
