@@ -10,6 +10,7 @@ sets with consecutive cardinal numbers, basis-limit estimates are added
 
 from __future__ import annotations
 
+import math
 import time
 from collections.abc import Callable, Sequence
 from dataclasses import asdict, dataclass, field
@@ -21,6 +22,7 @@ import scipy.linalg
 from .._deprecation import module_aliases
 from ..errors import ConvergenceError, InputError
 from ..units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from .basis_limit import BasisLimit, basis_limit
 from .extrapolation import (
     FELLER_CITATION,
     KARTON_MARTIN_CITATION,
@@ -128,11 +130,15 @@ class BasisComparison:
     reference_basis : str
         The basis with the most functions; deltas are relative to it.
     estimates : tuple of BasisLimitEstimate
-        Basis-limit estimates (possibly none).
+        Basis-limit estimates of each formula (possibly none).
     notes : tuple of str
         Why an estimate the names would allow was not made.
     results : tuple of RHFResult
         The RHF results, in the order of ``rows`` (not part of :meth:`to_dict`).
+    limit : BasisLimit or None
+        The one basis-limit record: best estimate ± uncertainty, the rule
+        and the bases (:mod:`hfcore.analysis.basis_limit`); a record with a
+        note when the bases cannot support one.
     """
 
     rows: tuple[ComparisonRow, ...]
@@ -140,6 +146,7 @@ class BasisComparison:
     estimates: tuple[BasisLimitEstimate, ...] = ()
     notes: tuple[str, ...] = ()
     results: tuple = field(default=(), repr=False, compare=False)
+    limit: BasisLimit | None = None
 
     def to_dict(self) -> dict:
         """Plain, JSON-ready form with stable key names.
@@ -148,13 +155,17 @@ class BasisComparison:
         -------
         dict
             ``{"reference_basis": str, "rows": [row, ...],
-            "estimates": [estimate, ...], "notes": [str, ...]}`` where each
-            row and estimate is a dict of its attributes (tuples as lists).
+            "estimates": [estimate, ...], "limit": record, "notes": [str, ...]}``
+            where each row and estimate is a dict of its attributes (tuples
+            as lists) and ``limit`` the :class:`BasisLimit` record
+            (``limit.energy_total``, ``limit.uncertainty`` in hartree).
         """
+        limit = self.limit if self.limit is not None else comparison_limit(self.rows)
         return {
             "reference_basis": self.reference_basis,
             "rows": [asdict(row) for row in self.rows],
             "estimates": [_estimate_dict(e) for e in self.estimates],
+            "limit": limit.to_dict(),
             "notes": list(self.notes),
         }
 
@@ -346,7 +357,13 @@ def _assemble(labels: list[str], bases: list, runs: dict[int, tuple]) -> BasisCo
         estimates=tuple(estimates),
         notes=tuple(notes),
         results=tuple(runs[k][0] for k in range(len(labels))),
+        limit=comparison_limit(rows),
     )
+
+
+def comparison_limit(rows: Sequence[ComparisonRow]) -> BasisLimit:
+    """The basis-limit record of a comparison's converged rows (total energies, variationally bounded)."""
+    return basis_limit([(r.basis, r.energy_total if r.converged else math.nan, r.spherical) for r in rows])
 
 
 def _consecutive_tail(cardinals: list[int], length: int) -> list[int] | None:
@@ -426,4 +443,5 @@ __all__ = [
     "compare_bases",
     "project_density",
     "basis_limit_estimates",
+    "comparison_limit",
 ]

@@ -6,7 +6,9 @@ RHF total energies at the given geometries (no zero-point or thermal
 terms). Each distinct species is computed once per basis. Basis-limit
 estimates of ΔE come from the species' extrapolated totals, with the two
 formulas of :func:`hfcore.analysis.compare.basis_limit_estimates`; the
-spread between the two estimates serves as their uncertainty.
+basis-limit record of each ΔE (:meth:`ReactionStudy.limits`) applies the
+rule of :mod:`hfcore.analysis.basis_limit` to the ΔE series itself, where
+the species' errors partly cancel.
 
 The SCF runs are listed as plain data first (:func:`reaction_pieces`,
 species × basis), so that they could be handed to another runner;
@@ -21,6 +23,7 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 from ..errors import ConvergenceError
+from .basis_limit import BasisLimit, basis_limit
 from .compare import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE, ComparisonRow, _check_names, basis_limit_estimates
 from .equations import Reaction, Species, load_reactions, parse_reaction  # noqa: F401  (part of this module's API)
 
@@ -144,8 +147,11 @@ class ReactionStudy:
     notes: tuple[str, ...] = ()
     seconds: float = 0.0
 
-    def uncertainty(self) -> tuple[float, ...] | None:
-        """Per reaction, the spread (hartree) between the two- and three-point estimates of one family, if both exist."""
+    def spread(self) -> tuple[float, ...] | None:
+        """Per reaction, the spread (hartree) between the two- and three-point estimates of one family, if both exist.
+
+        Not an uncertainty: see :meth:`limits`.
+        """
         by_family: dict[str, dict[str, ReactionEstimate]] = {}
         for est in self.estimates:
             by_family.setdefault(est.family, {})[est.method] = est
@@ -154,6 +160,18 @@ class ReactionStudy:
                 a, b = members["two-point"].reaction_energies, members["three-point"].reaction_energies
                 return tuple(abs(x - y) for x, y in zip(a, b))
         return None
+
+    def limits(self) -> tuple[BasisLimit, ...]:
+        """Per reaction, the basis-limit record of ΔE: estimate ± uncertainty (hartree), rule and bases.
+
+        The rule runs on the ΔE series itself (no variational cut, a
+        difference has no bound); a record with a note where the bases
+        cannot support an estimate.
+        """
+        return tuple(
+            basis_limit([(row.basis, row.reaction_energies[r], row.spherical) for row in self.rows], bounded_above=False)
+            for r in range(len(self.reactions))
+        )
 
     def to_dict(self) -> dict:
         """Plain, JSON-ready form; energies in hartree unless a key names kJ/mol or kcal/mol."""
@@ -165,15 +183,16 @@ class ReactionStudy:
                 f"{key}_kcal_mol": [v * KCAL_MOL_PER_HARTREE for v in values],
             }
 
-        spread = self.uncertainty()
+        spread, limits = self.spread(), self.limits()
         return {
             "species": [
                 {"path": s.path, "charge": s.charge, "formula": s.formula, "source": s.molecule.source}
                 for s in self.species
             ],
             "reactions": [
-                {"equation": r.text, "terms": [{"species": k, "factor": float(nu)} for k, nu in r.terms]}
-                for r in self.reactions
+                {"equation": r.text, "terms": [{"species": k, "factor": float(nu)} for k, nu in r.terms],
+                 "limit": limit.to_dict()}
+                for r, limit in zip(self.reactions, limits)
             ],
             "reference_basis": self.reference_basis,
             "rows": [
@@ -200,7 +219,7 @@ class ReactionStudy:
                 }
                 for e in self.estimates
             ],
-            "uncertainty": None if spread is None else units(spread, "reaction_energies"),
+            "spread": None if spread is None else units(spread, "reaction_energies"),
             "notes": list(self.notes),
             "seconds": self.seconds,
         }
