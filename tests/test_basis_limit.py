@@ -184,3 +184,21 @@ def test_compare_report_prints_e_plus_minus_u(tmp_path):
     molecule = Molecule(np.array([2]), np.zeros((1, 3)), 0, source="He")
     note = compare_bases(molecule, ["cc-pvdz"]).to_dict()["limit"]
     assert note["energy_total"] is None and "only one cardinal number" in note["note"]
+
+
+def test_compare_plot_draws_the_limit_as_a_band(tmp_path, monkeypatch):
+    from matplotlib.axes import Axes
+
+    from conftest import assert_valid_png
+    from hfcore.plots import plot_comparison
+
+    spans = []
+    original = Axes.axhspan
+    monkeypatch.setattr(Axes, "axhspan", lambda self, lo, hi, **kw: spans.append((lo, hi)) or original(self, lo, hi, **kw))
+    molecule = Molecule(np.array([2]), np.zeros((1, 3)), 0, source="He")
+    comparison = compare_bases(molecule, ["cc-pvdz", "cc-pvtz"])
+    plot_comparison(comparison, tmp_path / "he.png")
+    assert_valid_png(tmp_path / "he.png")
+    limit = comparison.limit
+    assert spans == [pytest.approx((limit.energy_total - limit.uncertainty, limit.energy_total + limit.uncertainty),
+                                   abs=1e-15)]
