@@ -55,7 +55,8 @@ def plot_comparison(comparison: BasisComparison, path: str | os.PathLike) -> Non
     """Draw RHF energy against the number of basis functions.
 
     Each basis is a labelled point; basis-limit estimates are horizontal
-    lines labelled with their method and bases.
+    lines labelled with their method and bases, and the basis-limit record
+    a grey band, estimate ± uncertainty.
 
     Parameters
     ----------
@@ -86,6 +87,7 @@ def plot_comparison(comparison: BasisComparison, path: str | os.PathLike) -> Non
         for k, estimate in enumerate(comparison.estimates):
             label = f"{estimate.method} limit ({', '.join(estimate.bases)}): {estimate.energy_total:.6f} Eh"
             axes.axhline(estimate.energy_total, linestyle=styles[k % len(styles)], color=f"C{k + 3}", label=label)
+        _limit_band(axes, getattr(comparison, "limit", None), 1.0, "Eh", 6)
         axes.set_xlabel("number of basis functions")
         axes.set_ylabel("RHF total energy / hartree")
         axes.ticklabel_format(axis="y", useOffset=False)
@@ -95,6 +97,16 @@ def plot_comparison(comparison: BasisComparison, path: str | os.PathLike) -> Non
         _save_atomically(figure, path)
     finally:
         plt.close(figure)
+
+
+def _limit_band(axes, limit, scale: float, unit: str, digits: int, color: str = "0.5", labelled: bool = True) -> None:
+    """The basis-limit record as a shaded band, estimate ± uncertainty (nothing when there is no estimate)."""
+    if limit is None or limit.energy_total is None:
+        return
+    centre, half = limit.energy_total * scale, limit.uncertainty * scale
+    label = f"basis limit {centre:.{digits}f} ± {half:.{digits}f} {unit}" if labelled else None
+    axes.axhspan(centre - half, centre + half, color=color, alpha=0.25, linewidth=0, label=label)
+    axes.axhline(centre, color=color, linewidth=0.8)
 
 
 def _check_directory(path: str | os.PathLike) -> None:
@@ -133,6 +145,7 @@ def plot_interaction(study: InteractionStudy, path: str | os.PathLike) -> None:
             axes.annotate(r.basis, (r.n_functions, r.raw * KJ_MOL_PER_HARTREE), textcoords="offset points",
                           xytext=(6, -12), fontsize=8)
         axes.axhline(0.0, color="black", linewidth=0.6)
+        _limit_band(axes, study.limit(), KJ_MOL_PER_HARTREE, "kJ/mol", 2, color="C1")
         axes.set_xlabel("basis functions of the complex")
         axes.set_ylabel("energy / kJ mol$^{-1}$")
         axes.set_title(f"RHF interaction energy, {os.path.basename(study.source)}", fontsize=10)
@@ -179,6 +192,7 @@ def plot_reactions(study: ReactionStudy, path: str | os.PathLike) -> None:
                 axes.axhline(est.reaction_energies[k] * KJ_MOL_PER_HARTREE, color=f"C{k}", linewidth=1.0,
                              linestyle=styles[j % len(styles)],
                              label=f"{est.method} limit ({', '.join(est.bases)})" if k == 0 else None)
+            _limit_band(axes, study.limits()[k], KJ_MOL_PER_HARTREE, "kJ/mol", 2, color=f"C{k}")
         axes.set_xlabel("basis functions, summed over the species of the reaction")
         axes.set_ylabel("reaction energy / kJ mol$^{-1}$")
         axes.set_title("RHF reaction energy against basis size", fontsize=10)

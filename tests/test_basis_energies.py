@@ -61,6 +61,10 @@ FAMILIES = {
     "cc-pVTZ": TRIPLE_ZETA_SYSTEMS,
     "aug-cc-pVTZ": DIFFUSE_TRIPLE_ZETA_SYSTEMS,
     "cc-pVQZ": QUADRUPLE_ZETA_SYSTEMS,
+    # h functions on Ne, F and Ar (H stops at g in cc-pV5Z)
+    "cc-pV5Z": ["H2", "He", "Ne", "HF", "Ar"],
+    "aug-cc-pVQZ": ["H2", "He", "F-", "Ne", "Ar"],
+    "aug-cc-pV5Z": ["He", "Ne"],
 }
 CASES = [(basis, system) for basis, systems in FAMILIES.items() for system in systems]
 

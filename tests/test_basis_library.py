@@ -28,7 +28,8 @@ from hfcore.errors import BasisError
 DATA_DIR = Path(library.__file__).parent / "data"
 SHIPPED = [
     "3-21G", "6-31G", "6-31G*", "6-31G**", "6-31+G*", "6-311G**",
-    "cc-pVDZ", "cc-pVTZ", "cc-pVQZ", "aug-cc-pVDZ", "aug-cc-pVTZ", "def2-SVP", "def2-TZVP",
+    "cc-pVDZ", "cc-pVTZ", "cc-pVQZ", "aug-cc-pVDZ", "cc-pV5Z", "aug-cc-pVTZ", "aug-cc-pVQZ", "aug-cc-pV5Z",
+    "def2-SVP", "def2-TZVP",
     "def2-universal-JKFIT", "cc-pVTZ-JKFIT", "cc-pVQZ-JKFIT", "cc-pV5Z-JKFIT",
     "cc-pVDZ-RIFIT", "cc-pVTZ-RIFIT", "cc-pVQZ-RIFIT", "def2-SVP-RIFIT", "def2-TZVP-RIFIT",
 ]  # fmt: skip
@@ -218,11 +219,14 @@ def test_unshipped_set_is_looked_up_in_the_basis_set_exchange_package(name, cart
         assert _canonical(_our_contractions(family.element_shells(z))) == expected
 
 
-def test_unshipped_set_with_h_functions_is_refused_per_element():
-    family = find_family("cc-pV5Z")
-    # source: basis-set-exchange package (cc-pV5Z gives oxygen h functions)
-    with pytest.raises(BasisError, match=r"basis cc-pV5Z: O shell \d+: angular momentum 5 is not supported \(s..g\)"):
-        family.element_shells(8)
+@pytest.mark.parametrize("name", ["cc-pV5Z", "aug-cc-pV5Z"])
+def test_shipped_set_with_h_functions_is_read_with_them(name):
+    family = find_family(name)
+    assert isinstance(family, LibraryFamily)
+    shells = family.element_shells(8)
+    # source: basis-set-exchange package (the set gives oxygen h functions), full contraction matrices per l
+    assert max(es.l for es in shells) == 5
+    assert _canonical(_our_contractions(shells)) == _canonical(_published_contractions(name, 8))
 
 
 def test_name_unknown_everywhere_lists_close_names():
@@ -322,7 +326,7 @@ def test_shipped_file_loads_as_a_user_file():
             {"O": [_shell(0, ["3.0", "2.0", "1.0", "0.5"], [["1", "1", "1", "1"], ["1", "1", "1"]])]},
             "my.json: O shell 1: 4 exponents but 3 coefficients in contraction 2",
         ),
-        ({"O": [_shell(6, ["1.0"], [["1.0"]])]}, r"my.json: O shell 1: angular momentum 6 is not supported \(s..g\)"),
+        ({"O": [_shell(6, ["1.0"], [["1.0"]])]}, r"my.json: O shell 1: angular momentum 6 is not supported \(s..h\)"),
         ({"O": [_shell(0, ["abc"], [["1.0"]])]}, "my.json: O shell 1: exponent 'abc' is not a number"),
         ({"O": [_shell(0, ["1.0"], [["0.0"]])]}, "my.json: O shell 1: contraction 1 has only zero coefficients"),
         ({"O": [{"l": 0, "exponents": ["1.0"]}]}, "my.json: O shell 1: missing 'coefficients'"),

@@ -96,7 +96,7 @@ def test_progress_reports_each_basis(nested):
 def test_to_dict_has_stable_keys_and_is_json(nested):
     comparison, _ = nested
     data = comparison.to_dict()
-    assert set(data) == {"reference_basis", "rows", "estimates", "notes"}
+    assert set(data) == {"reference_basis", "rows", "estimates", "limit", "notes"}
     assert set(data["rows"][0]) == {
         "basis",
         "n_functions",

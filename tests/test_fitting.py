@@ -41,6 +41,7 @@ def _sorted_basis(molecule, name: str, spherical: bool | None = None) -> BasisSe
     [
         ("water", "cc-pvdz", "cc-pvtz-jkfit", True),
         ("hydrogen_fluoride", "cc-pvqz", "cc-pv5z-jkfit", True),  # i fitting functions with g orbital pairs
+        ("hydrogen_fluoride", "cc-pv5z", "cc-pv5z-jkfit", True),  # i fitting functions with h orbital pairs
         ("ammonia", "6-31g*", "def2-universal-jkfit", False),
     ],
 )
@@ -82,6 +83,7 @@ def _reference_fitted_energy(mol, orbital: str, fitting: str) -> float:
         ("hydrogen_fluoride", "cc-pvdz", "cc-pvtz-jkfit"),
         ("ammonia", "cc-pvdz", "cc-pvtz-jkfit"),
         ("hydrogen_cyanide", "cc-pvdz", "cc-pvtz-jkfit"),
+        ("hydrogen_fluoride", "cc-pv5z", "cc-pv5z-jkfit"),  # h orbital functions, i fitting functions
     ],
 )
 def test_fitted_energy_matches_reference_library(geometry, orbital, fitting):

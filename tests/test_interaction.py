@@ -202,3 +202,23 @@ def test_fitted_interaction_equals_the_separate_fitted_energy_runs(study):
     # but not equal to it.
     exact = study.rows[BASES.index("6-31g")]
     assert 0 < abs(row["counterpoise"] - exact.counterpoise) < 1e-4
+
+
+def test_interaction_record_carries_a_basis_limit_record(study):
+    from dataclasses import replace
+
+    from hfcore.analysis.extrapolation import karton_martin_two_point
+
+    record = study.to_dict()
+    # one correlation-consistent set only: a note, never an exception or an invented interval
+    assert record["limit"]["energy_total"] is None and "only one cardinal number" in record["limit"]["note"]
+    assert record["limit_raw"]["uncertainty"] is None
+    # Two consecutive sets (values of our own): the rule runs on the difference's own series, no variational cut.
+    rows = (replace(study.rows[2], basis="cc-pvdz", counterpoise=-0.0080),
+            replace(study.rows[2], basis="cc-pvtz", counterpoise=-0.0075))
+    limit = replace(study, rows=rows).limit()
+    assert limit.method == "two-point" and not limit.cut
+    # exact property: the candidate is the Karton–Martin form through the two values
+    assert limit.candidate == pytest.approx(karton_martin_two_point(-0.0080, -0.0075, 2, 3), abs=1e-15)
+    assert abs(limit.candidate - limit.energy_total) <= limit.uncertainty
+    assert limit.uncertainty > 0

@@ -100,7 +100,10 @@ def test_basis_limit_estimate_combines_extrapolated_totals(in_inputs):
     e_cbs = karton_martin_two_point(rows["cc-pvdz"].species_energies[0], rows["cc-pvtz"].species_energies[0], 2, 3)
     assert estimate.species_energies[0] == pytest.approx(e_cbs, abs=1e-12)
     assert estimate.reaction_energies == (0.0,)
-    assert study.uncertainty() is None  # no three-point estimate from two bases
+    assert study.spread() is None  # no three-point estimate from two bases
+    # exact property: ΔE of 2 H2 -> H2 + H2 is zero in every basis, so the limit record is 0 ± 0
+    (limit,) = study.limits()
+    assert (limit.method, limit.energy_total, limit.uncertainty) == ("two-point", 0.0, 0.0)
 
 
 def test_reaction_plot_and_report(in_inputs, tmp_path):
@@ -128,8 +131,20 @@ def test_three_point_estimate_and_spread(tmp_path, monkeypatch):
     expected = feller_three_point(*totals[1], 2, 3, 4) - feller_three_point(*totals[0], 2, 3, 4)
     assert methods["three-point"].reaction_energies[0] == pytest.approx(expected, abs=1e-12)
     spread = abs(methods["two-point"].reaction_energies[0] - methods["three-point"].reaction_energies[0])
-    assert study.uncertainty() == pytest.approx((spread,), abs=1e-15)
-    assert study.to_dict()["uncertainty"]["reaction_energies"] == pytest.approx([spread], abs=1e-15)
+    assert study.spread() == pytest.approx((spread,), abs=1e-15)
+    assert study.to_dict()["spread"]["reaction_energies"] == pytest.approx([spread], abs=1e-15)
+    record = study.to_dict()["reactions"][0]["limit"]
+    # The interval reaches both formulas' ΔE, which rest on the same three bases (rule of docs/basis-limits.md).
+    for est in study.estimates:
+        assert abs(est.reaction_energies[0] - record["energy_total"]) <= record["uncertainty"] + 1e-15
+    assert record["bases"] and record["rule"] and record["note"] is None
+
+
+def test_reaction_with_one_cardinal_number_has_a_limit_note_not_an_exception(in_inputs):
+    study = reaction_energies("2 hydrogen.xyz -> hydrogen.xyz + hydrogen.xyz", ["cc-pvdz", "sto-3g"])
+    (limit,) = study.limits()
+    assert limit.energy_total is None and limit.uncertainty is None
+    assert "only one cardinal number" in limit.note
 
 
 def test_a_run_that_does_not_converge_names_the_species_and_exits_4(in_inputs):

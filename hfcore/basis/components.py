@@ -168,7 +168,7 @@ def c2s(l: int) -> np.ndarray:
     Parameters
     ----------
     l : int
-        Angular momentum (0..4 in hfcore, any l works).
+        Angular momentum (0..5 for orbital shells, 0..6 for fitting shells; any l works).
 
     Returns
     -------

@@ -38,8 +38,8 @@ from .components import (
     n_spherical,
 )
 
-#: Highest angular momentum of an orbital basis (g functions).
-MAX_L: int = 4
+#: Highest angular momentum of an orbital basis (h functions).
+MAX_L: int = 5
 #: Highest angular momentum of a fitting set (i functions); the three- and
 #: two-centre integrals reach l_P + 2 MAX_L.
 MAX_FIT_L: int = 6

@@ -433,6 +433,8 @@ def format_comparison(comparison: Any) -> str:
                 f"  {est.method:<12} {', '.join(est.bases):<36} {est.energy_total:18.10f} Eh {est.delta_mEh:11.3f} mEh"
             )
             lines.append(f"  {'':<12} {est.citation}")
+    if getattr(comparison, "limit", None) is not None:
+        lines.append(f"  basis limit: {comparison.limit.describe()}")
     lines += [f"  note: {note}" for note in comparison.notes]
     return "\n".join(lines)
 

@@ -54,6 +54,8 @@ def format_interaction(study: Any) -> str:
         lines.append(f"  {'basis':<14} {_UNIT_HEAD}")
         for row in study.rows:
             lines.append(f"  {row.basis:<14} {_units(getattr(row, attr))}")
+        if attr != "superposition_error":
+            lines.append(f"  basis limit: {study.limit(attr).describe('kJ/mol')}")
     lines.append(f"\n  counterpoise correction: {study.citation}")
     runs = len(study.pieces)
     reused = sum(p.reused_integrals for p in study.pieces)
@@ -94,7 +96,7 @@ def format_reactions(study: Any) -> str:
     for k in range(len(study.species)):
         lines.append(f"  {k + 1:>8} " + " ".join(f"{row.species_energies[k]:17.10f}" for row in study.rows))
     lines.append(f"  {'time / s':>8} " + " ".join(f"{row.wall_seconds:17.2f}" for row in study.rows))
-    spread = study.uncertainty()
+    spread, limits = study.spread(), study.limits()
     for r, reaction in enumerate(study.reactions):
         title = "Reaction energy" if len(study.reactions) == 1 else f"Reaction {r + 1}"
         lines.append(heading(f"{title}  {reaction.text}"))
@@ -114,7 +116,8 @@ def format_reactions(study: Any) -> str:
                 label = f"{est.method} ({', '.join(est.bases)})"
                 lines.append(f"  {label:<24} {_units(est.reaction_energies[r])}")
             if spread is not None:
-                lines.append(f"  {'spread (uncertainty)':<24} {_units(spread[r])}")
+                lines.append(f"  {'spread of the two':<24} {_units(spread[r])}")
+        lines.append(f"  basis limit: {limits[r].describe('kJ/mol')}")
     if study.estimates:
         lines.append("")
         for citation in dict.fromkeys(e.citation for e in study.estimates):

@@ -9,7 +9,7 @@ fitting shells become pair groups of the same kind the four-centre passes
 use (:mod:`hfcore.integrals.tiles`), and a three-centre integral is a
 tile of orbital pairs against fitting "pairs", a two-centre integral a tile
 of fitting "pairs" against themselves. The Boys function and Hermite
-integrals then go up to l_P + l_μ + l_ν (14 for i fitting functions with g
+integrals then go up to l_P + l_μ + l_ν (16 for i fitting functions with h
 orbital pairs), which the tables cover (:data:`hfcore.integrals.boys.M_MAX`).
 
 Storage

@@ -13,6 +13,7 @@ cardinal number; :mod:`hfcore.studies.extrapolation`).
 
 from __future__ import annotations
 
+import math
 import time
 from collections.abc import Mapping, Sequence
 from dataclasses import asdict, dataclass, field
@@ -27,6 +28,7 @@ from ..errors import ConvergenceError, InputError
 from ..integrals import overlap
 from ..scf.driver import run_rhf
 from ..units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from .basis_limit import BasisLimit, basis_limit
 from .extrapolation import (
     FELLER_CITATION,
     KARTON_MARTIN_CITATION,
@@ -140,6 +142,10 @@ class BasisComparison:
         Why an estimate the names would allow was not made.
     results : tuple of RHFResult
         The RHF results, in the order of ``rows`` (not part of :meth:`to_dict`).
+    limit : BasisLimit or None
+        The one basis-limit record: best estimate ± uncertainty, the rule
+        and the bases (:mod:`hfcore.studies.basis_limit`); a record with a
+        note when the bases cannot support one.
     """
 
     rows: tuple[ComparisonRow, ...]
@@ -147,6 +153,7 @@ class BasisComparison:
     estimates: tuple[BasisLimitEstimate, ...] = ()
     notes: tuple[str, ...] = ()
     results: tuple = field(default=(), repr=False, compare=False)
+    limit: BasisLimit | None = None
 
     def to_dict(self) -> dict:
         """Plain, JSON-ready form with stable key names.
@@ -155,15 +162,19 @@ class BasisComparison:
         -------
         dict
             ``{"reference_basis": str, "rows": [row, ...],
-            "estimates": [estimate, ...], "notes": [str, ...]}`` where each
-            row and estimate is a dict of its attributes (tuples as lists);
+            "estimates": [estimate, ...], "limit": record, "notes": [str, ...]}``
+            where each row and estimate is a dict of its attributes (tuples
+            as lists) and ``limit`` the :class:`BasisLimit` record
+            (``limit.energy_total``, ``limit.uncertainty`` in hartree);
             rows also carry ``wall_time`` and estimates ``family``, the
             deprecated keys of ``wall_seconds`` and ``series`` (kept for one release).
         """
+        limit = self.limit if self.limit is not None else comparison_limit(self.rows)
         return {
             "reference_basis": self.reference_basis,
             "rows": [{**asdict(row), "wall_time": row.wall_seconds} for row in self.rows],
             "estimates": [_estimate_dict(e) for e in self.estimates],
+            "limit": limit.to_dict(),
             "notes": list(self.notes),
         }
 
@@ -468,7 +479,13 @@ def assemble_comparison(
         estimates=tuple(estimates),
         notes=tuple(notes),
         results=tuple(results),
+        limit=comparison_limit(rows),
     )
+
+
+def comparison_limit(rows: Sequence[ComparisonRow]) -> BasisLimit:
+    """The basis-limit record of a comparison's converged rows (total energies, variationally bounded)."""
+    return basis_limit([(r.basis, r.energy_total if r.converged else math.nan, r.spherical) for r in rows])
 
 
 def _consecutive_tail(cardinals: list[int], length: int) -> list[int] | None:

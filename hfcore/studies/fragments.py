@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING
 from .._deprecation import rename_fields
 from ..errors import InputError
 from ..units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
+from .basis_limit import BasisLimit, basis_limit
 
 if TYPE_CHECKING:
     from ..geometry import Molecule
@@ -213,6 +214,13 @@ class InteractionStudy:
             return 0.0
         return sum(row.integral_seconds * len(self.fragments) for row in self.rows)
 
+    def limit(self, kind: str = "counterpoise") -> BasisLimit:
+        """Basis-limit record of the ``"counterpoise"`` (default) or ``"raw"`` interaction energies over the bases.
+
+        The rule of :mod:`hfcore.studies.basis_limit` on the difference's own series (no variational cut).
+        """
+        return basis_limit([(r.basis, getattr(r, kind), r.spherical) for r in self.rows], bounded_above=False)
+
     def to_dict(self) -> dict:
         """Plain, JSON-ready form (atom numbers 0-based, energies in hartree unless a key names a unit).
 
@@ -223,6 +231,8 @@ class InteractionStudy:
             "fragments": [list(f) for f in self.fragments],
             "fragment_charges": list(self.fragment_charges),
             "rows": [row.to_dict() for row in self.rows],
+            "limit": self.limit().to_dict(),
+            "limit_raw": self.limit("raw").to_dict(),
             "runs": [
                 {
                     "basis": p.piece.basis,

@@ -5,8 +5,10 @@ The reaction energy is ΔE = Σ ν E(products) − Σ ν E(reactants) with the
 RHF total energies at the given geometries (no zero-point or thermal
 terms). Each distinct species is computed once per basis. Basis-limit
 estimates of ΔE come from the species' extrapolated totals, with the two
-formulas of :func:`hfcore.studies.compare.series_estimates`; the spread
-between the two estimates serves as their uncertainty.
+formulas of :func:`hfcore.studies.compare.series_estimates`; the
+basis-limit record of each ΔE (:meth:`ReactionStudy.limits`) applies the
+rule of :mod:`hfcore.studies.basis_limit` to the ΔE series itself, where
+the species' errors partly cancel.
 
 The study's contract (:mod:`hfcore.studies.pieces`): :func:`reaction_pieces`
 lists the SCF runs as plain data (species × basis); :func:`run_reaction_pieces`
@@ -27,6 +29,7 @@ from ..errors import ConvergenceError
 from ..scf.driver import run_rhf
 from ..units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
 from .compare import correlation_consistent_series, series_estimates
+from .basis_limit import BasisLimit, basis_limit
 from .equations import Reaction, Species, load_reactions, parse_reaction  # noqa: F401  (part of this module's API)
 from .pieces import MessageProgress, PieceOutcome, check_basis_names, collect
 
@@ -158,8 +161,11 @@ class ReactionStudy:
     notes: tuple[str, ...] = ()
     wall_seconds: float = 0.0
 
-    def uncertainty(self) -> tuple[float, ...] | None:
-        """Per reaction, the spread (hartree) between the two- and three-point estimates of one series, if both exist."""
+    def spread(self) -> tuple[float, ...] | None:
+        """Per reaction, the spread (hartree) between the two- and three-point estimates of one series, if both exist.
+
+        Not an uncertainty: see :meth:`limits`.
+        """
         by_series: dict[str, dict[str, ReactionEstimate]] = {}
         for est in self.estimates:
             by_series.setdefault(est.series, {})[est.method] = est
@@ -168,6 +174,18 @@ class ReactionStudy:
                 a, b = members["two-point"].reaction_energies, members["three-point"].reaction_energies
                 return tuple(abs(x - y) for x, y in zip(a, b))
         return None
+
+    def limits(self) -> tuple[BasisLimit, ...]:
+        """Per reaction, the basis-limit record of ΔE: estimate ± uncertainty (hartree), rule and bases.
+
+        The rule runs on the ΔE series itself (no variational cut, a
+        difference has no bound); a record with a note where the bases
+        cannot support an estimate.
+        """
+        return tuple(
+            basis_limit([(row.basis, row.reaction_energies[r], row.spherical) for row in self.rows], bounded_above=False)
+            for r in range(len(self.reactions))
+        )
 
     def to_dict(self) -> dict:
         """Plain, JSON-ready form; energies in hartree unless a key names kJ/mol or kcal/mol.
@@ -183,15 +201,16 @@ class ReactionStudy:
                 f"{key}_kcal_mol": [v * KCAL_MOL_PER_HARTREE for v in values],
             }
 
-        spread = self.uncertainty()
+        spread, limits = self.spread(), self.limits()
         return {
             "species": [
                 {"path": s.path, "charge": s.charge, "formula": s.formula, "source": s.molecule.source}
                 for s in self.species
             ],
             "reactions": [
-                {"equation": r.text, "terms": [{"species": k, "factor": float(nu)} for k, nu in r.terms]}
-                for r in self.reactions
+                {"equation": r.text, "terms": [{"species": k, "factor": float(nu)} for k, nu in r.terms],
+                 "limit": limit.to_dict()}
+                for r, limit in zip(self.reactions, limits)
             ],
             "reference_basis": self.reference_basis,
             "rows": [
@@ -220,7 +239,7 @@ class ReactionStudy:
                 }
                 for e in self.estimates
             ],
-            "uncertainty": None if spread is None else units(spread, "reaction_energies"),
+            "spread": None if spread is None else units(spread, "reaction_energies"),
             "notes": list(self.notes),
             "wall_seconds": self.wall_seconds,
             "seconds": self.wall_seconds,
