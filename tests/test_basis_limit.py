@@ -20,7 +20,7 @@ from conftest import run_main
 
 from hfcore.studies.basis_limit import basis_limit, inverse_power_two_point
 from hfcore.studies.compare import compare_bases
-from hfcore.analysis.extrapolation import feller_three_point, karton_martin_two_point
+from hfcore.studies.extrapolation import feller_three_point, karton_martin_two_point
 from hfcore.basis import build_basis
 from hfcore.geometry import Molecule
 from hfcore.scf import run_rhf

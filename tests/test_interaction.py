@@ -207,7 +207,7 @@ def test_fitted_interaction_equals_the_separate_fitted_energy_runs(study):
 def test_interaction_record_carries_a_basis_limit_record(study):
     from dataclasses import replace
 
-    from hfcore.analysis.extrapolation import karton_martin_two_point
+    from hfcore.studies.extrapolation import karton_martin_two_point
 
     record = study.to_dict()
     # one correlation-consistent set only: a note, never an exception or an invented interval

@@ -29,7 +29,7 @@ from .jk import IncrementalJK
 from .open_result import ROHFResult, UHFResult
 from .options import SCFOptions
 from .result import RHFResult
-from .solver import Progress
+from .solver import IterationProgress
 from .spin import resolve_method
 from .guess import split_density
 from .uhf import solve_uhf
@@ -41,7 +41,7 @@ def run_scf(
     options: SCFOptions | None = None,
     *,
     guess: str | np.ndarray = "sad",
-    progress: Progress | None = None,
+    progress: IterationProgress | None = None,
     integral_progress: Callable[[float], None] | None = None,
     shared: SharedIntegrals | None = None,
     raise_on_failure: bool = True,
@@ -145,7 +145,7 @@ def run_open_shell(
     *,
     method: str,
     guess: str | np.ndarray = "sad",
-    progress: Progress | None = None,
+    progress: IterationProgress | None = None,
     integral_progress: Callable[[float], None] | None = None,
     shared: SharedIntegrals | None = None,
     raise_on_failure: bool = True,

@@ -45,7 +45,7 @@ from .result import SCFIteration
 from .spin import s_squared, s_squared_exact
 from .uhf import UHFProblem, _checked_square
 
-Progress = Callable[[SCFIteration], None]
+from .solver import IterationProgress
 
 
 class _ROHF:
@@ -91,7 +91,7 @@ def solve_rohf(
     guess_densities: np.ndarray | None = None,
     *,
     coupling: str = "guest-saunders",
-    progress: Progress | None = None,
+    progress: IterationProgress | None = None,
 ) -> ROHFResult:
     """Run ROHF iterations on given matrices (see the module notes).
 

@@ -30,7 +30,7 @@ from .orthogonalise import Orthogonaliser
 from .result import SCFIteration
 from .spin import s_squared, s_squared_exact
 
-Progress = Callable[[SCFIteration], None]
+from .solver import IterationProgress
 
 #: Rotation (radians) of the α HOMO into the α LUMO in the symmetry-breaking start of a singlet.
 BREAK_ANGLE: float = 0.25 * np.pi / 2
@@ -122,7 +122,7 @@ def solve_uhf(
     guess_densities: np.ndarray | None = None,
     *,
     break_symmetry: bool = False,
-    progress: Progress | None = None,
+    progress: IterationProgress | None = None,
     _solution: int = 0,
 ) -> UHFResult:
     """Run UHF iterations on given matrices.
@@ -294,7 +294,7 @@ def iterate_uhf(
     previous: float,
     energy_nuclear: float,
     options: SCFOptions,
-    progress: Progress | None = None,
+    progress: IterationProgress | None = None,
     solution: int = 0,
 ) -> tuple[_Evaluation, list[SCFIteration], bool, list[str]]:
     """Iterate from α and β densities (2, nbf, nbf); returns the last evaluation, history, convergence, aids."""

@@ -38,7 +38,7 @@ from .uhf import solve_uhf
 from .result import RHFResult, SCFIteration
 from .stability import FOLLOW_ANGLES, StabilityAnalysis, StabilityReport, lowest_eigenpairs, plain_builder, rotate_orbitals
 
-Progress = Callable[[SCFIteration], None]
+from .solver import IterationProgress
 
 #: The record of the open-shell stability stage is the RHF one (same fields).
 OpenStabilityReport = StabilityReport
@@ -179,7 +179,7 @@ def _rotated_densities(result: UHFResult, analysis: StabilityAnalysis, jk: JKBui
 
 
 def stabilise_uhf(
-    result: UHFResult, jk: JKBuilder, energy_nuclear: float, *, progress: Progress | None = None
+    result: UHFResult, jk: JKBuilder, energy_nuclear: float, *, progress: IterationProgress | None = None
 ) -> UHFResult:
     """Analyse a converged UHF solution and, in "descend" mode, move to a stable one.
 
