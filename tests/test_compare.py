@@ -110,7 +110,10 @@ def test_to_dict_has_stable_keys_and_is_json(nested):
         "converged",
         "guess",
         "stable",
+        "method",
+        "s_squared",
     }
+    assert data["rows"][0]["method"] == "RHF" and data["rows"][0]["s_squared"] is None
     assert data["estimates"] == []
     assert json.loads(json.dumps(data)) == data
 

@@ -37,7 +37,7 @@ def test_parse_reaction_reads_factors_and_charges():
         ("water.xyz -> water_dimer.xyz", "not balanced: H 2 on the left, 4 on the right"),
         ("ammonium.xyz[+1] -> ammonium.xyz[-1]", "not balanced in charge: +1 on the left, -1 on the right"),
         ("ammonia.xyz + water.xyz -> ammonium.xyz[+1] + hydroxide.xyz", "not balanced in charge"),
-        ("ammonium.xyz -> ammonium.xyz", "write its charge beside the file"),
+        ("ammonium.xyz[triplet] -> ammonium.xyz[triplet]", "multiplicity 3 does not fit 11 electrons"),
         ("water.xyz => water.xyz", "write one '->'"),
         ("water.xyz + -> water.xyz", "a species is missing"),
         ("0 water.xyz -> water.xyz", "must be positive"),
@@ -49,7 +49,7 @@ def test_bad_equation_is_one_line_exit_2_before_any_run(in_inputs, monkeypatch, 
     def no_scf(*args, **kwargs):  # the check must come before the first SCF run
         raise AssertionError("an SCF ran before the equation was checked")
 
-    monkeypatch.setattr(hfcore.studies.reaction, "run_rhf", no_scf)  # where the study's runner finds it
+    monkeypatch.setattr(hfcore.studies.reaction, "run_scf", no_scf)  # where the study's runner finds it
     code, out, err = run_main("reaction", spec, "--basis", "sto-3g")
     assert code == 2 and out == ""
     assert err.count("\n") == 1 and err.startswith("hfcore: error: ") and fragment in err

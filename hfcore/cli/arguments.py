@@ -184,16 +184,22 @@ def add_geometry_arguments(parser: argparse.ArgumentParser, *, geometry: bool = 
     form.add_argument("--spherical", dest="spherical", action="store_true", help="real spherical d, f, ... functions")
 
 
-def add_spin_arguments(parser: Any) -> None:
-    """--multiplicity and the open-shell method (--uhf | --rohf)."""
-    parser.add_argument("--multiplicity", type=positive_int, metavar="M",
-                        help="spin multiplicity 2S+1 (default: 1, a closed shell; open shells need the "
-                        "open-shell SCF, not yet available)")
+def add_spin_arguments(parser: Any, *, multiplicity: bool = True) -> None:
+    """--multiplicity (unless ``multiplicity`` is False) and the open-shell method (--uhf | --rohf)."""
+    if multiplicity:
+        parser.add_argument("--multiplicity", type=positive_int, metavar="M",
+                            help="spin multiplicity 2S+1 (default: 1 for an even electron count, 2 for an odd one)")
+    add_method_arguments(parser)
+
+
+def add_method_arguments(parser: Any) -> None:
+    """--uhf | --rohf: the method of every open-shell run (a closed-shell singlet stays RHF unless --uhf)."""
     method = parser.add_mutually_exclusive_group()
     method.add_argument("--uhf", dest="method", action="store_const", const="uhf", default=None,
-                        help="unrestricted open-shell SCF (not yet available)")
+                        help="unrestricted Hartree–Fock for open shells (the default for them); "
+                        "on a singlet, lets the spin symmetry break")
     method.add_argument("--rohf", dest="method", action="store_const", const="rohf",
-                        help="restricted open-shell SCF (not yet available)")
+                        help="restricted open-shell Hartree–Fock for every open shell (singlets stay RHF)")
 
 
 def add_scf_arguments(parser: argparse.ArgumentParser) -> None:
@@ -301,14 +307,47 @@ def scf_options(args: argparse.Namespace) -> Any:
     return run_request(args, mp2=False, frozen_core=False, mp2_fit_basis=None).scf_options()
 
 
-def refuse_open_shell_study(args: argparse.Namespace, molecule: Any, command: str) -> None:
-    """A study runs closed shells only: the request's spin goes through :func:`hfcore.runs.open_shell_engine`."""
-    from ..runs import open_shell_engine
+def check_study_spin(args: argparse.Namespace, molecule: Any, command: str) -> Any:
+    """The one spin check of a study command, before any integral: the molecule with its multiplicity.
 
-    request = run_request(args, geometry=molecule if molecule is not None else "", mp2=False, frozen_core=False,
-                          mp2_fit_basis=None)
-    if open_shell_engine(request, molecule) is not None:
-        raise InputError(f"{command}: open-shell studies are not available yet; run each piece with 'hfcore energy'")
+    ``--multiplicity`` (when the command has it) is checked against the
+    electrons (:func:`hfcore.geometry.check_multiplicity`), and the method
+    against the spin (:func:`hfcore.scf.spin.resolve_method`; ``--uhf``
+    with ``--rohf`` is refused by the parser). ``--mp2`` with ``--rohf`` is
+    refused (no MP2 on ROHF).
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+    molecule : Molecule or None
+        The study's molecule (None for a study of several: only the options
+        are checked).
+    command : str
+        The command's name, for the message.
+
+    Returns
+    -------
+    Molecule or None
+        ``molecule`` with ``--multiplicity`` applied.
+
+    Raises
+    ------
+    InputError
+        One line: an impossible multiplicity, RHF on an open shell, MP2 on ROHF.
+    """
+    from ..scf.spin import resolve_method
+    from ..studies.pieces import piece_method
+
+    method = getattr(args, "method", None)
+    if getattr(args, "mp2", False) and method == "rohf":
+        raise InputError(f"{command}: --mp2 with --rohf: MP2 is built on RHF and UHF only; use --uhf")
+    if molecule is None:
+        return None
+    multiplicity = getattr(args, "multiplicity", None)
+    if multiplicity is not None:
+        molecule = molecule.with_multiplicity(multiplicity)
+    resolve_method(molecule.spin_multiplicity, piece_method(molecule.spin_multiplicity, method))
+    return molecule
 
 
 __all__ = [
@@ -322,6 +361,7 @@ __all__ = [
     "charge",
     "add_geometry_arguments",
     "add_spin_arguments",
+    "add_method_arguments",
     "add_scf_arguments",
     "add_threads_argument",
     "add_stability_argument",
@@ -330,5 +370,5 @@ __all__ = [
     "basis_names",
     "run_request",
     "scf_options",
-    "refuse_open_shell_study",
+    "check_study_spin",
 ]

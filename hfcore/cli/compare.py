@@ -15,7 +15,7 @@ from .arguments import (
     add_stability_argument,
     add_threads_argument,
     basis_names,
-    refuse_open_shell_study,
+    check_study_spin,
     run_request,
 )
 from .console import Console
@@ -25,7 +25,7 @@ from .paths import output_paths, report_written
 def add_parser(sub: Any) -> None:
     """Register ``hfcore compare`` on the subcommand set ``sub``."""
     compare = sub.add_parser("compare", help="one molecule in several basis sets, with basis-limit estimates")
-    add_geometry_arguments(compare)
+    add_geometry_arguments(compare)  # with --multiplicity and --uhf | --rohf
     compare.add_argument(
         "--basis", required=True, metavar="NAMES", help="comma-separated basis names, e.g. sto-3g,6-31g*,cc-pvdz"
     )
@@ -45,15 +45,17 @@ def run(args: argparse.Namespace, console: Console) -> int:
     paths = output_paths(args, "json", "plot")
     names = basis_names(args)
     molecule = read_molecule(run_request(args))
-    refuse_open_shell_study(args, molecule, "compare")
+    molecule = check_study_spin(args, molecule, "compare")
     options = run_request(args).scf_options()
     comparison = compare_bases(
-        molecule, names, spherical=args.spherical, options=options, message_progress=console.study_progress()
+        molecule, names, spherical=args.spherical, options=options, message_progress=console.study_progress(),
+        method=args.method,
     )
     for row in comparison.rows:
         if row.stable is False:
             hint = " (rerun with --stability descend)" if options.stability == "report" else ""
-            console.warn(f"{row.basis}: the RHF solution is unstable, so a lower RHF solution exists{hint}")
+            console.warn(f"{row.basis}: the {row.method or 'RHF'} solution is unstable, so a lower solution exists"
+                         f"{hint}")
     record = export.comparison_record(comparison)
     if "plot" in paths:
         from ..plots import plot_comparison
@@ -66,7 +68,8 @@ def run(args: argparse.Namespace, console: Console) -> int:
         return 0
     # The report comes whole after the runs, so a bad name or an open shell
     # found by compare_bases leaves stdout empty, as for every other error.
-    console.report(f"hfcore {__version__} · basis comparison (restricted Hartree–Fock)")
+    methods = " and ".join(dict.fromkeys(row.method or "RHF" for row in comparison.rows))
+    console.report(f"hfcore {__version__} · basis comparison (Hartree–Fock: {methods})")
     console.report(report.format_molecule(molecule))
     console.report(report.format_comparison(comparison))
     if args.fit_basis is not None:

@@ -15,7 +15,7 @@ from .arguments import (
     add_json_argument,
     add_scf_arguments,
     basis_names,
-    refuse_open_shell_study,
+    check_study_spin,
     scf_options,
 )
 from .console import Console
@@ -125,7 +125,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     names = basis_names(args)
     if args.workers is not None and args.results is None:
         raise InputError("--workers goes with --results")
-    refuse_open_shell_study(args, None, "interaction")
+    check_study_spin(args, None, "interaction")
     molecule = read_xyz(args.geometry, units=args.units)
     fragments = parse_fragments(args.fragments, molecule.n_atoms)
     charges = _parse_charges(args.fragment_charges, len(fragments))

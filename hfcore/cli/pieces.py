@@ -37,7 +37,7 @@ def run_jobs(args: argparse.Namespace, console: Console, jobs: list) -> dict[str
         if say is not None:
             job = record["job"]
             state = f"E = {record['energy']['total']:.10f} Eh" if record["status"] == "ok" else "failed"
-            label = " ".join(f"--{k} {job['options'][k]}" for k in ("atoms", "ghost") if job["options"].get(k))
+            label = " ".join(f"--{k} {job['options'][k]}" for k in ("atoms", "ghost", "multiplicity", "method") if job["options"].get(k))
             say(f"batch job {job['geometry']} {label + ' ' if label else ''}in {job['basis']}: {state}")
 
     workers = min(args.workers or usable_cores(), len(jobs))

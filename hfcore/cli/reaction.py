@@ -14,7 +14,8 @@ from .arguments import (
     add_json_argument,
     add_scf_arguments,
     basis_names,
-    refuse_open_shell_study,
+    add_method_arguments,
+    check_study_spin,
     scf_options,
 )
 from .console import Console
@@ -24,17 +25,20 @@ from .pieces import add_batch_arguments, job_request, run_jobs
 
 def add_parser(sub: Any) -> None:
     """Register ``hfcore reaction`` on the subcommand set ``sub``."""
-    reaction = sub.add_parser("reaction", help="reaction energies from RHF totals in several basis sets")
+    reaction = sub.add_parser("reaction", help="reaction energies from Hartree–Fock totals in several basis sets")
     reaction.add_argument(
         "reactions", nargs="+", metavar="SPEC",
         help="an equation over geometry files, e.g. 'formaldehyde.xyz + hydrogen.xyz -> methanol.xyz', "
         "'2 water.xyz -> water_dimer.xyz' or 'ammonia.xyz + water.xyz -> ammonium.xyz[+1] + hydroxide.xyz[-1]'; "
+        "the spin follows the charge in the brackets: 'water.xyz -> o.xyz[triplet] + 2 h.xyz[doublet]', "
+        "'h2o.xyz[+1 doublet]' (singlet ... sextet; default 1 for an even, 2 for an odd electron count); "
         "several equations share their species",
     )
     reaction.add_argument(
         "--basis", required=True, metavar="NAMES", help="comma-separated basis names, e.g. cc-pvdz,cc-pvtz,cc-pvqz"
     )
-    add_geometry_arguments(reaction, geometry=False, charge_option=False)
+    add_geometry_arguments(reaction, geometry=False, charge_option=False, spin=False)
+    add_method_arguments(reaction)
     add_scf_arguments(reaction)
     add_fit_argument(reaction)
     add_json_argument(reaction)
@@ -47,19 +51,32 @@ def _batch_runner(args: argparse.Namespace, console: Console) -> Any:
     """A runner for :func:`reaction_energies` that sends each species × basis to the batch machinery.
 
     Each piece is a single-run job keyed by the geometry file's content and
-    the request's fields, so a second run with the same results file finds
-    the finished pieces there and runs only the rest.
+    the request's fields (charge, multiplicity and method included), so a
+    second run with the same results file finds the finished pieces there
+    and runs only the rest.
     """
+    import dataclasses
+
     from ..batch import GeometryEntry, make_jobs
+    from ..scf.spin import resolve_method
+    from ..studies.pieces import PieceOutcome
 
     template = job_request(args)
 
-    def run(pieces: Any, species: Any) -> dict[tuple[int, str], tuple[float, float]]:
+    def run(pieces: Any, species: Any) -> dict[tuple[int, str], PieceOutcome]:
         bases = list(dict.fromkeys(p.basis for p in pieces))
-        entries = [GeometryEntry(s.path, s.charge, "reaction") for s in species]
-        jobs, _ = make_jobs(entries, bases, 0, template)
+        jobs, where = [], {}
+        for piece in (p for p in pieces if p.basis == bases[0]):
+            s = species[piece.species]
+            # Open shells name their multiplicity; a singlet keeps the request's default.
+            entry = GeometryEntry(s.path, s.charge, "reaction", s.multiplicity if s.open_shell else None)
+            made, _ = make_jobs([entry], bases, 0, dataclasses.replace(template, method=piece.method))
+            method = resolve_method(s.multiplicity, piece.method).upper()
+            for job in made:
+                where[job.key] = ((piece.species, bases[job.order[1]]), method)
+            jobs.extend(made)
         done = run_jobs(args, console, jobs)
-        return {(job.order[0], bases[job.order[1]]): done[job.key] for job in jobs}
+        return {key: PieceOutcome(*done[job], method=method) for job, (key, method) in where.items()}
 
     return run
 
@@ -72,11 +89,11 @@ def run(args: argparse.Namespace, console: Console) -> int:
     names = basis_names(args)
     if args.workers is not None and args.results is None:
         raise InputError("--workers goes with --results")
-    refuse_open_shell_study(args, None, "reaction")
+    check_study_spin(args, None, "reaction")
     runner = _batch_runner(args, console) if args.results is not None else None
     study = reaction_energies(
         args.reactions, names, units=args.units, spherical=args.spherical, options=scf_options(args),
-        message_progress=console.study_progress(), runner=runner,
+        message_progress=console.study_progress(), runner=runner, method=args.method,
     )
     record = export.reaction_record(study)
     if "plot" in paths:
@@ -90,10 +107,16 @@ def run(args: argparse.Namespace, console: Console) -> int:
         return 0
     from .report_differences import format_reactions
 
-    console.report(f"hfcore {__version__} · reaction energies (restricted Hartree–Fock)")
+    console.report(f"hfcore {__version__} · reaction energies (Hartree–Fock: {_methods(study)})")
     console.report(format_reactions(study))
     report_written(console, paths.values())
     return 0
+
+
+def _methods(study: Any) -> str:
+    """The methods the species ran with, in the trade's words (e.g. ``RHF and UHF``)."""
+    methods = list(dict.fromkeys(study.rows[0].species_methods)) if study.rows else []
+    return " and ".join(methods) if methods else "RHF"
 
 
 __all__ = ["add_parser", "run"]

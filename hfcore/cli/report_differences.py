@@ -87,10 +87,12 @@ def format_reactions(study: Any) -> str:
     """
     lines = [heading("Species")]
     width = max(len(s.label) for s in study.species)
-    lines.append(f"  {'#':>3}  {'species':<{width}}  {'formula':<10} {'charge':>6}")
+    methods = study.rows[0].species_methods if study.rows else ()
+    lines.append(f"  {'#':>3}  {'species':<{width}}  {'formula':<10} {'charge':>6} {'multiplicity':>12}  method")
     for k, s in enumerate(study.species, start=1):
-        lines.append(f"  {k:>3}  {s.label:<{width}}  {s.formula:<10} {s.charge:>+6d}" if s.charge else
-                     f"  {k:>3}  {s.label:<{width}}  {s.formula:<10} {0:>6d}")
+        charge = f"{s.charge:>+6d}" if s.charge else f"{0:>6d}"
+        method = methods[k - 1] if methods else ""
+        lines.append(f"  {k:>3}  {s.label:<{width}}  {s.formula:<10} {charge} {s.multiplicity:>12d}  {method}".rstrip())
     lines.append(heading("Total energies / Eh"))
     lines.append(f"  {'#':>8} " + " ".join(f"{row.basis:>17}" for row in study.rows))
     for k in range(len(study.species)):
@@ -123,7 +125,12 @@ def format_reactions(study: Any) -> str:
         for citation in dict.fromkeys(e.citation for e in study.estimates):
             lines.append(f"  {citation}")
     lines += [f"  note: {note}" for note in study.notes]
-    lines.append("  ΔE = Σ ν E(products) − Σ ν E(reactants), RHF totals at the given geometries (no zero-point energy)")
+    kinds = "/".join(dict.fromkeys(methods)) if methods else "Hartree–Fock"
+    lines.append(f"  ΔE = Σ ν E(products) − Σ ν E(reactants), {kinds} totals at the given geometries (no zero-point "
+                 "energy)")
+    if any(s.open_shell for s in study.species):
+        lines.append("  Hartree–Fock misses electron correlation: atomization and reaction energies of open shells can "
+                     "be far from experiment")
     return "\n".join(lines)
 
 

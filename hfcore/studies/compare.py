@@ -13,6 +13,7 @@ cardinal number; :mod:`hfcore.studies.extrapolation`).
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import time
 from collections.abc import Mapping, Sequence
@@ -26,7 +27,9 @@ from .._deprecation import module_aliases, rename_fields, rename_keywords
 from ..basis import build_basis
 from ..errors import ConvergenceError, InputError
 from ..integrals import overlap
-from ..scf.driver import run_rhf
+from ..scf.open_driver import run_scf
+from ..scf.options import SCFOptions
+from ..scf.spin import resolve_method
 from ..units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
 from .basis_limit import BasisLimit, basis_limit
 from .extrapolation import (
@@ -36,12 +39,11 @@ from .extrapolation import (
     feller_three_point,
     karton_martin_two_point,
 )
-from .pieces import MessageProgress, PieceOutcome, PieceRunner, check_basis_names, collect
+from .pieces import MessageProgress, PieceOutcome, PieceRunner, check_basis_names, collect, piece_method
 
 if TYPE_CHECKING:
     from ..basis.shells import BasisSet
     from ..geometry import Molecule
-    from ..scf.options import SCFOptions
     from ..scf.result import RHFResult
 
 #: Starting guesses of a basis comparison (the SCF's own are :data:`hfcore.scf.GUESSES`).
@@ -80,6 +82,10 @@ class ComparisonRow:
         Verdict of the internal stability analysis of the solution
         (``RHFResult.stability``); None when it was off or the SCF did not
         converge.
+    method : str
+        ``"RHF"``, ``"UHF"`` or ``"ROHF"`` (empty if the runner did not say).
+    s_squared : float or None
+        ⟨S²⟩ of an open-shell run.
     """
 
     basis: str
@@ -93,6 +99,8 @@ class ComparisonRow:
     converged: bool
     guess: str
     stable: bool | None = None
+    method: str = ""
+    s_squared: float | None = None
 
 
 @dataclass(frozen=True)
@@ -239,6 +247,10 @@ class ComparisonPiece:
     projected : bool
         Start from the density of the last converged earlier run, projected
         into this basis (False: from the superposition of atomic densities).
+    multiplicity : int
+        The molecule's multiplicity 2S+1.
+    method : {None, "uhf", "rohf"}
+        The SCF method asked for (None: RHF for a singlet, UHF otherwise).
     """
 
     basis: str
@@ -246,6 +258,8 @@ class ComparisonPiece:
     spherical: bool
     step: int
     projected: bool
+    multiplicity: int = 1
+    method: str | None = None
 
     @property
     def key(self) -> str:
@@ -253,7 +267,8 @@ class ComparisonPiece:
         return self.basis
 
 
-def comparison_pieces(bases: Sequence[BasisSet], names: Sequence[str], guess: str) -> list[ComparisonPiece]:
+def comparison_pieces(bases: Sequence[BasisSet], names: Sequence[str], guess: str, multiplicity: int = 1,
+                      method: str | None = None) -> list[ComparisonPiece]:
     """Every SCF run a basis comparison needs, in the order of ``names``.
 
     Parameters
@@ -263,6 +278,10 @@ def comparison_pieces(bases: Sequence[BasisSet], names: Sequence[str], guess: st
     names : sequence of str
     guess : {"projected", "sad"}
         A resolved comparison guess (not ``"auto"``).
+    multiplicity : int
+        The molecule's 2S+1.
+    method : {None, "uhf", "rohf"}
+        The study's open-shell choice (:func:`~hfcore.studies.pieces.piece_method`).
 
     Returns
     -------
@@ -273,15 +292,16 @@ def comparison_pieces(bases: Sequence[BasisSet], names: Sequence[str], guess: st
     order = sorted(range(len(bases)), key=lambda k: bases[k].n_functions)
     step = {k: n for n, k in enumerate(order, start=1)}
     return [
-        ComparisonPiece(names[k], bases[k].n_functions, bases[k].spherical, step[k], guess == "projected" and step[k] > 1)
+        ComparisonPiece(names[k], bases[k].n_functions, bases[k].spherical, step[k], guess == "projected" and step[k] > 1,
+                        multiplicity, piece_method(multiplicity, method))
         for k in range(len(names))
     ]
 
 
 def _run_one(molecule: Molecule, basis: BasisSet, options: SCFOptions | None, guess: str | np.ndarray) -> tuple[RHFResult, bool]:
-    """(result, converged); an unconverged run keeps its last result."""
+    """(result, converged); an unconverged run keeps its last result (RHF, UHF or ROHF by ``options.method``)."""
     try:
-        result = run_rhf(molecule, basis, options, guess=guess)
+        result = run_scf(molecule, basis, options, guess=guess)
     except ConvergenceError as exc:
         if exc.result is None:
             raise
@@ -318,10 +338,12 @@ def run_comparison_pieces(
     outcomes: dict[str, PieceOutcome] = {}
     results: dict[str, RHFResult] = {}
     previous = None
+    base = options or SCFOptions()
     ordered = sorted(pieces, key=lambda p: p.step)
     for piece in ordered:
         start = time.perf_counter()
         basis = bases[piece.key]
+        options = dataclasses.replace(base, method=piece.method)
         if piece.projected and previous is not None:
             density = project_density(previous[0].density, previous[0].basis, basis, lindep_threshold=_lindep(options))
             used = f"projected from {previous[1]}"
@@ -335,8 +357,10 @@ def run_comparison_pieces(
             n_functions=basis.n_functions,
             iterations=int(result.iterations),
             converged=converged,
-            stable=None if result.stability is None else bool(result.stability.stable),
+            stable=None if getattr(result, "stability", None) is None else bool(result.stability.stable),
             guess=used,
+            method=str(result.method).upper(),
+            s_squared=None if getattr(result, "s_squared", None) is None else float(result.s_squared),
         )
         results[piece.key] = result
         if converged:
@@ -356,13 +380,15 @@ def compare_bases(
     guess: str = "auto",
     message_progress: MessageProgress | None = None,
     runner: PieceRunner | None = None,
+    method: str | None = None,
 ) -> BasisComparison:
-    """RHF energies of one molecule in several basis sets.
+    """Hartree–Fock energies of one molecule in several basis sets.
 
     Parameters
     ----------
     molecule : Molecule
-        A closed-shell molecule.
+        Any multiplicity (``molecule.spin_multiplicity``): RHF for a
+        singlet, UHF (or ``method``) for an open shell.
     names : sequence of str
         Basis names, each different.
     spherical : bool, optional
@@ -387,6 +413,9 @@ def compare_bases(
         :class:`~hfcore.studies.pieces.PieceOutcome` (or a pair energy /
         Eh, seconds) per piece key (the basis name). Such runs are
         independent, so no guess is projected and ``results`` stays empty.
+    method : {None, "uhf", "rohf"}, optional
+        The method of an open shell (a singlet stays RHF unless ``"uhf"``);
+        default ``options.method``.
 
     Returns
     -------
@@ -405,14 +434,19 @@ def compare_bases(
         raise InputError(
             f"unknown guess {guess!r} for a basis comparison: use one of {', '.join(COMPARISON_GUESSES)}"
         )
-    molecule.require_closed_shell()
+    if method is None and options is not None:
+        method = options.method
+    multiplicity = molecule.spin_multiplicity
+    if molecule.n_electrons <= 0:
+        molecule.require_closed_shell()  # its message: nothing to compute
+    resolve_method(multiplicity, piece_method(multiplicity, method))  # RHF on an open shell: before any integral
     if guess == "auto":
         guess = "sad" if molecule.n_atoms == 1 else "projected"
     bases = [build_basis(molecule, name, spherical=spherical) for name in labels]
     if runner is not None:
-        pieces = comparison_pieces(bases, labels, "sad")
+        pieces = comparison_pieces(bases, labels, "sad", multiplicity, method)
         return assemble_comparison(pieces, collect(pieces, runner(pieces)))
-    pieces = comparison_pieces(bases, labels, guess)
+    pieces = comparison_pieces(bases, labels, guess, multiplicity, method)
     outcomes, results = run_comparison_pieces(
         molecule, pieces, dict(zip(labels, bases)), options=options, message_progress=message_progress
     )
@@ -470,6 +504,8 @@ def assemble_comparison(
                 converged=bool(outcome.converged),
                 guess=outcome.guess or "sad",
                 stable=outcome.stable,
+                method=outcome.method,
+                s_squared=outcome.s_squared,
             )
         )
     estimates, notes = basis_limit_estimates(rows, e_ref)

@@ -9,12 +9,16 @@ An equation::
 Each side is a list of species joined by ``+``; a species is a geometry
 file, optionally preceded by a stoichiometric factor (a positive whole
 number, decimal or fraction such as ``1/2``, separated by a space) and
-optionally followed by its charge in square brackets (``[+1]``, ``[-2]``;
-0 without brackets). Elements and charge must balance and every species
-must be a closed shell; :func:`load_reactions` checks all of it when the
-files are read, before anything runs. Identical species (same atoms,
-positions and charge), in one equation or in several, become one
-:class:`Species`.
+optionally followed by square brackets holding its charge (``[+1]``,
+``[-2]``; 0 without one) and then its spin in the trade's words
+(``[triplet]``, ``[+1 doublet]``: singlet, doublet, triplet, quartet,
+quintet, sextet; without a word, 1 for an even and 2 for an odd electron
+count). Elements and charge must balance and every spin must fit its
+species' electrons (:func:`hfcore.geometry.check_multiplicity`);
+:func:`load_reactions` checks all of it when the files are read, before
+anything runs. Identical species (same atoms, positions, charge and
+multiplicity), in one equation or in several, become one :class:`Species`;
+the same file with two spins is two species.
 """
 
 from __future__ import annotations
@@ -27,7 +31,7 @@ from typing import TYPE_CHECKING
 
 from .. import elements
 from ..errors import InputError
-from ..geometry import is_closed_shell
+from ..geometry import check_multiplicity, default_multiplicity
 
 if TYPE_CHECKING:
     from ..geometry import Molecule
@@ -36,6 +40,8 @@ ARROW = "->"
 _TERM = re.compile(r"^(?:(?P<coef>\d+(?:\.\d*)?(?:/\d+)?)\s+)?(?P<path>[^\[\]]+?)\s*(?:\[(?P<charge>[^\]]*)\])?$")
 # A plus sign between species, not the one inside a charge such as [+1].
 _PLUS = re.compile(r"\+(?![^\[]*\])")
+#: The spin words an equation takes after the charge, by multiplicity 2S+1.
+SPIN_WORDS: dict[str, int] = {"singlet": 1, "doublet": 2, "triplet": 3, "quartet": 4, "quintet": 5, "sextet": 6}
 
 
 @dataclass(frozen=True)
@@ -48,17 +54,29 @@ class Species:
         The geometry file as written in the equation.
     charge : int
     molecule : Molecule
-        Read from ``path`` with ``charge``.
+        Read from ``path`` with ``charge``, carrying ``multiplicity``.
+    multiplicity : int
+        Spin multiplicity 2S+1 (the word in the equation, else 1 for an
+        even and 2 for an odd electron count).
     """
 
     path: str
     charge: int
     molecule: "Molecule" = field(repr=False)
+    multiplicity: int = 1
 
     @property
     def label(self) -> str:
-        """The file name, with the charge in brackets when it is not zero."""
-        return self.path + (f"[{self.charge:+d}]" if self.charge else "")
+        """The file name, with the charge (when not zero) and the spin (when not a singlet) in brackets."""
+        inside = [f"{self.charge:+d}"] if self.charge else []
+        if self.multiplicity != 1:
+            inside.append(spin_word(self.multiplicity))
+        return self.path + (f"[{' '.join(inside)}]" if inside else "")
+
+    @property
+    def open_shell(self) -> bool:
+        """True unless the species is a singlet."""
+        return self.multiplicity != 1
 
     @property
     def formula(self) -> str:
@@ -117,31 +135,69 @@ def _coefficient(text: str, spec: str) -> Fraction:
     return value
 
 
-def _charge(text: str, spec: str) -> int:
-    try:
-        return int(text.strip())
-    except ValueError:
-        raise InputError(f"reaction {spec!r}: the charge [{text}] must be a whole number such as [+1] or [-2]") from None
+def spin_word(multiplicity: int) -> str:
+    """The trade's word for a multiplicity (``"triplet"``), or ``"multiplicity M"`` beyond sextet."""
+    for word, m in SPIN_WORDS.items():
+        if m == multiplicity:
+            return word
+    return f"multiplicity {multiplicity}"
+
+
+def _charge_and_spin(text: str, spec: str) -> tuple[int, int | None]:
+    """(charge, multiplicity or None) from the inside of a species' brackets, e.g. ``+1 doublet``."""
+    words = text.split()
+    charge = 0
+    if words and words[0][0] in "+-0123456789":
+        try:
+            charge = int(words.pop(0))
+        except ValueError:
+            raise InputError(f"reaction {spec!r}: the charge [{text}] must be a whole number such as [+1] or [-2]") from None
+    if not words:
+        return charge, None
+    if len(words) > 1:
+        raise InputError(f"reaction {spec!r}: cannot read [{text}]; write the charge then one spin word, e.g. [+1 doublet]")
+    word = words[0].lower()
+    if word not in SPIN_WORDS:
+        raise InputError(
+            f"reaction {spec!r}: unknown spin {words[0]!r} in [{text}]: the charge must be a whole number such as [+1] "
+            f"or [-2], the spin after it one of {', '.join(SPIN_WORDS)}, e.g. [triplet] or [+1 doublet]"
+        )
+    return charge, SPIN_WORDS[word]
 
 
 def parse_reaction(spec: str) -> tuple[list[tuple[Fraction, str, int]], list[tuple[Fraction, str, int]]]:
-    """Split an equation into its terms, without reading any file.
+    """Split an equation into (factor, path, charge) terms, without reading any file.
 
-    Parameters
-    ----------
-    spec : str
-        ``"[factor] file[charge] + ... -> [factor] file[charge] + ..."``.
-
-    Returns
-    -------
-    (reactants, products)
-        Each a list of (factor, path, charge).
+    The spin words are checked but left out; :func:`parse_equation` keeps them.
 
     Raises
     ------
     InputError
-        If there is not exactly one ``->``, a side is empty, or a term is
-        malformed.
+        As :func:`parse_equation`.
+    """
+    left, right = parse_equation(spec)
+    return [t[:3] for t in left], [t[:3] for t in right]
+
+
+def parse_equation(spec: str) -> tuple[list[tuple[Fraction, str, int, int | None]], list[tuple[Fraction, str, int, int | None]]]:
+    """Split an equation into its terms, spins included, without reading any file.
+
+    Parameters
+    ----------
+    spec : str
+        ``"[factor] file[charge spin] + ... -> [factor] file[charge spin] + ..."``.
+
+    Returns
+    -------
+    (reactants, products)
+        Each a list of (factor, path, charge, multiplicity); the
+        multiplicity is ``None`` where no spin word was written.
+
+    Raises
+    ------
+    InputError
+        If there is not exactly one ``->``, a side is empty, a term is
+        malformed or a spin word unknown.
     """
     if spec.count(ARROW) != 1:
         raise InputError(f"reaction {spec!r}: write one '->' between reactants and products, e.g. 'a.xyz + b.xyz -> c.xyz'")
@@ -156,8 +212,10 @@ def parse_reaction(spec: str) -> tuple[list[tuple[Fraction, str, int]], list[tup
             if match is None:
                 raise InputError(f"reaction {spec!r}: cannot read {item!r}; write '[factor] file[charge]', e.g. '2 water.xyz' or 'ammonium.xyz[+1]'")
             coef = _coefficient(match["coef"], spec) if match["coef"] else Fraction(1)
-            charge = _charge(match["charge"], spec) if match["charge"] is not None else 0
-            terms.append((coef, match["path"].strip(), charge))
+            charge, multiplicity = (
+                _charge_and_spin(match["charge"], spec) if match["charge"] is not None else (0, None)
+            )
+            terms.append((coef, match["path"].strip(), charge, multiplicity))
         sides.append(terms)
     return sides[0], sides[1]
 
@@ -200,14 +258,15 @@ def load_reactions(specs: Sequence[str], *, units: str = "angstrom") -> tuple[tu
     Returns
     -------
     (tuple of Species, tuple of Reaction)
-        Distinct species in order of first appearance (identical geometry
-        and charge count once), and the reactions over them.
+        Distinct species in order of first appearance (identical geometry,
+        charge and multiplicity count once), and the reactions over them.
 
     Raises
     ------
     InputError
-        A malformed equation, a missing or bad file, an element or charge
-        imbalance, or a species with an odd electron count.
+        A malformed equation, an unknown spin word, a missing or bad file,
+        an element or charge imbalance, or a spin that does not fit a
+        species' electrons.
     """
     from ..geometry import read_xyz
 
@@ -219,29 +278,35 @@ def load_reactions(specs: Sequence[str], *, units: str = "angstrom") -> tuple[tu
     keys: dict[tuple, int] = {}
     reactions = []
     for spec in specs:
-        reactants, products = parse_reaction(spec)
+        reactants, products = parse_equation(spec)
         sides: list[list[tuple[Fraction, Species]]] = []
         terms: list[tuple[int, Fraction]] = []
         for sign, side in ((-1, reactants), (1, products)):
             resolved = []
-            for coef, path, charge in side:
+            for coef, path, charge, given in side:
                 molecule = read_xyz(path, units=units, charge=charge)
-                key = (molecule.atomic_numbers.tobytes(), molecule.coordinates.tobytes(), charge)
+                multiplicity = _spin_of(spec, path, charge, given, molecule.n_electrons)
+                key = (molecule.atomic_numbers.tobytes(), molecule.coordinates.tobytes(), charge, multiplicity)
                 if key not in keys:
                     keys[key] = len(species)
-                    species.append(Species(path, charge, molecule))
+                    species.append(Species(path, charge, molecule.with_multiplicity(multiplicity), multiplicity))
                 resolved.append((coef, species[keys[key]]))
                 terms.append((keys[key], sign * coef))
             sides.append(resolved)
         _check_balance(spec, sides)
-        for _, s in (term for side in sides for term in side):
-            if not is_closed_shell(s.molecule.n_electrons):
-                raise InputError(
-                    f"reaction {spec!r}: {s.label} has {s.molecule.n_electrons} electrons; RHF needs an even, positive "
-                    f"number: write its charge beside the file, e.g. {s.path}[{s.charge + 1:+d}] or {s.path}[{s.charge - 1:+d}]"
-                )
         reactions.append(Reaction(spec, tuple(terms)))
     return tuple(species), tuple(reactions)
 
 
-__all__ = ["ARROW", "Species", "Reaction", "parse_reaction", "load_reactions"]
+def _spin_of(spec: str, path: str, charge: int, given: int | None, n_electrons: int) -> int:
+    """The multiplicity of one species, checked against its electrons (one line naming the equation)."""
+    where = f"reaction {spec!r}: {path}"
+    if n_electrons <= 0:
+        raise InputError(f"{where}" + (f"[{charge:+d}]" if charge else "") + f" has {n_electrons} electrons; nothing to compute: check its charge")
+    if given is None:
+        return default_multiplicity(n_electrons)
+    inside = (f"{charge:+d} " if charge else "") + spin_word(given)
+    return check_multiplicity(n_electrons, given, f"{where}[{inside}]")
+
+
+__all__ = ["ARROW", "SPIN_WORDS", "spin_word", "Species", "parse_equation", "Reaction", "parse_reaction", "load_reactions"]

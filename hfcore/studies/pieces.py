@@ -48,6 +48,10 @@ class PieceOutcome:
         True if the run took integrals computed for another piece.
     guess : str
         How the run started (e.g. ``"sad"``, ``"projected from 6-31g"``; empty if not reported).
+    method : str
+        ``"RHF"``, ``"UHF"`` or ``"ROHF"`` (empty if not reported).
+    s_squared : float or None
+        ⟨S²⟩ of an open-shell run (None for RHF or if not reported).
     """
 
     energy_total: float
@@ -58,6 +62,8 @@ class PieceOutcome:
     stable: bool | None = None
     reused_integrals: bool = False
     guess: str = ""
+    method: str = ""
+    s_squared: float | None = None
 
 
 #: A runner passed in by the caller: pieces in, outcome by piece key out. A pair
@@ -89,6 +95,43 @@ def collect(pieces: Sequence[Any], reported: Mapping[Hashable, Any]) -> dict[Has
     return out
 
 
+def piece_method(multiplicity: int, method: str | None) -> str | None:
+    """The SCF method a study asks for one species: the study's open-shell choice, applied to open shells.
+
+    ``--uhf`` / ``--rohf`` name the method of every open-shell species; a
+    closed-shell singlet stays RHF unless the choice is UHF (which may then
+    break its spin symmetry).
+
+    Parameters
+    ----------
+    multiplicity : int
+        2S + 1 of the species.
+    method : {None, "rhf", "uhf", "rohf"}
+        The study's choice (None: RHF for singlets, UHF for open shells).
+
+    Returns
+    -------
+    str or None
+        The value for :attr:`hfcore.scf.SCFOptions.method`.
+    """
+    name = method.lower() if isinstance(method, str) else method
+    if multiplicity == 1 and name != "uhf":
+        return None
+    return name
+
+
+def outcome_of_result(result: Any, seconds: float, n_functions: int, *, converged: bool = True,
+                      guess: str = "") -> PieceOutcome:
+    """The :class:`PieceOutcome` of an RHF, UHF or ROHF result."""
+    stability = getattr(result, "stability", None)
+    s_squared = getattr(result, "s_squared", None)
+    return PieceOutcome(
+        float(result.energy_total), float(seconds), int(n_functions), int(result.iterations), converged,
+        None if stability is None else bool(stability.stable), False, guess, str(result.method).upper(),
+        None if s_squared is None else float(s_squared),
+    )
+
+
 def check_basis_names(names: Sequence[str]) -> list[str]:
     """The basis names of a study as strings, after checking there is at least one and none repeats.
 
@@ -109,4 +152,4 @@ def check_basis_names(names: Sequence[str]) -> list[str]:
     return out
 
 
-__all__ = ["MessageProgress", "PieceOutcome", "PieceRunner", "outcome_of", "collect", "check_basis_names"]
+__all__ = ["MessageProgress", "PieceOutcome", "piece_method", "outcome_of_result", "PieceRunner", "outcome_of", "collect", "check_basis_names"]

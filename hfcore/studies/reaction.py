@@ -1,8 +1,10 @@
-"""Reaction energies from RHF totals, across basis sets.
+"""Reaction energies from Hartree–Fock totals, across basis sets.
 
 The equations and their syntax are in :mod:`hfcore.studies.equations`.
 The reaction energy is ΔE = Σ ν E(products) − Σ ν E(reactants) with the
-RHF total energies at the given geometries (no zero-point or thermal
+Hartree–Fock total energies at the given geometries: RHF for closed-shell
+singlets, UHF (or ROHF, with ``method="rohf"``) for open shells
+(:func:`hfcore.studies.pieces.piece_method`) (no zero-point or thermal
 terms). Each distinct species is computed once per basis. Basis-limit
 estimates of ΔE come from the species' extrapolated totals, with the two
 formulas of :func:`hfcore.studies.compare.series_estimates`; the
@@ -18,6 +20,7 @@ runs them elsewhere; :func:`assemble_reactions` makes the record.
 
 from __future__ import annotations
 
+import dataclasses
 import time
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
@@ -25,17 +28,18 @@ from typing import TYPE_CHECKING
 
 from .._deprecation import rename_fields, rename_keywords
 from ..basis import build_basis
-from ..errors import ConvergenceError
-from ..scf.driver import run_rhf
+from ..errors import ConvergenceError, InputError
+from ..scf.open_driver import run_scf
+from ..scf.options import SCFOptions
+from ..scf.spin import resolve_method
 from ..units import KCAL_MOL_PER_HARTREE, KJ_MOL_PER_HARTREE
 from .compare import correlation_consistent_series, series_estimates
 from .basis_limit import BasisLimit, basis_limit
 from .equations import Reaction, Species, load_reactions, parse_reaction  # noqa: F401  (part of this module's API)
-from .pieces import MessageProgress, PieceOutcome, check_basis_names, collect
+from .pieces import MessageProgress, PieceOutcome, check_basis_names, collect, outcome_of_result, piece_method
 
 if TYPE_CHECKING:
     from ..basis.shells import BasisSet
-    from ..scf.options import SCFOptions
 
 
 @dataclass(frozen=True)
@@ -44,13 +48,19 @@ class ReactionPiece:
 
     Attributes
     ----------
-    species : int
+    species: int
         Index into the study's species.
     basis : str
+    multiplicity : int
+        The species' multiplicity 2S+1.
+    method : {None, "uhf", "rohf"}
+        The SCF method asked for (None: RHF for a singlet, UHF otherwise).
     """
 
     species: int
     basis: str
+    multiplicity: int = 1
+    method: str | None = None
 
     @property
     def key(self) -> tuple[int, str]:
@@ -58,19 +68,24 @@ class ReactionPiece:
         return (self.species, self.basis)
 
 
-def reaction_pieces(species: Sequence[Species], bases: Sequence[str]) -> list[ReactionPiece]:
+def reaction_pieces(species: Sequence[Species], bases: Sequence[str], method: str | None = None) -> list[ReactionPiece]:
     """Every SCF run a reaction study needs: each distinct species in each basis, basis by basis.
 
     Parameters
     ----------
     species : sequence of Species
     bases : sequence of str
+    method : {None, "uhf", "rohf"}
+        The open-shell method of the study (applied by :func:`~hfcore.studies.pieces.piece_method`).
 
     Returns
     -------
     list of ReactionPiece
     """
-    return [ReactionPiece(k, name) for name in bases for k in range(len(species))]
+    return [
+        ReactionPiece(k, name, s.multiplicity, piece_method(s.multiplicity, method))
+        for name in bases for k, s in enumerate(species)
+    ]
 
 
 @dataclass(frozen=True)
@@ -93,6 +108,8 @@ class ReactionRow:
         Wall-clock time of this basis' runs (summed over its pieces).
     species_functions : tuple of int
         Basis functions of each species.
+    species_methods : tuple of str
+        ``"RHF"``, ``"UHF"`` or ``"ROHF"`` of each species' run (empty if the runner did not say).
     """
 
     basis: str
@@ -103,6 +120,7 @@ class ReactionRow:
     deltas: tuple[float, ...]
     wall_seconds: float
     species_functions: tuple[int, ...] = ()
+    species_methods: tuple[str, ...] = ()
 
     def reaction_functions(self, reaction: Reaction) -> int:
         """Basis functions summed over the distinct species of one reaction."""
@@ -204,8 +222,10 @@ class ReactionStudy:
         spread, limits = self.spread(), self.limits()
         return {
             "species": [
-                {"path": s.path, "charge": s.charge, "formula": s.formula, "source": s.molecule.source}
-                for s in self.species
+                {"path": s.path, "charge": s.charge, "multiplicity": s.multiplicity, "formula": s.formula,
+                 "source": s.molecule.source,
+                 "method": self.rows[0].species_methods[k] if self.rows and self.rows[0].species_methods else None}
+                for k, s in enumerate(self.species)
             ],
             "reactions": [
                 {"equation": r.text, "terms": [{"species": k, "factor": float(nu)} for k, nu in r.terms],
@@ -220,6 +240,7 @@ class ReactionStudy:
                     "spherical": row.spherical,
                     "species_energies": list(row.species_energies),
                     "species_functions": list(row.species_functions),
+                    "species_methods": list(row.species_methods),
                     **units(row.reaction_energies, "reaction_energies"),
                     **units(row.deltas, "deltas"),
                     "wall_seconds": row.wall_seconds,
@@ -284,25 +305,39 @@ def run_reaction_pieces(
     ConvergenceError
         If a run does not converge (naming the species and basis).
     """
+    base = options or SCFOptions()
     out: dict[tuple[int, str], PieceOutcome] = {}
     for step, piece in enumerate(pieces, start=1):
         t0 = time.perf_counter()
         basis = bases[piece.key]
+        run_options = dataclasses.replace(base, method=piece.method)
         try:
-            result = run_rhf(species[piece.species].molecule, basis, options)
+            result = run_scf(species[piece.species].molecule, basis, run_options)
         except ConvergenceError as exc:
             raise ConvergenceError(f"{species[piece.species].label} in {piece.basis}: {exc}", exc.result) from None
-        seconds = time.perf_counter() - t0
-        out[piece.key] = PieceOutcome(
-            float(result.energy_total), seconds, basis.n_functions, int(result.iterations), True,
-            None if result.stability is None else bool(result.stability.stable),
-        )
+        out[piece.key] = outcome_of_result(result, time.perf_counter() - t0, basis.n_functions)
         if message_progress is not None:
             message_progress(
-                f"[{step}/{len(pieces)}] {piece.basis}, {species[piece.species].label} ({basis.n_functions} functions): "
-                f"E = {result.energy_total:.10f} Eh after {result.iterations} iterations in {time.perf_counter() - t0:.2f} s"
+                f"[{step}/{len(pieces)}] {piece.basis}, {species[piece.species].label} ({basis.n_functions} functions, "
+                f"{result.method}): E = {result.energy_total:.10f} Eh after {result.iterations} iterations in "
+                f"{time.perf_counter() - t0:.2f} s"
             )
     return out
+
+
+def check_piece_methods(pieces: Sequence[ReactionPiece], species: Sequence[Species]) -> None:
+    """Each piece's method against its species' spin (before any integral).
+
+    Raises
+    ------
+    InputError
+        RHF asked for an open-shell species.
+    """
+    for piece in pieces:
+        try:
+            resolve_method(piece.multiplicity, piece.method)
+        except InputError as exc:
+            raise InputError(f"{species[piece.species].label}: {exc}") from None
 
 
 @rename_keywords({"progress": "message_progress"})
@@ -315,8 +350,9 @@ def reaction_energies(
     options: SCFOptions | None = None,
     message_progress: MessageProgress | None = None,
     runner: PieceRunner | None = None,
+    method: str | None = None,
 ) -> ReactionStudy:
-    """RHF reaction energies of one or more equations in several basis sets.
+    """Hartree–Fock reaction energies of one or more equations in several basis sets.
 
     Parameters
     ----------
@@ -338,6 +374,10 @@ def reaction_energies(
         outcome of each piece keyed by ``(species index, basis)``: a
         :class:`~hfcore.studies.pieces.PieceOutcome` or a pair (total energy
         / hartree, wall time / seconds), e.g. through the batch machinery.
+    method : {None, "uhf", "rohf"}, optional
+        The method of every open-shell species (a closed-shell singlet stays
+        RHF unless ``"uhf"``); default ``options.method``, else UHF for open
+        shells.
 
     Returns
     -------
@@ -346,8 +386,9 @@ def reaction_energies(
     Raises
     ------
     InputError
-        Malformed or unbalanced equations, bad geometry files, open shells,
-        repeated bases: all before any SCF runs.
+        Malformed or unbalanced equations, unknown spin words, spins that do
+        not fit the electrons, bad geometry files, repeated bases: all
+        before any SCF runs.
     BasisError
         A basis that is unknown or misses an element (checked up front).
     ConvergenceError
@@ -358,7 +399,10 @@ def reaction_energies(
     basis_of = {
         (k, name): build_basis(s.molecule, name, spherical=spherical) for name in names for k, s in enumerate(species)
     }
-    pieces = reaction_pieces(species, names)
+    if method is None and options is not None:
+        method = options.method
+    pieces = reaction_pieces(species, names, method)
+    check_piece_methods(pieces, species)
     started = time.perf_counter()
     if runner is not None:
         outcomes = collect(pieces, runner(pieces, species))
@@ -409,7 +453,9 @@ def assemble_reactions(
         rows.append(
             ReactionRow(name, size[name], bases[(0, name)].spherical, per_basis[name], de,
                         tuple(a - b for a, b in zip(de, ref_de)), seconds,
-                        tuple(bases[(k, name)].n_functions for k in range(n)))
+                        tuple(bases[(k, name)].n_functions for k in range(n)),
+                        tuple(outcomes[(k, name)].method for k in range(n)) if all(
+                            outcomes[(k, name)].method for k in range(n)) else ())
         )
     estimates, notes = _estimates(species, reactions, names, bases, outcomes)
     return ReactionStudy(tuple(species), tuple(reactions), tuple(rows), reference, tuple(estimates), tuple(notes),
