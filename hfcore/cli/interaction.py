@@ -40,6 +40,12 @@ def add_parser(sub: Any) -> None:
         "must be attached with '=': --fragment-charges=-1,1)",
     )
     interaction.add_argument(
+        "--fragment-multiplicities", metavar="M,M",
+        help="spin multiplicity 2S+1 of each fragment, e.g. --fragment-multiplicities=2,2 (default: 1 for an even, "
+        "2 for an odd electron count); the complex takes --multiplicity, or by default the high-spin coupling "
+        "M = 1 + Σ (M_i − 1)",
+    )
+    interaction.add_argument(
         "--basis", required=True, metavar="NAMES", help="comma-separated basis names, e.g. sto-3g,6-31g,cc-pvdz"
     )
     add_scf_arguments(interaction)
@@ -59,6 +65,8 @@ def _batch_runner(args: argparse.Namespace, console: Console) -> Any:
     computes its own integrals.
     """
     from ..batch import GeometryEntry, make_jobs
+    from ..scf.spin import resolve_method
+    from ..studies.pieces import PieceOutcome
     from .report import atom_ranges
 
     def run(pieces: Any) -> dict[tuple, tuple[float, float]]:
@@ -68,13 +76,16 @@ def _batch_runner(args: argparse.Namespace, console: Console) -> Any:
             extra = {"atoms": atom_ranges(piece.atoms)} if piece.kind == "own basis" else {}
             if piece.kind == "full basis":
                 extra = {"ghost": atom_ranges(piece.ghosts)}
-            made, _ = make_jobs([GeometryEntry(args.geometry, piece.charge, "interaction")], bases, 0,
-                                job_request(args, **extra))
+            # A singlet keeps the request's default multiplicity, so closed-shell jobs keep their keys.
+            spin = piece.multiplicity if piece.multiplicity not in (None, 1) else None
+            made, _ = make_jobs([GeometryEntry(args.geometry, piece.charge, "interaction", spin)], bases, 0,
+                                job_request(args, multiplicity=spin, method=piece.method, **extra))
+            method = resolve_method(piece.multiplicity or 1, piece.method).upper()
             for job in made:
-                where[job.key] = (bases[job.order[1]], piece.kind, piece.fragment)
+                where[job.key] = ((bases[job.order[1]], piece.kind, piece.fragment), method)
             jobs.extend(made)
         done = run_jobs(args, console, jobs)
-        return {where[key]: value for key, value in done.items()}
+        return {where[key][0]: PieceOutcome(*value, method=where[key][1]) for key, value in done.items()}
 
     return run
 
@@ -116,6 +127,21 @@ def _parse_charges(text: str | None, count: int) -> list[int] | None:
     return charges
 
 
+def _parse_multiplicities(text: str | None, count: int) -> list[int] | None:
+    if text is None:
+        return None
+    try:
+        spins = [int(item) for item in text.split(",")]
+    except ValueError:
+        raise InputError(f"--fragment-multiplicities {text!r}: expected whole numbers 2S+1 separated by commas, "
+                         "e.g. 2,2") from None
+    if len(spins) != count:
+        raise InputError(f"--fragment-multiplicities {text!r}: {len(spins)} multiplicities for {count} fragments")
+    if any(m < 1 for m in spins):
+        raise InputError(f"--fragment-multiplicities {text!r}: a multiplicity is 2S+1, at least 1")
+    return spins
+
+
 def run(args: argparse.Namespace, console: Console) -> int:
     """``hfcore interaction``: run the pieces, then report, write JSON and plot."""
     from ..studies.interaction import interaction_energies
@@ -129,10 +155,12 @@ def run(args: argparse.Namespace, console: Console) -> int:
     molecule = read_xyz(args.geometry, units=args.units)
     fragments = parse_fragments(args.fragments, molecule.n_atoms)
     charges = _parse_charges(args.fragment_charges, len(fragments))
+    spins = _parse_multiplicities(args.fragment_multiplicities, len(fragments))
     runner = _batch_runner(args, console) if args.results is not None else None
     study = interaction_energies(
         molecule, fragments, names, fragment_charges=charges, spherical=args.spherical, options=scf_options(args),
-        message_progress=console.study_progress(), runner=runner,
+        message_progress=console.study_progress(), runner=runner, fragment_multiplicities=spins,
+        multiplicity=args.multiplicity, method=args.method,
     )
     record = export.interaction_record(study)
     if "plot" in paths:
@@ -146,8 +174,10 @@ def run(args: argparse.Namespace, console: Console) -> int:
         return 0
     from .report_differences import format_interaction
 
-    console.report(f"hfcore {__version__} · interaction energies (restricted Hartree–Fock)")
-    console.report(report.format_molecule(molecule.with_charge(sum(study.fragment_charges))))
+    methods = " and ".join(dict.fromkeys(p.method or "RHF" for p in study.pieces)) or "RHF"
+    console.report(f"hfcore {__version__} · interaction energies (Hartree–Fock: {methods})")
+    console.report(report.format_molecule(
+        molecule.with_charge(sum(study.fragment_charges)).with_multiplicity(study.multiplicity)))
     console.report(format_interaction(study))
     report_written(console, paths.values())
     return 0

@@ -31,9 +31,13 @@ def format_interaction(study: Any) -> str:
     """
     n = len(study.fragments)
     lines = [heading("Fragments")]
-    for k, (atoms, charge) in enumerate(zip(study.fragments, study.fragment_charges), start=1):
-        lines.append(f"  fragment {k}   atoms {atom_ranges(atoms):<12} charge {charge:+d}" if charge else
-                     f"  fragment {k}   atoms {atom_ranges(atoms):<12} charge 0")
+    spins = study.fragment_multiplicities or (1,) * n
+    for k, (atoms, charge, spin) in enumerate(zip(study.fragments, study.fragment_charges, spins), start=1):
+        text = f"charge {charge:+d}" if charge else "charge 0"
+        lines.append(f"  fragment {k}   atoms {atom_ranges(atoms):<12} {text:<10} multiplicity {spin}")
+    how = "as given" if study.multiplicity_rule == "given" else \
+        "from the high-spin coupling of the fragments, 1 + Σ (M_i − 1)"
+    lines.append(f"  complex: multiplicity {study.multiplicity} ({how})")
     lines.append(heading("Total energies / Eh"))
     head = f"  {'basis':<14} {'functions':>9} {'complex':>17}"
     for k in range(1, n + 1):
@@ -57,6 +61,10 @@ def format_interaction(study: Any) -> str:
         if attr != "superposition_error":
             lines.append(f"  basis limit: {study.limit(attr).describe('kJ/mol')}")
     lines.append(f"\n  counterpoise correction: {study.citation}")
+    methods = list(dict.fromkeys(p.method for p in study.pieces if p.method))
+    if len(methods) > 1 or methods[:1] not in ([], ["RHF"]):
+        lines.append("  methods: " + ", ".join(f"{p.piece.label} in {p.piece.basis} {p.method}" for p in study.pieces
+                                               if p.piece.basis == study.rows[0].basis))
     runs = len(study.pieces)
     reused = sum(p.reused_integrals for p in study.pieces)
     cost = f"  {runs} SCF runs in {study.wall_seconds:.2f} s"

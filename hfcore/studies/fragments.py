@@ -45,6 +45,12 @@ class InteractionPiece:
         0-based atoms present only through their basis functions.
     charge : int
         Total charge of the run.
+    multiplicity : int or None
+        Spin multiplicity 2S+1 of the run: the fragment's in both of its
+        bases, the complex's for the complex (None: the default of the
+        electron count).
+    method : {None, "uhf", "rohf"}
+        The SCF method asked for (None: RHF for a singlet, UHF otherwise).
     """
 
     basis: str
@@ -53,6 +59,8 @@ class InteractionPiece:
     atoms: tuple[int, ...]
     ghosts: tuple[int, ...]
     charge: int
+    multiplicity: int | None = None
+    method: str | None = None
 
     @property
     def key(self) -> tuple[str, str, int | None]:
@@ -78,11 +86,14 @@ class InteractionPiece:
         -------
         Molecule
             The complex, the fragment alone, or the complex with ghosts (same
-            atom order as the complex, so the same basis functions).
+            atom order as the complex, so the same basis functions), with
+            the piece's multiplicity (checked against its electrons).
         """
         if self.kind == "own basis":
-            return complex_molecule.subset(self.atoms, self.charge)
-        return complex_molecule.with_charge(self.charge).with_ghosts(self.ghosts)
+            cut = complex_molecule.subset(self.atoms, self.charge)
+        else:
+            cut = complex_molecule.with_multiplicity(None).with_charge(self.charge).with_ghosts(self.ghosts)
+        return cut.with_multiplicity(self.multiplicity)
 
 
 @dataclass(frozen=True)
@@ -103,6 +114,8 @@ class PieceResult:
     reused_integrals : bool
         True if the run took the complex's overlap, kinetic and
         two-electron integrals instead of computing them.
+    method : str
+        ``"RHF"``, ``"UHF"`` or ``"ROHF"`` (empty if the runner did not say).
     """
 
     piece: InteractionPiece
@@ -111,6 +124,7 @@ class PieceResult:
     iterations: int
     wall_seconds: float
     reused_integrals: bool
+    method: str = ""
 
 
 @dataclass(frozen=True)
@@ -195,6 +209,14 @@ class InteractionStudy:
     batch : bool
         True if the pieces ran as batch jobs (their times are the jobs'
         own, possibly from an earlier run recorded in the results file).
+    fragment_multiplicities : tuple of int
+        2S+1 of each fragment.
+    multiplicity : int
+        2S+1 of the complex.
+    multiplicity_rule : str
+        How the complex's multiplicity was set: ``"given"`` or
+        ``"high-spin coupling"`` (M = 1 + Σ (M_i − 1), every fragment's
+        unpaired electrons parallel).
     """
 
     source: str
@@ -206,6 +228,9 @@ class InteractionStudy:
     wall_seconds: float = 0.0
     citation: str = BOYS_BERNARDI_CITATION
     batch: bool = False
+    fragment_multiplicities: tuple[int, ...] = ()
+    multiplicity: int = 1
+    multiplicity_rule: str = "given"
 
     @property
     def integral_seconds_saved(self) -> float:
@@ -230,6 +255,9 @@ class InteractionStudy:
             "source": self.source,
             "fragments": [list(f) for f in self.fragments],
             "fragment_charges": list(self.fragment_charges),
+            "fragment_multiplicities": list(self.fragment_multiplicities),
+            "multiplicity": self.multiplicity,
+            "multiplicity_rule": self.multiplicity_rule,
             "rows": [row.to_dict() for row in self.rows],
             "limit": self.limit().to_dict(),
             "limit_raw": self.limit("raw").to_dict(),
@@ -238,6 +266,8 @@ class InteractionStudy:
                     "basis": p.piece.basis,
                     "kind": p.piece.kind,
                     "fragment": p.piece.fragment,
+                    "multiplicity": p.piece.multiplicity,
+                    "method": p.method,
                     "energy_total": p.energy_total,
                     "n_functions": p.n_functions,
                     "iterations": p.iterations,
@@ -309,8 +339,17 @@ def check_fragments(
     return parts, q
 
 
+HIGH_SPIN = "high-spin coupling"
+
+
+def complex_multiplicity(fragment_multiplicities: Sequence[int]) -> int:
+    """The high-spin coupling of fragment spins: M = 1 + Σ (M_i − 1), every unpaired electron parallel."""
+    return 1 + sum(int(m) - 1 for m in fragment_multiplicities)
+
+
 def interaction_pieces(
-    n_atoms: int, fragments: Sequence[Sequence[int]], bases: Sequence[str], charges: Sequence[int] | None = None
+    n_atoms: int, fragments: Sequence[Sequence[int]], bases: Sequence[str], charges: Sequence[int] | None = None,
+    multiplicities: Sequence[int | None] | None = None, multiplicity: int | None = None, method: str | None = None,
 ) -> list[InteractionPiece]:
     """Every SCF run an interaction calculation needs, per basis in order.
 
@@ -325,20 +364,34 @@ def interaction_pieces(
         0-based atoms of each fragment.
     bases : sequence of str
     charges : sequence of int, optional
+    multiplicities : sequence of int or None, optional
+        2S+1 of each fragment (None: the default of its electron count).
+    multiplicity : int, optional
+        2S+1 of the complex (None: the default of its electron count).
+    method : {None, "uhf", "rohf"}
+        The study's open-shell method (:func:`~hfcore.studies.pieces.piece_method`
+        per piece; a piece whose multiplicity is None counts as a singlet here).
 
     Returns
     -------
     list of InteractionPiece
     """
+    from .pieces import piece_method
+
     parts, q = check_fragments(n_atoms, fragments, charges)
+    spins = tuple(multiplicities) if multiplicities is not None else (None,) * len(parts)
+    if len(spins) != len(parts):
+        raise InputError(f"{len(spins)} fragment multiplicities for {len(parts)} fragments")
     pieces = []
     everything = tuple(range(n_atoms))
     for name in bases:
-        pieces.append(InteractionPiece(name, "complex", None, everything, (), sum(q)))
+        pieces.append(InteractionPiece(name, "complex", None, everything, (), sum(q), multiplicity,
+                                       piece_method(multiplicity or 1, method)))
         for kind in ("own basis", "full basis"):
             for k, part in enumerate(parts):
                 others = tuple(a for a in everything if a not in part) if kind == "full basis" else ()
-                pieces.append(InteractionPiece(name, kind, k, part, others, q[k]))
+                pieces.append(InteractionPiece(name, kind, k, part, others, q[k], spins[k],
+                                               piece_method(spins[k] or 1, method)))
     return pieces
 
 
@@ -350,5 +403,7 @@ __all__ = [
     "InteractionRow",
     "InteractionStudy",
     "check_fragments",
+    "complex_multiplicity",
+    "HIGH_SPIN",
     "interaction_pieces",
 ]

@@ -27,6 +27,7 @@ elsewhere; :func:`assemble_interaction` makes the record.
 
 from __future__ import annotations
 
+import dataclasses
 import time
 from collections.abc import Callable, Mapping, Sequence
 from typing import TYPE_CHECKING
@@ -36,24 +37,29 @@ import numpy as np
 from .._deprecation import rename_keywords
 from ..basis import build_basis
 from ..errors import ConvergenceError, InputError
-from ..scf.driver import prepare_integrals, run_rhf
+from ..geometry import check_multiplicity, default_multiplicity
+from ..scf.driver import prepare_integrals
+from ..scf.open_driver import run_scf
+from ..scf.options import SCFOptions
+from ..scf.spin import resolve_method
 from .fragments import (  # noqa: F401  (re-exported: the records belong to this module's API)
     BOYS_BERNARDI_CITATION,
+    HIGH_SPIN,
     KINDS,
     InteractionPiece,
     InteractionRow,
     InteractionStudy,
     PieceResult,
     check_fragments,
+    complex_multiplicity,
     interaction_pieces,
 )
-from .pieces import MessageProgress, PieceOutcome, check_basis_names, collect
+from .pieces import MessageProgress, PieceOutcome, check_basis_names, collect, outcome_of_result
 
 if TYPE_CHECKING:
     from ..basis.shells import BasisSet
     from ..geometry import Molecule
     from ..scf.driver import SharedIntegrals
-    from ..scf.options import SCFOptions
     from ..scf.result import RHFResult
 
 
@@ -96,13 +102,14 @@ def run_piece(
     molecule = piece.molecule(complex_molecule)
     if basis is None:
         basis = shared.basis if shared is not None else build_basis(molecule, piece.basis, spherical=spherical)
+    run_options = dataclasses.replace(options or SCFOptions(), method=piece.method)
     try:
-        result = run_rhf(molecule, basis, options, guess=guess, shared=shared)
+        result = run_scf(molecule, basis, run_options, guess=guess, shared=shared)
     except ConvergenceError as exc:
         raise ConvergenceError(f"{piece.basis}, {piece.label}: {exc}", exc.result) from None
     seconds = time.perf_counter() - start
     summary = PieceResult(piece, float(result.energy_total), basis.n_functions, int(result.iterations), seconds,
-                          shared is not None and piece.kind != "complex")
+                          shared is not None and piece.kind != "complex", str(result.method).upper())
     return summary, result
 
 
@@ -184,7 +191,7 @@ def run_interaction_pieces(
     times: dict[str, tuple[float, float]] = {}
     for name in dict.fromkeys(p.basis for p in pieces):
         t0 = time.perf_counter()
-        shared = prepare_integrals(bases[name], options, molecule=molecule.with_charge(_complex_charge(pieces, name))) \
+        shared = prepare_integrals(bases[name], options, molecule=molecule.with_multiplicity(None).with_charge(_complex_charge(pieces, name))) \
             if reuse_integrals else None
         integral_seconds = shared.wall_seconds if shared is not None else 0.0
         densities: dict[int, np.ndarray] = {}
@@ -204,13 +211,13 @@ def run_interaction_pieces(
                 seconds += shared.wall_seconds  # it paid for them
             if piece.kind == "complex" and shared is None:
                 integral_seconds = result.timings["integrals"]
-            outcomes[piece.key] = PieceOutcome(
-                summary.energy_total, seconds, summary.n_functions, summary.iterations, True,
-                None if result.stability is None else bool(result.stability.stable), summary.reused_integrals,
+            outcomes[piece.key] = dataclasses.replace(
+                outcome_of_result(result, seconds, summary.n_functions), reused_integrals=summary.reused_integrals
             )
             if message_progress is not None:
                 message_progress(
-                    f"[{len(outcomes)}/{len(pieces)}] {name}, {piece.label} ({summary.n_functions} functions): "
+                    f"[{len(outcomes)}/{len(pieces)}] {name}, {piece.label} ({summary.n_functions} functions, "
+                    f"{summary.method}): "
                     f"E = {summary.energy_total:.10f} Eh after {summary.iterations} iterations in {seconds:.2f} s"
                 )
         times[name] = (time.perf_counter() - t0, integral_seconds)
@@ -233,6 +240,9 @@ def interaction_energies(
     reuse_integrals: bool = True,
     message_progress: MessageProgress | None = None,
     runner: Callable[[Sequence[InteractionPiece]], Mapping[tuple, object]] | None = None,
+    fragment_multiplicities: Sequence[int] | None = None,
+    multiplicity: int | None = None,
+    method: str | None = None,
 ) -> InteractionStudy:
     """Raw and counterpoise-corrected interaction energies in several bases.
 
@@ -263,6 +273,15 @@ def interaction_energies(
         returns the outcome of each piece keyed by ``(basis, kind,
         fragment)``: a :class:`~hfcore.studies.pieces.PieceOutcome` or a
         pair (total energy / hartree, wall time / seconds).
+    fragment_multiplicities : sequence of int, optional
+        2S+1 of each fragment (default: 1 for an even, 2 for an odd electron
+        count), in both of its bases.
+    multiplicity : int, optional
+        2S+1 of the complex; by default the high-spin coupling of the
+        fragments, M = 1 + Σ (M_i − 1).
+    method : {None, "uhf", "rohf"}, optional
+        The method of every open-shell piece (singlets stay RHF unless
+        ``"uhf"``); default ``options.method``.
 
     Returns
     -------
@@ -271,19 +290,28 @@ def interaction_energies(
     Raises
     ------
     InputError
-        Bad fragments or charges, an open-shell piece, repeated bases; all
-        checked before any SCF runs.
+        Bad fragments, charges or multiplicities (checked against each
+        piece's electrons), repeated bases; all checked before any SCF runs.
     BasisError
         A basis that is unknown or misses an element (checked up front).
     ConvergenceError
         If a run does not converge.
     """
     names = check_basis_names(bases)
-    pieces = interaction_pieces(molecule.n_atoms, fragments, names, fragment_charges)
     parts, charges = check_fragments(molecule.n_atoms, fragments, fragment_charges)
+    if method is None and options is not None:
+        method = options.method
+    spins, total, rule = _multiplicities(molecule, parts, charges, fragment_multiplicities, multiplicity)
+    pieces = interaction_pieces(molecule.n_atoms, parts, names, charges, spins, total, method)
     for piece in pieces[: 1 + 2 * len(parts)]:
-        piece.molecule(molecule).require_closed_shell()
-    complex_molecule = molecule.with_charge(sum(charges))
+        run = piece.molecule(molecule)
+        if run.n_electrons <= 0:
+            run.require_closed_shell()  # its message: nothing to compute
+        try:
+            resolve_method(run.spin_multiplicity, piece.method)
+        except InputError as exc:
+            raise InputError(f"{piece.label}: {exc}") from None
+    complex_molecule = molecule.with_multiplicity(None).with_charge(sum(charges)).with_multiplicity(total)
     basis_of = {name: build_basis(complex_molecule, name, spherical=spherical) for name in names}
     own_basis = {
         (p.basis, p.fragment): build_basis(p.molecule(molecule), p.basis, spherical=spherical)
@@ -299,10 +327,31 @@ def interaction_energies(
         outcomes, times = run_interaction_pieces(
             molecule, pieces, basis_of, own_basis, options=options, reuse_integrals=reuse_integrals, message_progress=message_progress
         )
-    return assemble_interaction(
+    study = assemble_interaction(
         molecule.source, parts, charges, pieces, basis_of, own_basis, outcomes, times,
         reuse_integrals=reuse_integrals, wall_seconds=time.perf_counter() - started,
     )
+    return dataclasses.replace(study, fragment_multiplicities=spins, multiplicity=total, multiplicity_rule=rule)
+
+
+def _multiplicities(
+    molecule: Molecule, parts: Sequence[tuple[int, ...]], charges: Sequence[int],
+    given: Sequence[int] | None, multiplicity: int | None,
+) -> tuple[tuple[int, ...], int, str]:
+    """(fragment multiplicities, the complex's, how it was set), each checked against its electrons."""
+    if given is not None and len(given) != len(parts):
+        raise InputError(f"{len(given)} fragment multiplicities for {len(parts)} fragments")
+    spins = []
+    for k, (part, q) in enumerate(zip(parts, charges)):
+        n = molecule.subset(part, q).n_electrons
+        m = default_multiplicity(n) if given is None else int(given[k])
+        spins.append(check_multiplicity(n, m, f"{molecule.source}: fragment {k + 1} (charge {q:+d})"))
+    n_complex = molecule.with_multiplicity(None).with_charge(sum(charges)).n_electrons
+    rule = "given"
+    if multiplicity is None:
+        multiplicity, rule = complex_multiplicity(spins), HIGH_SPIN
+    check_multiplicity(n_complex, int(multiplicity), f"{molecule.source}: the complex ({rule})")
+    return tuple(spins), int(multiplicity), rule
 
 
 def assemble_interaction(
@@ -349,7 +398,7 @@ def assemble_interaction(
         outcome = outcomes[p.key]
         n = (own_bases[(p.basis, p.fragment)] if p.kind == "own basis" else bases[p.basis]).n_functions
         done.append(PieceResult(p, outcome.energy_total, n, outcome.iterations, outcome.wall_seconds,
-                                outcome.reused_integrals))
+                                outcome.reused_integrals, outcome.method))
     rows = []
     for name in dict.fromkeys(p.basis for p in pieces):
         energies = {(p.kind, p.fragment): outcomes[p.key].energy_total for p in pieces if p.basis == name}
