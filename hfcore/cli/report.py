@@ -280,8 +280,10 @@ def format_orbitals(result: Any, max_virtuals: int = MAX_VIRTUALS_SHOWN) -> str:
             _orbital_table(f"Orbitals, β spin ({result.n_beta} electrons)", result.orbital_energies_beta,
                            result.occupations_beta, result.homo_beta, result.lumo_beta, max_virtuals),
         ])
-    table = _orbital_table("Orbitals", result.orbital_energies, result.occupations, result.homo, result.lumo,
-                           max_virtuals)
+    occupied = np.flatnonzero(np.asarray(result.occupations) > 0)
+    homo = int(occupied[-1]) if occupied.size else None  # ROHF: the highest singly or doubly occupied orbital
+    lumo = None if homo is None or homo + 1 >= len(result.occupations) else homo + 1
+    table = _orbital_table("Orbitals", result.orbital_energies, result.occupations, homo, lumo, max_virtuals)
     if result.method == "ROHF":
         table += f"\n  energies: {result.orbital_energy_convention}"
     return table
