@@ -250,7 +250,7 @@ class RunRequest:
         given = {name: getattr(self, name) for name in names if getattr(self, name) is not None}
         if self.memory_mib is not None:
             given["memory_limit"] = self.memory_mib
-        return SCFOptions(stability=self.stability, **given)
+        return SCFOptions(stability=self.stability, method=self.method, **given)
 
 
 @dataclass(frozen=True)
@@ -317,7 +317,7 @@ class RunOutcome:
 
 
 def read_molecule(request: RunRequest) -> Molecule:
-    """The molecule of a request: read, ghosts and atom selection applied (not yet checked for spin).
+    """The molecule of a request: read, ghosts and atom selection applied, the request's multiplicity checked.
 
     Raises
     ------
@@ -340,17 +340,28 @@ def read_molecule(request: RunRequest) -> Molecule:
         if molecule.ghosts[keep].all():
             raise InputError(f"--atoms {request.atoms}: every atom kept is a ghost; keep at least one real atom")
         molecule = molecule.subset(keep, molecule.charge)
+    if request.multiplicity is not None:
+        # checked against the electrons here, before any integral (geometry.check_multiplicity)
+        molecule = molecule.with_multiplicity(request.multiplicity)
     return molecule
 
 
-def open_shell_engine(request: RunRequest, molecule: Molecule | None) -> Callable[..., Any] | None:
-    """The SCF solver for an open-shell request, or ``None`` for a closed shell (RHF).
+def scf_method(request: RunRequest, molecule: Molecule) -> str:
+    """The SCF method a request runs: "rhf", "uhf" or "rohf" (:func:`hfcore.scf.spin.resolve_method`).
 
-    The one place where the open-shell engine plugs in: return the UHF or
-    ROHF runner (called like :func:`hfcore.scf.run_rhf`) for a request with
-    an odd electron count, a multiplicity other than 1, or a method. Until
-    that engine exists, such a request is refused here, before any integral.
-    :func:`run_single` and the study commands call it.
+    RHF for a singlet and UHF otherwise unless the request names one;
+    RHF asked for an open shell is refused in one line (exit 2).
+    """
+    from .scf.spin import resolve_method
+
+    if molecule.n_electrons <= 0:  # before any output, as every other input check
+        raise InputError(f"{molecule.source}: charge {molecule.charge} leaves {molecule.n_electrons} electrons; "
+                         "nothing to compute")
+    return resolve_method(molecule.spin_multiplicity, request.method)
+
+
+def open_shell_engine(request: RunRequest, molecule: Molecule | None) -> Callable[..., Any] | None:
+    """The SCF runner of an open-shell request (:func:`hfcore.scf.run_scf`), or ``None`` for a closed shell.
 
     Parameters
     ----------
@@ -362,22 +373,15 @@ def open_shell_engine(request: RunRequest, molecule: Molecule | None) -> Callabl
     Raises
     ------
     InputError
-        For an open-shell request (exit code 2), or an electron count RHF
-        cannot describe (the molecule's own message, naming the charges that
-        would give a closed shell).
+        RHF asked for an open shell (exit code 2).
     """
-    closed = request.method is None and request.multiplicity in (None, 1)
-    if closed:
-        if molecule is not None:
-            molecule.require_closed_shell()
-        return None
-    what = [f"multiplicity {request.multiplicity}"] if request.multiplicity not in (None, 1) else []
-    what += [request.method.upper()] if request.method else []
-    where = f"{molecule.source}: " if molecule is not None else ""
-    raise InputError(
-        f"{where}{' '.join(what)} asks for an open-shell SCF, which this hfcore does not have yet "
-        "(closed shells only: RHF)"
-    )
+    from .scf import run_scf
+
+    if molecule is None:
+        closed = request.method in (None, "rhf") and request.multiplicity in (None, 1)
+    else:
+        closed = scf_method(request, molecule) == "rhf"
+    return None if closed else run_scf
 
 
 def build_basis_for(request: RunRequest, molecule: Molecule) -> BasisSet:
@@ -482,9 +486,12 @@ def analysis_record(result: Any, origin: np.ndarray | None = None) -> dict[str, 
 
 
 def _mp2(request: RunRequest, result: Any, eri: Any, fit: Any, progress: Callable[[float], None] | None) -> Any:
-    from .analysis import core_orbital_count, mp2_energy
+    from .analysis import core_orbital_count, mp2_energy, ump2_energy
 
     frozen = core_orbital_count(result.molecule) if request.frozen_core else 0
+    if result.method == "UHF":
+        fit_basis = None if fit is None else fit.basis
+        return ump2_energy(result, frozen_core=frozen, eri=eri, fit_basis=fit_basis, progress=progress)
     if fit is not None:
         return mp2_energy(result, frozen_core=frozen, fit_basis=fit.basis, fraction_progress=progress)
     return mp2_energy(result, frozen_core=frozen, eri=eri, fraction_progress=progress)
@@ -513,12 +520,15 @@ def run_single(request: RunRequest, progress: RunProgress | None = None) -> RunO
         InputError (exit 2) for bad input or an open-shell request,
         BasisError (3), ConvergenceError (4), ResourceError (5).
     """
-    from .export import result_record
-    from .scf import plan_jk, prepare_integrals, run_rhf
+    from .scf import plan_jk, prepare_integrals, run_scf
 
     progress = progress or RunProgress()
     molecule = read_molecule(request)
-    engine = open_shell_engine(request, molecule) or run_rhf
+    method = scf_method(request, molecule)
+    if request.mp2:
+        from .analysis import check_mp2_reference
+
+        check_mp2_reference(method)
     basis = build_basis_for(request, molecule)
     options = request.scf_options()
     fitting = None
@@ -526,8 +536,10 @@ def run_single(request: RunRequest, progress: RunProgress | None = None) -> RunO
         from .basis.fitting import fitting_basis
 
         fitting = fitting_basis(molecule, basis, options.fit_basis)
-    # A forced store, or a fitting set, that cannot fit fails before any output.
-    plan = plan_jk(basis, options, fitting=fitting, n_occupied=molecule.n_electrons // 2)
+    # A forced store, or a fitting set, that cannot fit fails before any output; an open shell's
+    # fitted exchange runs over the occupied orbitals of both spins.
+    n_occupied = molecule.n_electrons // 2 if method == "rhf" else molecule.n_alpha + molecule.n_beta
+    plan = plan_jk(basis, options, fitting=fitting, n_occupied=n_occupied)
     mp2_fit = None
     if request.mp2_fit_basis is not None:
         from .basis.fitting import mp2_fitting_basis
@@ -540,15 +552,17 @@ def run_single(request: RunRequest, progress: RunProgress | None = None) -> RunO
         progress.prepared(molecule, basis, plan)
     # MP2 reads the SCF's own stored integrals rather than computing them again.
     exact_mp2 = request.mp2 and mp2_fit is None
-    shared = prepare_integrals(basis, options, progress.integrals, plan=plan) if exact_mp2 and plan.mode != "direct" else None
-    result = engine(molecule, basis, options, guess=request.guess, progress=progress.iteration,
-                    integral_progress=progress.integrals, shared=shared, plan=plan)
+    shared = None
+    if exact_mp2 and plan.mode != "direct":
+        shared = prepare_integrals(basis, options, progress.integrals, plan=plan, molecule=molecule)
+    result = run_scf(molecule, basis, options, guess=request.guess, progress=progress.iteration,
+                     integral_progress=progress.integrals, shared=shared, plan=plan)
     mp2_started = time.perf_counter()
     mp2 = None
     if request.mp2:
         mp2 = _mp2(request, result, None if shared is None else shared.engine, mp2_fit, progress.mp2)
     analysis = analysis_record(result, origin)
-    record = result_record(result, analysis)
+    record = result.to_dict(analysis)
     if shared is not None:
         for stage in ("integrals", "total"):
             record["timings"][stage] += shared.wall_seconds
@@ -565,6 +579,7 @@ __all__ = [
     "RunOutcome",
     "run_single",
     "open_shell_engine",
+    "scf_method",
     "read_molecule",
     "build_basis_for",
     "basis_function_count",

@@ -58,7 +58,6 @@ BAD_GEOMETRIES = [
     ("coordinate not a number", "2\n\nH 0 0 0\nH 0 0 0,74\n", "mol.xyz:4: the z coordinate '0,74' is not a finite number"),
     ("coordinate not finite", "2\n\nH 0 0 0\nH 0 nan 0.74\n", "mol.xyz:4: the y coordinate 'nan' is not a finite number"),
     ("atoms too close", "2\n\nH 0 0 0\nH 0 0 0.05\n", "mol.xyz:4: atom 2 is 0.05 Å from atom 1 (line 3)"),
-    ("odd electron count", "2\n\nO 0 0 0\nH 0 0 0.97\n", "RHF needs an even number"),
 ]
 
 
@@ -76,12 +75,13 @@ def test_missing_geometry_file(tmp_path):
     assert only_inputs_left(tmp_path)
 
 
-def test_odd_electrons_message_suggests_a_charge(tmp_path):
+def test_a_singlet_asked_for_odd_electrons_names_the_multiplicities_that_fit(tmp_path):
     (tmp_path / "nh4.xyz").write_text(
         "5\nammonium\nN 0 0 0\nH 0.59 0.59 0.59\nH -0.59 -0.59 0.59\nH -0.59 0.59 -0.59\nH 0.59 -0.59 -0.59\n"
     )
-    proc = hfcore_process("energy", "nh4.xyz", cwd=tmp_path)
-    assert_one_line_error(proc, 2, "11 electrons", "closed shell", "--charge 1")
+    proc = hfcore_process("energy", "nh4.xyz", "--multiplicity", "1", cwd=tmp_path)
+    # exact property: an odd electron count has an odd number of unpaired electrons, so 2S+1 is even
+    assert_one_line_error(proc, 2, "11 electrons", "2, 4, 6")
 
 
 @pytest.mark.parametrize(

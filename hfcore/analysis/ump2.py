@@ -114,7 +114,7 @@ def check_mp2_reference(method: str | None) -> None:
         For "rohf".
     """
     if method == "rohf":
-        raise InputError("MP2 on an ROHF reference is not available; use UHF (method 'uhf') for open-shell MP2")
+        raise InputError("MP2 on an ROHF reference is not available; use UHF (--uhf, or method 'uhf') for open-shell MP2")
 
 
 def _spin_spaces(result: UHFResult, frozen_core: int):

@@ -20,6 +20,14 @@ from .console import Console, IntegralProgress, process_seconds
 from .paths import output_paths, report_written
 
 
+#: The report's title line per SCF method.
+METHOD_TITLES: dict[str, str] = {
+    "rhf": "restricted Hartree–Fock",
+    "uhf": "unrestricted Hartree–Fock",
+    "rohf": "restricted open-shell Hartree–Fock",
+}
+
+
 def add_parser(sub: Any) -> argparse.ArgumentParser:
     """Register ``hfcore energy`` on the subcommand set ``sub``; returns its parser (batch copies its options)."""
     energy = sub.add_parser("energy", help="SCF energy, orbitals and populations of one molecule")
@@ -97,7 +105,9 @@ def run(args: argparse.Namespace, console: Console) -> int:
     previous: list[Any] = [None]
 
     def prepared(molecule: Any, basis: Any, plan: Any) -> None:
-        console.report(f"hfcore {__version__} · restricted Hartree–Fock")
+        from ..runs import scf_method
+
+        console.report(f"hfcore {__version__} · {METHOD_TITLES[scf_method(request, molecule)]}")
         console.report(report.format_molecule(molecule))
         console.report(report.format_basis(basis, plan))
         console.live(report.history_header())
@@ -134,16 +144,19 @@ def run(args: argparse.Namespace, console: Console) -> int:
 
 
 def warn_about_solution(console: Console, result: Any, label: str = "") -> None:
-    """One stderr line for an unstable solution or a broken aufbau occupation, in every output mode."""
+    """One stderr line for each finding on the solution (unstable, not aufbau, a lower unrestricted one), in every output mode."""
     where = f"{label}: " if label else ""
     st = result.stability
+    method = result.method
     if st is not None and not st.stable:
         hint = " (rerun with --stability descend)" if st.mode == "report" else ""
         console.warn(
-            f"{where}the RHF solution is unstable: the orbital Hessian has eigenvalue {st.lowest_eigenvalue:.6f} Eh, "
-            f"so a lower RHF solution exists{hint}"
+            f"{where}the {method} solution is unstable: the orbital Hessian has eigenvalue {st.lowest_eigenvalue:.6f} Eh, "
+            f"so a lower {method} solution exists{hint}"
         )
-    if not result.aufbau:
+    for warning in result.warnings:
+        console.warn(f"{where}{warning}")
+    if not getattr(result, "aufbau", True):
         console.warn(
             f"{where}the occupation is not aufbau: a virtual orbital lies {-result.aufbau_gap:.6f} Eh "
             "below an occupied one"
@@ -162,6 +175,8 @@ def _report_energy(console: Console, outcome: Any) -> None:
     console.report(report.format_linear_dependence(result.n_dropped, result.options.lindep_threshold))
     console.report(report.format_stability(result))
     console.report(report.format_energies(result))
+    if result.method != "RHF":
+        console.report(report.format_spin(result))
     if mp2 is not None:
         console.report(report.format_mp2(mp2))
     console.report(report.format_orbitals(result))

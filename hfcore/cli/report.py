@@ -48,6 +48,7 @@ def format_molecule(molecule: Any) -> str:
         ("atoms", str(molecule.n_atoms)),
         ("charge", f"{molecule.charge:+d}" if molecule.charge else "0"),
         ("electrons", str(molecule.n_electrons)),
+        ("multiplicity", spin_words(molecule.spin_multiplicity)),
         ("nuclear repulsion", f"{molecule.nuclear_repulsion():.10f} Eh"),
     ]
     ghosts = np.flatnonzero(molecule.ghosts)
@@ -230,9 +231,14 @@ def format_stability(result: Any) -> str:
             rows.append(("lowest eigenvalue", "none (no occupied-virtual rotation in this basis)"))
         rows.append(("solutions / Eh", " → ".join(f"{e:.10f}" for e in st.solutions)))
         rows.append(("Hessian products", str(st.hessian_products)))
-    gap = "none" if not np.isfinite(result.aufbau_gap) else f"{result.aufbau_gap:.6f} Eh"
-    verdict = "yes" if result.aufbau else "NO"
-    rows.append(("aufbau occupation", f"{verdict} (lowest virtual − highest occupied: {gap})"))
+    if result.method == "ROHF":
+        rows[0] = ("internal stability", "not analysed for ROHF (use --uhf for the UHF stability analysis)")
+    if hasattr(result, "aufbau"):
+        gap = "none" if not np.isfinite(result.aufbau_gap) else f"{result.aufbau_gap:.6f} Eh"
+        verdict = "yes" if result.aufbau else "NO"
+        rows.append(("aufbau occupation", f"{verdict} (lowest virtual − highest occupied: {gap})"))
+    for warning in getattr(result, "warnings", ()):
+        rows.append(("WARNING", warning))
     if result.aids:
         starts = []
         for aid in result.aids:
@@ -267,16 +273,61 @@ def format_orbitals(result: Any, max_virtuals: int = MAX_VIRTUALS_SHOWN) -> str:
     All occupied orbitals are listed and at most ``max_virtuals`` virtual
     ones after the LUMO; the rest are counted.
     """
-    eps = np.asarray(result.orbital_energies)
-    occ = np.asarray(result.occupations)
-    homo, lumo = result.homo, result.lumo
+    if result.method == "UHF":
+        return "\n".join([
+            _orbital_table(f"Orbitals, α spin ({result.n_alpha} electrons)", result.orbital_energies_alpha,
+                           result.occupations_alpha, result.homo_alpha, result.lumo_alpha, max_virtuals),
+            _orbital_table(f"Orbitals, β spin ({result.n_beta} electrons)", result.orbital_energies_beta,
+                           result.occupations_beta, result.homo_beta, result.lumo_beta, max_virtuals),
+        ])
+    occupied = np.flatnonzero(np.asarray(result.occupations) > 0)
+    homo = int(occupied[-1]) if occupied.size else None  # ROHF: the highest singly or doubly occupied orbital
+    lumo = None if homo is None or homo + 1 >= len(result.occupations) else homo + 1
+    table = _orbital_table("Orbitals", result.orbital_energies, result.occupations, homo, lumo, max_virtuals)
+    if result.method == "ROHF":
+        table += f"\n  energies: {result.orbital_energy_convention}"
+    return table
+
+
+def _orbital_table(title: str, energies: Any, occupations: Any, homo: int | None, lumo: int | None,
+                   max_virtuals: int) -> str:
+    eps = np.asarray(energies)
+    occ = np.asarray(occupations)
     last = len(eps) if lumo is None else min(len(eps), lumo + max_virtuals)
-    lines = [heading("Orbitals"), f"  {'#':>4}  {'energy / Eh':>16}  {'energy / eV':>12}  {'occupation':>10}"]
+    lines = [heading(title), f"  {'#':>4}  {'energy / Eh':>16}  {'energy / eV':>12}  {'occupation':>10}"]
     for k in range(last):
         mark = "  HOMO" if k == homo else "  LUMO" if k == lumo else ""
         lines.append(f"  {k + 1:>4}  {eps[k]:16.8f}  {eps[k] * EV_PER_HARTREE:12.4f}  {occ[k]:10.1f}{mark}")
     if last < len(eps):
         lines.append(f"  ... {len(eps) - last} higher virtual orbitals not shown (all are in --json)")
+    return "\n".join(lines)
+
+
+#: The trade's words for the low multiplicities.
+SPIN_WORDS: dict[int, str] = {1: "singlet", 2: "doublet", 3: "triplet", 4: "quartet", 5: "quintet", 6: "sextet"}
+
+
+def spin_words(multiplicity: int) -> str:
+    """``"3 (triplet)"``: a multiplicity 2S+1 with its name where it has one."""
+    word = SPIN_WORDS.get(int(multiplicity))
+    return f"{multiplicity} ({word})" if word else str(multiplicity)
+
+
+def format_spin(result: Any) -> str:
+    """The spin section of an open-shell record: ⟨S²⟩ against S(S+1), and the Mulliken spin populations."""
+    molecule = result.molecule
+    rows = [
+        ("multiplicity", spin_words(result.multiplicity)),
+        ("alpha / beta electrons", f"{result.n_alpha} / {result.n_beta}"),
+        ("⟨S²⟩", f"{result.s_squared:.6f}"),
+        ("exact S(S+1)", f"{result.s_squared_exact:.6f}"),
+        ("spin contamination", f"{result.spin_contamination:.6f}"),
+    ]
+    lines = [heading("Spin"), pairs(rows), "", f"  {'#':>4}  {'element':<7}  {'Mulliken spin population':>24}"]
+    populations = result.spin_record()["mulliken_spin_populations"]
+    for k, (sym, value) in enumerate(zip(molecule.symbols, populations), start=1):
+        mark = "  ghost" if molecule.ghosts[k - 1] else ""
+        lines.append(f"  {k:>4}  {sym:<7}  {value:24.6f}{mark}")
     return "\n".join(lines)
 
 

@@ -23,7 +23,7 @@ from ..errors import ConvergenceError, InputError
 from ..geometry import Molecule
 from .._parallel import blas_threads
 from ..basis.fitting import fitting_basis
-from .driver import SharedIntegrals, _checked_guess, _jk_builder, plan_jk, prepare_integrals, run_rhf, scf_blas_threads
+from .driver import JKPlan, SharedIntegrals, _checked_guess, _jk_builder, plan_jk, prepare_integrals, run_rhf, scf_blas_threads
 from .guess import sad_density
 from .jk import IncrementalJK
 from .open_result import ROHFResult, UHFResult
@@ -45,6 +45,7 @@ def run_scf(
     integral_progress: Callable[[float], None] | None = None,
     shared: SharedIntegrals | None = None,
     raise_on_failure: bool = True,
+    plan: JKPlan | None = None,
 ) -> RHFResult | UHFResult | ROHFResult:
     """Hartree-Fock energy and orbitals of a molecule of any multiplicity.
 
@@ -60,8 +61,9 @@ def run_scf(
         As for :func:`run_rhf`; for UHF/ROHF an array may be a total
         density (nbf, nbf), shared between the spins in proportion to
         their electrons, or α and β densities (2, nbf, nbf).
-    progress, integral_progress, shared, raise_on_failure
-        As for :func:`run_rhf`.
+    progress, integral_progress, shared, raise_on_failure, plan
+        As for :func:`run_rhf` (``plan``: the J/K plan made beforehand, e.g.
+        to refuse a forced mode that cannot fit before any output).
 
     Notes
     -----
@@ -92,26 +94,28 @@ def run_scf(
     options = options or SCFOptions()
     method = resolve_method(molecule.spin_multiplicity, options.method)
     if method == "rhf":
-        return _run_rhf_checked(molecule, basis, options, guess, progress, integral_progress, shared, raise_on_failure)
+        return _run_rhf_checked(molecule, basis, options, guess, progress, integral_progress, shared, raise_on_failure,
+                                plan)
     return run_open_shell(
         molecule, basis, options, method=method, guess=guess, progress=progress,
-        integral_progress=integral_progress, shared=shared, raise_on_failure=raise_on_failure,
+        integral_progress=integral_progress, shared=shared, raise_on_failure=raise_on_failure, plan=plan,
     )
 
 
-def _run_rhf_checked(molecule, basis, options, guess, progress, integral_progress, shared, raise_on_failure) -> RHFResult:
+def _run_rhf_checked(molecule, basis, options, guess, progress, integral_progress, shared, raise_on_failure,
+                     plan=None) -> RHFResult:
     """RHF, then (unless stability is "skip") the RHF→UHF test; a lower unrestricted solution becomes a warning."""
     if options.stability == "skip":
         return run_rhf(
             molecule, basis, options, guess=guess, progress=progress, integral_progress=integral_progress,
-            shared=shared, raise_on_failure=raise_on_failure,
+            shared=shared, raise_on_failure=raise_on_failure, plan=plan,
         )
     molecule.require_closed_shell()
     if isinstance(basis, str):
         basis = build_basis(molecule, basis)
     if shared is None:
         require_room_for(molecule, basis)
-        shared = prepare_integrals(basis, options, integral_progress, molecule=molecule)
+        shared = prepare_integrals(basis, options, integral_progress, molecule=molecule, plan=plan)
     result = run_rhf(
         molecule, basis, options, guess=guess, progress=progress, shared=shared, raise_on_failure=raise_on_failure
     )
@@ -150,6 +154,7 @@ def run_open_shell(
     shared: SharedIntegrals | None = None,
     raise_on_failure: bool = True,
     coupling: str = "guest-saunders",
+    plan: JKPlan | None = None,
 ) -> UHFResult | ROHFResult:
     """UHF or ROHF on a molecule (see :func:`run_scf`)."""
     if method not in ("uhf", "rohf"):
@@ -164,7 +169,7 @@ def run_open_shell(
         require_room_for(molecule, basis)
         user_guess = _open_guess(guess, basis)
         if shared is None:
-            shared = _prepare_open(basis, options, integral_progress, molecule)
+            shared = _prepare_open(basis, options, integral_progress, molecule, plan)
         elif shared.basis is not basis:
             raise InputError("shared integrals belong to another basis; build them with prepare_integrals(basis)")
         hcore = shared.kinetic + integrals.nuclear_attraction(basis, molecule.nuclear_charges, molecule.coordinates)
@@ -228,11 +233,12 @@ def run_open_shell(
 
 
 def _prepare_open(
-    basis: BasisSet, options: SCFOptions, integral_progress: Callable[[float], None] | None, molecule: Molecule
+    basis: BasisSet, options: SCFOptions, integral_progress: Callable[[float], None] | None, molecule: Molecule,
+    plan: JKPlan | None = None,
 ) -> SharedIntegrals:
     """:func:`prepare_integrals` for an open shell: a fitted plan is sized for N_α + N_β exchange columns."""
-    if options.fit_basis is None:
-        return prepare_integrals(basis, options, integral_progress, molecule=molecule)
+    if options.fit_basis is None or plan is not None:
+        return prepare_integrals(basis, options, integral_progress, molecule=molecule, plan=plan)
     t0 = time.perf_counter()
     fitting = fitting_basis(molecule, basis, options.fit_basis)
     # Both spins' occupied orbitals go through one half-transform (FittedJK.jk_multi).

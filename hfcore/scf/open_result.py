@@ -9,6 +9,7 @@ either record.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from collections.abc import Mapping
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -237,8 +238,11 @@ class UHFResult:
             record["mulliken_spin_populations"] = atom_sums(self.basis, self.spin_density, self.overlap)
         return record
 
-    def to_dict(self) -> dict[str, Any]:
+    def to_dict(self, analysis: "Mapping[str, Any] | None" = None) -> dict[str, Any]:
         """The record as JSON-ready dictionaries (numpy arrays left for the writer to turn into lists).
+
+        ``analysis`` (e.g. charges and moments) goes under the key
+        ``"analysis"``, as in :meth:`hfcore.scf.RHFResult.to_dict`.
 
         The layout follows the RHF record's (``hfcore``, ``units``,
         ``molecule``, ``basis``, ``energy``, ``scf``, ``orbitals``,
@@ -257,7 +261,7 @@ class UHFResult:
             raise InputError("to_dict needs an open-shell result that carries its molecule and basis (from run_scf)")
         from .result import UNITS, _molecule_record, basis_record, energy_record, scf_common_record
 
-        return {
+        record = {
             "hfcore": {"version": __version__, "method": self.method},
             "units": UNITS,
             "molecule": {**_molecule_record(self.molecule), "multiplicity": self.multiplicity},
@@ -271,6 +275,9 @@ class UHFResult:
             "spin": self.spin_record(),
             "timings": dict(self.timings),
         }
+        if analysis:
+            record["analysis"] = dict(analysis)
+        return record
 
     def _orbitals_record(self) -> dict[str, Any]:
         return {
