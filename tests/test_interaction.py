@@ -123,7 +123,8 @@ def test_interaction_command_json_and_plot(tmp_path):
     [
         (["--fragments", "1-3,3-6"], "atom 3 is in fragment 1 and in fragment 2"),
         (["--fragments", "1-3,4-9"], "atom 9 does not exist"),
-        (["--fragments", "1-3,4-6", "--fragment-charges=1,-1"], "electrons"),
+        (["--fragments", "1-3,4-6", "--fragment-charges=1,-1", "--fragment-multiplicities=1,2"],
+         "fragment 1 (charge +1): multiplicity 1 does not fit 9 electrons"),
         (["--fragments", "1-3,4-6", "--fragment-charges", "0"], "1 charges for 2 fragments"),
     ],
 )
