@@ -214,3 +214,42 @@ def test_the_atomization_energy_is_the_sum_of_its_single_points_and_matches_the_
 def test_an_rhf_method_on_an_open_shell_species_is_refused_before_any_integral(in_copies, no_scf):
     with pytest.raises(InputError, match="RHF describes singlets only"):
         hfcore.studies.reaction.reaction_energies(ATOMIZATION, ["sto-3g"], method="rhf")
+
+
+# --- the batch runner (--results) carries multiplicity and method into each job -----------------------------
+
+
+def test_a_reaction_run_as_batch_jobs_gives_the_in_process_energies_spin_and_method_included(in_copies):
+    for flags in ([], ["--rohf"]):
+        code, out, err = run_main("reaction", ATOMIZATION, "--basis", "sto-3g", *flags, "--json", "-")
+        assert code == 0, err
+        here = json.loads(out)["reaction"]
+        results = in_copies / f"r{len(flags)}.jsonl"
+        code, out, err = run_main("reaction", ATOMIZATION, "--basis", "sto-3g", *flags, "--results", results,
+                                  "--workers", "1", "--json", "-")
+        assert code == 0, err
+        batch = json.loads(out)["reaction"]
+        # source: exact property — the same runs in another process give the same energies
+        assert batch["rows"][0]["species_energies"] == pytest.approx(here["rows"][0]["species_energies"], abs=1e-9)
+        assert [s["method"] for s in batch["species"]] == [s["method"] for s in here["species"]]
+        lines = [json.loads(line) for line in results.read_text().splitlines()[1:]]
+        spins = {(line["job"]["geometry"], line["job"]["options"]["multiplicity"], line["job"]["options"]["method"],
+                  line["hfcore"]["method"]) for line in lines}
+        method = "rohf" if flags else None
+        assert spins == {("water.xyz", None, None, "RHF"), ("o.xyz", 3, method, (method or "uhf").upper()),
+                         ("h.xyz", 2, method, (method or "uhf").upper())}
+
+
+def test_an_interaction_run_as_batch_jobs_carries_the_fragment_multiplicities(in_copies):
+    args = ["interaction", "hydrogen_stretched.xyz", "--fragments", "1,2", "--basis", "sto-3g", "--json", "-"]
+    code, out, err = run_main(*args)
+    assert code == 0, err
+    here = json.loads(out)["interaction"]["rows"][0]
+    code, out, err = run_main(*args, "--results", in_copies / "i.jsonl", "--workers", "1")
+    assert code == 0, err
+    batch = json.loads(out)["interaction"]
+    # source: exact property — the same runs as batch jobs (no shared integrals) give the same energies
+    assert batch["rows"][0]["raw"] == pytest.approx(here["raw"], abs=1e-9)
+    assert batch["rows"][0]["counterpoise"] == pytest.approx(here["counterpoise"], abs=1e-9)
+    assert {(r["kind"], r["multiplicity"], r["method"]) for r in batch["runs"]} == {
+        ("complex", 3, "UHF"), ("own basis", 2, "UHF"), ("full basis", 2, "UHF")}
