@@ -137,8 +137,8 @@ def format_reactions(study: Any) -> str:
     lines.append(f"  ΔE = Σ ν E(products) − Σ ν E(reactants), {kinds} totals at the given geometries (no zero-point "
                  "energy)")
     if any(s.open_shell for s in study.species):
-        lines.append("  Hartree–Fock misses electron correlation: atomization and reaction energies of open shells can "
-                     "be far from experiment")
+        lines.append("  Hartree–Fock misses electron correlation: energies of reactions that break or make electron "
+                     "pairs, such as atomization, can be far from experiment")
     return "\n".join(lines)
 
 
