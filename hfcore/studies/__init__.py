@@ -1,4 +1,4 @@
-"""Studies over several RHF runs: basis comparison, reaction and interaction energies.
+"""Studies over several Hartree–Fock runs (RHF, UHF, ROHF): basis comparison, reaction and interaction energies.
 
 Each study lists the SCF runs it needs as plain data (its pieces), has them
 run (in this process, or by a runner the caller passes in, such as the batch

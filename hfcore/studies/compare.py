@@ -65,7 +65,7 @@ class ComparisonRow:
     spherical : bool
         Real spherical (True) or Cartesian (False) functions.
     energy_total : float
-        RHF total energy in hartree.
+        Hartree–Fock total energy (RHF, UHF or ROHF) in hartree.
     delta_mEh : float
         energy_total minus the reference basis' energy, in millihartree.
     delta_kcal_mol : float
@@ -105,7 +105,7 @@ class ComparisonRow:
 
 @dataclass(frozen=True)
 class BasisLimitEstimate:
-    """An extrapolated basis-limit RHF energy.
+    """An extrapolated basis-limit Hartree–Fock energy.
 
     Attributes
     ----------

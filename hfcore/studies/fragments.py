@@ -104,7 +104,7 @@ class PieceResult:
     ----------
     piece : InteractionPiece
     energy_total : float
-        RHF total energy in hartree.
+        Hartree–Fock total energy (RHF, UHF or ROHF) in hartree.
     n_functions : int
         Basis functions of the run (ghost functions included).
     iterations : int

@@ -8,7 +8,7 @@ For a complex AB of fragments A and B (or more), in one basis:
   their basis functions but have no nuclei and no electrons
   (S. F. Boys and F. Bernardi, Mol. Phys. 19, 553 (1970));
 * basis-set superposition error  sum over fragments of E(X) - E(X | AB),
-  the corrected minus the raw value. Within RHF it is never negative: the
+  the corrected minus the raw value. Within Hartree–Fock it is never negative: the
   complex's basis contains the fragment's own, and the variational
   principle does the rest.
 

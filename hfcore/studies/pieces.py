@@ -33,7 +33,7 @@ class PieceOutcome:
     Attributes
     ----------
     energy_total : float
-        RHF total energy in hartree.
+        Hartree–Fock total energy (RHF, UHF or ROHF) in hartree.
     wall_seconds : float
         Wall-clock time of the run (integrals included when it computed them).
     n_functions : int or None

@@ -99,7 +99,7 @@ class ReactionRow:
         Basis functions summed over the distinct species.
     spherical : bool
     species_energies : tuple of float
-        RHF total energy of each species.
+        Hartree–Fock total energy of each species.
     reaction_energies : tuple of float
         ΔE of each reaction.
     deltas : tuple of float
