@@ -253,3 +253,11 @@ def test_an_interaction_run_as_batch_jobs_carries_the_fragment_multiplicities(in
     assert batch["rows"][0]["counterpoise"] == pytest.approx(here["counterpoise"], abs=1e-9)
     assert {(r["kind"], r["multiplicity"], r["method"]) for r in batch["runs"]} == {
         ("complex", 3, "UHF"), ("own basis", 2, "UHF"), ("full basis", 2, "UHF")}
+
+
+def test_a_species_made_without_a_multiplicity_takes_the_molecule_s():
+    from hfcore.studies.equations import Species
+
+    hydrogen = read_xyz(INPUTS / "h.xyz")
+    assert Species("h.xyz", 0, hydrogen).multiplicity == 2  # the default of one electron
+    assert Species("o.xyz", 0, read_xyz(INPUTS / "o.xyz", multiplicity=3)).label == "o.xyz[triplet]"

@@ -21,6 +21,8 @@ from ..errors import InputError
 #: The stability values, new name first; the old spellings are kept for one release.
 STABILITY_CHOICES: tuple[str, ...] = ("skip", "report", "descend")
 OLD_STABILITY_CHOICES: dict[str, str] = {"off": "skip", "check": "report", "follow": "descend"}
+#: The help of --multiplicity where the default is the electron count's.
+MULTIPLICITY_HELP = "spin multiplicity 2S+1 (default: 1 for an even electron count, 2 for an odd one)"
 #: Options whose items are ``EL=...`` and which stop at the first item that is not.
 ELEMENT_ITEM_OPTIONS: tuple[str, ...] = ("--basis-for", "--zeta")
 
@@ -166,7 +168,7 @@ def _stability_value(text: str) -> str:
 
 
 def add_geometry_arguments(parser: argparse.ArgumentParser, *, geometry: bool = True, charge_option: bool = True,
-                           spin: bool = True) -> None:
+                           spin: bool = True, multiplicity_help: str = MULTIPLICITY_HELP) -> None:
     """GEOMETRY, --units, --charge (and the spin options), --cartesian/--spherical."""
     if geometry:
         parser.add_argument("geometry", metavar="GEOMETRY", help="XYZ file (atom count, comment, then 'symbol x y z' lines)")
@@ -178,17 +180,16 @@ def add_geometry_arguments(parser: argparse.ArgumentParser, *, geometry: bool = 
             "--charge", type=charge, default=0, help="total molecular charge (default 0; never read from the file)"
         )
     if spin:
-        add_spin_arguments(parser)
+        add_spin_arguments(parser, multiplicity_help=multiplicity_help)
     form = parser.add_mutually_exclusive_group()
     form.add_argument("--cartesian", dest="spherical", action="store_false", default=None, help="Cartesian d, f, ... functions")
     form.add_argument("--spherical", dest="spherical", action="store_true", help="real spherical d, f, ... functions")
 
 
-def add_spin_arguments(parser: Any, *, multiplicity: bool = True) -> None:
+def add_spin_arguments(parser: Any, *, multiplicity: bool = True, multiplicity_help: str = MULTIPLICITY_HELP) -> None:
     """--multiplicity (unless ``multiplicity`` is False) and the open-shell method (--uhf | --rohf)."""
     if multiplicity:
-        parser.add_argument("--multiplicity", type=positive_int, metavar="M",
-                            help="spin multiplicity 2S+1 (default: 1 for an even electron count, 2 for an odd one)")
+        parser.add_argument("--multiplicity", type=positive_int, metavar="M", help=multiplicity_help)
     add_method_arguments(parser)
 
 
@@ -313,8 +314,8 @@ def check_study_spin(args: argparse.Namespace, molecule: Any, command: str) -> A
     ``--multiplicity`` (when the command has it) is checked against the
     electrons (:func:`hfcore.geometry.check_multiplicity`), and the method
     against the spin (:func:`hfcore.scf.spin.resolve_method`; ``--uhf``
-    with ``--rohf`` is refused by the parser). ``--mp2`` with ``--rohf`` is
-    refused (no MP2 on ROHF).
+    with ``--rohf`` is refused by the parser). No study takes ``--mp2``, so
+    MP2 on ROHF cannot be asked for here.
 
     Parameters
     ----------
@@ -333,14 +334,12 @@ def check_study_spin(args: argparse.Namespace, molecule: Any, command: str) -> A
     Raises
     ------
     InputError
-        One line: an impossible multiplicity, RHF on an open shell, MP2 on ROHF.
+        One line: an impossible multiplicity, or RHF on an open shell.
     """
     from ..scf.spin import resolve_method
     from ..studies.pieces import piece_method
 
     method = getattr(args, "method", None)
-    if getattr(args, "mp2", False) and method == "rohf":
-        raise InputError(f"{command}: --mp2 with --rohf: MP2 is built on RHF and UHF only; use --uhf")
     if molecule is None:
         return None
     multiplicity = getattr(args, "multiplicity", None)

@@ -28,7 +28,11 @@ def add_parser(sub: Any) -> None:
     interaction = sub.add_parser(
         "interaction", help="interaction energy of a complex, raw and counterpoise-corrected, in several basis sets"
     )
-    add_geometry_arguments(interaction, charge_option=False)
+    add_geometry_arguments(
+        interaction, charge_option=False,
+        multiplicity_help="spin multiplicity 2S+1 of the complex (default: the high-spin coupling of the fragments' "
+        "multiplicities, 1 + Σ (M_i − 1))",
+    )
     interaction.add_argument(
         "--fragments", required=True, metavar="RANGES",
         help="the fragments as 1-based atom ranges in file order, one per comma, e.g. 1-3,4-6 "

@@ -57,13 +57,19 @@ class Species:
         Read from ``path`` with ``charge``, carrying ``multiplicity``.
     multiplicity : int
         Spin multiplicity 2S+1 (the word in the equation, else 1 for an
-        even and 2 for an odd electron count).
+        even and 2 for an odd electron count); None on construction takes
+        ``molecule.spin_multiplicity``.
     """
 
     path: str
     charge: int
     molecule: "Molecule" = field(repr=False)
-    multiplicity: int = 1
+    multiplicity: int | None = None
+
+    def __post_init__(self) -> None:
+        # None takes the molecule's own (its given multiplicity, or the default of its electron count).
+        if self.multiplicity is None:
+            object.__setattr__(self, "multiplicity", int(self.molecule.spin_multiplicity))
 
     @property
     def label(self) -> str:
