@@ -73,10 +73,13 @@ def _batch_runner(args: argparse.Namespace, console: Console) -> Any:
             made, _ = make_jobs([entry], bases, 0, dataclasses.replace(template, method=piece.method))
             method = resolve_method(s.multiplicity, piece.method).upper()
             for job in made:
-                where[job.key] = ((piece.species, bases[job.order[1]]), method)
-            jobs.extend(made)
+                # two files with the same content are one job serving both species
+                if job.key not in where:
+                    jobs.append(job)
+                where.setdefault(job.key, []).append(((piece.species, bases[job.order[1]]), method))
         done = run_jobs(args, console, jobs)
-        return {key: PieceOutcome(*done[job], method=method) for job, (key, method) in where.items()}
+        return {target: PieceOutcome(*done[key], method=method)
+                for key, targets in where.items() for target, method in targets}
 
     return run
 
