@@ -13,7 +13,7 @@ import math
 import os
 import tempfile
 from collections.abc import Mapping
-from dataclasses import dataclass, fields
+from dataclasses import MISSING, dataclass, fields
 from typing import Any
 
 import numpy as np
@@ -287,29 +287,45 @@ def result_arrays(result: Any, *, eri_max_functions: int = ERI_NPZ_MAX_FUNCTIONS
 
 @dataclass(frozen=True)
 class SavedArrays:
-    """The arrays of an RHF run as :func:`result_arrays` saves them, read back by :func:`load_arrays`.
+    """The arrays of a run as :func:`result_arrays` saves them, read back by :func:`load_arrays`.
 
     Attributes carry the names of the .npz entries; shapes as in
     :func:`result_arrays` (nbf functions, nmo orbitals, n_atoms atoms).
-    Energies in hartree, lengths in bohr.
+    Energies in hartree, lengths in bohr. An RHF file has one set of
+    orbitals (``coefficients`` ... ``fock``); a UHF file has one per spin
+    (``coefficients_alpha`` ... ``fock_beta``) and the others are None; an
+    ROHF file has both (its one set of orbitals, and the α and β Fock
+    matrices). ``density`` is always the total density.
     """
 
     overlap: np.ndarray
     kinetic: np.ndarray
     nuclear_attraction: np.ndarray
     core_hamiltonian: np.ndarray
-    coefficients: np.ndarray
-    orbital_energies: np.ndarray
-    occupations: np.ndarray
     density: np.ndarray
-    fock: np.ndarray
     atomic_numbers: np.ndarray
     coordinates: np.ndarray
     function_atoms: np.ndarray
     function_l: np.ndarray
     energy_total: float
     spherical: bool
+    coefficients: np.ndarray | None = None
+    orbital_energies: np.ndarray | None = None
+    occupations: np.ndarray | None = None
+    fock: np.ndarray | None = None
     eri: np.ndarray | None = None
+    coefficients_alpha: np.ndarray | None = None
+    coefficients_beta: np.ndarray | None = None
+    orbital_energies_alpha: np.ndarray | None = None
+    orbital_energies_beta: np.ndarray | None = None
+    occupations_alpha: np.ndarray | None = None
+    occupations_beta: np.ndarray | None = None
+    density_alpha: np.ndarray | None = None
+    density_beta: np.ndarray | None = None
+    fock_alpha: np.ndarray | None = None
+    fock_beta: np.ndarray | None = None
+    s_squared: float | None = None
+    multiplicity: int = 1
 
     @property
     def n_functions(self) -> int:
@@ -348,13 +364,28 @@ def load_arrays(path: str | os.PathLike) -> SavedArrays:
     except (OSError, ValueError) as exc:
         raise InputError(f"{target}: cannot read as .npz ({exc})") from None
     names = [f.name for f in fields(SavedArrays)]
-    missing = [n for n in names if n != "eri" and n not in arrays]
+    # one set of orbitals (RHF, ROHF) or one per spin (UHF): either is a complete file
+    orbitals = _RESTRICTED_ORBITALS if "coefficients" in arrays or "coefficients_alpha" not in arrays \
+        else _SPIN_ORBITALS
+    required = [f.name for f in fields(SavedArrays) if f.default is MISSING] + list(orbitals)
+    missing = [n for n in required if n not in arrays]
     if missing:
         raise InputError(f"{target}: not an hfcore array file (missing {', '.join(missing)})")
     values = {n: arrays[n] for n in names if n in arrays}
     values["energy_total"] = float(values["energy_total"])
     values["spherical"] = bool(values["spherical"])
+    if "s_squared" in values:
+        values["s_squared"] = float(values["s_squared"])
+    if "multiplicity" in values:
+        values["multiplicity"] = int(values["multiplicity"])
     return SavedArrays(**values)
+
+
+#: The orbital entries of a file with one set of orbitals, and of one with a set per spin.
+_RESTRICTED_ORBITALS: tuple[str, ...] = ("coefficients", "orbital_energies", "occupations", "fock")
+_SPIN_ORBITALS: tuple[str, ...] = tuple(f"{name}_{spin}" for name in ("coefficients", "orbital_energies",
+                                                                    "occupations", "density", "fock")
+                                        for spin in ("alpha", "beta"))
 
 
 def npz_bytes(arrays: Mapping[str, np.ndarray]) -> bytes:

@@ -229,3 +229,27 @@ def test_the_npz_export_writes_the_open_shell_arrays(runs):
         assert key in arrays
     # exact property: the saved total density is the sum of the saved spin densities
     assert np.allclose(arrays["density"], arrays["density_alpha"] + arrays["density_beta"])
+
+
+def test_a_uhf_npz_reads_back_and_holds_the_energy_of_its_own_matrices(tmp_path):
+    from conftest import run_main
+
+    from hfcore.export import load_arrays
+
+    code, _, err = run_main("energy", INPUTS / "oh.xyz", "--basis", "6-31g", "--quiet", "--npz", tmp_path / "oh.npz")
+    assert code == 0, err
+    saved = load_arrays(tmp_path / "oh.npz")
+    assert saved.coefficients is None and saved.multiplicity == 2
+    da, db, s = saved.density_alpha, saved.density_beta, saved.overlap
+    # exact properties: the total density is the sum of the spins', each spin holds its electrons
+    assert np.allclose(da + db, saved.density)
+    assert np.isclose(np.trace(da @ s), 5.0) and np.isclose(np.trace(db @ s), 4.0)
+    # exact property (Pople and Nesbet 1954): with F_σ = H + J[Dα + Dβ] − K[D_σ] from the saved integrals,
+    # E = 1/2 tr[(Dα + Dβ) H + Dα Fα + Dβ Fβ] + E_nuc
+    h, eri = saved.core_hamiltonian, saved.eri
+    j = np.einsum("ijkl,kl->ij", eri, da + db)
+    fa, fb = h + j - np.einsum("ikjl,kl->ij", eri, da), h + j - np.einsum("ikjl,kl->ij", eri, db)
+    energy = 0.5 * np.sum((da + db) * h + da * fa + db * fb) + saved.nuclear_repulsion()
+    assert abs(energy - saved.energy_total) < 1e-9
+    # the saved Fock matrices are those of the converged densities (to the convergence threshold)
+    assert np.abs(saved.fock_alpha - fa).max() < 1e-6 and np.abs(saved.fock_beta - fb).max() < 1e-6
