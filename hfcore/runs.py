@@ -349,15 +349,18 @@ def read_molecule(request: RunRequest) -> Molecule:
 def scf_method(request: RunRequest, molecule: Molecule) -> str:
     """The SCF method a request runs: "rhf", "uhf" or "rohf" (:func:`hfcore.scf.spin.resolve_method`).
 
-    RHF for a singlet and UHF otherwise unless the request names one;
-    RHF asked for an open shell is refused in one line (exit 2).
+    RHF for a singlet and UHF otherwise unless the request names one
+    (``--rohf`` leaves a closed-shell singlet RHF, as in the studies:
+    :func:`hfcore.scf.spin.open_shell_choice`); RHF asked for an open
+    shell is refused in one line (exit 2).
     """
-    from .scf.spin import resolve_method
+    from .scf.spin import open_shell_choice, resolve_method
 
     if molecule.n_electrons <= 0:  # before any output, as every other input check
         raise InputError(f"{molecule.source}: charge {molecule.charge} leaves {molecule.n_electrons} electrons; "
                          "nothing to compute")
-    return resolve_method(molecule.spin_multiplicity, request.method)
+    multiplicity = molecule.spin_multiplicity
+    return resolve_method(multiplicity, open_shell_choice(multiplicity, request.method))
 
 
 def open_shell_engine(request: RunRequest, molecule: Molecule | None) -> Callable[..., Any] | None:
@@ -530,7 +533,7 @@ def run_single(request: RunRequest, progress: RunProgress | None = None) -> RunO
 
         check_mp2_reference(method)
     basis = build_basis_for(request, molecule)
-    options = request.scf_options()
+    options = dataclasses.replace(request.scf_options(), method=method)  # the method this molecule runs
     fitting = None
     if options.fit_basis is not None:
         from .basis.fitting import fitting_basis

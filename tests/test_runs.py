@@ -149,7 +149,7 @@ def test_an_unknown_request_field_is_refused_by_name(tmp_path):
 @pytest.mark.parametrize("flags, what", [
     (["--multiplicity", "2"], "multiplicity 2 does not fit 10 electrons"),
     (["--multiplicity", "13"], "needs 12 unpaired electrons but the molecule has 10"),
-    (["--rohf", "--mp2"], "MP2 on an ROHF reference"),
+    (["--charge", "1", "--rohf", "--mp2"], "MP2 on an ROHF reference"),
 ])
 def test_impossible_spin_requests_are_refused_before_any_integral(monkeypatch, flags, what):
     import hfcore.scf as scf

@@ -122,11 +122,12 @@ def format_reactions(study: Any) -> str:
         lines.append(f"  Δ: change from {study.reference_basis}")
         if study.estimates:
             lines.append("  basis-limit estimates from the extrapolated totals:")
-            for est in study.estimates:
-                label = f"{est.method} ({', '.join(est.bases)})"
-                lines.append(f"  {label:<24} {_units(est.reaction_energies[r])}")
+            labels = [f"{est.method} ({', '.join(est.bases)})" for est in study.estimates]
+            width = max([24] + [len(label) for label in labels])  # the numbers of the block in one column
+            for label, est in zip(labels, study.estimates):
+                lines.append(f"  {label:<{width}} {_units(est.reaction_energies[r])}")
             if spread is not None:
-                lines.append(f"  {'spread of the two':<24} {_units(spread[r])}")
+                lines.append(f"  {'spread of the two':<{width}} {_units(spread[r])}")
         lines.append(f"  basis limit: {limits[r].describe('kJ/mol')}")
     if study.estimates:
         lines.append("")

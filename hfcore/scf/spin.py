@@ -50,6 +50,24 @@ def resolve_method(multiplicity: int, method: str | None) -> str:
     return method
 
 
+def open_shell_choice(multiplicity: int, choice: str | None) -> str | None:
+    """A run's open-shell choice (``--uhf`` / ``--rohf``) as the method of one molecule: the one rule.
+
+    The choice names the method of an open shell; a closed-shell singlet
+    stays RHF unless the choice is UHF (which may then break its spin
+    symmetry), since ROHF of a closed shell is RHF.
+
+    Returns
+    -------
+    str or None
+        The value for :attr:`SCFOptions.method` (None: the default, RHF for a singlet).
+    """
+    name = choice.lower() if isinstance(choice, str) else choice
+    if multiplicity == 1 and name != "uhf":
+        return None
+    return name
+
+
 def s_squared(c_alpha_occ: np.ndarray, c_beta_occ: np.ndarray, overlap: np.ndarray) -> float:
     """⟨S²⟩ of the determinant of the given occupied orbitals (Szabo and Ostlund eq. 2.271).
 
@@ -76,4 +94,5 @@ def s_squared_exact(n_alpha: int, n_beta: int) -> float:
     return float(s * (s + 1.0))
 
 
-__all__ = ["resolve_method", "s_squared", "s_squared_exact", "METHOD_LABELS"]
+__all__ = [
+    "open_shell_choice", "resolve_method", "s_squared", "s_squared_exact", "METHOD_LABELS"]

@@ -114,10 +114,9 @@ def piece_method(multiplicity: int, method: str | None) -> str | None:
     str or None
         The value for :attr:`hfcore.scf.SCFOptions.method`.
     """
-    name = method.lower() if isinstance(method, str) else method
-    if multiplicity == 1 and name != "uhf":
-        return None
-    return name
+    from ..scf.spin import open_shell_choice
+
+    return open_shell_choice(multiplicity, method)
 
 
 def outcome_of_result(result: Any, seconds: float, n_functions: int, *, converged: bool = True,
