@@ -142,6 +142,27 @@ def _opposite_and_exchange(
 
 
 @rename_keywords({"progress": "fraction_progress"})
+def require_store_room(result: RHFResult) -> None:
+    """Refuse, before computing it, a store of the run's integrals that exceeds the run's memory budget.
+
+    MP2 of either kind (closed or open shell) without the SCF's own store
+    computes a lean one: 8 bytes per unique integral.
+
+    Raises
+    ------
+    ResourceError
+        One line, with the size and the budget (exit code 5).
+    """
+    nbf = result.basis.n_functions
+    need = 8 * (nbf * (nbf + 1) // 2) * (nbf * (nbf + 1) // 2 + 1) // 2
+    limit = run_budget(result).bytes
+    if need > limit:
+        raise ResourceError(
+            f"MP2 reads the stored integrals, {need / 2**20:.3g} MiB for {nbf} functions, but "
+            f"{limit / 2**20:.3g} MiB are allowed (--memory MIB, memory_limit)"
+        )
+
+
 def mp2_energy(
     result: RHFResult,
     *,
@@ -207,13 +228,7 @@ def mp2_energy(
     c_occ, c_vir, e_occ, e_vir = orbital_spaces(result, frozen_core)
     nbf = result.basis.n_functions
     if eri is None:
-        need = 8 * (nbf * (nbf + 1) // 2) * (nbf * (nbf + 1) // 2 + 1) // 2
-        limit = run_budget(result).bytes
-        if need > limit:
-            raise ResourceError(
-                f"MP2 reads the stored integrals, {need / 2**20:.3g} MiB for {nbf} functions, but "
-                f"{limit / 2**20:.3g} MiB are allowed (--memory MIB, memory_limit)"
-            )
+        require_store_room(result)
         report = None if fraction_progress is None else (lambda fraction: fraction_progress(0.5 * fraction))
         eri = compute_eri(
             result.basis, threshold=result.options.screening, progress=report, threads=result.options.n_threads, lean=True

@@ -31,7 +31,7 @@ import numpy as np
 from .._memory import run_budget
 from ..errors import ConvergenceError, InputError, ResourceError
 from ._checks import require_placed
-from .mp2 import _MIN_WORK_BYTES, SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, _first_quarter, _pair_map
+from .mp2 import _MIN_WORK_BYTES, SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, _first_quarter, _pair_map, require_store_room
 
 if TYPE_CHECKING:
     from ..scf.open_result import UHFResult
@@ -232,13 +232,7 @@ def ump2_energy(
         return _fitted(result, spaces, frozen_core, fit_basis, memory_bytes, progress)
     nbf = result.basis.n_functions
     if eri is None:
-        need = 8 * (nbf * (nbf + 1) // 2) * (nbf * (nbf + 1) // 2 + 1) // 2
-        limit = run_budget(result).bytes
-        if need > limit:
-            raise ResourceError(
-                f"MP2 reads the stored integrals, {need / 2**20:.3g} MiB for {nbf} functions, but "
-                f"{limit / 2**20:.3g} MiB are allowed (--memory MIB, memory_limit)"
-            )
+        require_store_room(result)
         eri = compute_eri(result.basis, threshold=result.options.screening, threads=result.options.n_threads, lean=True)
     if eri.n_functions != nbf:
         raise InputError(f"the integral store has {eri.n_functions} functions but the basis has {nbf}")
