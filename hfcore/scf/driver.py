@@ -12,6 +12,7 @@ import contextlib
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, replace
+from typing import Any
 
 import numpy as np
 
@@ -185,6 +186,32 @@ def run_rhf(
                         plan)
 
 
+def placed(result: Any, molecule: Molecule, basis: BasisSet, plan: "JKPlan", jk: Any, integral_seconds: float,
+           guess_seconds: float, started: float) -> Any:
+    """A solver's record (RHF, UHF or ROHF) put on its molecule: basis, J/K plan, memory, fitting and whole-run timings.
+
+    ``guess_seconds`` is the atomic start made before the solver ran;
+    ``started`` the ``time.perf_counter()`` of the run's start.
+    """
+    timings = {
+        "integrals": integral_seconds,
+        "guess": guess_seconds + result.timings.get("guess", 0.0),
+        "scf": result.timings.get("scf", 0.0),
+        "stability": result.timings.get("stability", 0.0),
+        "total": time.perf_counter() - started,
+    }
+    fitted = {}
+    if plan.fitting is not None:
+        fitted = {
+            "fit_basis": plan.fit_basis, "fit_notes": plan.fit_notes, "fit_storage": plan.fitting.storage,
+            "fit_dropped": getattr(jk, "n_dropped", 0),
+        }
+    return replace(
+        result, molecule=molecule, basis=basis, timings=timings, jk_mode=plan.mode,
+        eri_memory_bytes=plan.eri_memory_bytes, memory_budget=plan.budget, resource_notes=plan.notes, **fitted,
+    )
+
+
 def scf_blas_threads(plan: "JKPlan", options: SCFOptions) -> int:
     """BLAS threads for the SCF iterations of a plan.
 
@@ -237,24 +264,7 @@ def _run_rhf(
     t_sad = time.perf_counter() - t_integrals
 
     def finish(result: RHFResult) -> RHFResult:
-        timings = {
-            "integrals": t_integrals - t0,
-            "guess": t_sad + result.timings["guess"],
-            "scf": result.timings["scf"],
-            "stability": result.timings.get("stability", 0.0),
-            "total": time.perf_counter() - t0,
-        }
-        fitted = {}
-        if plan.fitting is not None:
-            fitted = {
-                "fit_basis": plan.fit_basis, "fit_notes": plan.fit_notes, "fit_storage": plan.fitting.storage,
-                "fit_dropped": getattr(jk, "n_dropped", 0),
-            }
-        return replace(
-            result, molecule=molecule, basis=basis, timings=timings, jk_mode=plan.mode,
-            eri_memory_bytes=plan.eri_memory_bytes, memory_budget=plan.budget, resource_notes=plan.notes,
-            **fitted,
-        )
+        return placed(result, molecule, basis, plan, jk, t_integrals - t0, t_sad, t0)
 
     try:
         with _budget_context(plan):

@@ -23,7 +23,7 @@ from ..errors import ConvergenceError, InputError
 from ..geometry import Molecule
 from .._parallel import blas_threads
 from ..basis.fitting import fitting_basis
-from .driver import JKPlan, SharedIntegrals, _checked_guess, _jk_builder, plan_jk, prepare_integrals, run_rhf, scf_blas_threads
+from .driver import JKPlan, SharedIntegrals, placed, _checked_guess, _jk_builder, plan_jk, prepare_integrals, run_rhf, scf_blas_threads
 from .guess import sad_density
 from .jk import IncrementalJK
 from .open_result import ROHFResult, UHFResult
@@ -187,23 +187,7 @@ def run_open_shell(
         t_sad = time.perf_counter() - t_integrals
 
         def finish(result):
-            timings = {
-                "integrals": t_integrals - t0,
-                "guess": t_sad + result.timings.get("guess", 0.0),
-                "scf": result.timings.get("scf", 0.0),
-                "stability": result.timings.get("stability", 0.0),
-                "total": time.perf_counter() - t0,
-            }
-            fitted = {}
-            if plan.fitting is not None:
-                fitted = {
-                    "fit_basis": plan.fit_basis, "fit_notes": plan.fit_notes, "fit_storage": plan.fitting.storage,
-                    "fit_dropped": getattr(jk, "n_dropped", 0),
-                }
-            return replace(
-                result, molecule=molecule, basis=basis, timings=timings, jk_mode=plan.mode,
-                eri_memory_bytes=plan.eri_memory_bytes, memory_budget=plan.budget, resource_notes=plan.notes, **fitted,
-            )
+            return placed(result, molecule, basis, plan, jk, t_integrals - t0, t_sad, t0)
 
         try:
             if method == "uhf":
