@@ -2,45 +2,64 @@
 
 The rule (``docs/basis-limits.md`` shows its calibration)
 ----------------------------------------------------------
-For a series of energies E(X) in a correlation-consistent family, with X_top
-the largest cardinal number present and X_top − 1 (and X_top − 2) present
-too, each published fast form gives a *candidate*:
+For a series of energies E(X) in a correlation-consistent family, X_top the
+largest cardinal number present and the consecutive ones below it, write
+δ_X = E(X − 1) − E(X) for the steps and r_X = δ_X / δ_(X−1) for the ratios of
+successive steps. Each published fast form gives a *candidate*:
 
 * two-point, E(X) = E_CBS + A (X + 1) exp(−9 √X), from (X_top − 1, X_top)
   (Karton and Martin 2006);
 * three-point, E(X) = E_CBS + B exp(−C X), from (X_top − 2, X_top − 1, X_top)
-  (Feller 1992).
+  (Feller 1992): a geometric tail with the last ratio, δ r / (1 − r).
 
-Both forms assume the basis error falls off exponentially; where it falls
-off more slowly they stop short of the limit, and where it falls off faster
-they overshoot it. The yardstick of "more slowly" is the inverse-power form
-E(X) = E_CBS + A X^−α with α = 3.4 for Hartree–Fock energies (D. G. Truhlar,
-Chem. Phys. Lett. 294, 45 (1998), from memory), solved through the same two
-largest bases: a *slow* estimate. The three forms disagree by as much as the
-behaviour of the series beyond the largest basis is unknown, so the interval
-of a candidate c reaches the farthest of them:
+Two *continuations* bound what lies beyond the largest basis:
 
-    c ± max |c − E_form|   over the two-point, three-point and slow estimates,
+* the **slowest continuation** sums the steps beyond X_top with the series'
+  own ratios carried on: each next ratio is the last one times the ratio's
+  own rate of change r_X / r_(X−1), but never below the largest ratio seen
+  (the fast forms' ratios do not rise with X, so a falling ratio is not
+  trusted to keep falling) and never above the ratio of the slow
+  inverse-power form E(X) = E_CBS + A X^−3.4 at the same X (D. G. Truhlar,
+  Chem. Phys. Lett. 294, 45 (1998), from memory), unless the largest ratio
+  seen is already above it. With fewer than two ratios the ratio's trend is
+  unknown and the slow form's ratios are used, so the slowest continuation
+  is the slow form through the two largest bases (as far as it is not faster
+  than the one ratio seen). The sum of a series whose ratios are bounded is
+  bounded by the corresponding geometric or inverse-power sum (exact
+  property of series);
+* the **fastest continuation** is, up to X_top = 4, the two-point form (the
+  fastest of the published forms: the calibration limits all lie below it
+  at quadruple-zeta); from X_top = 5 on, where the published forms are
+  known to overshoot (first-row atoms converge faster than all of them
+  beyond quintuple-zeta: their step ratio drops from about 0.28 to below
+  0.1), no step at all: the largest basis' energy itself.
+
+The interval of a candidate c reaches the farthest of the other estimates:
+
+    c ± max |c − E_other|   over the two-point, three-point, slowest and fastest estimates,
 
 cut from above, for a total energy, at E(X_top): the variational principle
 puts the limit below every finite-basis energy (exact property). The record's
 energy is the centre of what is left and its uncertainty the half-width. Of
 the candidates the one with the smallest uncertainty is chosen, and the
-record says which. Nothing in the rule is fitted to a system: each form is
-driven by the step from the largest basis, E(X_top − 1) − E(X_top) (and the
-step before it), and the width is the distance between published forms.
+record says which. Nothing in the rule is fitted to a system: every estimate
+is the last step δ_(X_top) times a factor that comes from a published form
+or from the series' own ratios.
 
 For a difference of energies (a reaction or an interaction energy) the same
 rule runs on the difference's own series, where errors partly cancel, without
-the variational cut (a difference has no variational bound).
+the variational cut (a difference has no variational bound). Where its steps
+change sign, the slowest continuation is taken on both sides of E(X_top).
 
 Where the bases cannot support an estimate (no correlation-consistent
-family, one cardinal number, no consecutive pair) the record carries a note
-and no numbers, never an exception.
+family, one cardinal number, no consecutive pair, steps that do not shrink)
+the record carries a note and no numbers, never an exception.
 
-Open shells: :func:`basis_limit` takes plain (name, energy) series, so UHF or
-ROHF totals go through the same rule once those runs exist; only the
-calibration table (``scripts/calibrate_limits.py``) has to grow.
+Open shells: :func:`basis_limit` takes plain (name, energy) series, so
+restricted open-shell totals of atoms go through the same rule; the
+calibration (``scripts/calibrate_limits.py``) includes C, N, O and F as
+equivalence-restricted ("spherical atom") ROHF energies, the kind of value
+the numerical limits are.
 """
 
 from __future__ import annotations
@@ -63,11 +82,15 @@ from .extrapolation import (
 SLOW_POWER: float = 3.4
 #: Citation of the slow form.
 TRUHLAR_CITATION = "D. G. Truhlar, Chem. Phys. Lett. 294, 45 (1998)"
+#: From this largest cardinal number on, the fastest continuation is the largest basis' energy itself.
+FAST_FORM_LAST_TRUSTED: int = 4
 #: One-line statement of the rule, carried by every record.
 RULE = (
-    "candidate ± its largest distance to the two-point, three-point and inverse-power (X^-3.4) estimates"
-    " from the largest bases, cut at the largest basis' energy for a total energy; centre and half-width"
-    " of that interval; the candidate with the smallest half-width is chosen"
+    "candidate ± its largest distance to the two-point and three-point estimates and to the slowest and fastest"
+    " continuations beyond the largest basis (slowest: the series' own step ratios carried on, at least the largest"
+    " seen, at most the X^-3.4 form's; fastest: the two-point form up to QZ, no further step from 5Z on), cut at"
+    " the largest basis' energy for a total energy; centre and half-width of that interval; the candidate with the"
+    " smallest half-width is chosen"
 )
 
 
@@ -92,6 +115,89 @@ def inverse_power_two_point(e_x: float, e_y: float, x: float, y: float, power: f
         raise InputError(f"two-point extrapolation needs two different positive cardinal numbers, got {x} and {y}")
     fx, fy = x**-power, y**-power
     return (e_y * fx - e_x * fy) / (fx - fy)
+
+
+def slow_form_ratio(x: int, power: float = SLOW_POWER) -> float:
+    """Step ratio δ_x / δ_(x−1) of the inverse-power form E(X) = E_CBS + A X^-power.
+
+    Parameters
+    ----------
+    x : int
+        Cardinal number, at least 3.
+    power : float
+        The exponent (3.4 for Hartree–Fock energies, Truhlar 1998).
+
+    Returns
+    -------
+    float
+        The ratio, in (0, 1); it rises towards 1 with x.
+    """
+    return ((x - 1) ** -power - x**-power) / ((x - 2) ** -power - (x - 1) ** -power)
+
+
+def _slow_form_tail(x: int, power: float = SLOW_POWER) -> float:
+    """Sum of the inverse-power form's steps beyond x, in units of its step δ_x."""
+    return 1.0 / ((x / (x - 1)) ** power - 1.0)
+
+
+def slowest_tail(steps: Sequence[float], x_top: int, power: float = SLOW_POWER, max_terms: int = 100_000) -> float:
+    """Sum of the steps beyond the largest basis along the slowest continuation, in units of the last step.
+
+    Parameters
+    ----------
+    steps : sequence of float
+        Steps δ_X = E(X − 1) − E(X) (hartree) of consecutive cardinal numbers
+        ending at ``x_top``, in increasing X; only their sizes matter.
+    x_top : int
+        Cardinal number of the largest basis.
+    power : float
+        Exponent of the slow inverse-power form whose ratios cap the trend.
+    max_terms : int
+        Safety bound on the number of summed steps.
+
+    Returns
+    -------
+    float
+        τ ≥ 0 with E(X_top) − E_lim ≤ τ |δ_(X_top)| along the slowest
+        continuation; ``math.inf`` when the steps do not shrink (a ratio of
+        at least 1), 0 when the last step is zero.
+
+    Notes
+    -----
+    Next ratio = max(largest ratio seen, min(slow form's ratio, last ratio ×
+    the ratio's rate of change)); with fewer than two ratios the rate is
+    unknown and the slow form's ratio applies (at least the ratio seen). Once
+    the slow form's ratios alone decide, the rest of the sum is the slow
+    form's closed-form tail.
+    """
+    sizes = [abs(float(d)) for d in steps]
+    if not sizes or sizes[-1] == 0.0:
+        return 0.0
+    ratios = [b / a for a, b in zip(sizes, sizes[1:]) if a > 0.0]
+    largest = max(ratios, default=0.0)
+    if largest >= 1.0:
+        return math.inf
+    rate = ratios[-1] / ratios[-2] if len(ratios) >= 2 and ratios[-2] > 0.0 else math.inf
+    last = ratios[-1] if ratios else None
+    tail, term = 0.0, 1.0
+    for x in range(x_top + 1, x_top + 1 + max_terms):
+        cap = slow_form_ratio(x, power)
+        trend = math.inf if last is None or rate == math.inf else last * rate
+        ratio = max(largest, min(cap, trend))
+        term *= ratio
+        if ratio == cap and cap >= largest and (trend >= cap) and (rate == math.inf or rate >= _cap_growth(x, power)):
+            # From here on the slow form's ratios decide every step: add its closed-form tail.
+            return tail + term * (1.0 + _slow_form_tail(x, power))
+        tail += term
+        last = ratio
+        if term <= 1e-16 * tail:
+            break
+    return tail
+
+
+def _cap_growth(x: int, power: float) -> float:
+    """Largest growth factor of the slow form's ratio from x on (it shrinks with x)."""
+    return slow_form_ratio(x + 1, power) / slow_form_ratio(x, power)
 
 
 @dataclass(frozen=True)
@@ -120,7 +226,11 @@ class BasisLimit:
     candidate : float or None
         The chosen formula's own value (hartree), before centring.
     slow_estimate : float or None
-        The inverse-power estimate from the two largest bases (hartree).
+        The slowest continuation's estimate (hartree): E(X_top) minus the
+        summed steps beyond the largest basis (:func:`slowest_tail`); with
+        three bases or fewer, the inverse-power form through the two largest
+        unless the one ratio seen is slower. Where the steps change sign, the
+        one in the direction of the last step.
     cut : bool
         Whether the variational bound cut the interval.
     note : str or None
@@ -195,6 +305,29 @@ def _group(series: Sequence[tuple[str, float, bool]]) -> dict[tuple[str, bool], 
     return groups
 
 
+def _run_below(members: dict[int, tuple[str, float]], top: int) -> list[float]:
+    """Energies of the consecutive cardinal numbers ending at ``top``, by increasing X."""
+    low = top
+    while low - 1 in members:
+        low -= 1
+    return [members[x][1] for x in range(low, top + 1)]
+
+
+def _continuations(members: dict[int, tuple[str, float]], top: int) -> tuple[list[float], float]:
+    """The slowest-continuation estimates (one, or two where the steps change sign) and the fastest one."""
+    energies = _run_below(members, top)
+    steps = [a - b for a, b in zip(energies, energies[1:])]
+    last, e_top = steps[-1], energies[-1]
+    tau = slowest_tail(steps, top)
+    monotone = all(d * last > 0.0 for d in steps) or last == 0.0
+    reach = tau * abs(last)
+    slow = [e_top - math.copysign(reach, last)] if monotone else [e_top - math.copysign(reach, last),
+                                                                  e_top + math.copysign(reach, last)]
+    (n1, e1), (n2, e2) = members[top - 1], members[top]
+    fast = karton_martin_two_point(e1, e2, top - 1, top) if top <= FAST_FORM_LAST_TRUSTED else e_top
+    return slow, fast
+
+
 def _candidates(family: str, members: dict[int, tuple[str, float]], bounded: bool) -> tuple[list[BasisLimit], list[str]]:
     top = max(members)
     if top - 1 not in members:
@@ -202,7 +335,9 @@ def _candidates(family: str, members: dict[int, tuple[str, float]], bounded: boo
     (n1, e1), (n2, e2) = members[top - 1], members[top]
     if bounded and e2 > e1:
         return [], [f"{family}: the energy rises from {n1} to {n2}, so the series does not converge from above"]
-    slow = inverse_power_two_point(e1, e2, top - 1, top)
+    slow, fast = _continuations(members, top)
+    if not all(math.isfinite(v) for v in slow):
+        return [], [f"{family}: the steps between consecutive bases do not shrink, so no interval can be given"]
     found = [("two-point", (n1, n2), karton_martin_two_point(e1, e2, top - 1, top), KARTON_MARTIN_CITATION)]
     notes = []
     if top - 2 in members:
@@ -212,7 +347,7 @@ def _candidates(family: str, members: dict[int, tuple[str, float]], bounded: boo
                           FELLER_CITATION))
         except InputError as exc:
             notes.append(f"{family}: three-point candidate left out: {exc}")
-    values = [value for _, _, value, _ in found] + [slow]
+    values = [value for _, _, value, _ in found] + slow + [fast]
     out = []
     for method, bases, value, citation in found:
         half = max(abs(value - other) for other in values)
@@ -222,7 +357,7 @@ def _candidates(family: str, members: dict[int, tuple[str, float]], bounded: boo
             high = e2
         out.append(BasisLimit(
             energy_total=0.5 * (low + high), uncertainty=0.5 * (high - low), chosen=f"{method} ({', '.join(bases)})",
-            method=method, family=family, bases=bases, candidate=value, slow_estimate=slow, cut=cut,
+            method=method, family=family, bases=bases, candidate=value, slow_estimate=slow[0], cut=cut,
             citations=(citation, TRUHLAR_CITATION),
         ))
     return out, notes
@@ -268,4 +403,14 @@ def basis_limit(series: Sequence[tuple[str, float, bool]], *, bounded_above: boo
     return BasisLimit(**{**best.__dict__, "note": note})
 
 
-__all__ = ["SLOW_POWER", "TRUHLAR_CITATION", "RULE", "BasisLimit", "basis_limit", "inverse_power_two_point"]
+__all__ = [
+    "SLOW_POWER",
+    "FAST_FORM_LAST_TRUSTED",
+    "TRUHLAR_CITATION",
+    "RULE",
+    "BasisLimit",
+    "basis_limit",
+    "inverse_power_two_point",
+    "slow_form_ratio",
+    "slowest_tail",
+]
