@@ -545,12 +545,9 @@ def run_single(request: RunRequest, progress: RunProgress | None = None) -> RunO
         check_mp2_reference(method)
     basis = build_basis_for(request, molecule)
     options = dataclasses.replace(request.scf_options(), method=method)  # the method this molecule runs
-    if method == "rohf" and request.spherical_atom:
-        from .scf.spherical_atom import applies_to, check_spherical_atom
+    from .scf.spherical_atom import check_before_runs
 
-        if applies_to(molecule, options):  # an impossible spherical atom fails before any output
-            check_spherical_atom(molecule.n_atoms, int(np.count_nonzero(molecule.ghosts)), basis.spherical,
-                                 molecule.n_electrons, molecule.spin_multiplicity, molecule.source)
+    check_before_runs([(molecule, method, basis.spherical, molecule.source)], options)  # before any output
     fitting = None
     if options.fit_basis is not None:
         from .basis.fitting import fitting_basis

@@ -146,6 +146,9 @@ def _cli(*args: str) -> subprocess.CompletedProcess:
     ("energy", str(INPUTS / "o.xyz"), "--multiplicity", "5", "--spherical-atom", "--basis", "cc-pvdz"),
     ("energy", str(INPUTS / "o.xyz"), "--multiplicity", "3", "--spherical-atom", "--basis", "6-31g*"),
     ("energy", str(INPUTS / "o.xyz"), "--multiplicity", "3", "--spherical-atom", "--uhf"),
+    ("compare", str(INPUTS / "o.xyz"), "--multiplicity", "3", "--spherical-atom", "--basis", "cc-pvdz,6-31g*"),
+    ("reaction", f"{INPUTS / 'water.xyz'} -> {INPUTS / 'o.xyz'}[quintet] + 2 {INPUTS / 'h.xyz'}[doublet]",
+     "--spherical-atom", "--basis", "sto-3g"),
 ])
 def test_impossible_requests_fail_in_one_line_before_any_output(args):
     done = _cli(*args)

@@ -198,6 +198,30 @@ def check_spherical_atom(n_atoms: int, n_ghosts: int, spherical: bool, n_electro
     return config
 
 
+def check_before_runs(runs, options: SCFOptions) -> None:
+    """Check every spherical-atom run of a study or command before its first integral.
+
+    Parameters
+    ----------
+    runs : iterable of (Molecule, str or None, bool, str)
+        Each run's molecule, method choice (as for :attr:`SCFOptions.method`),
+        whether its basis is real spherical, and its label for messages.
+    options : SCFOptions
+        Nothing is checked unless ``options.spherical_atom``.
+
+    Raises
+    ------
+    InputError
+        As :func:`check_spherical_atom`, or UHF asked for such an atom.
+    """
+    if not options.spherical_atom:
+        return
+    for molecule, method, spherical, label in runs:
+        if method_choice(molecule, method, True) == "rohf" and applies_to(molecule, options):
+            check_spherical_atom(molecule.n_atoms, int(np.count_nonzero(molecule.ghosts)), spherical,
+                                 molecule.n_electrons, molecule.spin_multiplicity, label)
+
+
 def radial_layout(basis: BasisSet) -> dict[int, np.ndarray]:
     """The basis functions of each angular momentum, by component and radial function.
 
@@ -534,5 +558,5 @@ def _record(det: _Determinant, radial, ev, history, converged, energy_nuclear, o
     )
 
 
-__all__ = ["AtomConfiguration", "applies_to", "method_choice", "ground_configuration", "check_spherical_atom", "radial_layout",
+__all__ = ["AtomConfiguration", "applies_to", "method_choice", "check_before_runs", "ground_configuration", "check_spherical_atom", "radial_layout",
            "solve_spherical_atom", "RESTRICTION"]
