@@ -120,6 +120,9 @@ class RunRequest:
         Spin multiplicity 2S+1; ``None`` means a closed shell (singlet).
     method : {None, "uhf", "rohf"}
         The open-shell method; ``None`` is RHF for a closed shell.
+    spherical_atom : bool
+        An open-shell lone atom runs as ROHF with equivalence restrictions
+        (:mod:`hfcore.scf.spherical_atom`); other systems as without it.
     basis : str
         Basis-set name (ignored when ``basis_file`` is given).
     basis_file : str or None
@@ -163,6 +166,7 @@ class RunRequest:
     charge: int = 0
     multiplicity: int | None = None
     method: str | None = None
+    spherical_atom: bool = False
     basis: str = "sto-3g"
     basis_file: str | None = None
     basis_for: tuple[tuple[str, str], ...] = ()
@@ -202,6 +206,8 @@ class RunRequest:
             isinstance(self.multiplicity, bool) or not isinstance(self.multiplicity, int) or self.multiplicity < 1
         ):
             raise InputError(f"multiplicity {self.multiplicity!r}: expected a whole number 1 or more (2S+1)")
+        if self.spherical_atom and method == "uhf":
+            raise InputError("--spherical-atom runs open-shell atoms as ROHF; it cannot be combined with --uhf")
         if self.frozen_core and not self.mp2:
             raise InputError("--frozen-core applies to the MP2 energy only; add --mp2")
         if self.mp2_fit_basis is not None and not self.mp2:
@@ -227,6 +233,8 @@ class RunRequest:
         """
         fields = {k: v for k, v in self.to_dict().items() if k not in _NOT_IN_KEY}
         fields["basis"] = self.basis.strip().lower()
+        if not fields.get("spherical_atom"):
+            fields.pop("spherical_atom", None)  # keys of jobs from before the option stay as they were
         return fields
 
     @classmethod
@@ -250,7 +258,7 @@ class RunRequest:
         given = {name: getattr(self, name) for name in names if getattr(self, name) is not None}
         if self.memory_mib is not None:
             given["memory_limit"] = self.memory_mib
-        return SCFOptions(stability=self.stability, method=self.method, **given)
+        return SCFOptions(stability=self.stability, method=self.method, spherical_atom=self.spherical_atom, **given)
 
 
 @dataclass(frozen=True)
@@ -359,8 +367,11 @@ def scf_method(request: RunRequest, molecule: Molecule) -> str:
     if molecule.n_electrons <= 0:  # before any output, as every other input check
         raise InputError(f"{molecule.source}: charge {molecule.charge} leaves {molecule.n_electrons} electrons; "
                          "nothing to compute")
+    from .scf.spherical_atom import method_choice
+
     multiplicity = molecule.spin_multiplicity
-    return resolve_method(multiplicity, open_shell_choice(multiplicity, request.method))
+    choice = method_choice(molecule, open_shell_choice(multiplicity, request.method), request.spherical_atom)
+    return resolve_method(multiplicity, choice)
 
 
 def open_shell_engine(request: RunRequest, molecule: Molecule | None) -> Callable[..., Any] | None:
@@ -534,6 +545,9 @@ def run_single(request: RunRequest, progress: RunProgress | None = None) -> RunO
         check_mp2_reference(method)
     basis = build_basis_for(request, molecule)
     options = dataclasses.replace(request.scf_options(), method=method)  # the method this molecule runs
+    from .scf.spherical_atom import check_before_runs
+
+    check_before_runs([(molecule, method, basis.spherical, molecule.source)], options)  # before any output
     fitting = None
     if options.fit_basis is not None:
         from .basis.fitting import fitting_basis

@@ -201,6 +201,10 @@ def add_method_arguments(parser: Any) -> None:
                         "on a singlet, lets the spin symmetry break")
     method.add_argument("--rohf", dest="method", action="store_const", const="rohf",
                         help="restricted open-shell Hartree–Fock for every open shell (singlets stay RHF)")
+    parser.add_argument("--spherical-atom", action="store_true", default=None,
+                        help="an open-shell lone atom runs as ROHF with one radial function per shell "
+                        "(equivalence restrictions, as numerical Hartree–Fock limits assume); "
+                        "other species run as without it; not with --uhf")
 
 
 def add_scf_arguments(parser: argparse.ArgumentParser) -> None:

@@ -233,6 +233,9 @@ def format_stability(result: Any) -> str:
         rows.append(("Hessian products", str(st.hessian_products)))
     if result.method == "ROHF":
         rows[0] = ("internal stability", "not analysed for ROHF (use --uhf for the UHF stability analysis)")
+        if getattr(result, "restriction", None):
+            rows.insert(1, ("orbital shapes", f"{result.restriction}: one radial function per shell, "
+                            "shared by its m components (equivalence restrictions)"))
     if hasattr(result, "aufbau"):
         gap = "none" if not np.isfinite(result.aufbau_gap) else f"{result.aufbau_gap:.6f} Eh"
         verdict = "yes" if result.aufbau else "NO"

@@ -92,7 +92,7 @@ def run_scf(
         As :func:`run_rhf`.
     """
     options = options or SCFOptions()
-    method = resolve_method(molecule.spin_multiplicity, options.method)
+    method = resolve_method(molecule.spin_multiplicity, _method_choice(molecule, options))
     if method == "rhf":
         return _run_rhf_checked(molecule, basis, options, guess, progress, integral_progress, shared, raise_on_failure,
                                 plan)
@@ -100,6 +100,13 @@ def run_scf(
         molecule, basis, options, method=method, guess=guess, progress=progress,
         integral_progress=integral_progress, shared=shared, raise_on_failure=raise_on_failure, plan=plan,
     )
+
+
+def _method_choice(molecule: Molecule, options: SCFOptions) -> str | None:
+    """``options.method``, or ROHF for an open-shell lone atom under ``spherical_atom``."""
+    from .spherical_atom import method_choice
+
+    return method_choice(molecule, options.method, options.spherical_atom)
 
 
 def _run_rhf_checked(molecule, basis, options, guess, progress, integral_progress, shared, raise_on_failure,
@@ -167,6 +174,7 @@ def run_open_shell(
         if isinstance(basis, str):
             basis = build_basis(molecule, basis)
         require_room_for(molecule, basis)
+        restricted = _spherical_setup(molecule, basis, options, method)
         user_guess = _open_guess(guess, basis)
         if shared is None:
             shared = _prepare_open(basis, options, integral_progress, molecule, plan)
@@ -200,6 +208,13 @@ def run_open_shell(
 
                     # converging and following stay apart (as for RHF); finish() times the whole run
                     result = stabilise_uhf(result, jk, molecule.nuclear_repulsion(), progress=progress)
+            elif restricted is not None:
+                from .spherical_atom import solve_spherical_atom
+
+                result = solve_spherical_atom(
+                    shared.overlap, hcore, jk, *restricted, molecule.nuclear_repulsion(), options, user_guess,
+                    progress=progress,
+                )
             else:
                 from .rohf import solve_rohf
 
@@ -214,6 +229,19 @@ def run_open_shell(
                 return finish(exc.result)
             raise ConvergenceError(str(exc), finish(exc.result)) from None
         return finish(result)
+
+
+def _spherical_setup(molecule: Molecule, basis: BasisSet, options: SCFOptions, method: str):
+    """(radial layout, configuration) of a spherical-atom run, checked before any integral; None otherwise."""
+    from .spherical_atom import applies_to, check_spherical_atom, radial_layout
+
+    if method != "rohf" or not applies_to(molecule, options):
+        return None
+    config = check_spherical_atom(
+        len(molecule.atomic_numbers), int(np.count_nonzero(molecule.ghosts)), basis.spherical,
+        molecule.n_electrons, molecule.spin_multiplicity, molecule.source,
+    )
+    return radial_layout(basis), config
 
 
 def _prepare_open(

@@ -348,6 +348,10 @@ class ROHFResult(UHFResult):
     coupling : str
         Name of the coupling scheme of the effective Fock matrix
         (:data:`hfcore.scf.rohf.COUPLINGS`).
+    restriction : str or None
+        ``"spherical atom"`` for a lone atom whose orbitals keep one radial
+        function per shell (:mod:`hfcore.scf.spherical_atom`); None for
+        unrestricted orbital shapes.
     """
 
     orbital_energies: np.ndarray | None = None
@@ -355,11 +359,19 @@ class ROHFResult(UHFResult):
     occupations: np.ndarray | None = None
     fock: np.ndarray | None = None
     coupling: str = "guest-saunders"
+    restriction: str | None = None
 
     @property
     def orbital_energy_convention(self) -> str:
         from .couplings import COUPLINGS
 
+        if self.restriction is not None:
+            return (
+                f"diagonal of the effective Fock matrix of the {self.coupling} coupling "
+                f"({COUPLINGS[self.coupling].source}) in the {self.restriction} orbitals (one radial function per "
+                "shell), made canonical per angular momentum and occupation with the m-averaged matrix; "
+                "the alpha and beta energies are the diagonal of the alpha and beta Fock matrices in these orbitals"
+            )
         return (
             f"eigenvalues of the effective Fock matrix of the {self.coupling} coupling ({COUPLINGS[self.coupling].source}); "
             "the alpha and beta energies are the diagonal of the alpha and beta Fock matrices in these orbitals"
@@ -368,6 +380,7 @@ class ROHFResult(UHFResult):
     def _orbitals_record(self) -> dict[str, Any]:
         record = super()._orbitals_record()
         record["coupling"] = self.coupling
+        record["restriction"] = self.restriction
         record["energies"] = self.orbital_energies
         record["occupations"] = self.occupations
         return record

@@ -144,6 +144,12 @@ class SCFOptions:
         (default) runs RHF on a singlet and UHF on any other multiplicity;
         RHF on a non-singlet is refused. One field, so UHF and ROHF cannot
         both be chosen.
+    spherical_atom : bool
+        Run an open-shell lone atom as ROHF with equivalence restrictions:
+        one radial function per shell, shared by its m components, as the
+        numerical Hartree-Fock limits of atoms assume
+        (:mod:`hfcore.scf.spherical_atom`). Other systems, and closed-shell
+        atoms, run as without it. With ``method="uhf"`` such an atom is refused.
 
     ``diis_space`` is the deprecated name of ``max_diis_size``, kept for
     one release: ``SCFOptions(diis_space=N)`` still works (with a
@@ -175,6 +181,7 @@ class SCFOptions:
     threads: int | None = None
     fit_basis: Any = None
     method: str | None = None
+    spherical_atom: bool = False
 
     def __post_init__(self) -> None:
         for name in ("energy_tol", "gradient_tol", "lindep_threshold"):
@@ -202,6 +209,8 @@ class SCFOptions:
             if name not in METHODS:
                 raise InputError(f"unknown SCF method {self.method!r}: choose one of {', '.join(METHODS)}")
             object.__setattr__(self, "method", name)
+        if not isinstance(self.spherical_atom, bool):
+            raise InputError(f"SCF option spherical_atom must be True or False, got {self.spherical_atom!r}")
 
     def _check_fit_basis(self) -> None:
         from ..basis.family import BasisFamily

@@ -340,6 +340,9 @@ def run_comparison_pieces(
     previous = None
     base = options or SCFOptions()
     ordered = sorted(pieces, key=lambda p: p.step)
+    from ..scf.spherical_atom import check_before_runs
+
+    check_before_runs(((molecule, p.method, bases[p.key].spherical, molecule.source) for p in ordered), base)
     for piece in ordered:
         start = time.perf_counter()
         basis = bases[piece.key]

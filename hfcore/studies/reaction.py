@@ -305,7 +305,11 @@ def run_reaction_pieces(
     ConvergenceError
         If a run does not converge (naming the species and basis).
     """
+    from ..scf.spherical_atom import check_before_runs
+
     base = options or SCFOptions()
+    check_before_runs(((species[p.species].molecule, p.method, bases[p.key].spherical, species[p.species].label)
+                       for p in pieces), base)
     out: dict[tuple[int, str], PieceOutcome] = {}
     for step, piece in enumerate(pieces, start=1):
         t0 = time.perf_counter()
