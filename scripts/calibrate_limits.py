@@ -2,10 +2,9 @@
 
 Run from the repository root::
 
-    python scripts/calibrate_limits.py            # closed shells from tests/data/basis_limit_energies.json,
-                                                  # open-shell atoms run with hfcore (about a minute)
-    python scripts/calibrate_limits.py --compute  # recompute every energy with hfcore first (a few minutes)
-    python scripts/calibrate_limits.py --compute --write  # ... and store them in that file
+    python scripts/calibrate_limits.py            # the hfcore energies stored in tests/data/basis_limit_energies.json
+    python scripts/calibrate_limits.py --write    # rerun the open-shell atoms with hfcore (about six minutes) and store them
+    python scripts/calibrate_limits.py --compute  # rerun every system with hfcore first (add --write to store them)
 
 Prints the calibration table of ``docs/basis-limits.md``: per system and
 range of bases, the chosen estimate, the published limit, the error, the
@@ -124,8 +123,8 @@ def table(energies: dict) -> list[dict]:
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    parser.add_argument("--compute", action="store_true", help="recompute the closed-shell energies with hfcore")
-    parser.add_argument("--write", action="store_true", help="store the hfcore energies in the data file")
+    parser.add_argument("--compute", action="store_true", help="rerun every system with hfcore")
+    parser.add_argument("--write", action="store_true", help="rerun the open-shell atoms and store the hfcore energies in the data file")
     args = parser.parse_args()
     stored = json.loads(DATA.read_text(encoding="utf-8"))
     energies = closed_shell_energies() if args.compute else dict(stored["hfcore"])
@@ -134,7 +133,7 @@ def main() -> None:
         open_shell = open_shell_energies()
     energies.update(open_shell)
     if args.write:
-        stored["hfcore"] = {s: energies[s] for s in SYSTEMS}
+        stored["hfcore"] = {s: energies[s] for s in (stored.get("hfcore") or SYSTEMS)}  # keep the stored order
         stored["hfcore_open_shell"] = open_shell
         DATA.write_text(json.dumps(stored, indent=1) + "\n", encoding="utf-8")
     rows = table(energies)

@@ -17,7 +17,8 @@ Two *continuations* bound what lies beyond the largest basis:
 * the **slowest continuation** sums the steps beyond X_top with the series'
   own ratios carried on: each next ratio is the last one times the ratio's
   own rate of change r_X / r_(X−1), but never below the largest ratio seen
-  (the fast forms' ratios do not rise with X, so a falling ratio is not
+  (in none of the three forms does the ratio fall with X: constant for the
+  three-point form, rising for the two others; so a falling ratio is not
   trusted to keep falling) and never above the ratio of the slow
   inverse-power form E(X) = E_CBS + A X^−3.4 at the same X (D. G. Truhlar,
   Chem. Phys. Lett. 294, 45 (1998), from memory), unless the largest ratio
@@ -29,10 +30,11 @@ Two *continuations* bound what lies beyond the largest basis:
   property of series);
 * the **fastest continuation** is, up to X_top = 4, the two-point form (the
   fastest of the published forms: the calibration limits all lie below it
-  at quadruple-zeta); from X_top = 5 on, where the published forms are
-  known to overshoot (first-row atoms converge faster than all of them
-  beyond quintuple-zeta: their step ratio drops from about 0.28 to below
-  0.1), no step at all: the largest basis' energy itself.
+  at quadruple-zeta); from X_top = 5 on, where the calibration shows the
+  published forms overshooting (first-row atoms converge faster than all of
+  them beyond quintuple-zeta: Ne's step ratio is 0.27 and 0.28 up to 5Z and
+  below 0.1 after it, with no sign of it before), no step at all: the
+  largest basis' energy itself.
 
 The interval of a candidate c reaches the farthest of the other estimates:
 
