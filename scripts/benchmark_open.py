@@ -66,7 +66,7 @@ def _hfcore(kind: str, path: str, charge: int, multiplicity: int | None, basis: 
     from hfcore.scf import SCFOptions, run_scf
 
     molecule = hfcore.read_xyz(INPUTS / path, charge=charge, multiplicity=multiplicity)
-    options = SCFOptions(fit_basis=fit, threads=1, stability="off")
+    options = SCFOptions(fit_basis=fit, threads=1, stability="skip")
     result = run_scf(molecule, basis, options)
     queue.put({
         "program": f"hfcore {kind}", "energy": result.energy_total, "iterations": result.iterations,
@@ -75,7 +75,7 @@ def _hfcore(kind: str, path: str, charge: int, multiplicity: int | None, basis: 
     })
 
 
-def _reference(path: str, charge: int, multiplicity: int, basis: str, fit: str | None, queue) -> None:
+def _reference(path: str, charge: int, multiplicity: int, basis: str, fit: str | None, queue, method: str = "uhf") -> None:
     t0 = time.perf_counter()
     import hfcore
     from open_reference import open_reference_mole
@@ -84,7 +84,7 @@ def _reference(path: str, charge: int, multiplicity: int, basis: str, fit: str |
 
     molecule = hfcore.read_xyz(INPUTS / path, charge=charge, multiplicity=multiplicity)
     mol = open_reference_mole(molecule, basis)
-    mf = scf.UHF(mol)
+    mf = scf.UHF(mol) if method == "uhf" else scf.RHF(mol)
     if fit is not None:
         mf = mf.density_fit(auxbasis=reference_mole(molecule, family_shells(molecule, fit), spherical=True)._basis)
     mf.conv_tol, mf.verbose = 1e-10, 0
@@ -93,16 +93,16 @@ def _reference(path: str, charge: int, multiplicity: int, basis: str, fit: str |
     t1 = time.perf_counter()
     mf.kernel()
     queue.put({
-        "program": "reference UHF", "energy": float(mf.e_tot), "iterations": len(cycles), "scf": time.perf_counter() - t1,
+        "program": f"reference {method.upper()}", "energy": float(mf.e_tot), "iterations": len(cycles), "scf": time.perf_counter() - t1,
         "integrals": 0.0, "jk_mode": "", "process": time.perf_counter() - t0, "peak_mib": _peak_mib(),
     })
 
 
-def _child(target, *args) -> dict:
+def _child(target, *args, **kwargs) -> dict:
     ctx = mp.get_context("fork")
     queue = ctx.Queue()
     t0 = time.perf_counter()
-    process = ctx.Process(target=target, args=(*args, queue))
+    process = ctx.Process(target=target, args=(*args, queue), kwargs=kwargs)
     process.start()
     out = queue.get()
     process.join()
@@ -172,6 +172,7 @@ def main(argv: list[str] | None = None) -> int:
         if not args.no_reference:
             try:
                 runs.append(_child(_reference, path, charge, mult, basis, fit))
+                runs.append(_child(_reference, partner, 0, 1, basis, fit, method="rhf"))
             except ImportError:
                 pass
         for r in runs:
@@ -183,6 +184,7 @@ def main(argv: list[str] | None = None) -> int:
             ratios["hfcore_over_reference_process"] = runs[0]["wall"] / runs[2]["wall"]
             ratios["hfcore_over_reference_memory"] = runs[0]["peak_mib"] / runs[2]["peak_mib"]
             ratios["energy_difference"] = runs[0]["energy"] - runs[2]["energy"]
+            ratios["reference_open_over_closed_per_iteration"] = runs[2]["per_iteration"] / runs[3]["per_iteration"]
         print("    " + ", ".join(f"{k} {v:.3g}" for k, v in ratios.items()), flush=True)
         out["cases"].append({"label": label, "runs": runs, "ratios": ratios})
     print(f"\n{'J/K builds':20s} {'mode':12s} {'nbf':>5s} {'jk/s':>9s} {'jk_multi/s':>11s} {'ratio':>6s}")
