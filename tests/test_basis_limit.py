@@ -209,6 +209,7 @@ def test_slowest_continuation_keeps_the_largest_ratio_seen_and_carries_a_rising_
     # steps that do not shrink leave no bound; a zero last step leaves nothing to add
     assert slowest_tail([1.0, 1.2], 3) == math.inf
     assert slowest_tail([0.0, 0.0], 3) == 0.0
+    assert slowest_tail([0.0, 1e-4], 3) == math.inf
 
 
 def test_slow_form_ratios_rise_towards_one():

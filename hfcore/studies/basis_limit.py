@@ -175,7 +175,8 @@ def slowest_tail(steps: Sequence[float], x_top: int, power: float = SLOW_POWER, 
     sizes = [abs(float(d)) for d in steps]
     if not sizes or sizes[-1] == 0.0:
         return 0.0
-    ratios = [b / a for a, b in zip(sizes, sizes[1:]) if a > 0.0]
+    # a step that follows a zero one has grown without bound; zero after zero stays zero
+    ratios = [b / a if a > 0.0 else (math.inf if b > 0.0 else 0.0) for a, b in zip(sizes, sizes[1:])]
     largest = max(ratios, default=0.0)
     if largest >= 1.0:
         return math.inf
