@@ -29,8 +29,8 @@ Two *continuations* bound what lies beyond the largest basis:
   bounded by the corresponding geometric or inverse-power sum (exact
   property of series);
 * the **fastest continuation** is, up to X_top = 4, the two-point form (the
-  fastest of the published forms: the calibration limits all lie below it
-  at quadruple-zeta); from X_top = 5 on, where the calibration shows the
+  interval reaches the candidates and no further; the calibration limits
+  all lie below the two-point estimate at quadruple-zeta); from X_top = 5 on, where the calibration shows the
   published forms overshooting (first-row atoms converge faster than all of
   them beyond quintuple-zeta: Ne's step ratio is 0.27 and 0.28 up to 5Z and
   below 0.1 after it, with no sign of it before), no step at all: the
