@@ -202,13 +202,41 @@ def _record(problem, rohf, c, ev, history, converged, energy_nuclear, options, s
         values, vectors = np.linalg.eigh(eff[space, space])
         energies[space] = values
         canonical[:, space] = c[:, space] @ vectors
-    fa = np.einsum("mi,mn,ni->i", canonical, ev.focks[0], canonical)
-    fb = np.einsum("mi,mn,ni->i", canonical, ev.focks[1], canonical)
     n_a, n_b = problem.n_occ
     occ_a, occ_b = np.zeros(c.shape[1]), np.zeros(c.shape[1])
     occ_a[:n_a], occ_b[:n_b] = 1.0, 1.0
-    u = rohf.sx.T @ canonical
-    fock_eff = problem.overlap @ problem.ortho.transform @ (u @ np.diag(energies) @ u.T) @ (problem.overlap @ problem.ortho.transform).T
+    return rohf_record(problem, ev, canonical, energies, occ_a, occ_b, history, converged, energy_nuclear, options,
+                       scheme, problem.ortho.n_dropped)
+
+
+def rohf_record(problem: UHFProblem, ev, coefficients: np.ndarray, energies: np.ndarray, occ_a: np.ndarray,
+                occ_b: np.ndarray, history: list[SCFIteration], converged: bool, energy_nuclear: float,
+                options: SCFOptions, coupling: str, n_dropped: int, restriction: str | None = None) -> ROHFResult:
+    """The ROHF record of final orbitals (columns doubly, singly, then un-occupied) and their energies.
+
+    Parameters
+    ----------
+    problem : UHFProblem
+    ev : the evaluation of the final densities (energies, α and β Fock matrices)
+    coefficients : ndarray, shape (nbf, nmo)
+    energies : ndarray, shape (nmo,)
+        The orbital energies of the effective Fock matrix in these orbitals.
+    occ_a, occ_b : ndarray, shape (nmo,)
+        α and β occupations (1 or 0).
+    history, converged, energy_nuclear, options
+        As the solver holds them.
+    coupling : str
+        The coupling scheme the orbital energies follow.
+    n_dropped : int
+        Orbitals removed for linear dependence.
+    restriction : str or None
+        The shape restriction of the orbitals (``"spherical atom"``) or None.
+    """
+    fa = np.einsum("mi,mn,ni->i", coefficients, ev.focks[0], coefficients)
+    fb = np.einsum("mi,mn,ni->i", coefficients, ev.focks[1], coefficients)
+    sc = problem.overlap @ coefficients
+    # The AO matrix whose representation in the (S-orthonormal) orbitals is diag(energies).
+    fock_eff = sc @ np.diag(energies) @ sc.T
     last = history[-1]
     n = len(history)
     message = f"converged in {n} iterations" if converged else (
@@ -216,6 +244,7 @@ def _record(problem, rohf, c, ev, history, converged, energy_nuclear, options, s
         f"last energy change {last.delta_e:.3e} Eh (tolerance {options.energy_tol:.1e}), "
         f"last gradient {last.gradient_norm:.3e} (tolerance {options.gradient_tol:.1e})"
     )
+    n_a, n_b = int(np.count_nonzero(occ_a)), int(np.count_nonzero(occ_b))
     return ROHFResult(
         energy_total=float(ev.energy_electronic + energy_nuclear),
         energy_nuclear=float(energy_nuclear),
@@ -224,8 +253,8 @@ def _record(problem, rohf, c, ev, history, converged, energy_nuclear, options, s
         energy_electronic=ev.energy_electronic,
         orbital_energies_alpha=fa,
         orbital_energies_beta=fb,
-        coefficients_alpha=canonical,
-        coefficients_beta=canonical,
+        coefficients_alpha=coefficients,
+        coefficients_beta=coefficients,
         occupations_alpha=occ_a,
         occupations_beta=occ_b,
         density_alpha=ev.densities[0],
@@ -237,20 +266,21 @@ def _record(problem, rohf, c, ev, history, converged, energy_nuclear, options, s
         converged=converged,
         iterations=n,
         history=history,
-        n_dropped=problem.ortho.n_dropped,
+        n_dropped=n_dropped,
         timings={},
         options=options,
         message=message,
-        s_squared=s_squared(canonical[:, :n_a], canonical[:, :n_b], problem.overlap),
+        s_squared=s_squared(coefficients[:, occ_a > 0], coefficients[:, occ_b > 0], problem.overlap),
         s_squared_exact=s_squared_exact(n_a, n_b),
         n_alpha=n_a,
         n_beta=n_b,
         method="ROHF",
         orbital_energies=energies,
-        coefficients=canonical,
+        coefficients=coefficients,
         occupations=occ_a + occ_b,
         fock=fock_eff,
-        coupling=scheme,
+        coupling=coupling,
+        restriction=restriction,
     )
 
 

@@ -50,10 +50,10 @@ from ..basis.shells import BasisSet
 from ..errors import BasisError, ConvergenceError, InputError
 from .jk import JKBuilder
 from .open_result import ROHFResult
+from .rohf import rohf_record
 from .options import SCFOptions
 from .result import SCFIteration
 from .solver import IterationProgress
-from .spin import s_squared, s_squared_exact
 from .uhf import UHFProblem, _checked_square
 
 #: The restriction label carried by the result.
@@ -508,54 +508,8 @@ def _record(det: _Determinant, radial, ev, history, converged, energy_nuclear, o
     order = np.lexsort((energies, space))
     coefficients, energies = coefficients[:, order], energies[order]
     occ_a, occ_b = occ_a[order], occ_b[order]
-    fa = np.einsum("mi,mn,ni->i", coefficients, ev.focks[0], coefficients)
-    fb = np.einsum("mi,mn,ni->i", coefficients, ev.focks[1], coefficients)
-    sc = problem.overlap @ coefficients
-    fock_eff = sc @ np.diag(energies) @ sc.T
-    n_a, n_b = problem.n_occ
-    last = history[-1]
-    n = len(history)
-    message = f"converged in {n} iterations" if converged else (
-        f"SCF did not converge in {n} iterations: last energy {last.energy:.10f} Eh, "
-        f"last gradient {last.gradient_norm:.3e} (tolerance {options.gradient_tol:.1e})"
-    )
-    return ROHFResult(
-        energy_total=float(ev.energy_electronic + energy_nuclear),
-        energy_nuclear=float(energy_nuclear),
-        energy_one_electron=ev.energy_one,
-        energy_two_electron=ev.energy_two,
-        energy_electronic=ev.energy_electronic,
-        orbital_energies_alpha=fa,
-        orbital_energies_beta=fb,
-        coefficients_alpha=coefficients,
-        coefficients_beta=coefficients,
-        occupations_alpha=occ_a,
-        occupations_beta=occ_b,
-        density_alpha=ev.densities[0],
-        density_beta=ev.densities[1],
-        fock_alpha=ev.focks[0],
-        fock_beta=ev.focks[1],
-        overlap=problem.overlap,
-        core_hamiltonian=problem.hcore,
-        converged=converged,
-        iterations=n,
-        history=history,
-        n_dropped=nbf - coefficients.shape[1],
-        timings={},
-        options=options,
-        message=message,
-        s_squared=s_squared(coefficients[:, occ_a > 0], coefficients[:, occ_b > 0], problem.overlap),
-        s_squared_exact=s_squared_exact(n_a, n_b),
-        n_alpha=n_a,
-        n_beta=n_b,
-        method="ROHF",
-        orbital_energies=energies,
-        coefficients=coefficients,
-        occupations=occ_a + occ_b,
-        fock=fock_eff,
-        coupling="guest-saunders",
-        restriction=RESTRICTION,
-    )
+    return rohf_record(problem, ev, coefficients, energies, occ_a, occ_b, history, converged, energy_nuclear, options,
+                       "guest-saunders", nbf - coefficients.shape[1], RESTRICTION)
 
 
 __all__ = ["AtomConfiguration", "applies_to", "method_choice", "check_before_runs", "ground_configuration", "check_spherical_atom", "radial_layout",
