@@ -5,7 +5,9 @@ Each measurement runs in a fresh child process, one after the other, on the
 same shells: hfcore's stored pass (``compute_eri``), and the reference
 library's 8-fold-symmetric two-electron integrals (``int2e`` with ``s8``),
 which is what its in-memory RHF computes before the first iteration.
-``--direct`` times one direct J/K build of each program on the
+``--direct-scf`` times a whole RHF in direct mode in each program (hfcore's
+``direct=True`` against the reference library's direct SCF, its integrals
+kept out of memory), ``--direct`` one direct J/K build of each program on the
 atomic-start density instead (hfcore's ``DirectERI.jk`` against the
 reference library's direct J/K build). ``--steps`` splits hfcore's pass by
 pair class (total angular momentum of bra and ket pair) and by step: Boys
@@ -18,6 +20,7 @@ Usage::
     python scripts/integral_pass_benchmark.py                    # the default cases
     python scripts/integral_pass_benchmark.py --only benzene/cc-pVDZ --steps
     python scripts/integral_pass_benchmark.py --direct --only benzene/6-31G*
+    python scripts/integral_pass_benchmark.py --direct-scf --threads 2 --only benzene/6-31G*
 
 Benchmarks are not tests: nothing here asserts a time. Report the ratios with
 the load average the script prints (the machine is shared).
@@ -43,6 +46,10 @@ CASES = [
     ("benzene/6-31G*", "benzene.xyz", "6-31g*"),
     ("benzene/cc-pVTZ", "benzene.xyz", "cc-pvtz"),
 ]
+
+
+ENERGY_TOL = 1e-10
+GRADIENT_TOL = 1e-7
 
 
 def _limit_threads(threads: int) -> None:
@@ -77,14 +84,14 @@ def _start_density(basis, mol):
 
     from hfcore import integrals
 
-    h = integrals.kinetic(basis) + integrals.nuclear_attraction(basis, mol)
+    h = integrals.kinetic(basis) + integrals.nuclear_attraction(basis, mol.nuclear_charges, mol.coordinates)
     s = integrals.overlap(basis)
     _, c = scipy.linalg.eigh(h, s)
-    nocc = int(sum(mol.atomic_numbers) - mol.charge) // 2
+    nocc = mol.n_electrons // 2
     return 2.0 * c[:, :nocc] @ c[:, :nocc].T
 
 
-def _hfcore_pass(path: str, basis_name: str, steps: bool, direct: bool, threads: int, queue) -> None:
+def _hfcore_pass(path: str, basis_name: str, steps: bool, direct, threads: int, queue) -> None:
     _limit_threads(threads)
     try:
         import numpy as np
@@ -93,7 +100,16 @@ def _hfcore_pass(path: str, basis_name: str, steps: bool, direct: bool, threads:
 
         mol, basis = _load(path, basis_name)
         out = {"n_functions": basis.n_functions, "shells": _shell_dump(mol, basis)}
-        if direct:
+        if direct == "scf":
+            import hfcore
+            from hfcore.scf import SCFOptions
+
+            options = SCFOptions(energy_tol=ENERGY_TOL, gradient_tol=GRADIENT_TOL, threads=threads, direct=True)
+            t0 = time.perf_counter()
+            res = hfcore.run_rhf(mol, basis, options)
+            out["wall"] = time.perf_counter() - t0
+            out["energy"], out["iterations"], out["jk_mode"] = res.energy_total, res.iterations, res.jk_mode
+        elif direct:
             d = _start_density(basis, mol)
             t0 = time.perf_counter()
             engine = integrals.DirectERI(basis, threads=threads)
@@ -188,7 +204,7 @@ def _reference_mol(dump: dict):
                  charge=dump["charge"], spin=dump["spin"])
 
 
-def _reference_pass(dump: dict, direct: bool, threads: int, queue) -> None:
+def _reference_pass(dump: dict, direct, threads: int, queue) -> None:
     _limit_threads(threads)
     try:
         import numpy as np
@@ -196,7 +212,16 @@ def _reference_pass(dump: dict, direct: bool, threads: int, queue) -> None:
 
         lib.num_threads(threads)
         mol = _reference_mol(dump)
-        if direct:
+        if direct == "scf":
+            t0 = time.perf_counter()
+            mf = scf.RHF(mol) if dump["spin"] == 0 else scf.UHF(mol)
+            mf.max_memory = 1  # no room for the integrals: every J/K build is a direct pass
+            mf.conv_tol, mf.conv_tol_grad = ENERGY_TOL, GRADIENT_TOL
+            energy = mf.kernel()
+            wall = time.perf_counter() - t0
+            queue.put({"wall": wall, "energy": float(energy), "iterations": int(getattr(mf, "cycles", -1)),
+                       "stored": mf._eri is not None})
+        elif direct:
             # Its own core-Hamiltonian start: the same density in its own function order.
             h, s = mol.intor("int1e_kin") + mol.intor("int1e_nuc"), mol.intor("int1e_ovlp")
             import scipy.linalg
@@ -241,11 +266,11 @@ def run(label: str, geometry: str, basis: str, steps: bool, direct: bool, thread
     if "error" in ref:
         row["reference_error"] = ref["error"]
         return row
-    row["reference_wall"] = ref["wall"]
+    row.update({f"reference_{k}": v for k, v in ref.items()})
     row["ratio"] = ours["wall"] / ref["wall"]
     if "checksum" in ref and "checksum" in ours:
         row["checksum_relative_difference"] = abs(ours["checksum"] - ref["checksum"]) / ref["checksum"]
-    for key in ("coulomb", "exchange"):
+    for key in ("coulomb", "exchange", "energy"):
         if key in ref and key in ours:
             row[f"{key}_difference"] = ours[key] - ref[key]
     row["load_after"] = os.getloadavg()
@@ -257,6 +282,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--only", help="comma-separated case labels")
     parser.add_argument("--steps", action="store_true", help="split hfcore's pass by pair class and step")
     parser.add_argument("--direct", action="store_true", help="one direct J/K build of each program instead")
+    parser.add_argument("--direct-scf", action="store_true", help="a whole direct RHF in each program instead")
     parser.add_argument("--threads", type=int, default=1)
     parser.add_argument("--json", help="also write the rows here")
     args = parser.parse_args(argv)
@@ -265,7 +291,7 @@ def main(argv: list[str] | None = None) -> int:
     rows = []
     for label, geometry, basis in cases:
         print(f"{label} ...", file=sys.stderr, flush=True)
-        row = run(label, geometry, basis, args.steps, args.direct, args.threads)
+        row = run(label, geometry, basis, args.steps, "scf" if args.direct_scf else args.direct, args.threads)
         rows.append(row)
         print(json.dumps(row, indent=1), flush=True)
     if args.json:
