@@ -138,7 +138,7 @@ def _steps(basis) -> dict:
     from hfcore.integrals import hermite, store, tiles
     from hfcore.integrals.eri_pairs import prepare_pairs
 
-    clock = time.perf_counter
+    clock = time.process_time  # CPU time of this one-threaded process: steadier on a shared machine
     t0 = clock()
     pairs = prepare_pairs(basis, 1e-12)
     prep = clock() - t0
