@@ -413,13 +413,15 @@ def _contract(
     dflat = d.ravel()
     acc.add_j(bra.pairs.pidx[brows].ravel(), 2.0 * (wv @ dflat[kh * n + kl]))
     acc.add_j(ket.pairs.pidx[krows].ravel(), 2.0 * (dflat[ih * n + il] @ wv))
+    # Broadcast index pairs (np.ix_ costs more than the small gathers it feeds).
+    rows, cols = {id(ih): ih[:, None], id(il): il[:, None]}, {id(kh): kh[None, :], id(kl): kl[None, :]}
     for q, dq in enumerate(stack):
         for r1, r2 in ((ih, il), (il, ih)):
             r1n = r1[:, None] * n + q * n * n  # density q's half-exchange sits in the q-th nbf² stretch
             for c1, c2 in ((kh, kl), (kl, kh)):
                 index, value = acc.k_slot(ih.size, kh.size)
-                np.add(r1n, c1[None, :], out=index)
-                np.multiply(wv, dq[np.ix_(r2, c2)], out=value)
+                np.add(r1n, cols[id(c1)], out=index)
+                np.multiply(wv, dq[rows[id(r2)], cols[id(c2)]], out=value)
 
 
 
