@@ -409,7 +409,9 @@ def _contract(
     ih, il = bra.hi[brows].ravel(), bra.lo[brows].ravel()
     kh, kl = ket.hi[krows].ravel(), ket.lo[krows].ravel()
     wv = block.reshape(ih.size, kh.size)
-    wv = wv * (bra.weight[brows].reshape(-1, 1) * (scale * ket.weight[krows].reshape(1, -1)))
+    wb, wk = bra.weight[brows].reshape(-1, 1), scale * ket.weight[krows].reshape(1, -1)
+    if wb.min() < 1.0 or wk.min() < 1.0:  # weights are 1 or 1/2: most tiles have none below 1
+        wv = wv * (wb * wk)
     dflat = d.ravel()
     acc.add_j(bra.pairs.pidx[brows].ravel(), 2.0 * (wv @ dflat[kh * n + kl]))
     acc.add_j(ket.pairs.pidx[krows].ravel(), 2.0 * (dflat[ih * n + il] @ wv))
