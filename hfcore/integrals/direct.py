@@ -156,8 +156,10 @@ class DirectERI:
         Screening threshold (hartree), as in :func:`compute_eri`.
     threads : int
         Threads the tiles of a build are spread over (see
-        :mod:`hfcore._parallel`); J and K are the same bits for any
-        number.
+        :mod:`hfcore._parallel`): where ``os.fork`` exists, ``threads - 1``
+        worker processes beside this one, forked at the first build and
+        kept until the engine is collected; J and K are the same bits for
+        any number.
 
     Attributes
     ----------
