@@ -108,25 +108,33 @@ def boys(m_max: int, T: np.ndarray) -> np.ndarray:
     t = t.reshape(-1)
     out = np.empty((m_max + 1, t.size))
     t_switch = _T_SWITCH[m_max]
-    tc = np.minimum(t, t_switch)
-    idx = np.rint(tc * (1.0 / _STEP)).astype(np.intp)
-    dt = tc - idx * _STEP
+    # Nearest grid point and the offset from it (plain indexing and in-place
+    # steps: this runs once per tile on a few thousand quartets, where each
+    # call's fixed cost counts).
+    x = np.minimum(t, t_switch)
+    x *= 1.0 / _STEP
+    grid = np.rint(x)
+    idx = grid.astype(np.intp)
+    x -= grid
+    x *= _STEP
     coeffs = _COEFFS[m_max]
     top = out[m_max]
-    np.take(coeffs[-1], idx, out=top)
-    buf = np.empty_like(top)
+    top[...] = coeffs[-1][idx]
     for k in range(_TAYLOR_TERMS - 2, -1, -1):
-        top *= dt
-        top += np.take(coeffs[k], idx, out=buf)
+        top *= x
+        top += coeffs[k][idx]
     large = t > t_switch
     if large.any():
-        # T^{-m-1/2} by repeated multiplication: several times cheaper than a general power.
-        inv = 1.0 / t[large]
+        # T^{-m-1/2} by repeated multiplication (several times cheaper than a
+        # general power), for every element and kept where T is large: cheaper
+        # than gathering and scattering the large ones.
+        inv = np.maximum(t, t_switch)
+        np.divide(1.0, inv, out=inv)
         val = np.sqrt(inv)
         val *= _ASYM[m_max]
         for _ in range(m_max):
             val *= inv
-        top[large] = val
+        np.copyto(top, val, where=large)
     if m_max:
         expt = np.exp(-t)
         two_t = 2.0 * t

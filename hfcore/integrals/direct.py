@@ -1,21 +1,25 @@
 """The direct pass: J and K contracted from each tile as it is computed, nothing stored.
 
 The tiles (:mod:`hfcore.integrals.tiles`) are listed once; every build cuts
-them into fixed work units, runs the units on the thread pool
-(:mod:`hfcore._parallel`), each into its own partial J and K, and
-adds the partial sums in unit order.
+them into fixed work units, runs the units on several threads or, where
+``os.fork`` exists, on a team of forked worker processes kept for the
+engine's life (:mod:`hfcore._parallel`), each unit into its own partial J
+and K, and adds the partial sums in unit order, so J and K are the same
+bits on any number of threads or processes.
 """
 
 from __future__ import annotations
 
 import threading
+import weakref
+from collections.abc import Iterator
 from dataclasses import dataclass
 
 import numpy as np
 
 from ..basis.shells import BasisSet
 from .eri_pairs import function_families, prepare_pairs, screening_threshold
-from .._parallel import ordered_map, resolve_threads, work_units
+from .._parallel import WorkerTeam, can_fork, ordered_map, resolve_threads, shared_zeros, work_units
 from .tiles import PairBatch, Tile, batch_pairs, iter_tiles, tile_integrals
 
 #: Direct tiles are this many times larger: each carries a fixed cost of
@@ -27,6 +31,10 @@ _DIRECT_TILE_SCALE = 4
 _UNITS = 128
 #: ... each of at least this many primitive quartets.
 _MIN_UNIT_QUARTETS = 1 << 16
+#: Densities a build on the worker processes takes at once (α and β); more go to threads.
+_TEAM_DENSITIES = 2
+#: Shared memory for the partial sums of one round of units on the worker processes (bytes).
+_TEAM_ROUND_BYTES = 64 << 20
 
 
 @dataclass(frozen=True)
@@ -148,8 +156,10 @@ class DirectERI:
         Screening threshold (hartree), as in :func:`compute_eri`.
     threads : int
         Threads the tiles of a build are spread over (see
-        :mod:`hfcore._parallel`); J and K are the same bits for any
-        number.
+        :mod:`hfcore._parallel`): where ``os.fork`` exists, ``threads - 1``
+        worker processes beside this one, forked at the first build and
+        kept until the engine is collected; J and K are the same bits for
+        any number.
 
     Attributes
     ----------
@@ -232,8 +242,14 @@ class DirectERI:
         def run(unit: slice) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
             return self._unit(self._tiles[unit], total, stack, block_max, dmax)
 
-        # Partial sums are added in unit order: the same bits for any thread count.
-        for pj, pk, pc in ordered_map(run, self._units, self.threads):
+        if self.threads > 1 and can_fork() and m <= _TEAM_DENSITIES and len(self._units) > 1:
+            # Tiles are many small numpy kernels, held back by the interpreter
+            # lock on threads: run them on worker processes instead.
+            parts = self._direct_team().build(total, stack, block_max, dmax)
+        else:
+            parts = ordered_map(run, self._units, self.threads)
+        # Partial sums are added in unit order: the same bits for any thread or process count.
+        for pj, pk, pc in parts:
             j += pj
             half += pk
             counts += pc
@@ -245,21 +261,104 @@ class DirectERI:
         self, tiles: list[Tile], d: np.ndarray, stack: np.ndarray, block_max: np.ndarray, dmax: float
     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Packed J sums (of ``d``), half-exchange (of each of ``stack``) and quartet counts of one work unit of tiles."""
-        acc = _Accumulator(self.n_functions, stack.shape[0])
-        counts = np.zeros(2, dtype=np.int64)
-        for tile in tiles:
-            counts[0] += tile.quartets
-            if tile.bra.q[tile.brows.start] * tile.ket.q[tile.krows.start] * dmax < self.threshold:
-                continue
-            bra, ket = self._group_of[id(tile.bra)], self._group_of[id(tile.ket)]
-            rows, cols = _significant(bra, tile.brows, ket, tile.krows, block_max, self.threshold, tile.diagonal)
-            if rows.size == 0 or cols.size == 0:
-                continue
-            counts[1] += rows.size * cols.size * tile.bra.nprim * tile.ket.nprim
-            block = tile_integrals(tile.bra, rows, tile.ket, cols)
-            _contract(bra, rows, ket, cols, block, 0.5 if tile.diagonal else 1.0, d, stack, acc)
-        pj, pk = acc.partial()
-        return pj, pk, counts
+        return _unit_sums(tiles, self._group_of, self.n_functions, self.threshold, d, stack, block_max, dmax)
+
+    def _direct_team(self) -> _DirectTeam:
+        """The engine's worker processes, made on first use and kept until the engine goes."""
+        team = getattr(self, "_team", None)
+        if team is None or team.size != self.threads:
+            if team is not None:
+                team.close()
+            nfam = int(self._families.max()) + 1 if self._families.size else 0
+            team = self._team = _DirectTeam(
+                self._tiles, self._units, self._group_of, self.n_functions, nfam, self.threshold, self.threads
+            )
+            weakref.finalize(self, team.close)
+        return team
+
+
+def _unit_sums(
+    tiles: list[Tile], group_of: dict[int, _DirectGroup], n: int, threshold: float, d: np.ndarray, stack: np.ndarray,
+    block_max: np.ndarray, dmax: float,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Packed J sums (of ``d``), half-exchange (of each of ``stack``) and quartet counts of one work unit of tiles."""
+    acc = _Accumulator(n, stack.shape[0])
+    counts = np.zeros(2, dtype=np.int64)
+    for tile in tiles:
+        counts[0] += tile.quartets
+        if tile.bra.q[tile.brows.start] * tile.ket.q[tile.krows.start] * dmax < threshold:
+            continue
+        bra, ket = group_of[id(tile.bra)], group_of[id(tile.ket)]
+        rows, cols = _significant(bra, tile.brows, ket, tile.krows, block_max, threshold, tile.diagonal)
+        if rows.size == 0 or cols.size == 0:
+            continue
+        counts[1] += rows.size * cols.size * tile.bra.nprim * tile.ket.nprim
+        block = tile_integrals(tile.bra, rows, tile.ket, cols)
+        _contract(bra, rows, ket, cols, block, 0.5 if tile.diagonal else 1.0, d, stack, acc)
+    pj, pk = acc.partial()
+    return pj, pk, counts
+
+
+class _DirectTeam:
+    """Worker processes of direct J/K builds over one engine's tiles, with the shared arrays they read and fill.
+
+    The densities of a build go into shared arrays, the units run in
+    rounds of at most ``slots`` units (each unit's partial sums into its
+    own slot, so the shared memory stays within :data:`_TEAM_ROUND_BYTES`
+    however large the basis), and :meth:`build` hands the slots back in
+    unit order after each round. It holds the tiles, not the engine, so the
+    engine can be collected (and the team closed) as usual.
+    """
+
+    def __init__(
+        self, tiles: list[Tile], units: list[slice], group_of: dict[int, _DirectGroup], n: int, nfam: int,
+        threshold: float, size: int,
+    ) -> None:
+        npair = n * (n + 1) // 2
+        per_slot = 8 * (npair + _TEAM_DENSITIES * n * n + 2)
+        self.size = size
+        self.n_units = len(units)
+        self.slots = max(1, min(self.n_units, _TEAM_ROUND_BYTES // per_slot))
+        what = "the direct J/K build's shared arrays"
+        self.header = shared_zeros(3, np.int64, what=what)  # first unit of the round, number of densities
+        self.dmax = shared_zeros(1, what=what)
+        self.total = shared_zeros((n, n), what=what)
+        self.stack = shared_zeros((_TEAM_DENSITIES, n, n), what=what)
+        self.block_max = shared_zeros((nfam, nfam), what=what)
+        self.parts_j = shared_zeros((self.slots, npair), what=what)
+        self.parts_k = shared_zeros((self.slots, _TEAM_DENSITIES * n * n), what=what)
+        self.parts_c = shared_zeros((self.slots, 2), np.int64, what=what)
+        header, dmax_, total, stack, block_max = self.header, self.dmax, self.total, self.stack, self.block_max
+        parts_j, parts_k, parts_c = self.parts_j, self.parts_k, self.parts_c
+
+        def work(slot: int) -> None:
+            m = int(header[1])
+            unit = units[int(header[0]) + slot]
+            pj, pk, pc = _unit_sums(tiles[unit], group_of, n, threshold, total, stack[:m], block_max, float(dmax_[0]))
+            parts_j[slot], parts_k[slot, : m * n * n], parts_c[slot] = pj, pk, pc
+
+        self._team = WorkerTeam(work, size)
+
+    def build(
+        self, total: np.ndarray, stack: np.ndarray, block_max: np.ndarray, dmax: float
+    ) -> Iterator[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+        """The partial sums of every unit, in unit order (views into shared slots, valid until the next item)."""
+        m = stack.shape[0]
+        n = total.shape[0]
+        self.total[...] = total
+        self.stack[:m] = stack
+        self.block_max[...] = block_max
+        self.dmax[0] = dmax
+        self.header[1] = m
+        for first in range(0, self.n_units, self.slots):
+            count = min(self.slots, self.n_units - first)
+            self.header[0] = first
+            self._team.run(count)
+            for slot in range(count):
+                yield self.parts_j[slot], self.parts_k[slot, : m * n * n], self.parts_c[slot]
+
+    def close(self) -> None:
+        self._team.close()
 
 
 def _block_max(absd: np.ndarray, families: np.ndarray) -> np.ndarray:
@@ -312,17 +411,21 @@ def _contract(
     ih, il = bra.hi[brows].ravel(), bra.lo[brows].ravel()
     kh, kl = ket.hi[krows].ravel(), ket.lo[krows].ravel()
     wv = block.reshape(ih.size, kh.size)
-    wv = wv * (bra.weight[brows].reshape(-1, 1) * (scale * ket.weight[krows].reshape(1, -1)))
+    wb, wk = bra.weight[brows].reshape(-1, 1), scale * ket.weight[krows].reshape(1, -1)
+    if wb.min() < 1.0 or wk.min() < 1.0:  # weights are 1 or 1/2: most tiles have none below 1
+        wv = wv * (wb * wk)
     dflat = d.ravel()
     acc.add_j(bra.pairs.pidx[brows].ravel(), 2.0 * (wv @ dflat[kh * n + kl]))
     acc.add_j(ket.pairs.pidx[krows].ravel(), 2.0 * (dflat[ih * n + il] @ wv))
+    # Broadcast index pairs (np.ix_ costs more than the small gathers it feeds).
+    rows, cols = {id(ih): ih[:, None], id(il): il[:, None]}, {id(kh): kh[None, :], id(kl): kl[None, :]}
     for q, dq in enumerate(stack):
         for r1, r2 in ((ih, il), (il, ih)):
             r1n = r1[:, None] * n + q * n * n  # density q's half-exchange sits in the q-th nbf² stretch
             for c1, c2 in ((kh, kl), (kl, kh)):
                 index, value = acc.k_slot(ih.size, kh.size)
-                np.add(r1n, c1[None, :], out=index)
-                np.multiply(wv, dq[np.ix_(r2, c2)], out=value)
+                np.add(r1n, cols[id(c1)], out=index)
+                np.multiply(wv, dq[rows[id(r2)], cols[id(c2)]], out=value)
 
 
 

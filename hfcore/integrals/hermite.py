@@ -133,6 +133,10 @@ def hermite_e(la: int, lb: int, pa: np.ndarray, pb: np.ndarray, p: np.ndarray, k
     return out.reshape(nca * ncb, n_hermite(la + lb), n)
 
 
+#: Share of rows with a second recursion term from which a level adds it to every row (measured: from L = 5 on).
+_DENSE_SHARE = 0.6
+
+
 @lru_cache(maxsize=None)
 def _r_tables(L: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """For each Hermite triple beyond (0,0,0): the axis it is built along, its two parents and the coefficient."""
@@ -187,7 +191,13 @@ def hermite_r(L: int, pq: np.ndarray, base: np.ndarray) -> np.ndarray:
         body = nxt[1:]
         np.multiply(xyz[: size - 1], cur[p1[: size - 1]], out=body)
         nz = nz_all[nz_all < size - 1]
-        if nz.size:
+        if nz.size >= _DENSE_SHARE * (size - 1):
+            # Most rows have a second term: adding zeros to the rest is
+            # cheaper than gathering and scattering the rows that have one.
+            extra = cur[p2[: size - 1]]
+            extra *= coef[: size - 1, None]
+            body += extra
+        elif nz.size:
             extra = cur[p2[nz]]
             extra *= coef[nz, None]
             body[nz] += extra

@@ -16,6 +16,8 @@ packed symmetric matrix-vector products (BLAS ``spmv``).
 from __future__ import annotations
 
 from collections.abc import Callable
+import errno
+import mmap
 import weakref
 from dataclasses import dataclass, field
 
@@ -26,7 +28,7 @@ from ..basis.shells import BasisSet
 from ..errors import ResourceError
 from .eri_pairs import pair_index, prepare_pairs, screening_threshold
 from .hermite import n_hermite
-from .._memory import allocate
+from .._memory import allocate, allocation_error
 from .._parallel import WorkerTeam, can_fork, forked_units, ordered_map, resolve_threads, shared_zeros, work_units
 from .tiles import Tile, batch_pairs, iter_tiles
 
@@ -356,12 +358,42 @@ def _unpack_symmetric(vec: np.ndarray, n: int) -> np.ndarray:
     return out
 
 
+def _store_array(what: str, size: int, shared: bool) -> np.ndarray:
+    """A zero-filled float64 array of ``size`` elements with every page committed at once.
+
+    The pass writes the packed store in scattered order; committing its pages
+    one fault at a time (or as 2 MiB pages, as ``numpy.zeros`` asks the kernel
+    for large arrays) cost as much as the integrals themselves. One
+    populated anonymous mapping of 4 KiB pages is several times cheaper
+    (measured on benzene cc-pVTZ, 4.9 GB: 1.4 s against 11.5 s), and it is
+    shared with forked workers when ``shared``. A refused mapping becomes the
+    one-line :class:`~hfcore.errors.ResourceError` of
+    :func:`hfcore._memory.allocate`.
+    """
+    n_bytes = 8 * size
+    flags = (mmap.MAP_SHARED if shared else mmap.MAP_PRIVATE) | mmap.MAP_ANONYMOUS | getattr(mmap, "MAP_POPULATE", 0)
+    try:
+        buffer = mmap.mmap(-1, max(n_bytes, 8), flags=flags)
+    except (MemoryError, OSError) as exc:
+        if isinstance(exc, OSError) and exc.errno != errno.ENOMEM:
+            raise
+        raise allocation_error(what, n_bytes) from None
+    return np.frombuffer(buffer, dtype=np.float64, count=size)
+
+
 def _store(tile: Tile, block: np.ndarray, packed: np.ndarray) -> None:
     """Write a tile (nb, fb, nk * fk) at the canonical packed position of each element."""
     bra, brows, ket, krows = tile.bra, tile.brows, tile.ket, tile.krows
     b_idx = bra.pidx[brows].reshape(-1, 1)
     k_idx = ket.pidx[krows].reshape(1, -1)
-    target = np.where(b_idx >= k_idx, bra.tri[brows].reshape(-1, 1) + k_idx, ket.tri[krows].reshape(1, -1) + b_idx)
+    # About half the elements sit in tiles whose bra pairs all sort on one
+    # side of their ket pairs (measured, benzene cc-pVDZ): one sum places them.
+    if b_idx.min() >= k_idx.max():
+        target = bra.tri[brows].reshape(-1, 1) + k_idx
+    elif b_idx.max() <= k_idx.min():
+        target = ket.tri[krows].reshape(1, -1) + b_idx
+    else:
+        target = np.where(b_idx >= k_idx, bra.tri[brows].reshape(-1, 1) + k_idx, ket.tri[krows].reshape(1, -1) + b_idx)
     packed[target] = block.reshape(target.shape)
 
 
@@ -418,7 +450,7 @@ def compute_eri(
     threads = resolve_threads(threads)
     forked = threads > 1 and can_fork()
     # Forked workers write into shared pages; every integral is written by one tile.
-    packed = allocate("the stored integrals", size, shared=forked)
+    packed = _store_array("the stored integrals", size, shared=forked)
     tiles = [tile for g1, g2 in batch_pairs(prepare_pairs(basis, threshold)) for tile in iter_tiles(g1, g2, threshold)]
     weights = [tile.quartets * n_hermite(tile.bra.L + tile.ket.L) for tile in tiles]
     total = sum(weights)
