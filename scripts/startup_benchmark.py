@@ -76,7 +76,7 @@ print(json.dumps({
 """
 
 
-def _installed_copy(folder: Path) -> Path:
+def _installed_copy(folder: Path, tree: Path) -> Path:
     """A copy of the hfcore package with its bytecode compiled, as ``pip install`` leaves it; its root folder.
 
     Some shells set PYTHONDONTWRITEBYTECODE, so a run from the source tree
@@ -88,7 +88,7 @@ def _installed_copy(folder: Path) -> Path:
     import shutil
 
     root = folder / "installed"
-    shutil.copytree(ROOT / "hfcore", root / "hfcore", ignore=shutil.ignore_patterns("__pycache__"))
+    shutil.copytree(tree / "hfcore", root / "hfcore", ignore=shutil.ignore_patterns("__pycache__"))
     compileall.compile_dir(str(root / "hfcore"), quiet=1)
     return root
 
@@ -175,13 +175,16 @@ def main(argv: list[str] | None = None) -> int:
                         help="cached: hfcore runs from a copy with its bytecode compiled, as an installed package "
                         "(and the reference library) has it; as-is: from the source tree in the environment as it "
                         "is (default cached)")
+    parser.add_argument("--tree", type=Path, default=ROOT,
+                        help="the source tree whose hfcore is timed (default this one; e.g. an exported older commit "
+                        "for a before/after figure in one run)")
     args = parser.parse_args(argv)
     wanted = {args.only} if args.only else {"startup", "speedup"} | ({"phases"} if args.phases else set())
-    result: dict = {"load_before": _load(), "bytecode": args.bytecode}
+    result: dict = {"load_before": _load(), "bytecode": args.bytecode, "tree": str(args.tree)}
     with tempfile.TemporaryDirectory(prefix="hfcore-startup-") as tmp:
         folder = Path(tmp)
-        if args.bytecode == "cached":
-            bench.ROOT = _installed_copy(folder)  # the children's working folder and PYTHONPATH
+        # the children's working folder and PYTHONPATH
+        bench.ROOT = _installed_copy(folder, args.tree.resolve()) if args.bytecode == "cached" else args.tree.resolve()
         if "startup" in wanted:
             result["startup"] = startup(folder, args.repeats)
             s = result["startup"]
