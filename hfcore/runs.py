@@ -21,7 +21,7 @@ import math
 import os
 import time
 from collections.abc import Callable, Iterable, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -284,9 +284,13 @@ class RunProgress:
     mp2: Callable[[float], None] | None = None
 
 
-@dataclass
 class RunOutcome:
     """What :func:`run_single` returns.
+
+    The analysis and the JSON record are computed on first use (then kept):
+    a caller that reads only the SCF result does not pay for the charges and
+    multipoles, and every face that shows them (the report, the JSON and
+    each batch line) gets the same values as when they were computed at once.
 
     Attributes
     ----------
@@ -299,18 +303,55 @@ class RunOutcome:
         With ``request.mp2``.
     analysis : dict
         Charges, orbital properties and multipoles (atomic units, and the
-        units the JSON record states).
+        units the JSON record states); computed on first use.
     record : dict
-        The JSON record (``hfcore energy --json``), as plain values and arrays.
+        The JSON record (``hfcore energy --json``), as plain values and
+        arrays; computed on first use.
     """
 
-    request: RunRequest
-    molecule: Any
-    basis: Any
-    result: Any
-    mp2: Any
-    analysis: dict[str, Any]
-    record: dict[str, Any] = field(repr=False)
+    def __init__(self, request: RunRequest, molecule: Any, basis: Any, result: Any, mp2: Any, *,
+                 origin: np.ndarray | None = None, kinetic: np.ndarray | None = None,
+                 integral_seconds: float = 0.0, mp2_seconds: float | None = None) -> None:
+        self.request = request
+        self.molecule = molecule
+        self.basis = basis
+        self.result = result
+        self.mp2 = mp2
+        self._origin = origin
+        self._kinetic = kinetic  # the SCF's own kinetic-energy matrix, when at hand
+        self._integral_seconds = integral_seconds  # a pass made before the SCF, not in its timings
+        self._mp2_seconds = mp2_seconds
+        self._analysis: dict[str, Any] | None = None
+        self._record: dict[str, Any] | None = None
+
+    def __repr__(self) -> str:
+        return (f"RunOutcome(request={self.request!r}, molecule={self.molecule!r}, basis={self.basis!r}, "
+                f"result={self.result!r}, mp2={self.mp2!r})")
+
+    @property
+    def analysis(self) -> dict[str, Any]:
+        """Charges, orbital properties and multipoles (:func:`analysis_record`), computed once on first use."""
+        if self._analysis is None:
+            self._analysis = analysis_record(self.result, self._origin, kinetic=self._kinetic)
+        return self._analysis
+
+    @property
+    def analysed(self) -> bool:
+        """Whether the analysis has been computed yet."""
+        return self._analysis is not None
+
+    @property
+    def record(self) -> dict[str, Any]:
+        """The JSON record (``hfcore energy --json``), made once on first use."""
+        if self._record is None:
+            record = self.result.to_dict(self.analysis)
+            for stage in ("integrals", "total"):
+                record["timings"][stage] += self._integral_seconds
+            if self.mp2 is not None:
+                record["mp2"] = self.mp2.to_dict()
+                record["timings"]["mp2"] = self._mp2_seconds
+            self._record = record
+        return self._record
 
     def arrays(self) -> dict[str, np.ndarray]:
         """The arrays ``hfcore energy --npz`` saves (see :func:`hfcore.export.result_arrays`)."""
@@ -462,7 +503,8 @@ def planned_memory(request: RunRequest, budget: Any) -> int:
     return int(plan.peak_bytes)
 
 
-def analysis_record(result: Any, origin: np.ndarray | None = None) -> dict[str, Any]:
+def analysis_record(result: Any, origin: np.ndarray | None = None, *,
+                    kinetic: np.ndarray | None = None) -> dict[str, Any]:
     """Charges, orbital properties and multipoles, in the units the JSON record states.
 
     Parameters
@@ -470,6 +512,9 @@ def analysis_record(result: Any, origin: np.ndarray | None = None) -> dict[str, 
     result : RHFResult
     origin : ndarray, shape (3,), optional
         Origin of the multipoles in bohr (default: the centre of mass).
+    kinetic : ndarray, shape (nbf, nbf), optional
+        The kinetic-energy matrix of ``result.basis`` (hartree), if the SCF's
+        own is at hand; computed otherwise.
     """
     from .analysis import (
         DEBYE_ANGSTROM_PER_AU,
@@ -488,7 +533,7 @@ def analysis_record(result: Any, origin: np.ndarray | None = None) -> dict[str, 
     return {
         "mulliken_charges": mulliken_charges(result),
         "lowdin_charges": lowdin_charges(result),
-        **orbital_properties(result).to_dict(),
+        **orbital_properties(result, kinetic=kinetic).to_dict(),
         "origin_bohr": o,
         "origin_is_centre_of_mass": origin is None,
         "dipole_au": dipole,
@@ -534,7 +579,9 @@ def run_single(request: RunRequest, progress: RunProgress | None = None) -> RunO
         InputError (exit 2) for bad input or an open-shell request,
         BasisError (3), ConvergenceError (4), ResourceError (5).
     """
+    from .basis import require_room_for
     from .scf import plan_jk, prepare_integrals, run_scf
+    from .scf.driver import _checked_guess
 
     progress = progress or RunProgress()
     molecule = read_molecule(request)
@@ -567,26 +614,28 @@ def run_single(request: RunRequest, progress: RunProgress | None = None) -> RunO
     origin = None if request.origin is None else np.asarray(request.origin) / scale
     if progress.prepared is not None:
         progress.prepared(molecule, basis, plan)
-    # MP2 reads the SCF's own stored integrals rather than computing them again.
+    # An RHF run's integrals are prepared here rather than inside the SCF: exact MP2 reads the
+    # SCF's own store rather than computing it again, the analysis reuses the kinetic-energy
+    # matrix, and the record's timings count the pass (the SCF's own do not, as it is given).
     exact_mp2 = request.mp2 and mp2_fit is None
     shared = None
-    if exact_mp2 and plan.mode != "direct":
+    if method == "rhf" or (exact_mp2 and plan.mode != "direct"):
+        require_room_for(molecule, basis)
+        _checked_guess(request.guess, basis)  # as the SCF would, but before the integrals
         shared = prepare_integrals(basis, options, progress.integrals, plan=plan, molecule=molecule)
     result = run_scf(molecule, basis, options, guess=request.guess, progress=progress.iteration,
                      integral_progress=progress.integrals, shared=shared, plan=plan)
     mp2_started = time.perf_counter()
     mp2 = None
     if request.mp2:
-        mp2 = _mp2(request, result, None if shared is None else shared.engine, mp2_fit, progress.mp2)
-    analysis = analysis_record(result, origin)
-    record = result.to_dict(analysis)
-    if shared is not None:
-        for stage in ("integrals", "total"):
-            record["timings"][stage] += shared.wall_seconds
-    if mp2 is not None:
-        record["mp2"] = mp2.to_dict()
-        record["timings"]["mp2"] = time.perf_counter() - mp2_started
-    return RunOutcome(request, molecule, basis, result, mp2, analysis, record)
+        engine = shared.engine if exact_mp2 and shared is not None and plan.mode != "direct" else None
+        mp2 = _mp2(request, result, engine, mp2_fit, progress.mp2)
+    return RunOutcome(
+        request, molecule, basis, result, mp2, origin=origin,
+        kinetic=None if shared is None else shared.kinetic,
+        integral_seconds=0.0 if shared is None else shared.wall_seconds,
+        mp2_seconds=None if mp2 is None else time.perf_counter() - mp2_started,
+    )
 
 
 __all__ = [

@@ -11,8 +11,6 @@ with a DeprecationWarning.
 
 from __future__ import annotations
 
-from .mp2 import SCS_OPPOSITE_SPIN, SCS_SAME_SPIN, MP2Result, core_orbital_count, mp2_energy
-from .ump2 import UMP2Result, check_mp2_reference, ump2_energy
 from .multipoles import (
     DEBYE_ANGSTROM_PER_AU,
     DEBYE_PER_AU,
@@ -34,7 +32,21 @@ _MOVED_TO_STUDIES = frozenset({
 })
 
 
+#: The MP2 names, served from their modules on first use: a run without MP2
+#: (the default) does not import the MP2 code.
+_MP2_NAMES: dict[str, str] = {
+    "SCS_OPPOSITE_SPIN": "mp2", "SCS_SAME_SPIN": "mp2", "MP2Result": "mp2", "core_orbital_count": "mp2",
+    "mp2_energy": "mp2", "UMP2Result": "ump2", "check_mp2_reference": "ump2", "ump2_energy": "ump2",
+}
+
+
 def __getattr__(name: str):
+    if name in _MP2_NAMES:
+        import importlib
+
+        value = getattr(importlib.import_module(f"{__name__}.{_MP2_NAMES[name]}"), name)
+        globals()[name] = value  # looked up once
+        return value
     if name in _MOVED_TO_STUDIES:
         import importlib
         import warnings
@@ -45,6 +57,10 @@ def __getattr__(name: str):
                       stacklevel=2)
         return getattr(studies, name)
     raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(_MP2_NAMES))
 
 
 __all__ = [

@@ -11,6 +11,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from ..errors import InputError
 from ._checks import require_placed
 
 if TYPE_CHECKING:
@@ -55,7 +56,7 @@ class OrbitalProperties:
         }
 
 
-def orbital_properties(result: RHFResult) -> OrbitalProperties:
+def orbital_properties(result: RHFResult, kinetic: np.ndarray | None = None) -> OrbitalProperties:
     """HOMO-LUMO gap, Koopmans ionisation energy and virial ratio of an RHF run.
 
     Parameters
@@ -63,17 +64,25 @@ def orbital_properties(result: RHFResult) -> OrbitalProperties:
     result : RHFResult
         A finished run that carries its basis (the kinetic energy matrix is
         needed for the virial ratio).
+    kinetic : ndarray, shape (nbf, nbf), optional
+        The kinetic-energy matrix of ``result.basis`` in hartree, when the
+        caller has it (e.g. from the SCF's own integrals); computed otherwise.
 
     Returns
     -------
     OrbitalProperties
     """
-    from ..integrals import kinetic
-
     require_placed(result, "the virial ratio")
+    if kinetic is None:
+        from ..integrals import kinetic as kinetic_matrix
+
+        kinetic = kinetic_matrix(result.basis)
+    nbf = result.basis.n_functions
+    if np.shape(kinetic) != (nbf, nbf):
+        raise InputError(f"the kinetic-energy matrix has shape {np.shape(kinetic)}; the basis has {nbf} functions")
     lumo = result.lumo_energy
     gap = None if lumo is None else lumo - result.homo_energy
-    t = float(np.sum(np.asarray(result.density) * kinetic(result.basis)))
+    t = float(np.sum(np.asarray(result.density) * kinetic))
     v = float(result.energy_total) - t
     return OrbitalProperties(
         homo_lumo_gap=gap,

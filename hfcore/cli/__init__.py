@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import importlib
 import sys
 import time
 from collections.abc import Sequence
@@ -31,8 +32,9 @@ import numpy as np
 from .._parallel import terminate_cleanly
 from .._version import __version__
 from ..errors import HfcoreError, ResourceError
-from . import bases, batch, compare, console, energy, fit_sto, interaction, reaction
+from . import console
 from .arguments import Parser, attach_element_items
+from .commands import COMMANDS
 from .exits import (
     EXIT_BROKEN_PIPE,
     EXIT_CODES_TEXT,
@@ -44,8 +46,21 @@ from .exits import (
 )
 
 
-def build_parser() -> argparse.ArgumentParser:
-    """The argument parser of the ``hfcore`` command."""
+def _module(name: str):
+    return importlib.import_module(f"{__name__}.{COMMANDS[name][0]}")
+
+
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """The argument parser of the ``hfcore`` command.
+
+    Parameters
+    ----------
+    command : str, optional
+        Build only this command's own parser in full (and import only its
+        module): every other command gets a bare entry with its one-line
+        help, so the list of commands and the usage errors stay the same.
+        By default every command is built.
+    """
     parser = Parser(
         prog="hfcore",
         description="Restricted Hartree-Fock energies of small closed-shell molecules.",
@@ -53,15 +68,20 @@ def build_parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--version", action="version", version=f"hfcore {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
-    energy_parser = energy.add_parser(sub)
-    fit_sto.add_parser(sub)
-    compare.add_parser(sub)
-    interaction.add_parser(sub)
-    reaction.add_parser(sub)
-    bases.add_parser(sub)
-    # Last, so that every option any command module gives 'energy' reaches
-    # the batch jobs too.
-    batch.add_batch_parser(sub, energy_parser)
+    # A batch copies every option of 'energy', so it needs that parser in full too.
+    full = set(COMMANDS) if command is None else {command} | ({"energy"} if command == "batch" else set())
+    energy_parser = None
+    for name in COMMANDS:
+        if name not in full:
+            sub.add_parser(name, help=COMMANDS[name][1], add_help=False)
+        elif name == "energy":
+            energy_parser = _module(name).add_parser(sub)
+        elif name == "batch":
+            # Last, so that every option any command module gives 'energy'
+            # reaches the batch jobs too.
+            _module(name).add_batch_parser(sub, energy_parser)
+        else:
+            _module(name).add_parser(sub)
     return parser
 
 
@@ -87,8 +107,10 @@ def main(argv: Sequence[str] | None = None, *, stdout: TextIO | None = None, std
     console.FROM_PROCESS_START = argv is None
     out = sys.stdout if stdout is None else stdout
     err = sys.stderr if stderr is None else stderr
-    parser = build_parser()
     words = attach_element_items([str(a) for a in (sys.argv[1:] if argv is None else argv)])
+    # Only the command being run is built (and its module imported); --help,
+    # --version and a mistyped command get every command.
+    parser = build_parser(words[0] if words and words[0] in COMMANDS else None)
     Parser.argv = words
     try:
         with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):

@@ -6,13 +6,14 @@ import argparse
 from typing import Any
 
 from .._version import __version__
+from .commands import command_help
 from . import report
 from .console import Console
 
 
 def add_parser(sub: Any) -> None:
     """Register ``hfcore bases`` on the subcommand set ``sub``."""
-    bases = sub.add_parser("bases", help="list the basis sets on offer (orbital and fitting sets)")
+    bases = sub.add_parser("bases", help=command_help("bases"))
     bases.set_defaults(handler=run)
 
 

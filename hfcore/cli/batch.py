@@ -18,6 +18,7 @@ from contextlib import contextmanager
 from typing import Any, TextIO
 
 from ..errors import InputError
+from .commands import command_help
 from .arguments import positive_float, positive_int, run_request
 from .exits import EXIT_INTERRUPTED, EXIT_JOBS_FAILED, EXIT_TERMINATED
 
@@ -69,7 +70,7 @@ def add_batch_parser(sub: Any, energy: argparse.ArgumentParser) -> argparse.Argu
 
     batch = sub.add_parser(
         "batch",
-        help="many molecules and basis sets at once, resumable, on local cores or a Dask cluster",
+        help=command_help("batch"),
         description="Run every (geometry, basis) pair and append one JSON line per finished job to a "
         "results file. Running the same command again skips the finished jobs.",
         epilog="GEOMETRY is an XYZ file, a directory (its *.xyz files) or @LIST (a file with one path "

@@ -7,6 +7,7 @@ from typing import Any
 
 from .. import export
 from .._version import __version__
+from .commands import command_help
 from . import report
 from .arguments import (
     add_fit_argument,
@@ -24,7 +25,7 @@ from .paths import output_paths, report_written
 
 def add_parser(sub: Any) -> None:
     """Register ``hfcore compare`` on the subcommand set ``sub``."""
-    compare = sub.add_parser("compare", help="one molecule in several basis sets, with basis-limit estimates")
+    compare = sub.add_parser("compare", help=command_help("compare"))
     add_geometry_arguments(compare)  # with --multiplicity and --uhf | --rohf
     compare.add_argument(
         "--basis", required=True, metavar="NAMES", help="comma-separated basis names, e.g. sto-3g,6-31g*,cc-pvdz"

@@ -7,6 +7,7 @@ from typing import Any
 
 from .. import export
 from .._version import __version__
+from .commands import command_help
 from . import report
 from .arguments import (
     add_fit_argument,
@@ -30,7 +31,7 @@ METHOD_TITLES: dict[str, str] = {
 
 def add_parser(sub: Any) -> argparse.ArgumentParser:
     """Register ``hfcore energy`` on the subcommand set ``sub``; returns its parser (batch copies its options)."""
-    energy = sub.add_parser("energy", help="SCF energy, orbitals and populations of one molecule")
+    energy = sub.add_parser("energy", help=command_help("energy"))
     add_geometry_arguments(energy)
     energy.add_argument("--basis", default="sto-3g", help="basis set name (default sto-3g; see 'hfcore bases')")
     energy.add_argument("--basis-file", metavar="FILE.json", help="basis set file in hfcore's JSON format (replaces --basis)")

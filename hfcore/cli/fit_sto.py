@@ -6,6 +6,7 @@ import argparse
 from typing import Any
 
 from .. import export
+from .commands import command_help
 from . import report
 from .arguments import add_json_argument, positive_float, positive_int
 from .console import Console
@@ -18,7 +19,7 @@ SHELLS_IN_HELP: tuple[str, ...] = ("1s", "2p", "2sp", "3sp", "3d")
 
 def add_parser(sub: Any) -> None:
     """Register ``hfcore fit-sto`` on the subcommand set ``sub``."""
-    fit = sub.add_parser("fit-sto", help="least-squares Gaussian expansion of a Slater function")
+    fit = sub.add_parser("fit-sto", help=command_help("fit-sto"))
     # The fitter validates shell and count itself, so its (heavier) module is
     # imported only when a fit is asked for; a test holds this list to its table.
     fit.add_argument("--shell", required=True, metavar="SHELL",

@@ -8,6 +8,7 @@ from typing import Any
 from .. import export
 from .._version import __version__
 from ..errors import InputError
+from .commands import command_help
 from . import report
 from .arguments import (
     add_fit_argument,
@@ -25,9 +26,7 @@ from .pieces import add_batch_arguments, job_request, run_jobs
 
 def add_parser(sub: Any) -> None:
     """Register ``hfcore interaction`` on the subcommand set ``sub``."""
-    interaction = sub.add_parser(
-        "interaction", help="interaction energy of a complex, raw and counterpoise-corrected, in several basis sets"
-    )
+    interaction = sub.add_parser("interaction", help=command_help("interaction"))
     add_geometry_arguments(
         interaction, charge_option=False,
         multiplicity_help="spin multiplicity 2S+1 of the complex (default: the high-spin coupling of the fragments' "

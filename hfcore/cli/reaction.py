@@ -8,6 +8,7 @@ from typing import Any
 from .. import export
 from .._version import __version__
 from ..errors import InputError
+from .commands import command_help
 from .arguments import (
     add_fit_argument,
     add_geometry_arguments,
@@ -25,7 +26,7 @@ from .pieces import add_batch_arguments, job_request, run_jobs
 
 def add_parser(sub: Any) -> None:
     """Register ``hfcore reaction`` on the subcommand set ``sub``."""
-    reaction = sub.add_parser("reaction", help="reaction energies from Hartree–Fock totals in several basis sets")
+    reaction = sub.add_parser("reaction", help=command_help("reaction"))
     reaction.add_argument(
         "reactions", nargs="+", metavar="SPEC",
         help="an equation over geometry files, e.g. 'formaldehyde.xyz + hydrogen.xyz -> methanol.xyz', "
