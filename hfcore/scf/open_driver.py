@@ -31,6 +31,7 @@ from .options import SCFOptions
 from .result import RHFResult
 from .solver import IterationProgress
 from .spin import resolve_method
+from .stability import screen_for
 from .guess import split_density
 from .uhf import solve_uhf
 
@@ -125,7 +126,7 @@ def _run_rhf_checked(molecule, basis, options, guess, progress, integral_progres
 
     t0 = time.perf_counter()
     with blas_threads(options.n_threads):
-        analysis = check_rhf_to_uhf(result, shared.jk_builder())
+        analysis = check_rhf_to_uhf(result, shared.jk_builder(), screen=screen_for(shared, molecule, options))
     warning = rhf_to_uhf_warning(analysis)
     timings = {**result.timings, "stability": result.timings.get("stability", 0.0) + time.perf_counter() - t0}
     timings["total"] = result.timings.get("total", 0.0) + time.perf_counter() - t0
@@ -199,7 +200,8 @@ def run_open_shell(
                     from .uhf_stability import stabilise_uhf
 
                     # converging and following stay apart (as for RHF); finish() times the whole run
-                    result = stabilise_uhf(result, jk, molecule.nuclear_repulsion(), progress=progress)
+                    result = stabilise_uhf(result, jk, molecule.nuclear_repulsion(), progress=progress,
+                                           screen=screen_for(shared, molecule, options))
             else:
                 from .rohf import solve_rohf
 
