@@ -32,7 +32,7 @@ from .jk import IncrementalJK, JKBuilder
 from .options import SCFOptions
 from .result import RHFResult
 from .following import stabilise
-from .stability import FittedScreen, screen_for
+from .stability_screen import FittedScreen, screen_for
 from .solver import IterationProgress, converge_rhf
 from .accelerators import Accelerator
 

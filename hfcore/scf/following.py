@@ -17,9 +17,9 @@ from ..errors import ConvergenceError
 from .jk import IncrementalJK, JKBuilder
 from .result import RHFResult
 from .solver import IterationProgress, converge_rhf
+from .stability_screen import FittedScreen
 from .stability import (
     FOLLOW_ANGLES,
-    FittedScreen,
     StabilityAnalysis,
     StabilityReport,
     analyse_stability,

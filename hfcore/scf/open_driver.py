@@ -31,7 +31,7 @@ from .options import SCFOptions
 from .result import RHFResult
 from .solver import IterationProgress
 from .spin import resolve_method
-from .stability import screen_for
+from .stability_screen import screen_for
 from .guess import split_density
 from .uhf import solve_uhf
 

@@ -45,9 +45,9 @@ from .jk import IncrementalJK, JKBuilder, jk_multi
 from .open_result import UHFResult
 from .uhf import solve_uhf
 from .result import RHFResult, SCFIteration
+from .stability_screen import FittedScreen
 from .stability import (
     FOLLOW_ANGLES,
-    FittedScreen,
     OrbitalHessian,
     StabilityAnalysis,
     StabilityReport,
