@@ -576,6 +576,7 @@ STABILITY_CASES = [
     ("benzene/cc-pVDZ", "benzene.xyz", "cc-pvdz", None, False),
     ("water/cc-pVTZ direct", "water.xyz", "cc-pvtz", None, True),
     ("benzene/6-31G* direct", "benzene.xyz", "6-31g*", None, True),
+    ("benzene/cc-pVTZ exact", "benzene.xyz", "cc-pvtz", None, False),
     ("benzene/cc-pVTZ fitted", "benzene.xyz", "cc-pvtz", "cc-pvtz-jkfit", False),
 ]
 

@@ -24,7 +24,7 @@ from hfcore import parse_xyz
 from hfcore.integrals import compute_eri
 from hfcore.scf import SCFOptions, analyse_stability, check_rhf_to_uhf, run_rhf
 from hfcore.scf.stability import SCREEN_MARGIN
-from hfcore.scf.stability_screen import make_fitted_screen
+from hfcore.scf.stability_screen import SCREENED_STORE_BYTES, make_fitted_screen, screens
 from hfcore.scf.uhf_stability import analyse_uhf_stability
 
 BUDGET = 2 * 2**30
@@ -122,6 +122,16 @@ def test_a_direct_run_states_fitted_values_far_from_the_threshold_and_says_so():
 
 def test_no_screen_where_exact_products_are_cheap_or_the_factors_do_not_fit():
     result = run_rhf(_molecule("O 0 0 0\nH 0 0.757 0.587\nH 0 -0.757 0.587"), "6-31g", SCFOptions(stability="skip"))
+    small = result.eri_memory_bytes
+    assert small < SCREENED_STORE_BYTES
     for mode in ("stored", "stored-lean"):
-        assert make_fitted_screen(result.molecule, result.basis, mode, BUDGET, result.n_occupied) is None
+        assert make_fitted_screen(result.molecule, result.basis, mode, BUDGET, result.n_occupied, eri_bytes=small) is None
     assert make_fitted_screen(result.molecule, result.basis, "direct", 1024, result.n_occupied) is None
+
+
+def test_a_large_store_is_screened_like_the_direct_mode():
+    result = run_rhf(_molecule("O 0 0 0\nH 0 0.757 0.587\nH 0 -0.757 0.587"), "6-31g", SCFOptions(stability="skip"))
+    screen = make_fitted_screen(result.molecule, result.basis, "stored-lean", BUDGET, result.n_occupied,
+                                eri_bytes=SCREENED_STORE_BYTES)
+    assert screen is not None and screen.fit_basis == "def2-universal-JKFIT"
+    assert screens("direct", 0) and not screens("stored", SCREENED_STORE_BYTES - 1)

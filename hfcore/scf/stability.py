@@ -24,7 +24,8 @@ of such products. The eigenvalues reported are those of the energy Hessian
 
 Screening with fitted products
 ------------------------------
-When every exact product is a full integral pass (direct mode), the
+When every exact product is a full integral pass (direct mode) or a read
+of a large store (:mod:`hfcore.scf.stability_screen` says where), the
 search first runs on density-fitted products (:class:`hfcore.scf.stability_screen.FittedScreen`, a
 JKFIT set for the orbital basis, built once for the run at the cost of
 one three-centre pass) and only goes on with exact products, started
@@ -32,7 +33,7 @@ from the fitted vectors, when the fitted lowest eigenvalue lies within
 :data:`SCREEN_MARGIN` of the threshold (:func:`screened_eigenpairs`). A
 verdict near the threshold, and every unstable one, so always rests on
 exact products; a value far above it is reported as fitted
-(``eigenvalues_from``). With stored integrals an exact product costs
+(``eigenvalues_from``). With a small store an exact product costs
 about what a fitted one does, so the screen would only add its
 three-centre pass and is not used.
 

@@ -18,10 +18,23 @@ from collections.abc import Callable
 
 from .jk import JKBuilder
 
-#: J/K modes whose exact products go through the fitted screen first (see the module notes):
-#: measured on benzene 6-31G*, one thread, an exact product costs 1.4–2.2 s in direct mode
-#: against 0.03 s fitted after a 0.34 s three-centre pass; with a lean store 0.04 s either way.
+#: J/K modes whose exact products always go through the fitted screen first: measured on
+#: benzene 6-31G*, one thread, an exact product costs 1.4–2.2 s in direct mode against 0.03 s
+#: fitted after a 0.34 s three-centre pass.
 SCREENED_MODES: tuple[str, ...] = ("direct",)
+#: Stored integrals of at least this size (bytes) go through the screen too. An exact product
+#: reads the whole store, a fitted one costs O(naux nocc nbf²): measured, one thread, on a
+#: loaded 2-core machine, benzene cc-pVDZ (a 0.17 GB lean store) 0.04 s either way, so the
+#: three-centre pass (0.4 s) would not pay; benzene cc-pVTZ (4.9 GB) 2.7–3.3 s exact against
+#: 0.35 s fitted after a 5.8 s three-centre pass, against about 20 products.
+SCREENED_STORE_BYTES: int = 1 << 30
+
+
+def screens(jk_mode: str, eri_bytes: int) -> bool:
+    """Whether a run with this J/K mode and store size (bytes) screens its stability searches."""
+    if jk_mode in SCREENED_MODES:
+        return True
+    return jk_mode in ("stored", "stored-lean") and eri_bytes >= SCREENED_STORE_BYTES
 
 
 class FittedScreen:
@@ -57,7 +70,7 @@ class FittedScreen:
 
 
 def make_fitted_screen(molecule, basis, jk_mode: str, limit_bytes: int, n_occupied: int, *,
-                       screening: float = 1e-12, threads: int = 1) -> FittedScreen | None:
+                       eri_bytes: int = 0, screening: float = 1e-12, threads: int = 1) -> FittedScreen | None:
     """The fitted screen of a run, or None where it does not pay or cannot be had.
 
     Parameters
@@ -66,12 +79,15 @@ def make_fitted_screen(molecule, basis, jk_mode: str, limit_bytes: int, n_occupi
     basis : BasisSet
         The orbital basis; its ``fit_basis="auto"`` set is the screen's.
     jk_mode : str
-        The run's J/K mode: a screen only for :data:`SCREENED_MODES`.
+        The run's J/K mode: a screen for :data:`SCREENED_MODES`, and for
+        stored integrals of at least :data:`SCREENED_STORE_BYTES`.
     limit_bytes : int
         Memory budget: the fitted factors must fit stored in it (the blocked
         way would recompute the three-centre integrals for every product).
     n_occupied : int
         Occupied orbitals of the largest spin.
+    eri_bytes : int
+        Size of the stored integrals (``JKPlan.eri_memory_bytes``).
     screening, threads
         Screening threshold and threads of the three-centre pass.
 
@@ -81,7 +97,7 @@ def make_fitted_screen(molecule, basis, jk_mode: str, limit_bytes: int, n_occupi
         None for other modes, a basis with no fitting set for its elements,
         or factors beyond the budget: the analysis then stays exact.
     """
-    if jk_mode not in SCREENED_MODES:
+    if not screens(jk_mode, eri_bytes):
         return None
     from ..basis.fitting import fitting_basis
     from ..errors import HfcoreError
@@ -100,7 +116,8 @@ def make_fitted_screen(molecule, basis, jk_mode: str, limit_bytes: int, n_occupi
 
 #: The screen of each set of shared integrals (keyed by their engine), so that the RHF analysis,
 #: the RHF→UHF check and later runs on the same integrals share one three-centre pass.
-_SCREENS: "weakref.WeakKeyDictionary[object, FittedScreen | None]" = weakref.WeakKeyDictionary()
+#: Keyed by id(engine) (a store is a dataclass, not hashable); an entry goes with its engine.
+_SCREENS: dict[int, "FittedScreen | None"] = {}
 
 
 def screen_for(shared, molecule, options) -> FittedScreen | None:
@@ -121,16 +138,21 @@ def screen_for(shared, molecule, options) -> FittedScreen | None:
     FittedScreen or None
         See :func:`make_fitted_screen`.
     """
-    if shared.plan.mode not in SCREENED_MODES:
+    if not screens(shared.plan.mode, shared.plan.eri_memory_bytes):
         return None
-    key = shared.engine
+    key = id(shared.engine)
     if key not in _SCREENS:
+        weakref.finalize(shared.engine, _SCREENS.pop, key, None)
+        plan = shared.plan
+        # Stored integrals keep their room; the fitted factors must fit beside them.
+        room = plan.limit_bytes - (plan.eri_memory_bytes if plan.mode in ("stored", "stored-lean") else 0)
         _SCREENS[key] = make_fitted_screen(
-            molecule, shared.basis, shared.plan.mode, shared.plan.limit_bytes,
-            max(molecule.n_alpha, (molecule.n_electrons + 1) // 2), screening=options.screening,
+            molecule, shared.basis, plan.mode, room,
+            max(molecule.n_alpha, (molecule.n_electrons + 1) // 2), eri_bytes=shared.plan.eri_memory_bytes,
+            screening=options.screening,
             threads=options.n_threads,
         )
     return _SCREENS[key]
 
 
-__all__ = ["SCREENED_MODES", "FittedScreen", "make_fitted_screen", "screen_for"]
+__all__ = ["SCREENED_MODES", "SCREENED_STORE_BYTES", "FittedScreen", "make_fitted_screen", "screen_for", "screens"]
