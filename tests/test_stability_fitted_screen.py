@@ -101,6 +101,9 @@ def test_the_split_check_finds_the_lowest_eigenvalue_of_the_whole_uhf_hessian(ge
     assert split.stable == whole.stable == (not unstable)
     # Its mode is a unit eigenvector of the whole Hessian (exact property).
     assert np.linalg.norm(split.mode) == pytest.approx(1.0, abs=1e-12)
+    # The spin-flipping search started from the products the RHF analysis's builds already gave.
+    assert result.stability.spin_flip_space is not None
+    assert split.products < whole.products
 
 
 def test_a_direct_run_states_fitted_values_far_from_the_threshold_and_says_so():

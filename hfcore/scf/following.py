@@ -143,6 +143,7 @@ def stabilise(
         eigenvalues_from=analysis.eigenvalues_from,
         fitted_products=fitted_products,
         screen_fit_basis=None if screen is None else screen.fit_basis,
+        spin_flip_space=analysis.spin_flip_space,
     )
     timings = {**result.timings, "scf": scf_time + later_scf, "stability": time.perf_counter() - t0 - later_scf}
     run_message = result.message
@@ -172,6 +173,7 @@ def _analyse(
     return analyse_stability(
         result.coefficients, result.fock, result.n_occupied, jk,
         threshold=result.options.stability_threshold, n_roots=n_roots, tol=tol, start=start, screen=screen,
+        keep_spin_flip=True,
     )
 
 

@@ -98,6 +98,10 @@ class StabilityAnalysis:
         (:data:`SCREEN_MARGIN`) that exact products were not needed.
     fitted_products : int
         Products with the fitted screen's builder.
+    spin_flip_space : pair of ndarray or None
+        The rotations of every exact product, shape (m, nvir, nocc), and the
+        spin-flipping UHF block's products with them (same shape), which
+        the same J/K builds gave: the RHF→UHF check starts from them.
     """
 
     eigenvalues: np.ndarray
@@ -107,6 +111,7 @@ class StabilityAnalysis:
     products: int
     eigenvalues_from: str = "exact"
     fitted_products: int = 0
+    spin_flip_space: tuple[np.ndarray, np.ndarray] | None = field(default=None, repr=False, compare=False)
 
     @property
     def lowest_eigenvalue(self) -> float:
@@ -164,6 +169,9 @@ class StabilityReport:
         Hessian products made with the fitted screen's builder.
     screen_fit_basis : str or None
         The fitting set of the screen, None when none was used.
+    spin_flip_space : pair of ndarray or None
+        :attr:`StabilityAnalysis.spin_flip_space` of the final solution's
+        analysis (not in :meth:`to_dict`).
     """
 
     mode: str
@@ -180,6 +188,7 @@ class StabilityReport:
     eigenvalues_from: str = "exact"
     fitted_products: int = 0
     screen_fit_basis: str | None = None
+    spin_flip_space: tuple[np.ndarray, np.ndarray] | None = field(default=None, repr=False, compare=False)
 
     def to_dict(self) -> dict:
         """The ``scf.stability`` object of the JSON record (eigenvalues in hartree; no ``vector``)."""
@@ -258,6 +267,8 @@ class OrbitalHessian:
         self.jk = plain_builder(jk)
         self.diagonal = 4.0 * (np.diag(self.f_vv)[:, None] - np.diag(self.f_oo)[None, :])
         self.products = 0
+        #: (rotation, spin-flipping product) of every product made, when set to a list.
+        self.spin_flip: list[tuple[np.ndarray, np.ndarray]] | None = None
 
     @property
     def shape(self) -> tuple[int, int]:
@@ -286,6 +297,13 @@ class OrbitalHessian:
                 half = left @ self.occ.T
                 built.append(self.jk.jk(half + half.T))
         self.products += len(xs)
+        if self.spin_flip is not None:
+            # The same exchange matrices give the spin-flipping UHF block's products for free
+            # (hfcore.scf.uhf_stability.TripletHessian), kept for the RHF→UHF check.
+            self.spin_flip.extend(
+                (x.copy(), 2.0 * (self.f_vv @ x - x @ self.f_oo - self.vir.T @ k @ self.occ))
+                for x, (_, k) in zip(xs, built)
+            )
         return [
             4.0 * (self.f_vv @ x - x @ self.f_oo + self.vir.T @ (2.0 * j - k) @ self.occ)
             for x, (j, k) in zip(xs, built)
@@ -309,6 +327,7 @@ def lowest_eigenpairs(
     *,
     start: np.ndarray | None = None,
     seeded: bool = False,
+    known: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> tuple[np.ndarray, np.ndarray, bool]:
     """Davidson's method for the lowest eigenpairs of a symmetric operator.
 
@@ -341,6 +360,11 @@ def lowest_eigenpairs(
         Start from ``start`` alone, without the unit and spread vectors
         (the exact refinement of a fitted search, whose vectors already
         hold the low modes).
+    known : pair of ndarray, shapes (m, *diagonal.shape), optional
+        Vectors whose products are already known, and those products: the
+        search starts from their span (made orthonormal) instead of the
+        unit and spread vectors, at no cost (the RHF→UHF check on the
+        rotations of the RHF analysis, see ``spin_flip_space``).
 
     Returns
     -------
@@ -380,7 +404,10 @@ def lowest_eigenpairs(
     # quotient is low and the low modes it carries are resolved instead of
     # hidden behind its high-energy part: a stretched-N2 solution has a zero
     # mode that plain random and unit vectors only reach with many more roots.
-    if seeded and start is not None and len(start):
+    if known is not None and len(known[0]):
+        basis, products = _span_of(np.reshape(known[0], (len(known[0]), dim)).T,
+                                   np.reshape(known[1], (len(known[1]), dim)).T)
+    elif seeded and start is not None and len(start):
         basis = np.zeros((dim, 0))
     else:
         order = np.argsort(d, kind="stable")
@@ -390,10 +417,14 @@ def lowest_eigenpairs(
         if n_start < dim:
             spread = np.random.default_rng(20260).standard_normal(dim) / (d - d.min() + 0.5)
             basis = np.column_stack([basis, spread])
-    if start is not None and len(start):
-        basis = np.column_stack([basis, np.reshape(start, (len(start), dim)).T])
-    basis = _orthonormal_columns(basis)
-    products = products_of(basis)
+    if known is None or not len(known[0]):
+        if start is not None and len(start):
+            basis = np.column_stack([basis, np.reshape(start, (len(start), dim)).T])
+        basis = _orthonormal_columns(basis)
+        products = products_of(basis)
+    elif start is not None and len(start):
+        added = _extend(basis, np.reshape(start, (len(start), dim)).T)
+        basis, products = np.column_stack([basis, added]), np.column_stack([products, products_of(added)])
     converged = False
     for _ in range(max_iterations):
         small = basis.T @ products
@@ -419,6 +450,18 @@ def lowest_eigenpairs(
         products = np.column_stack([products, products_of(added)])
     vectors = np.array([ritz[:, k].reshape(shape) / np.linalg.norm(ritz[:, k]) for k in range(n_roots)])
     return values.copy(), vectors, converged
+
+
+def _span_of(vectors: np.ndarray, products: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """An orthonormal basis of the columns of ``vectors`` and the operator's products with it.
+
+    The operator is linear, so with vectors = U S Wᵀ the basis U has
+    products ``products @ W / S``; directions with S below 1e-8 · max S are
+    dropped.
+    """
+    u, sv, wt = np.linalg.svd(vectors, full_matrices=False)
+    keep = sv > 1e-8 * sv.max() if sv.size else np.zeros(0, dtype=bool)
+    return u[:, keep], (products @ wt[keep].T) / sv[keep]
 
 
 def _orthonormal_columns(m: np.ndarray) -> np.ndarray:
@@ -451,6 +494,7 @@ def screened_eigenpairs(
     threshold: float,
     *,
     start: np.ndarray | None = None,
+    known: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> tuple[np.ndarray, np.ndarray, bool, str]:
     """Lowest eigenpairs, from fitted products where they settle the verdict, else exact ones.
 
@@ -461,6 +505,9 @@ def screened_eigenpairs(
         :func:`lowest_eigenpairs`); ``fitted`` None gives the exact search alone.
     diagonal, n_roots, tol, start
         As for :func:`lowest_eigenpairs`.
+    known : pair of ndarray, optional
+        Exact products already made (see :func:`lowest_eigenpairs`); the
+        exact search then starts from them.
     threshold : float
         Stability threshold (hartree).
 
@@ -476,8 +523,8 @@ def screened_eigenpairs(
         (one more root than asked for, so a nearly degenerate partner is
         not lost) and its values are returned.
     """
-    if fitted is None:
-        return (*lowest_eigenpairs(exact, diagonal, n_roots, tol, start=start), "exact")
+    if fitted is None or (known is not None and len(known[0])):
+        return (*lowest_eigenpairs(exact, diagonal, n_roots, tol, start=start, known=known), "exact")
     wide = min(n_roots + 1, diagonal.size)
     values, vectors, converged = lowest_eigenpairs(fitted, diagonal, wide, tol, start=start)
     if converged and values[0] >= -threshold + SCREEN_MARGIN:
@@ -496,6 +543,7 @@ def analyse_stability(
     tol: float = 1e-6,
     start: np.ndarray | None = None,
     screen: "FittedScreen | None" = None,
+    keep_spin_flip: bool = False,
 ) -> StabilityAnalysis:
     """Internal (real RHF→RHF) stability analysis of a converged solution.
 
@@ -521,6 +569,9 @@ def analyse_stability(
         analysis.
     screen : FittedScreen, optional
         Search with its fitted products first (:func:`screened_eigenpairs`).
+    keep_spin_flip : bool
+        Keep the spin-flipping products the exact J/K builds also give
+        (:attr:`StabilityAnalysis.spin_flip_space`).
 
     Returns
     -------
@@ -535,6 +586,8 @@ def analyse_stability(
     nvir, nocc = hessian.shape
     if nvir == 0 or nocc == 0:
         return StabilityAnalysis(np.array([np.inf]), np.zeros((1, nvir, nocc)), threshold, True, 0)
+    if keep_spin_flip:
+        hessian.spin_flip = []
     fitted = None if screen is None else OrbitalHessian(coefficients, fock, n_occ, screen.builder())
     try:
         values, vectors, converged, source = screened_eigenpairs(
@@ -544,8 +597,11 @@ def analyse_stability(
         hessian.release()
         if fitted is not None:
             fitted.release()
+    space = None
+    if hessian.spin_flip:
+        space = (np.array([x for x, _ in hessian.spin_flip]), np.array([t for _, t in hessian.spin_flip]))
     return StabilityAnalysis(values, vectors, threshold, converged, hessian.products, source,
-                             0 if fitted is None else fitted.products)
+                             0 if fitted is None else fitted.products, space)
 
 
 def rotate_orbitals(coefficients: np.ndarray, n_occ: int, rotation: np.ndarray, angle: float) -> np.ndarray:

@@ -26,7 +26,9 @@ and on κ_α = −κ_β = κ/√2 the Coulomb part cancels::
 
 so :func:`check_rhf_to_uhf` searches only that block
 (:class:`TripletHessian`), whose products need K alone: several come from
-one multi-density build.
+one multi-density build, and the RHF analysis's own builds have already
+given its products with every rotation that analysis tried, so the search
+starts from their span.
 
 Nothing here prints.
 """
@@ -238,10 +240,14 @@ def check_rhf_to_uhf(
     if nvir == 0 or nocc == 0:
         return StabilityAnalysis(np.array([np.inf]), np.zeros((1, 0)), threshold, True, 0)
     singlet = _spin_keeping_block(result, jk, n_roots, tol, screen)
+    # The RHF analysis's J/K builds already gave the spin-flipping products of its rotations, unit and
+    # spread start vectors included. A screened analysis made exact products only from fitted vectors,
+    # which need not reach every symmetry of the other block: it gets its own screened search.
+    known = singlet.spin_flip_space if screen is None else None
     fitted = None if screen is None else TripletHessian(c, result.fock, n, screen.builder())
     try:
         values, vectors, converged, source = screened_eigenpairs(
-            triplet, fitted, triplet.diagonal, n_roots, tol, threshold
+            triplet, fitted, triplet.diagonal, n_roots, tol, threshold, known=known
         )
     finally:
         triplet.release()
@@ -269,9 +275,10 @@ def _spin_keeping_block(result: RHFResult, jk: JKBuilder, n_roots: int, tol: flo
     if report is not None and np.all(np.isfinite(report.eigenvalues)) and report.vector.size:
         # Only the lowest RHF mode is kept in the report; its eigenvalue is the one that can decide the verdict.
         return StabilityAnalysis(0.5 * np.asarray(report.eigenvalues[:1]), report.vector[None], report.threshold,
-                                 True, 0, report.eigenvalues_from)
+                                 True, 0, report.eigenvalues_from, spin_flip_space=report.spin_flip_space)
     own = analyse_stability(result.coefficients, result.fock, result.n_occupied, jk,
-                            threshold=result.options.stability_threshold, n_roots=n_roots, tol=tol, screen=screen)
+                            threshold=result.options.stability_threshold, n_roots=n_roots, tol=tol, screen=screen,
+                            keep_spin_flip=True)
     return replace(own, eigenvalues=0.5 * own.eigenvalues)
 
 
