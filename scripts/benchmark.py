@@ -597,7 +597,13 @@ def timed(key, function):
     return run
 driver.converge_rhf = timed("scf", driver.converge_rhf)
 driver.stabilise = timed("stability", driver.stabilise)
-uhf_stability.check_rhf_to_uhf = timed("stability", uhf_stability.check_rhf_to_uhf)
+check = timed("stability", uhf_stability.check_rhf_to_uhf)
+checks = []
+def counted(*args, **kwargs):
+    analysis = check(*args, **kwargs)
+    checks.append(analysis)
+    return analysis
+uhf_stability.check_rhf_to_uhf = counted
 mol = hfcore.read_xyz(path)
 basis = hfcore.build_basis(mol, basis_name)
 options = SCFOptions(energy_tol=float(sys.argv[5]), gradient_tol=float(sys.argv[6]), threads=1,
@@ -612,6 +618,8 @@ print(json.dumps({
     "eigenvalues_from": getattr(st, "eigenvalues_from", "exact"),
     "uhf_warning": any("towards UHF" in w for w in res.warnings),
     "scf_cpu": cpu["scf"], "stability_cpu": cpu["stability"],
+    "check_products": sum(int(a.products) for a in checks),
+    "check_fitted_products": sum(int(getattr(a, "fitted_products", 0)) for a in checks),
 }))
 """
 
@@ -699,12 +707,17 @@ def stability_table(only: set[str] | None, before: str | None) -> dict:
     return result
 
 
+def _pair(row: dict, first: str, second: str) -> str:
+    return f"{row[first]}+{row[second]}" if second in row else str(row[first])
+
+
 def _format_stability(result: dict) -> str:
-    head = (f"{'case':<24}{'run':<8}{'mode':<12}{'scf/s':>7}{'stab/s':>8}{'stab/scf':>9}{'cpu':>6}{'exact':>6}"
-            f"{'fitted':>7}  {'lowest/Eh':>10} {'from':<7}{'verdict':<8}{'UHF':<5}")
+    head = (f"{'case':<24}{'run':<8}{'mode':<12}{'scf/s':>7}{'stab/s':>8}{'stab/scf':>9}{'cpu':>6}{'exact':>9}"
+            f"{'fitted':>9}  {'lowest/Eh':>10} {'from':<7}{'verdict':<8}{'UHF':<5}")
     lines = [f"load average before {result['load_before'][0]:.2f}, after {result['load_after'][0]:.2f} (1 min); "
              "one thread; stab/scf = stability over SCF-iteration wall seconds, cpu the same in CPU seconds "
-             "(steadier under load); the reference library runs its internal and RHF->UHF analyses after its SCF",
+             "(steadier under load); exact and fitted Hessian products as RHF analysis+RHF->UHF check; "
+             "the reference library runs its internal and RHF->UHF analyses after its SCF",
              head, "-" * len(head)]
     for r in result["rows"]:
         for key in ("before", "after", "reference"):
@@ -720,10 +733,11 @@ def _format_stability(result: dict) -> str:
             uhf = "warn" if x["uhf_warning"] else "-"
             if key == "reference":
                 lines.append(f"{r['case']:<24}{'ref':<8}{'':<12}{x['scf']:>7.2f}{x['stability']:>8.2f}{share:>9.2f}"
-                             f"{cpu:>6.2f}{'':>6}{'':>7}  {'':>10} {'':<7}{verdict:<8}{uhf:<5}")
+                             f"{cpu:>6.2f}{'':>9}{'':>9}  {'':>10} {'':<7}{verdict:<8}{uhf:<5}")
             else:
                 lines.append(f"{r['case']:<24}{key:<8}{x['jk_mode']:<12}{x['scf']:>7.2f}{x['stability']:>8.2f}"
-                             f"{share:>9.2f}{cpu:>6.2f}{x['products']:>6}{x['fitted_products']:>7}  {x['lowest']:>10.6f} "
+                             f"{share:>9.2f}{cpu:>6.2f}{_pair(x, 'products', 'check_products'):>9}"
+                             f"{_pair(x, 'fitted_products', 'check_fitted_products'):>9}  {x['lowest']:>10.6f} "
                              f"{x['eigenvalues_from']:<7}{verdict:<8}{uhf:<5}")
     return "\n".join(lines)
 
