@@ -130,7 +130,10 @@ def _run_rhf_checked(molecule, basis, options, guess, progress, integral_progres
     warning = rhf_to_uhf_warning(analysis)
     timings = {**result.timings, "stability": result.timings.get("stability", 0.0) + time.perf_counter() - t0}
     timings["total"] = result.timings.get("total", 0.0) + time.perf_counter() - t0
-    return replace(result, warnings=result.warnings + ((warning,) if warning else ()), timings=timings)
+    # The spin-flipping products kept for the check have served; the record does not carry them on.
+    stability = None if result.stability is None else replace(result.stability, spin_flip_space=None)
+    return replace(result, warnings=result.warnings + ((warning,) if warning else ()), timings=timings,
+                   stability=stability)
 
 
 def run_uhf(molecule: Molecule, basis: BasisSet | str = "sto-3g", options: SCFOptions | None = None, **kwargs) -> UHFResult:
