@@ -19,6 +19,9 @@ Usage::
     python scripts/benchmark.py --speedup       # two threads against one, benzene/cc-pVDZ
     python scripts/benchmark.py --table         # the default command as users run it (see below)
     python scripts/benchmark.py --table --quick # its quick subset
+    python scripts/benchmark.py --stability     # the stability analysis's share of the SCF time
+    python scripts/benchmark.py --stability --before /tmp/hfcore-old
+                                                # ... beside an older checkout of hfcore, same run
 
 ``--table`` times whole processes: hfcore's default command (``python -m
 hfcore energy``, stability analysis included) against a script that runs the
@@ -27,6 +30,15 @@ reference library's plain RHF on the same shells, for water cc-pVTZ, benzene
 start-up (best of three of each); the stability analysis's share of the SCF
 time; and the two-thread speed-up of the default command on benzene cc-pVDZ.
 ``--quick`` leaves out the two large benzene cases.
+
+``--stability`` runs the default analysis (descend, with the RHF→UHF check)
+after the SCF, in process, and reports stability seconds over SCF-iteration
+seconds, the exact and fitted Hessian products, the verdicts and whether the
+stated lowest eigenvalue came from exact or fitted products; beside it the
+reference library's SCF followed by its own internal and RHF→UHF stability
+analysis on the same shells (its share the same way). ``--before PATH`` adds
+the same hfcore measurement from another checkout (PYTHONPATH=PATH) in the
+same run, for before/after figures; ``--only`` picks cases by label.
 
 The table reports wall times (integrals and SCF separately for hfcore), the
 hfcore/reference ratio, the energy difference, iteration counts and peak
@@ -554,6 +566,182 @@ def _format_table(result: dict) -> str:
     return "\n".join(lines)
 
 
+# ----------------------------------------------------------------------------
+# The stability analysis's share of the SCF time (--stability)
+
+#: (label, geometry file, basis, fitting set or None, forced direct mode)
+STABILITY_CASES = [
+    ("water/cc-pVTZ", "water.xyz", "cc-pvtz", None, False),
+    ("benzene/6-31G*", "benzene.xyz", "6-31g*", None, False),
+    ("benzene/cc-pVDZ", "benzene.xyz", "cc-pvdz", None, False),
+    ("water/cc-pVTZ direct", "water.xyz", "cc-pvtz", None, True),
+    ("benzene/6-31G* direct", "benzene.xyz", "6-31g*", None, True),
+    ("benzene/cc-pVTZ exact", "benzene.xyz", "cc-pvtz", None, False),
+    ("benzene/cc-pVTZ fitted", "benzene.xyz", "cc-pvtz", "cc-pvtz-jkfit", False),
+]
+
+_STABILITY_CHILD = """
+import json, sys, time
+import hfcore
+from hfcore.scf import SCFOptions, driver, uhf_stability
+path, basis_name, fit, direct = sys.argv[1], sys.argv[2], sys.argv[3], sys.argv[4] == "1"
+# CPU seconds of the first SCF and of the stability stages (steadier than wall time on a loaded machine).
+cpu = {"scf": 0.0, "stability": 0.0}
+def timed(key, function):
+    def run(*args, **kwargs):
+        t0 = time.process_time()
+        try:
+            return function(*args, **kwargs)
+        finally:
+            cpu[key] += time.process_time() - t0
+    return run
+driver.converge_rhf = timed("scf", driver.converge_rhf)
+driver.stabilise = timed("stability", driver.stabilise)
+check = timed("stability", uhf_stability.check_rhf_to_uhf)
+checks = []
+def counted(*args, **kwargs):
+    analysis = check(*args, **kwargs)
+    checks.append(analysis)
+    return analysis
+uhf_stability.check_rhf_to_uhf = counted
+mol = hfcore.read_xyz(path)
+basis = hfcore.build_basis(mol, basis_name)
+options = SCFOptions(energy_tol=float(sys.argv[5]), gradient_tol=float(sys.argv[6]), threads=1,
+                     fit_basis=None if fit == "-" else fit, direct=True if direct else None)
+res = hfcore.run_scf(mol, basis, options)
+st = res.stability
+print(json.dumps({
+    "energy": res.energy_total, "jk_mode": res.jk_mode, "iterations": res.iterations,
+    "scf": res.timings["scf"], "stability": res.timings["stability"], "stable": bool(st.stable),
+    "lowest": float(st.lowest_eigenvalue), "products": int(st.hessian_products),
+    "fitted_products": int(getattr(st, "fitted_products", 0)),
+    "eigenvalues_from": getattr(st, "eigenvalues_from", "exact"),
+    "uhf_warning": any("towards UHF" in w for w in res.warnings),
+    "scf_cpu": cpu["scf"], "stability_cpu": cpu["stability"],
+    "check_products": sum(int(a.products) for a in checks),
+    "check_fitted_products": sum(int(getattr(a, "fitted_products", 0)) for a in checks),
+}))
+"""
+
+_REFERENCE_STABILITY = """
+import json, sys, time
+from pyscf import gto, lib, scf
+lib.num_threads(1)
+job = json.load(open(sys.argv[1]))
+def shells(dump):
+    atoms, basis = [], {}
+    for k, (label, r) in enumerate(dump["atoms"]):
+        atoms.append((label, r))
+        basis[label] = [[l] + [[e, *cs] for e, cs in zip(exps, zip(*coefs))] for l, exps, coefs in dump["per_atom"][str(k)]]
+    return atoms, basis
+atoms, basis = shells(job["orbital"])
+mol = gto.M(atom=atoms, basis=basis, unit="Bohr", charge=job["orbital"]["charge"], cart=not job["spherical"],
+            verbose=0, max_memory=job["memory_mb"])
+mf = scf.RHF(mol)
+if job["fit"] is not None:
+    mf = mf.density_fit(auxbasis=shells(job["fit"])[1])
+if job["direct"]:
+    mf.direct_scf = True
+    mf._eri = None
+    mf.max_memory = 1
+mf.conv_tol = job["energy_tol"]
+mf.conv_tol_grad = job["gradient_tol"]
+mf.build()
+t0, c0 = time.perf_counter(), time.process_time()
+energy = mf.kernel()
+t1, c1 = time.perf_counter(), time.process_time()
+_, _, internal, external = mf.stability(internal=True, external=True, return_status=True)
+t2, c2 = time.perf_counter(), time.process_time()
+print(json.dumps({"energy": float(energy), "scf": t1 - t0, "stability": t2 - t1, "stable": bool(internal),
+                  "uhf_warning": not bool(external), "scf_cpu": c1 - c0, "stability_cpu": c2 - c1}))
+"""
+
+
+def _stability_row(label: str, geometry: str, basis: str, fit: str | None, direct: bool, folder: Path,
+                   before: str | None) -> dict:
+    row = {"case": label}
+    child = folder / "stability_child.py"
+    child.write_text(_STABILITY_CHILD)
+    args = [str(INPUTS / geometry), basis, fit or "-", "1" if direct else "0", str(ENERGY_TOL), str(GRADIENT_TOL)]
+    for key, tree in (("before", before), ("after", str(ROOT))):
+        if tree is None:
+            continue
+        env = _child_env(1)
+        env["PYTHONPATH"] = tree
+        import subprocess
+
+        done = subprocess.run([sys.executable, str(child), *args], capture_output=True, text=True, env=env, cwd=tree)
+        if done.returncode != 0:
+            row[key] = {"error": done.stderr.strip()[-300:]}
+            continue
+        row[key] = json.loads(done.stdout.strip().splitlines()[-1])
+    try:
+        job = _reference_job(geometry, basis, fit, folder)
+        job_path = Path(job[-1])
+        record = json.loads(job_path.read_text())
+        record["direct"] = direct
+        job_path.write_text(json.dumps(record))
+        script = folder / "reference_stability.py"
+        script.write_text(_REFERENCE_STABILITY)
+        _, out = _timed([sys.executable, str(script), str(job_path)], 1)
+        row["reference"] = json.loads(out.strip().splitlines()[-1])
+    except (RuntimeError, ImportError) as exc:
+        row["reference"] = {"error": str(exc)}
+    return row
+
+
+def stability_table(only: set[str] | None, before: str | None) -> dict:
+    """Rows of --stability, with the load average before and after."""
+    import tempfile
+
+    if str(ROOT) not in sys.path:
+        sys.path.insert(0, str(ROOT))
+    result = {"load_before": os.getloadavg(), "rows": []}
+    with tempfile.TemporaryDirectory(prefix="hfcore-bench-") as tmp:
+        for label, geometry, basis, fit, direct in STABILITY_CASES:
+            if only and label not in only:
+                continue
+            print(f"running {label} (stability share) ...", file=sys.stderr, flush=True)
+            result["rows"].append(_stability_row(label, geometry, basis, fit, direct, Path(tmp), before))
+    result["load_after"] = os.getloadavg()
+    return result
+
+
+def _pair(row: dict, first: str, second: str) -> str:
+    return f"{row[first]}+{row[second]}" if second in row else str(row[first])
+
+
+def _format_stability(result: dict) -> str:
+    head = (f"{'case':<24}{'run':<8}{'mode':<12}{'scf/s':>7}{'stab/s':>8}{'stab/scf':>9}{'cpu':>6}{'exact':>9}"
+            f"{'fitted':>9}  {'lowest/Eh':>10} {'from':<7}{'verdict':<8}{'UHF':<5}")
+    lines = [f"load average before {result['load_before'][0]:.2f}, after {result['load_after'][0]:.2f} (1 min); "
+             "one thread; stab/scf = stability over SCF-iteration wall seconds, cpu the same in CPU seconds "
+             "(steadier under load); exact and fitted Hessian products as RHF analysis+RHF->UHF check; "
+             "the reference library runs its internal and RHF->UHF analyses after its SCF",
+             head, "-" * len(head)]
+    for r in result["rows"]:
+        for key in ("before", "after", "reference"):
+            x = r.get(key)
+            if x is None:
+                continue
+            if "error" in x:
+                lines.append(f"{r['case']:<24}{key:<8} failed: {x['error']}")
+                continue
+            share = x["stability"] / x["scf"] if x["scf"] > 0 else math.nan
+            cpu = x["stability_cpu"] / x["scf_cpu"] if x.get("scf_cpu", 0) > 0 else math.nan
+            verdict = "stable" if x["stable"] else "UNSTABLE"
+            uhf = "warn" if x["uhf_warning"] else "-"
+            if key == "reference":
+                lines.append(f"{r['case']:<24}{'ref':<8}{'':<12}{x['scf']:>7.2f}{x['stability']:>8.2f}{share:>9.2f}"
+                             f"{cpu:>6.2f}{'':>9}{'':>9}  {'':>10} {'':<7}{verdict:<8}{uhf:<5}")
+            else:
+                lines.append(f"{r['case']:<24}{key:<8}{x['jk_mode']:<12}{x['scf']:>7.2f}{x['stability']:>8.2f}"
+                             f"{share:>9.2f}{cpu:>6.2f}{_pair(x, 'products', 'check_products'):>9}"
+                             f"{_pair(x, 'fitted_products', 'check_fitted_products'):>9}  {x['lowest']:>10.6f} "
+                             f"{x['eigenvalues_from']:<7}{verdict:<8}{uhf:<5}")
+    return "\n".join(lines)
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--threads", type=int, default=1, help="threads for both programs (default 1)")
@@ -569,7 +757,17 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--quick", action="store_true", help="with --table (implied): leave out the two large benzene cases")
     parser.add_argument("--only", help="comma-separated case labels to run ('none' for no fixed case)")
     parser.add_argument("--json", help="write the rows as JSON to this path ('-' for stdout)")
+    parser.add_argument("--stability", action="store_true",
+                        help="only the stability analysis's share of the SCF time, beside the reference library's")
+    parser.add_argument("--before", help="with --stability: also measure the hfcore checkout at this path")
     args = parser.parse_args(argv)
+    if args.stability:
+        wanted = {s.strip() for s in args.only.split(",")} if args.only else None
+        result = stability_table(wanted, args.before)
+        if args.json:
+            Path(args.json).write_text(json.dumps(result, indent=2) + "\n")
+        print(_format_stability(result))
+        return 0
     if args.table or args.quick:
         result = user_table(args.quick)
         if args.json:

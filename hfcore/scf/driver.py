@@ -32,6 +32,7 @@ from .jk import IncrementalJK, JKBuilder
 from .options import SCFOptions
 from .result import RHFResult
 from .following import stabilise
+from .stability_screen import FittedScreen, screen_for
 from .solver import IterationProgress, converge_rhf
 from .accelerators import Accelerator
 
@@ -49,6 +50,7 @@ def solve_rhf(
     *,
     progress: IterationProgress | None = None,
     accelerator: Accelerator | None = None,
+    screen: "FittedScreen | None" = None,
 ) -> RHFResult:
     """Run closed-shell Roothaan-Hall iterations on given matrices, then check the solution's stability.
 
@@ -78,6 +80,9 @@ def solve_rhf(
     accelerator : Accelerator, optional
         Replaces the one ``options`` name; the automatic aids
         (``options.auto_aids``) may still take over from it when it stalls.
+    screen : FittedScreen, optional
+        Fitted products for the stability search first
+        (:func:`hfcore.scf.stability.screened_eigenpairs`).
 
     Returns
     -------
@@ -104,7 +109,7 @@ def solve_rhf(
     )
     if options.stability == "skip":
         return result
-    result = stabilise(result, jk, int(n_electrons), energy_nuclear, progress=progress)
+    result = stabilise(result, jk, int(n_electrons), energy_nuclear, progress=progress, screen=screen)
     return replace(result, timings={**result.timings, "total": time.perf_counter() - t0})
 
 
@@ -270,7 +275,7 @@ def _run_rhf(
         with _budget_context(plan):
             result = solve_rhf(
                 overlap, hcore, jk, molecule.n_electrons, molecule.nuclear_repulsion(), options, guess_density,
-                progress=progress,
+                progress=progress, screen=screen_for(shared, molecule, options),
             )
     except ConvergenceError as exc:
         if exc.result is None:

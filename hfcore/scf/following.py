@@ -17,6 +17,7 @@ from ..errors import ConvergenceError
 from .jk import IncrementalJK, JKBuilder
 from .result import RHFResult
 from .solver import IterationProgress, converge_rhf
+from .stability_screen import FittedScreen
 from .stability import (
     FOLLOW_ANGLES,
     StabilityAnalysis,
@@ -37,6 +38,7 @@ def stabilise(
     energy_nuclear: float,
     *,
     progress: IterationProgress | None = None,
+    screen: FittedScreen | None = None,
 ) -> RHFResult:
     """Analyse a converged solution and, in "descend" mode, move to a stable one.
 
@@ -60,6 +62,10 @@ def stabilise(
         Nuclear repulsion (hartree).
     progress : callable, optional
         Passed on to the SCF runs of later solutions.
+    screen : FittedScreen, optional
+        Fitted products for the search first (see
+        :func:`hfcore.scf.stability.screened_eigenpairs`); the run's driver
+        makes one where exact products are expensive.
 
     Returns
     -------
@@ -77,12 +83,14 @@ def stabilise(
     aids = list(result.aids)
     scf_time = result.timings.get("scf", 0.0)
     later_scf = 0.0  # seconds in the SCF runs after rotations, kept apart from the analysis time
-    products = 0
+    products = fitted_products = 0
     message = ""
     rounds = 0
+    start = None
     while True:
-        analysis = _analyse(result, jk)
+        analysis = _analyse(result, jk, screen, start)
         products += analysis.products
+        fitted_products += analysis.fitted_products
         lowest.append(analysis.lowest_eigenvalue)
         if analysis.stable:
             plural = "instability" if rounds == 1 else "instabilities"
@@ -118,6 +126,8 @@ def stabilise(
             break
         result = new
         energies.append(result.energy_total)
+        # The previous solution's modes start the next search: the new solution lies near it.
+        start = analysis.vectors
     report = StabilityReport(
         mode=options.stability,
         stable=analysis.stable,
@@ -130,6 +140,10 @@ def stabilise(
         rounds=rounds,
         hessian_products=products,
         message=message,
+        eigenvalues_from=analysis.eigenvalues_from,
+        fitted_products=fitted_products,
+        screen_fit_basis=None if screen is None else screen.fit_basis,
+        spin_flip_space=analysis.spin_flip_space,
     )
     timings = {**result.timings, "scf": scf_time + later_scf, "stability": time.perf_counter() - t0 - later_scf}
     run_message = result.message
@@ -152,13 +166,21 @@ FOLLOW_ANALYSIS: tuple[int, float] = (1, 1e-3)
 CHECK_ANALYSIS: tuple[int, float] = (3, 1e-4)
 
 
-def _analyse(result: RHFResult, jk: JKBuilder) -> StabilityAnalysis:
-    check = result.options.stability == "report" and not isinstance(jk, IncrementalJK)
-    n_roots, tol = CHECK_ANALYSIS if check else FOLLOW_ANALYSIS
+def _analyse(
+    result: RHFResult, jk: JKBuilder, screen: FittedScreen | None = None, start: np.ndarray | None = None
+) -> StabilityAnalysis:
+    n_roots, tol = analysis_settings(result.options.stability, jk)
     return analyse_stability(
         result.coefficients, result.fock, result.n_occupied, jk,
-        threshold=result.options.stability_threshold, n_roots=n_roots, tol=tol,
+        threshold=result.options.stability_threshold, n_roots=n_roots, tol=tol, start=start, screen=screen,
+        keep_spin_flip=True,
     )
+
+
+def analysis_settings(mode: str, jk: JKBuilder) -> tuple[int, float]:
+    """(roots, residual tolerance) of the analyses of a stability mode (see :data:`CHECK_ANALYSIS`)."""
+    check = mode == "report" and not isinstance(jk, IncrementalJK)
+    return CHECK_ANALYSIS if check else FOLLOW_ANALYSIS
 
 
 def _rotated_density(
@@ -178,4 +200,4 @@ def _rotated_density(
     return best_density
 
 
-__all__ = ["stabilise", "NEW_SOLUTION_MARGIN", "FOLLOW_ANALYSIS", "CHECK_ANALYSIS"]
+__all__ = ["stabilise", "NEW_SOLUTION_MARGIN", "FOLLOW_ANALYSIS", "CHECK_ANALYSIS", "analysis_settings"]

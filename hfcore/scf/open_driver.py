@@ -31,6 +31,7 @@ from .options import SCFOptions
 from .result import RHFResult
 from .solver import IterationProgress
 from .spin import resolve_method
+from .stability_screen import screen_for
 from .guess import split_density
 from .uhf import solve_uhf
 
@@ -132,11 +133,14 @@ def _run_rhf_checked(molecule, basis, options, guess, progress, integral_progres
 
     t0 = time.perf_counter()
     with blas_threads(options.n_threads):
-        analysis = check_rhf_to_uhf(result, shared.jk_builder())
+        analysis = check_rhf_to_uhf(result, shared.jk_builder(), screen=screen_for(shared, molecule, options))
     warning = rhf_to_uhf_warning(analysis)
     timings = {**result.timings, "stability": result.timings.get("stability", 0.0) + time.perf_counter() - t0}
     timings["total"] = result.timings.get("total", 0.0) + time.perf_counter() - t0
-    return replace(result, warnings=result.warnings + ((warning,) if warning else ()), timings=timings)
+    # The spin-flipping products kept for the check have served; the record does not carry them on.
+    stability = None if result.stability is None else replace(result.stability, spin_flip_space=None)
+    return replace(result, warnings=result.warnings + ((warning,) if warning else ()), timings=timings,
+                   stability=stability)
 
 
 def run_uhf(molecule: Molecule, basis: BasisSet | str = "sto-3g", options: SCFOptions | None = None, **kwargs) -> UHFResult:
@@ -207,7 +211,8 @@ def run_open_shell(
                     from .uhf_stability import stabilise_uhf
 
                     # converging and following stay apart (as for RHF); finish() times the whole run
-                    result = stabilise_uhf(result, jk, molecule.nuclear_repulsion(), progress=progress)
+                    result = stabilise_uhf(result, jk, molecule.nuclear_repulsion(), progress=progress,
+                                           screen=screen_for(shared, molecule, options))
             elif restricted is not None:
                 from .spherical_atom import solve_spherical_atom
 

@@ -375,7 +375,7 @@ def stability_record(result: RHFResult) -> dict[str, Any]:
     st = result.stability
     if st is None:
         keys = ("stable", "lowest_eigenvalue", "eigenvalues", "threshold", "solutions", "lowest_eigenvalues",
-                "rounds", "hessian_products", "message")
+                "rounds", "hessian_products", "message", "eigenvalues_from", "fitted_products", "screen_fit_basis")
         return {"mode": result.options.stability, **dict.fromkeys(keys)}
     return st.to_dict()
 

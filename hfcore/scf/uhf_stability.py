@@ -17,7 +17,18 @@ Hessian 4 (A + B) of :mod:`hfcore.scf.stability`, whose Davidson solver
 On an RHF solution (C_α = C_β) the same Hessian is the RHF→UHF test: its
 lowest eigenvalue also covers the spin-flipping ("triplet") rotations
 κ_α = −κ_β that RHF cannot make, so a negative one means a lower
-unrestricted (broken-symmetry) solution exists.
+unrestricted (broken-symmetry) solution exists. There the Hessian splits
+exactly into two blocks: on κ_α = κ_β = κ/√2 it is half the RHF Hessian
+4 (A + B) (whose lowest eigenvalue the RHF analysis has already found),
+and on κ_α = −κ_β = κ/√2 the Coulomb part cancels::
+
+    T κ = 2 [F_vv κ − κ F_oo − C_vᵀ K(d_κ) C_o]
+
+so :func:`check_rhf_to_uhf` searches only that block
+(:class:`TripletHessian`), whose products need K alone: several come from
+one multi-density build, and the RHF analysis's own builds have already
+given its products with every rotation that analysis tried, so the search
+starts from their span.
 
 Nothing here prints.
 """
@@ -31,12 +42,22 @@ from dataclasses import replace
 import numpy as np
 
 from ..errors import ConvergenceError
-from .following import CHECK_ANALYSIS, FOLLOW_ANALYSIS, NEW_SOLUTION_MARGIN
+from .following import NEW_SOLUTION_MARGIN, analysis_settings
 from .jk import IncrementalJK, JKBuilder, jk_multi
 from .open_result import UHFResult
 from .uhf import solve_uhf
 from .result import RHFResult, SCFIteration
-from .stability import FOLLOW_ANGLES, StabilityAnalysis, StabilityReport, lowest_eigenpairs, plain_builder, rotate_orbitals
+from .stability_screen import FittedScreen
+from .stability import (
+    FOLLOW_ANGLES,
+    OrbitalHessian,
+    StabilityAnalysis,
+    StabilityReport,
+    analyse_stability,
+    plain_builder,
+    rotate_orbitals,
+    screened_eigenpairs,
+)
 
 from .solver import IterationProgress
 
@@ -96,8 +117,63 @@ class UHFOrbitalHessian:
         return np.concatenate([o.ravel() for o in out])
 
 
+class TripletHessian:
+    """The spin-flipping block of the UHF Hessian of an RHF solution (see the module notes).
+
+    Its eigenvalues are those of the UHF energy Hessian on rotations
+    κ_α = −κ_β = κ/√2 (hartree), for unit-norm κ of shape (nvir, nocc).
+
+    Parameters
+    ----------
+    coefficients : ndarray, shape (nbf, nmo)
+    fock : ndarray, shape (nbf, nbf)
+    n_occ : int
+    jk : JKBuilder
+
+    Attributes
+    ----------
+    diagonal : ndarray, shape (nvir, nocc)
+        2 (F_aa − F_ii), the preconditioner.
+    products : int
+    """
+
+    def __init__(self, coefficients: np.ndarray, fock: np.ndarray, n_occ: int, jk: JKBuilder) -> None:
+        self._rhf = OrbitalHessian(coefficients, fock, n_occ, jk)
+        self.diagonal = 0.5 * self._rhf.diagonal
+        self.products = 0
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return self._rhf.shape
+
+    def __call__(self, x: np.ndarray) -> np.ndarray:
+        return self.block([x])[0]
+
+    def block(self, xs: list[np.ndarray]) -> list[np.ndarray]:
+        """Products with several rotations; their exchange matrices come from one build.
+
+        A builder with thin-factor transitions (the fitted one) takes them
+        all in one pass; any other gets one multi-density build for all
+        (its Coulomb matrix of the sum is not needed).
+        """
+        h = self._rhf
+        lefts = [h.vir @ x for x in xs]
+        transitions = getattr(h.jk, "jk_transitions", None)
+        if transitions is not None:
+            ks = [k for _, k in transitions(lefts, h.occ)]
+        else:
+            halves = [left @ h.occ.T for left in lefts]
+            _, ks = jk_multi(h.jk, np.array([half + half.T for half in halves]))
+        self.products += len(xs)
+        return [2.0 * (h.f_vv @ x - x @ h.f_oo - h.vir.T @ k @ h.occ) for x, k in zip(xs, ks)]
+
+    def release(self) -> None:
+        self._rhf.release()
+
+
 def analyse_uhf_stability(
-    coefficients, focks, n_occ, jk: JKBuilder, *, threshold: float = 1e-5, n_roots: int = 1, tol: float = 1e-3
+    coefficients, focks, n_occ, jk: JKBuilder, *, threshold: float = 1e-5, n_roots: int = 1, tol: float = 1e-3,
+    start: np.ndarray | None = None, screen: FittedScreen | None = None,
 ) -> StabilityAnalysis:
     """Lowest eigenpairs of the UHF orbital Hessian of a solution.
 
@@ -108,8 +184,9 @@ def analyse_uhf_stability(
     focks : pair of ndarray (nbf, nbf)
     n_occ : pair of int
     jk : JKBuilder
-    threshold, n_roots, tol
-        As for :func:`hfcore.scf.stability.analyse_stability`.
+    threshold, n_roots, tol, start, screen
+        As for :func:`hfcore.scf.stability.analyse_stability` (``start`` flat
+        vectors of the shape of the returned ones).
 
     Returns
     -------
@@ -120,24 +197,89 @@ def analyse_uhf_stability(
     hessian = UHFOrbitalHessian(coefficients, focks, n_occ, jk)
     if hessian.diagonal.size == 0:
         return StabilityAnalysis(np.array([np.inf]), np.zeros((1, 0)), threshold, True, 0)
-    values, vectors, converged = lowest_eigenpairs(hessian, hessian.diagonal, n_roots, tol)
-    return StabilityAnalysis(values, vectors, threshold, converged, hessian.products)
+    fitted = None if screen is None else UHFOrbitalHessian(coefficients, focks, n_occ, screen.builder())
+    values, vectors, converged, source = screened_eigenpairs(
+        hessian, fitted, hessian.diagonal, n_roots, tol, threshold, start=start
+    )
+    return StabilityAnalysis(values, vectors, threshold, converged, hessian.products, source,
+                             0 if fitted is None else fitted.products)
 
 
-def check_rhf_to_uhf(result: RHFResult, jk: JKBuilder, *, n_roots: int = 1, tol: float = 1e-3) -> StabilityAnalysis:
+def check_rhf_to_uhf(
+    result: RHFResult, jk: JKBuilder, *, n_roots: int = 1, tol: float = 1e-3, screen: FittedScreen | None = None
+) -> StabilityAnalysis:
     """RHF→UHF stability of a converged RHF solution (see the module notes).
+
+    The lowest eigenvalues of the UHF Hessian are those of its two blocks
+    together: the spin-keeping block is half the RHF Hessian, taken from
+    ``result.stability`` when the RHF analysis ran (else analysed here),
+    and the spin-flipping block is searched with :class:`TripletHessian`.
+
+    Parameters
+    ----------
+    result : RHFResult
+        A converged RHF solution.
+    jk : JKBuilder
+        The builder its SCF used.
+    n_roots, tol
+        Roots and residual tolerance of the search.
+    screen : FittedScreen, optional
+        As for :func:`hfcore.scf.stability.analyse_stability`.
 
     Returns
     -------
     StabilityAnalysis
-        ``stable`` False when a lower unrestricted solution exists.
+        ``stable`` False when a lower unrestricted solution exists; its
+        vectors are flat (α part, then β), ``products`` counts the exact
+        products made here (none for the spin-keeping block when it was
+        taken from ``result.stability``).
     """
-    n = result.n_occupied
-    c = result.coefficients
-    return analyse_uhf_stability(
-        (c, c), (result.fock, result.fock), (n, n), jk, threshold=result.options.stability_threshold,
-        n_roots=n_roots, tol=tol,
+    n, c, threshold = result.n_occupied, result.coefficients, result.options.stability_threshold
+    triplet = TripletHessian(c, result.fock, n, jk)
+    nvir, nocc = triplet.shape
+    if nvir == 0 or nocc == 0:
+        return StabilityAnalysis(np.array([np.inf]), np.zeros((1, 0)), threshold, True, 0)
+    singlet = _spin_keeping_block(result, jk, n_roots, tol, screen)
+    # The RHF analysis's J/K builds already gave the spin-flipping products of its rotations, unit and
+    # spread start vectors included. A screened analysis made exact products only from fitted vectors,
+    # which need not reach every symmetry of the other block: it gets its own screened search.
+    known = singlet.spin_flip_space if screen is None else None
+    fitted = None if screen is None else TripletHessian(c, result.fock, n, screen.builder())
+    try:
+        values, vectors, converged, source = screened_eigenpairs(
+            triplet, fitted, triplet.diagonal, n_roots, tol, threshold, known=known
+        )
+    finally:
+        triplet.release()
+        if fitted is not None:
+            fitted.release()
+    root = np.sqrt(0.5)
+    # Unit-norm UHF vectors: (κ, κ)/√2 on the spin-keeping block, (κ, −κ)/√2 on the spin-flipping one.
+    flat = [root * np.concatenate([v.ravel(), v.ravel()]) for v in singlet.vectors]
+    flat += [root * np.concatenate([v.ravel(), -v.ravel()]) for v in vectors]
+    merged = np.concatenate([singlet.eigenvalues, values])
+    sources = [singlet.eigenvalues_from] * singlet.eigenvalues.size + [source] * values.size
+    order = np.argsort(merged, kind="stable")[: max(1, min(n_roots, merged.size))]
+    lowest_from = sources[int(order[0])]
+    return StabilityAnalysis(
+        merged[order], np.array([flat[i] for i in order]), threshold, converged and singlet.converged,
+        triplet.products + singlet.products, lowest_from,
+        (0 if fitted is None else fitted.products) + singlet.fitted_products,
     )
+
+
+def _spin_keeping_block(result: RHFResult, jk: JKBuilder, n_roots: int, tol: float,
+                        screen: FittedScreen | None) -> StabilityAnalysis:
+    """Eigenpairs of the UHF Hessian on κ_α = κ_β: the RHF analysis's, halved (unit-norm κ of each spin block)."""
+    report = result.stability
+    if report is not None and np.all(np.isfinite(report.eigenvalues)) and report.vector.size:
+        # Only the lowest RHF mode is kept in the report; its eigenvalue is the one that can decide the verdict.
+        return StabilityAnalysis(0.5 * np.asarray(report.eigenvalues[:1]), report.vector[None], report.threshold,
+                                 True, 0, report.eigenvalues_from, spin_flip_space=report.spin_flip_space)
+    own = analyse_stability(result.coefficients, result.fock, result.n_occupied, jk,
+                            threshold=result.options.stability_threshold, n_roots=n_roots, tol=tol, screen=screen,
+                            keep_spin_flip=True)
+    return replace(own, eigenvalues=0.5 * own.eigenvalues)
 
 
 def rhf_to_uhf_warning(analysis: StabilityAnalysis) -> str:
@@ -179,7 +321,8 @@ def _rotated_densities(result: UHFResult, analysis: StabilityAnalysis, jk: JKBui
 
 
 def stabilise_uhf(
-    result: UHFResult, jk: JKBuilder, energy_nuclear: float, *, progress: IterationProgress | None = None
+    result: UHFResult, jk: JKBuilder, energy_nuclear: float, *, progress: IterationProgress | None = None,
+    screen: FittedScreen | None = None,
 ) -> UHFResult:
     """Analyse a converged UHF solution and, in "descend" mode, move to a stable one.
 
@@ -188,7 +331,10 @@ def stabilise_uhf(
     residual of 1e-3 in "descend" mode, three to 1e-4 in "report" mode;
     rotate along the unstable mode by the best angle of
     :data:`hfcore.scf.stability.FOLLOW_ANGLES`, converge again, at most
-    ``stability_rounds`` times.
+    ``stability_rounds`` times. Each search starts also from the previous
+    solution's modes; ``screen`` (see
+    :func:`hfcore.scf.stability.screened_eigenpairs`) gives fitted products
+    for the search first.
 
     Returns
     -------
@@ -205,16 +351,18 @@ def stabilise_uhf(
     aids = list(result.aids)
     scf_time = result.timings.get("scf", 0.0)
     later_scf = 0.0
-    products = 0
+    products = fitted_products = 0
     rounds = 0
-    check = options.stability == "report" and not isinstance(jk, IncrementalJK)
-    n_roots, tol = CHECK_ANALYSIS if check else FOLLOW_ANALYSIS
+    n_roots, tol = analysis_settings(options.stability, jk)
+    start = None
     while True:
         analysis = analyse_uhf_stability(
             (result.coefficients_alpha, result.coefficients_beta), (result.fock_alpha, result.fock_beta),
             (result.n_alpha, result.n_beta), jk, threshold=options.stability_threshold, n_roots=n_roots, tol=tol,
+            start=start, screen=screen,
         )
         products += analysis.products
+        fitted_products += analysis.fitted_products
         lowest.append(analysis.lowest_eigenvalue)
         if analysis.stable:
             plural = "instability" if rounds == 1 else "instabilities"
@@ -247,10 +395,13 @@ def stabilise_uhf(
             break
         result = new
         energies.append(result.energy_total)
+        start = analysis.vectors  # the previous solution's modes start the next search
     report = StabilityReport(
         mode=options.stability, stable=analysis.stable, lowest_eigenvalue=analysis.lowest_eigenvalue,
         eigenvalues=analysis.eigenvalues, vector=analysis.mode, threshold=options.stability_threshold,
         solutions=energies, lowest_eigenvalues=lowest, rounds=rounds, hessian_products=products, message=message,
+        eigenvalues_from=analysis.eigenvalues_from, fitted_products=fitted_products,
+        screen_fit_basis=None if screen is None else screen.fit_basis,
     )
     timings = {**result.timings, "scf": scf_time + later_scf, "stability": time.perf_counter() - t0 - later_scf}
     run_message = result.message
@@ -264,6 +415,7 @@ def stabilise_uhf(
 
 __all__ = [
     "UHFOrbitalHessian",
+    "TripletHessian",
     "analyse_uhf_stability",
     "check_rhf_to_uhf",
     "rhf_to_uhf_warning",
