@@ -138,3 +138,15 @@ def test_a_large_store_is_screened_like_the_direct_mode():
                                 eri_bytes=SCREENED_STORE_BYTES)
     assert screen is not None and screen.fit_basis == "def2-universal-JKFIT"
     assert screens("direct", 0) and not screens("stored", SCREENED_STORE_BYTES - 1)
+
+
+def test_the_report_says_when_the_eigenvalues_come_from_fitted_products(tmp_path):
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    water = Path(__file__).resolve().parent.parent / "inputs" / "water.xyz"
+    done = subprocess.run([sys.executable, "-m", "hfcore", "energy", str(water), "--basis", "6-31g", "--direct",
+                           "--quiet"], capture_output=True, text=True, timeout=300, cwd=tmp_path)
+    assert done.returncode == 0, done.stderr
+    assert "density-fitted products" in done.stdout and "exact, " in done.stdout

@@ -230,7 +230,14 @@ def format_stability(result: Any) -> str:
         else:
             rows.append(("lowest eigenvalue", "none (no occupied-virtual rotation in this basis)"))
         rows.append(("solutions / Eh", " → ".join(f"{e:.10f}" for e in st.solutions)))
-        rows.append(("Hessian products", str(st.hessian_products)))
+        products = str(st.hessian_products)
+        if getattr(st, "fitted_products", 0):
+            fit = getattr(st, "screen_fit_basis", None) or "a fitting set"
+            products += f" exact, {st.fitted_products} density-fitted ({fit})"
+        rows.append(("Hessian products", products))
+        if getattr(st, "eigenvalues_from", "exact") == "fitted":
+            rows.append(("eigenvalues from", "density-fitted products (far from the threshold; exact ones are "
+                         "used near it)"))
     if result.method == "ROHF":
         rows[0] = ("internal stability", "not analysed for ROHF (use --uhf for the UHF stability analysis)")
         if getattr(result, "restriction", None):
