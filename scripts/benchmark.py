@@ -378,11 +378,8 @@ TABLE_CASES = [
 STARTUP_CASE = ("water/STO-3G", "water.xyz", "sto-3g")
 STARTUP_REPEATS = 3
 
-#: The reference side of --table: the plain RHF of the reference library on dumped shells.
-_REFERENCE_SCRIPT = """
-import json, sys
-from pyscf import gto, lib, scf
-lib.num_threads(int(sys.argv[2]))
+#: The reference library's RHF object on dumped shells (read from the job file), shared by the scripts below.
+_REFERENCE_RHF = """
 job = json.load(open(sys.argv[1]))
 def shells(dump):
     atoms, basis = [], {}
@@ -396,7 +393,14 @@ mol = gto.M(atom=atoms, basis=basis, unit="Bohr", charge=job["orbital"]["charge"
 mf = scf.RHF(mol)
 if job["fit"] is not None:
     mf = mf.density_fit(auxbasis=shells(job["fit"])[1])
-mf.conv_tol = job["energy_tol"]
+"""
+
+#: The reference side of --table: the plain RHF of the reference library on dumped shells.
+_REFERENCE_SCRIPT = """
+import json, sys
+from pyscf import gto, lib, scf
+lib.num_threads(int(sys.argv[2]))
+""" + _REFERENCE_RHF + """mf.conv_tol = job["energy_tol"]
 mf.conv_tol_grad = job["gradient_tol"]
 print(json.dumps({"energy": float(mf.kernel()), "converged": bool(mf.converged)}))
 """
@@ -627,20 +631,7 @@ _REFERENCE_STABILITY = """
 import json, sys, time
 from pyscf import gto, lib, scf
 lib.num_threads(1)
-job = json.load(open(sys.argv[1]))
-def shells(dump):
-    atoms, basis = [], {}
-    for k, (label, r) in enumerate(dump["atoms"]):
-        atoms.append((label, r))
-        basis[label] = [[l] + [[e, *cs] for e, cs in zip(exps, zip(*coefs))] for l, exps, coefs in dump["per_atom"][str(k)]]
-    return atoms, basis
-atoms, basis = shells(job["orbital"])
-mol = gto.M(atom=atoms, basis=basis, unit="Bohr", charge=job["orbital"]["charge"], cart=not job["spherical"],
-            verbose=0, max_memory=job["memory_mb"])
-mf = scf.RHF(mol)
-if job["fit"] is not None:
-    mf = mf.density_fit(auxbasis=shells(job["fit"])[1])
-if job["direct"]:
+""" + _REFERENCE_RHF + """if job["direct"]:
     mf.direct_scf = True
     mf._eri = None
     mf.max_memory = 1
