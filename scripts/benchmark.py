@@ -79,7 +79,7 @@ FITTED_CASES = [
 ]
 #: Fitted water-cluster series in cc-pVTZ (58 functions per water); run with --fitted-scaling.
 FITTED_SCALING = [
-    (f"(H2O){n}/cc-pVTZ/DF", f"water_cluster_{n}.xyz", "cc-pvtz", "cc-pvtz-jkfit") for n in (2, 4, 6, 8, 10, 14)
+    (f"(H2O){n}/cc-pVTZ/DF", f"water_cluster_{n}.xyz", "cc-pvtz", "cc-pvtz-jkfit") for n in (2, 4, 6, 8, 10, 14, 18, 27)
 ]
 #: Exact (stored) benzene in cc-pVTZ, 264 functions: minutes per program.
 EXACT_TZ = [("benzene/cc-pVTZ", "benzene.xyz", "cc-pvtz", None)]
