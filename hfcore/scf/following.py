@@ -9,7 +9,9 @@ by that same function.
 from __future__ import annotations
 
 import time
+from collections.abc import Callable
 from dataclasses import replace
+from typing import Any
 
 import numpy as np
 
@@ -74,6 +76,60 @@ def stabilise(
         all solutions concatenated (``SCFIteration.solution`` tells them
         apart), ``iterations`` their total and the aids of all runs.
     """
+    n_roots, tol = analysis_settings(result.options.stability, jk)
+
+    def analyse(current: RHFResult, start: np.ndarray | None) -> StabilityAnalysis:
+        return analyse_stability(
+            current.coefficients, current.fock, current.n_occupied, jk,
+            threshold=current.options.stability_threshold, n_roots=n_roots, tol=tol, start=start, screen=screen,
+            keep_spin_flip=True,
+        )
+
+    def reconverge(current: RHFResult, analysis: StabilityAnalysis, inner, solution: int) -> RHFResult:
+        density = _rotated_density(current, analysis, jk, energy_nuclear)
+        if isinstance(jk, IncrementalJK):
+            jk.reset()
+        return converge_rhf(
+            current.overlap, current.core_hamiltonian, jk, n_electrons, energy_nuclear, inner, density,
+            progress=progress, solution=solution,
+        )
+
+    return follow_instabilities(result, analyse, reconverge, "RHF", screen)
+
+
+def follow_instabilities(
+    result: Any,
+    analyse: Callable[[Any, np.ndarray | None], StabilityAnalysis],
+    reconverge: Callable[[Any, StabilityAnalysis, Any, int], Any],
+    method: str,
+    screen: FittedScreen | None = None,
+) -> Any:
+    """The rounds of stability following shared by RHF and UHF (see :func:`stabilise`).
+
+    Parameters
+    ----------
+    result : RHFResult or UHFResult
+        A converged solution; its ``options`` decide the mode.
+    analyse : callable
+        ``analyse(solution, start)``: the stability analysis of a solution,
+        the previous solution's modes (or None) as start vectors.
+    reconverge : callable
+        ``reconverge(solution, analysis, options, n)``: the SCF from the
+        solution turned along the analysis's unstable mode, as solution n
+        (``options`` is the run's with stability "skip"); raises
+        ConvergenceError when it does not converge.
+    method : str
+        "RHF" or "UHF", for the messages.
+    screen : FittedScreen, optional
+        Named in the report when the analysis used fitted products.
+
+    Returns
+    -------
+    RHFResult or UHFResult
+        The final solution with ``stability`` filled in, the histories of
+        all solutions concatenated, ``iterations`` their total and the aids
+        of all runs.
+    """
     t0 = time.perf_counter()
     options = result.options
     inner = replace(options, stability="skip")
@@ -88,7 +144,7 @@ def stabilise(
     rounds = 0
     start = None
     while True:
-        analysis = _analyse(result, jk, screen, start)
+        analysis = analyse(result, start)
         products += analysis.products
         fitted_products += analysis.fitted_products
         lowest.append(analysis.lowest_eigenvalue)
@@ -97,19 +153,13 @@ def stabilise(
             message = "stable" if rounds == 0 else f"stable after following {rounds} {plural}"
             break
         if options.stability == "report":
-            message = "unstable: a lower RHF solution exists (not followed in report mode)"
+            message = f"unstable: a lower {method} solution exists (not followed in report mode)"
             break
         if rounds >= options.stability_rounds:
             message = f"still unstable after {rounds} rotations (the limit, stability_rounds)"
             break
-        density = _rotated_density(result, analysis, jk, energy_nuclear)
-        if isinstance(jk, IncrementalJK):
-            jk.reset()
         try:
-            new = converge_rhf(
-                result.overlap, result.core_hamiltonian, jk, n_electrons, energy_nuclear, inner, density,
-                progress=progress, solution=rounds + 1,
-            )
+            new = reconverge(result, analysis, inner, rounds + 1)
         except ConvergenceError as exc:
             message = (
                 f"unstable; the SCF after rotation {rounds + 1} did not converge ({exc}), "
@@ -143,7 +193,7 @@ def stabilise(
         eigenvalues_from=analysis.eigenvalues_from,
         fitted_products=fitted_products,
         screen_fit_basis=None if screen is None else screen.fit_basis,
-        spin_flip_space=analysis.spin_flip_space,
+        spin_flip_space=getattr(analysis, "spin_flip_space", None),
     )
     timings = {**result.timings, "scf": scf_time + later_scf, "stability": time.perf_counter() - t0 - later_scf}
     run_message = result.message
@@ -164,17 +214,6 @@ def stabilise(
 #: mode), where it too seeks only the lowest.
 FOLLOW_ANALYSIS: tuple[int, float] = (1, 1e-3)
 CHECK_ANALYSIS: tuple[int, float] = (3, 1e-4)
-
-
-def _analyse(
-    result: RHFResult, jk: JKBuilder, screen: FittedScreen | None = None, start: np.ndarray | None = None
-) -> StabilityAnalysis:
-    n_roots, tol = analysis_settings(result.options.stability, jk)
-    return analyse_stability(
-        result.coefficients, result.fock, result.n_occupied, jk,
-        threshold=result.options.stability_threshold, n_roots=n_roots, tol=tol, start=start, screen=screen,
-        keep_spin_flip=True,
-    )
 
 
 def analysis_settings(mode: str, jk: JKBuilder) -> tuple[int, float]:
@@ -200,4 +239,4 @@ def _rotated_density(
     return best_density
 
 
-__all__ = ["stabilise", "NEW_SOLUTION_MARGIN", "FOLLOW_ANALYSIS", "CHECK_ANALYSIS", "analysis_settings"]
+__all__ = ["stabilise", "follow_instabilities", "NEW_SOLUTION_MARGIN", "FOLLOW_ANALYSIS", "CHECK_ANALYSIS", "analysis_settings"]

@@ -35,14 +35,12 @@ Nothing here prints.
 
 from __future__ import annotations
 
-import time
 from collections.abc import Callable
 from dataclasses import replace
 
 import numpy as np
 
-from ..errors import ConvergenceError
-from .following import NEW_SOLUTION_MARGIN, analysis_settings
+from .following import analysis_settings, follow_instabilities
 from .jk import IncrementalJK, JKBuilder, jk_multi
 from .open_result import UHFResult
 from .uhf import solve_uhf
@@ -342,75 +340,25 @@ def stabilise_uhf(
         The final solution with ``stability`` filled in and the histories
         of all solutions concatenated.
     """
-    t0 = time.perf_counter()
-    options = result.options
-    inner = replace(options, stability="skip")
-    energies = [result.energy_total]
-    lowest: list[float] = []
-    history = list(result.history)
-    aids = list(result.aids)
-    scf_time = result.timings.get("scf", 0.0)
-    later_scf = 0.0
-    products = fitted_products = 0
-    rounds = 0
-    n_roots, tol = analysis_settings(options.stability, jk)
-    start = None
-    while True:
-        analysis = analyse_uhf_stability(
-            (result.coefficients_alpha, result.coefficients_beta), (result.fock_alpha, result.fock_beta),
-            (result.n_alpha, result.n_beta), jk, threshold=options.stability_threshold, n_roots=n_roots, tol=tol,
-            start=start, screen=screen,
+    n_roots, tol = analysis_settings(result.options.stability, jk)
+
+    def analyse(current: UHFResult, start: np.ndarray | None) -> StabilityAnalysis:
+        return analyse_uhf_stability(
+            (current.coefficients_alpha, current.coefficients_beta), (current.fock_alpha, current.fock_beta),
+            (current.n_alpha, current.n_beta), jk, threshold=current.options.stability_threshold, n_roots=n_roots,
+            tol=tol, start=start, screen=screen,
         )
-        products += analysis.products
-        fitted_products += analysis.fitted_products
-        lowest.append(analysis.lowest_eigenvalue)
-        if analysis.stable:
-            plural = "instability" if rounds == 1 else "instabilities"
-            message = "stable" if rounds == 0 else f"stable after following {rounds} {plural}"
-            break
-        if options.stability == "report":
-            message = "unstable: a lower UHF solution exists (not followed in check mode)"
-            break
-        if rounds >= options.stability_rounds:
-            message = f"still unstable after {rounds} rotations (the limit, stability_rounds)"
-            break
-        densities = _rotated_densities(result, analysis, jk, energy_nuclear)
+
+    def reconverge(current: UHFResult, analysis: StabilityAnalysis, inner, solution: int) -> UHFResult:
+        densities = _rotated_densities(current, analysis, jk, energy_nuclear)
         if isinstance(jk, IncrementalJK):
             jk.reset()
-        try:
-            new = solve_uhf(
-                result.overlap, result.core_hamiltonian, jk, result.n_alpha, result.n_beta, energy_nuclear, inner,
-                densities, progress=progress, _solution=rounds + 1,
-            )
-        except ConvergenceError as exc:
-            message = f"unstable; the SCF after rotation {rounds + 1} did not converge ({exc}), so the previous solution is kept"
-            break
-        rounds += 1
-        history.extend(new.history)
-        aids.extend(a for a in new.aids if a not in aids)
-        later_scf += new.timings.get("scf", 0.0)
-        if new.energy_total > result.energy_total - NEW_SOLUTION_MARGIN:
-            energies.append(new.energy_total)
-            message = "unstable; following the lowest mode led back to no lower solution, so that one is kept"
-            break
-        result = new
-        energies.append(result.energy_total)
-        start = analysis.vectors  # the previous solution's modes start the next search
-    report = StabilityReport(
-        mode=options.stability, stable=analysis.stable, lowest_eigenvalue=analysis.lowest_eigenvalue,
-        eigenvalues=analysis.eigenvalues, vector=analysis.mode, threshold=options.stability_threshold,
-        solutions=energies, lowest_eigenvalues=lowest, rounds=rounds, hessian_products=products, message=message,
-        eigenvalues_from=analysis.eigenvalues_from, fitted_products=fitted_products,
-        screen_fit_basis=None if screen is None else screen.fit_basis,
-    )
-    timings = {**result.timings, "scf": scf_time + later_scf, "stability": time.perf_counter() - t0 - later_scf}
-    run_message = result.message
-    if len(energies) > 1:
-        run_message = f"converged in {len(history)} iterations over {len(energies)} solutions"
-    return replace(
-        result, options=options, stability=report, history=history, iterations=len(history), aids=tuple(aids),
-        timings=timings, message=run_message,
-    )
+        return solve_uhf(
+            current.overlap, current.core_hamiltonian, jk, current.n_alpha, current.n_beta, energy_nuclear, inner,
+            densities, progress=progress, _solution=solution,
+        )
+
+    return follow_instabilities(result, analyse, reconverge, "UHF", screen)
 
 
 __all__ = [
