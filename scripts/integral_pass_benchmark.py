@@ -73,12 +73,12 @@ def _load(path: str, basis_name: str):
 
 
 def _shell_dump(mol, basis) -> dict:
-    per_atom: dict[int, list] = {}
-    for s in basis.shells:
-        per_atom.setdefault(s.atom, []).append((s.l, s.exponents.tolist(), s.coefficients.tolist()))
+    """The shells of benchmark.py's dump, with the spherical choice and 2S beside them."""
+    sys.path.insert(0, str(Path(__file__).resolve().parent))
+    import benchmark
+
     return {
-        "atoms": [(int(z), list(map(float, r))) for z, r in zip(mol.atomic_numbers, mol.coordinates)],
-        "per_atom": per_atom,
+        **benchmark._shell_dump(mol, basis),
         "spherical": bool(basis.spherical),
         "charge": int(mol.charge),
         "spin": int(getattr(mol, "multiplicity", 1) or 1) - 1,
