@@ -774,12 +774,20 @@ def main(argv: list[str] | None = None) -> int:
     if args.only:
         fitted = [c for c in fitted if c[0] in wanted]
     rows = []
+
+    def keep(row: dict) -> None:
+        # Each finished case is written at once, so a long series stopped by a time limit keeps its figures.
+        rows.append(row)
+        print(f"  {json.dumps(row)}", file=sys.stderr, flush=True)
+        if args.json and args.json != "-":
+            Path(args.json).write_text(json.dumps({"threads": args.threads, "rows": rows, "partial": True}, indent=2) + "\n")
+
     for label, geometry, basis, spherical in cases:
         print(f"running {label} ...", file=sys.stderr, flush=True)
-        rows.append(run_case(label, geometry, basis, spherical, args.threads))
+        keep(run_case(label, geometry, basis, spherical, args.threads))
     for label, geometry, basis, fit in fitted:
         print(f"running {label} ...", file=sys.stderr, flush=True)
-        rows.append(run_fitted_case(label, geometry, basis, fit, args.threads))
+        keep(run_fitted_case(label, geometry, basis, fit, args.threads))
     summary = {}
     fitted_series = [r for r in rows if r["case"].startswith("(H2O)") and r["case"].endswith("/DF") and "error" not in r]
     if fitted_series:
